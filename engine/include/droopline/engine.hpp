@@ -1,0 +1,174 @@
+#pragma once
+/// The fixed-step frequency-response engine: create from a SystemDef, step, read.
+#include <cstdint>
+#include <memory>
+#include <optional>
+#include <span>
+#include <string>
+#include <string_view>
+#include <vector>
+
+#include "droopline/defs.hpp"
+#include "droopline/validate.hpp"
+
+namespace droopline {
+
+/// Dense index of an area, checked when used.
+struct AreaId { std::uint32_t index = 0; };
+/// Dense index of a unit (file order), checked when used.
+struct UnitId { std::uint32_t index = 0; };
+/// Dense index of a tie, checked when used.
+struct TieId { std::uint32_t index = 0; };
+
+/// Operating state of a unit.
+enum class UnitStatus { online, at_max, at_min, tripped };
+/// File and message name of a UnitStatus.
+const char* to_string(UnitStatus s);
+
+/// Snapshot of one area after the last step.
+struct AreaState {
+  double f_hz = 0.0;           ///< area frequency (Hz)
+  double rocof_hz_per_s = 0.0; ///< d f / dt at the end of the last step (Hz/s)
+  double demand_mw = 0.0;      ///< load including frequency dependence, steps, shedding, noise
+  double generation_mw = 0.0;  ///< sum of online units' mechanical power (MW)
+  double export_mw = 0.0;      ///< net flow out over in-service ties (MW)
+  double scheduled_export_mw = 0.0; ///< exchange schedule the ACE compares against (MW)
+  double ace_mw = 0.0;         ///< area control error (MW), computed whether or not AGC runs
+  double agc_mw = 0.0;         ///< total secondary-control correction now applied (MW)
+  double shed_mw = 0.0;        ///< load disconnected by under-frequency shedding (MW)
+  double inertia_mws_per_hz = 0.0; ///< M = 2*sum(H*S)/f0 of online synchronous units
+  bool agc_enabled = false;
+  bool collapsed = false;      ///< lost all synchronous inertia: no longer integrated
+  int island = 0;              ///< index of the island the area belongs to
+};
+
+/// Snapshot of one unit after the last step.
+struct UnitState {
+  double p_mw = 0.0;           ///< mechanical (battery: electrical) output (MW)
+  double setpoint_mw = 0.0;    ///< current dispatch setpoint (MW)
+  double agc_mw = 0.0;         ///< secondary-control correction (MW)
+  double valve_mw = 0.0;       ///< valve / gate position in MW terms (battery: output)
+  double headroom_up_mw = 0.0; ///< max_mw - p_mw
+  double headroom_down_mw = 0.0; ///< p_mw - min_mw
+  double droop = 0.0;          ///< current R (pu)
+  double deadband_hz = 0.0;    ///< current half-width (Hz)
+  DeadbandKind deadband = DeadbandKind::offset;
+  GovernorMode mode = GovernorMode::droop;
+  double energy_mwh = 0.0;     ///< battery: stored energy (MWh); 0 for other types
+  UnitStatus status = UnitStatus::online;
+};
+
+/// Snapshot of one tie after the last step.
+struct TieState {
+  double flow_mw = 0.0;        ///< from -> to (MW), 0 when out of service
+  double angle_deg = 0.0;      ///< theta_from - theta_to, unwrapped (deg)
+  double scheduled_mw = 0.0;   ///< initial exchange (MW)
+  bool in_service = true;
+};
+
+/// One unit's part in a disturbance.
+struct UnitResponse {
+  std::uint32_t unit = 0;                   ///< unit index
+  double p_at_start_mw = 0.0;               ///< output when the disturbance began (MW)
+  std::optional<double> response_10s_mw;    ///< change in output 10 s after (MW)
+  std::optional<double> response_30s_mw;    ///< change in output 30 s after (MW)
+  double predicted_mw = 0.0;                ///< static droop share: S/(R f0) * (f0 - predicted f)
+};
+
+/// Metrics of one disturbance in one island, filled in as the run goes.
+struct Disturbance {
+  CommandKind kind = CommandKind::load_step; ///< first cause
+  std::string cause;                       ///< readable description of every cause at t0
+  double at_s = 0.0;                       ///< t0 (s)
+  std::vector<std::uint32_t> areas;        ///< areas of the island (indices)
+  double delta_mw = 0.0;                   ///< imbalance, positive = deficit (MW)
+  double pre_hz = 0.0;                     ///< mean frequency over up to 16 s before t0 (Hz)
+  std::optional<double> rocof_hz_per_s;    ///< (f(t0+0.5) - f(t0)) / 0.5 (Hz/s)
+  bool zenith = false;                     ///< true for a surplus: the extreme is a maximum
+  std::optional<double> nadir_hz;          ///< lowest (zenith: highest) frequency (Hz)
+  std::optional<double> nadir_at_s;        ///< time of that extreme (s, absolute)
+  std::optional<double> settling_hz;       ///< mean over t0+20 .. t0+52 s (Hz)
+  std::optional<double> response_mw_per_0p1hz; ///< delta_mw / (10 * (pre_hz - settling_hz))
+  double predicted_settling_hz = 0.0;      ///< f0 - delta_mw / sum(beta), limits ignored (Hz)
+  std::vector<UnitResponse> units;         ///< every online unit of the island
+  bool open = true;                        ///< still collecting (the window has not ended)
+};
+
+/// Something that happened inside the engine (trip, shedding, out-of-step, collapse, command).
+struct Notice {
+  double t_s = 0.0;
+  std::string kind;   ///< `command`, `unit_trip`, `shedding`, `out_of_step`, `collapse`, `limit`, ...
+  std::string text;   ///< one readable line
+};
+
+/// Result of applying a command between steps.
+struct ApplyResult {
+  bool ok = false;
+  std::string error;  ///< `path: message` when not ok
+  double at_s = 0.0;  ///< simulation time at which the command took effect
+};
+
+class Engine;
+
+/// Result of Engine::create: an engine, or the errors that stop one being made.
+struct CreateResult {
+  std::unique_ptr<Engine> engine;  ///< null when the definition has errors
+  std::vector<Issue> issues;       ///< errors and warnings
+};
+
+/// Fixed-step RK4 simulation of areas, units and ties. Not thread-safe: drive it from one thread.
+class Engine {
+ public:
+  /// Validates and copies the definition; no engine when it has errors.
+  static CreateResult create(const SystemDef& def);
+  ~Engine();
+  Engine(const Engine&) = delete;
+  Engine& operator=(const Engine&) = delete;
+
+  /// Applies the scheduled events due now, then advances exactly one step.
+  void step();
+  /// Steps until duration_s (or until `max_steps` more steps were taken).
+  void run(std::int64_t max_steps = INT64_MAX);
+  /// True once the scenario's duration is reached (step() may still be called: it runs on).
+  bool finished() const;
+  /// Closes the metric windows that are still open (end of run); values not reached stay empty.
+  void close_disturbances();
+
+  /// Applies one command now (between steps). Disturbing commands open a metrics record.
+  ApplyResult apply(const Command& command);
+  /// Applies several commands atomically: all when every one validates, else none.
+  ApplyResult apply_all(std::span<const Command> commands);
+
+  /// Simulation time (s) = step_index * step_s.
+  double time_s() const;
+  /// Number of steps taken.
+  std::int64_t step_index() const;
+  /// The copied definition (events included).
+  const SystemDef& def() const;
+
+  std::optional<AreaId> find_area(std::string_view id) const;  ///< by scenario id
+  std::optional<UnitId> find_unit(std::string_view id) const;  ///< by scenario id
+  std::optional<TieId> find_tie(std::string_view id) const;    ///< by scenario id
+  AreaState area(AreaId id) const;  ///< throws std::out_of_range on a bad id
+  UnitState unit(UnitId id) const;  ///< throws std::out_of_range on a bad id
+  TieState tie(TieId id) const;     ///< throws std::out_of_range on a bad id
+
+  /// Every disturbance so far, in order of time.
+  const std::vector<Disturbance>& disturbances() const;
+  /// Notices since the last call, oldest first.
+  std::vector<Notice> take_notices();
+
+  /// Column names of a series row: t_s, <area>.f_hz..., <unit>.p_mw..., <tie>.flow_mw...
+  std::vector<std::string> series_columns() const;
+  /// Writes one series row (same order as series_columns) into `row`.
+  void sample(std::span<double> row) const;
+  /// Number of values in a series row.
+  std::size_t series_width() const;
+
+ private:
+  struct Impl;
+  explicit Engine(std::unique_ptr<Impl> impl);
+  std::unique_ptr<Impl> impl_;
+};
+
+}  // namespace droopline

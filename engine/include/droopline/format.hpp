@@ -1,0 +1,16 @@
+#pragma once
+/// Number formatting shared by messages and files.
+#include <string>
+
+namespace droopline {
+
+/// Up to 6 significant digits, no trailing zeros: for messages (`-0.05`, `1e+10`).
+std::string fmt_num(double v);
+/// Fixed number of decimals: for totals in messages (`fmt_fixed(912.04, 1)` = `912.0`).
+std::string fmt_fixed(double v, int decimals);
+/// Shortest text that reads back to the same double: for series and summaries (`nan` never occurs).
+std::string fmt_exact(double v);
+/// Appends fmt_exact(v) to out without a temporary string.
+void append_exact(std::string& out, double v);
+
+}  // namespace droopline

@@ -1,0 +1,60 @@
+#pragma once
+/// The boundary between files and the engine: scenario and command parsing (JSON text to
+/// validated definitions, or every problem as `path: message`), and the run outputs
+/// (series CSV rows and the summary JSON).
+#include <optional>
+#include <string>
+#include <string_view>
+#include <vector>
+
+#include <nlohmann/json_fwd.hpp>
+
+#include "droopline/defs.hpp"
+#include "droopline/engine.hpp"
+#include "droopline/validate.hpp"
+
+namespace droopline {
+
+/// A parsed and validated scenario, or the reasons there is none.
+struct LoadResult {
+  std::optional<SystemDef> def;  ///< set only when there are no errors
+  std::vector<Issue> issues;     ///< errors first, then warnings
+};
+
+/// Parses JSON text into a validated SystemDef. Unknown fields, wrong types, missing required
+/// fields, duplicate keys and every semantic problem of validate() are reported together.
+LoadResult parse_scenario(std::string_view json_text);
+/// Reads a file and parses it; an unreadable file is one error under the path "file".
+LoadResult load_scenario_file(const std::string& path);
+
+/// Commands parsed from one JSON body (an object or an array of objects), without `at_s`.
+struct CommandParse {
+  std::vector<Command> commands;
+  std::vector<Issue> issues;  ///< empty when every command parsed
+};
+/// Parses a command body; checks shape and types only (references are checked on apply).
+CommandParse parse_commands(std::string_view json_text);
+
+/// The scenario as JSON in the file format (defaults made explicit).
+nlohmann::json scenario_to_json(const SystemDef& def);
+/// One command as JSON in the file format (no `at_s`).
+nlohmann::json command_to_json(const Command& command);
+/// One disturbance record as JSON (null for metrics not reached).
+nlohmann::json disturbance_to_json(const Engine& engine, const Disturbance& d);
+/// The run summary: disturbances, final state, notices and warnings.
+nlohmann::json summary_to_json(const Engine& engine, const std::vector<Notice>& notices,
+                               const std::vector<Issue>& warnings);
+
+/// Formats series rows as CSV with a fixed, locale-free number format (shortest round trip).
+class SeriesCsv {
+ public:
+  /// The header line (with newline) for an engine's columns.
+  static std::string header(const Engine& engine);
+  /// Appends the engine's current row (with newline) to `out`.
+  void append_row(const Engine& engine, std::string& out);
+
+ private:
+  std::vector<double> row_;
+};
+
+}  // namespace droopline

@@ -1,0 +1,32 @@
+#include "droopline/format.hpp"
+
+#include <charconv>
+#include <cstdio>
+
+namespace droopline {
+
+std::string fmt_num(double v) {
+  char buf[32];
+  std::snprintf(buf, sizeof buf, "%.6g", v);
+  return buf;
+}
+
+std::string fmt_fixed(double v, int decimals) {
+  char buf[64];
+  std::snprintf(buf, sizeof buf, "%.*f", decimals, v);
+  return buf;
+}
+
+void append_exact(std::string& out, double v) {
+  char buf[32];
+  auto res = std::to_chars(buf, buf + sizeof buf, v);
+  out.append(buf, res.ptr);
+}
+
+std::string fmt_exact(double v) {
+  std::string s;
+  append_exact(s, v);
+  return s;
+}
+
+}  // namespace droopline

@@ -1,0 +1,58 @@
+#!/usr/bin/env bash
+# droopline developer entry point: one script for set-up, build, tests, the demo and benchmarks.
+#   bash scripts/dev.sh demo    install what is missing, build, run the bundled demo scenario
+#   bash scripts/dev.sh test    install what is missing, build with warnings as errors, run all tests
+#   bash scripts/dev.sh setup | build | bench
+set -euo pipefail
+cd "$(dirname "$0")/.."
+
+# Debian 12 packages the build, the tests and the benchmarks need.
+PACKAGES=(cmake ninja-build g++ pkg-config libboost-dev nlohmann-json3-dev libspdlog-dev catch2
+          python3-scipy python3-numpy)
+
+setup() {
+  local missing=()
+  for p in "${PACKAGES[@]}"; do
+    dpkg-query -W -f='${Status}' "$p" 2>/dev/null | grep -q "install ok installed" || missing+=("$p")
+  done
+  if [ ${#missing[@]} -eq 0 ]; then
+    echo "setup: all ${#PACKAGES[@]} packages present"
+    return
+  fi
+  local sudo=""
+  [ "$(id -u)" -eq 0 ] || sudo="sudo"
+  echo "setup: installing ${missing[*]}"
+  $sudo apt-get update -qq
+  DEBIAN_FRONTEND=noninteractive $sudo apt-get install -y -qq --no-install-recommends "${missing[@]}"
+}
+
+build() {  # build PRESET
+  local preset="${1:-release}"
+  cmake --preset "$preset" >/dev/null
+  cmake --build --preset "$preset" -j "$(nproc)"
+}
+
+case "${1:-}" in
+  setup) setup ;;
+  build) setup; build release ;;
+  test)
+    setup
+    build ci
+    ctest --preset ci -j "$(nproc)"
+    ;;
+  demo)
+    setup
+    build release
+    scenario="${2:-scenarios/demo_island.json}"
+    ./build/release/server/droopline run "$scenario" --out out/demo
+    ;;
+  bench)
+    setup
+    build release
+    ./build/release/tests/bench/droopline-bench "${@:2}"
+    ;;
+  *)
+    sed -n '2,6p' "$0" | sed 's/^# \{0,1\}//'
+    exit 2
+    ;;
+esac

@@ -1,0 +1,208 @@
+#include "cli_run.hpp"
+
+#include <unistd.h>
+
+#include <chrono>
+#include <cmath>
+#include <cstdio>
+#include <filesystem>
+#include <fstream>
+#include <iostream>
+
+#include <nlohmann/json.hpp>
+
+#include "droopline/format.hpp"
+#include "droopline/scenario_io.hpp"
+
+namespace droopline::cli {
+namespace {
+
+namespace fs = std::filesystem;
+
+void print_issues(const std::vector<Issue>& issues, const std::string& file) {
+  for (const Issue& i : issues)
+    std::cerr << file << ": " << (i.warning ? "warning: " : "error: ") << i.text() << "\n";
+}
+
+// A file that appears under its final name only when complete: written to a hidden temporary
+// name beside it and renamed (atomic on one filesystem); removed if never committed.
+class AtomicFile {
+ public:
+  explicit AtomicFile(fs::path final_path) : final_(std::move(final_path)) {
+    std::string name(1, '.');
+    name += final_.filename().string();
+    name += ".partial-";
+    name += std::to_string(::getpid());
+    temp_ = final_.parent_path() / name;
+    out_.open(temp_, std::ios::binary | std::ios::trunc);
+  }
+  ~AtomicFile() {
+    if (!committed_) {
+      out_.close();
+      std::error_code ec;
+      fs::remove(temp_, ec);
+    }
+  }
+  bool ok() const { return static_cast<bool>(out_); }
+  std::ofstream& stream() { return out_; }
+  bool commit() {
+    out_.flush();
+    out_.close();
+    if (!out_) return false;
+    std::error_code ec;
+    fs::rename(temp_, final_, ec);
+    committed_ = !ec;
+    return committed_;
+  }
+  const fs::path& temp() const { return temp_; }
+
+ private:
+  fs::path final_, temp_;
+  std::ofstream out_;
+  bool committed_ = false;
+};
+
+class Progress {
+ public:
+  explicit Progress(bool enabled) : enabled_(enabled), last_(std::chrono::steady_clock::now()) {}
+  void update(double done, double total) {
+    if (!enabled_) return;
+    const auto now = std::chrono::steady_clock::now();
+    if (now - last_ < std::chrono::milliseconds(200)) return;
+    last_ = now;
+    shown_ = true;
+    const int width = 40;
+    const double frac = total > 0 ? std::min(1.0, done / total) : 1.0;
+    const int fill = static_cast<int>(frac * width);
+    std::fprintf(stderr, "\r[%s%s] %5.1f %%  t = %.1f / %.1f s", std::string(fill, '#').c_str(),
+                 std::string(width - fill, ' ').c_str(), frac * 100.0, done, total);
+    std::fflush(stderr);
+  }
+  ~Progress() {
+    if (shown_) std::fprintf(stderr, "\r%80s\r", "");
+  }
+
+ private:
+  bool enabled_;
+  bool shown_ = false;
+  std::chrono::steady_clock::time_point last_;
+};
+
+std::string opt_text(const std::optional<double>& v, int decimals, const char* unit) {
+  return v ? fmt_fixed(*v, decimals) + unit : std::string("-");
+}
+
+}  // namespace
+
+int check(const std::string& file) {
+  LoadResult r = load_scenario_file(file);
+  print_issues(r.issues, file);
+  if (!r.def) return 2;
+  const SystemDef& d = *r.def;
+  std::cout << file << ": ok: \"" << d.name << "\": " << d.areas.size() << " area(s), "
+            << d.units.size() << " unit(s), " << d.ties.size() << " tie(s), " << d.events.size()
+            << " event(s), " << fmt_num(d.duration_s) << " s at a " << fmt_num(d.step_s)
+            << " s step\n";
+  return 0;
+}
+
+RunOutcome run_to_strings(const SystemDef& def, const std::vector<Issue>& warnings) {
+  RunOutcome out;
+  CreateResult created = Engine::create(def);
+  if (!created.engine) {
+    out.issues = created.issues;
+    return out;
+  }
+  Engine& engine = *created.engine;
+  const std::int64_t every = std::max<std::int64_t>(1, std::llround(def.output_every_s / def.step_s));
+  SeriesCsv csv;
+  out.series = SeriesCsv::header(engine);
+  std::vector<Notice> notices;
+  csv.append_row(engine, out.series);
+  while (!engine.finished()) {
+    engine.step();
+    if (engine.step_index() % every == 0) csv.append_row(engine, out.series);
+    auto n = engine.take_notices();
+    notices.insert(notices.end(), n.begin(), n.end());
+  }
+  engine.close_disturbances();
+  out.summary = summary_to_json(engine, notices, warnings).dump(2) + "\n";
+  out.ok = true;
+  return out;
+}
+
+int run(const std::string& file, const std::string& out_dir, bool quiet) {
+  LoadResult r = load_scenario_file(file);
+  print_issues(r.issues, file);
+  if (!r.def) return 2;
+  const SystemDef& def = *r.def;
+  std::vector<Issue> warnings;
+  for (const Issue& i : r.issues)
+    if (i.warning) warnings.push_back(i);
+
+  std::error_code ec;
+  fs::create_directories(out_dir, ec);
+  if (ec) {
+    std::cerr << "droopline: cannot create output folder \"" << out_dir << "\": " << ec.message() << "\n";
+    return 1;
+  }
+  CreateResult created = Engine::create(def);
+  if (!created.engine) {
+    print_issues(created.issues, file);
+    return 2;
+  }
+  Engine& engine = *created.engine;
+  AtomicFile series(fs::path(out_dir) / "series.csv");
+  AtomicFile summary(fs::path(out_dir) / "summary.json");
+  if (!series.ok() || !summary.ok()) {
+    std::cerr << "droopline: cannot write in \"" << out_dir << "\"\n";
+    return 1;
+  }
+  const std::int64_t every = std::max<std::int64_t>(1, std::llround(def.output_every_s / def.step_s));
+  SeriesCsv csv;
+  std::string buf = SeriesCsv::header(engine);
+  csv.append_row(engine, buf);
+  std::vector<Notice> notices;
+  Progress progress(!quiet && ::isatty(STDERR_FILENO) && def.duration_s / def.step_s > 2e5);
+  while (!engine.finished()) {
+    engine.step();
+    if (engine.step_index() % every == 0) {
+      csv.append_row(engine, buf);
+      if (buf.size() > (1u << 20)) {  // stream long runs to disk in 1 MiB pieces
+        series.stream().write(buf.data(), static_cast<std::streamsize>(buf.size()));
+        buf.clear();
+        if (!series.stream()) break;
+      }
+    }
+    auto n = engine.take_notices();
+    notices.insert(notices.end(), n.begin(), n.end());
+    if ((engine.step_index() & 1023) == 0) progress.update(engine.time_s(), def.duration_s);
+  }
+  series.stream().write(buf.data(), static_cast<std::streamsize>(buf.size()));
+  engine.close_disturbances();
+  summary.stream() << summary_to_json(engine, notices, warnings).dump(2) << "\n";
+  if (!series.stream() || !summary.stream() || !series.commit() || !summary.commit()) {
+    std::cerr << "droopline: writing the results in \"" << out_dir << "\" failed (disk full?)\n";
+    return 1;
+  }
+  if (!quiet) {
+    std::cout << "droopline: \"" << def.name << "\": " << fmt_num(engine.time_s()) << " s simulated; wrote "
+              << (fs::path(out_dir) / "series.csv").string() << " and "
+              << (fs::path(out_dir) / "summary.json").string() << "\n";
+    for (const Notice& n : notices)
+      if (n.kind != "command") std::cout << "  t=" << fmt_fixed(n.t_s, 2) << " s  " << n.text << "\n";
+    for (const Disturbance& d : engine.disturbances()) {
+      std::cout << "  disturbance at t=" << fmt_fixed(d.at_s, 2) << " s: " << d.cause << "\n"
+                << "    imbalance " << fmt_fixed(d.delta_mw, 1) << " MW, RoCoF "
+                << opt_text(d.rocof_hz_per_s, 3, " Hz/s") << ", " << (d.zenith ? "zenith " : "nadir ")
+                << opt_text(d.nadir_hz, 3, " Hz")
+                << (d.nadir_at_s ? " at +" + fmt_fixed(*d.nadir_at_s - d.at_s, 2) + " s" : "")
+                << ", settling " << opt_text(d.settling_hz, 3, " Hz") << " (droop formula "
+                << fmt_fixed(d.predicted_settling_hz, 3) << " Hz), response "
+                << opt_text(d.response_mw_per_0p1hz, 1, " MW/0.1 Hz") << "\n";
+    }
+  }
+  return 0;
+}
+
+}  // namespace droopline::cli

@@ -1,0 +1,93 @@
+#pragma once
+// Helpers shared by the test executables.
+#include <catch2/catch.hpp>
+
+#include <cmath>
+#include <string>
+
+#include "droopline/engine.hpp"
+#include "droopline/scenario_io.hpp"
+
+namespace test {
+
+inline std::string source_path(const std::string& rel) {
+  return std::string(DROOPLINE_SOURCE_DIR) + "/" + rel;
+}
+
+/// Loads a shipped scenario; fails the test with the messages when it does not validate.
+inline droopline::SystemDef load(const std::string& rel) {
+  auto r = droopline::load_scenario_file(source_path(rel));
+  std::string msgs;
+  for (auto& i : r.issues)
+    if (!i.warning) msgs += i.text() + "\n";
+  INFO(msgs);
+  REQUIRE(r.def.has_value());
+  return *r.def;
+}
+
+/// Creates an engine; fails the test with the messages when the definition has errors.
+inline std::unique_ptr<droopline::Engine> make(const droopline::SystemDef& def) {
+  auto c = droopline::Engine::create(def);
+  std::string msgs;
+  for (auto& i : c.issues)
+    if (!i.warning) msgs += i.text() + "\n";
+  INFO(msgs);
+  REQUIRE(c.engine);
+  return std::move(c.engine);
+}
+
+/// Steps until simulation time t (s).
+inline void run_until(droopline::Engine& e, double t) {
+  const auto target = std::llround(t / e.def().step_s);
+  while (e.step_index() < target) e.step();
+}
+
+inline double freq(const droopline::Engine& e, const char* area) {
+  return e.area(*e.find_area(area)).f_hz;
+}
+inline double power(const droopline::Engine& e, const char* unit) {
+  return e.unit(*e.find_unit(unit)).p_mw;
+}
+inline double flow(const droopline::Engine& e, const char* tie) {
+  return e.tie(*e.find_tie(tie)).flow_mw;
+}
+
+/// A load step command.
+inline droopline::Command load_step(const char* area, double mw) {
+  droopline::Command c;
+  c.kind = droopline::CommandKind::load_step;
+  c.area = area;
+  c.mw = mw;
+  return c;
+}
+
+/// A unit command (trip, start, setpoint) with an optional MW value.
+inline droopline::Command unit_cmd(droopline::CommandKind kind, const char* unit, double mw = 0.0) {
+  droopline::Command c;
+  c.kind = kind;
+  c.unit = unit;
+  c.mw = mw;
+  return c;
+}
+
+/// A minimal valid one-area system: one steam unit of `rating` MW at `setpoint` MW.
+inline droopline::SystemDef one_area(double f0 = 50.0, double rating = 500.0, double setpoint = 300.0) {
+  droopline::SystemDef d;
+  d.name = "test";
+  d.nominal_hz = f0;
+  d.duration_s = 120.0;
+  droopline::AreaDef a;
+  a.id = "A";
+  a.demand_mw = setpoint;
+  d.areas.push_back(a);
+  droopline::UnitDef u;
+  u.id = "G1";
+  u.area = "A";
+  u.rating_mw = rating;
+  u.inertia_s = 5.0;
+  u.setpoint_mw = setpoint;
+  d.units.push_back(u);
+  return d;
+}
+
+}  // namespace test
