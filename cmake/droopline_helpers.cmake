@@ -11,7 +11,9 @@ function(droopline_warnings target)
   endif()
 endfunction()
 
-# Results must not depend on whether the compiler fuses a*b+c into one rounding.
+# Results must not depend on whether the compiler fuses a*b+c into one rounding. Floating-point
+# exceptions are never trapped, so the vectorizer may evaluate both sides of a select
+# (-fno-trapping-math changes no result, only what the compiler must preserve).
 function(droopline_strict_fp target)
-  target_compile_options(${target} PRIVATE -ffp-contract=off -fno-fast-math)
+  target_compile_options(${target} PRIVATE -ffp-contract=off -fno-fast-math -fno-trapping-math)
 endfunction()

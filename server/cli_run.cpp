@@ -13,6 +13,7 @@
 
 #include "droopline/format.hpp"
 #include "droopline/scenario_io.hpp"
+#include "task_pool.hpp"
 
 namespace droopline::cli {
 namespace {
@@ -131,7 +132,7 @@ RunOutcome run_to_strings(const SystemDef& def, const std::vector<Issue>& warnin
   return out;
 }
 
-int run(const std::string& file, const std::string& out_dir, bool quiet) {
+int run(const std::string& file, const std::string& out_dir, bool quiet, unsigned threads) {
   LoadResult r = load_scenario_file(file);
   print_issues(r.issues, file);
   if (!r.def) return 2;
@@ -152,6 +153,8 @@ int run(const std::string& file, const std::string& out_dir, bool quiet) {
     return 2;
   }
   Engine& engine = *created.engine;
+  TaskPool pool(def.units.size() >= 4096 ? (threads ? threads : std::max(1u, std::thread::hardware_concurrency())) : 1);
+  engine.set_task_runner(&pool);
   AtomicFile series(fs::path(out_dir) / "series.csv");
   AtomicFile summary(fs::path(out_dir) / "summary.json");
   if (!series.ok() || !summary.ok()) {

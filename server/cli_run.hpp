@@ -11,7 +11,8 @@ namespace droopline::cli {
 /// `droopline check FILE`: 0 when valid, 2 with the messages on stderr.
 int check(const std::string& file);
 /// `droopline run FILE --out DIR`: writes DIR/series.csv and DIR/summary.json atomically.
-int run(const std::string& file, const std::string& out_dir, bool quiet);
+/// `threads` 0 = one per core (used only by fleets large enough to gain from it).
+int run(const std::string& file, const std::string& out_dir, bool quiet, unsigned threads = 0);
 
 /// A whole run held in memory (for replays over HTTP): the same text `run` writes.
 struct RunOutcome {

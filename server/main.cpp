@@ -14,6 +14,7 @@ usage:
   droopline check FILE             validate a scenario (exit 0 valid, 2 invalid)
   droopline run FILE --out DIR     simulate to the end; write DIR/series.csv, DIR/summary.json
         [--quiet]                  print nothing but errors
+        [--threads N]              worker threads for fleets of 4096+ units (default: one per core)
   droopline --version | --help
 
 Exit codes: 0 success, 1 input/output failure, 2 invalid scenario or arguments.
@@ -45,9 +46,16 @@ int main(int argc, char** argv) {
   if (cmd == "run") {
     std::string file, out;
     bool quiet = false;
+    unsigned threads = 0;
     for (std::size_t i = 1; i < args.size(); ++i) {
       if (args[i] == "--out" && i + 1 < args.size()) {
         out = args[++i];
+      } else if (args[i] == "--threads" && i + 1 < args.size()) {
+        const std::string& v = args[++i];
+        if (v.empty() || v.size() > 3 || v.find_first_not_of("0123456789") != std::string::npos ||
+            std::stoi(v) < 1)
+          return usage_error("--threads takes a whole number from 1 to 999, got \"" + v + "\"");
+        threads = static_cast<unsigned>(std::stoi(v));
       } else if (args[i] == "--quiet") {
         quiet = true;
       } else if (!args[i].empty() && args[i][0] == '-') {
@@ -60,7 +68,7 @@ int main(int argc, char** argv) {
     }
     if (file.empty()) return usage_error("run needs a scenario FILE");
     if (out.empty()) return usage_error("run needs --out DIR");
-    return droopline::cli::run(file, out, quiet);
+    return droopline::cli::run(file, out, quiet, threads);
   }
   return usage_error("unknown command \"" + cmd + "\"");
 }

@@ -10,7 +10,7 @@
 #include "support.hpp"
 
 using namespace droopline;
-using json = nlohmann::json;
+using json = nlohmann::ordered_json;
 namespace fs = std::filesystem;
 
 namespace {

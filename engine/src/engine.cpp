@@ -1,6 +1,7 @@
 #include "droopline/engine.hpp"
 
 #include <algorithm>
+#include <atomic>
 #include <cmath>
 #include <limits>
 #include <numbers>
@@ -46,6 +47,7 @@ const char* to_string(UnitStatus s) {
 struct Engine::Impl {
   struct Segment {
     std::size_t area, begin, end;  // [begin, end) within the block
+    bool iso;                      // isochronous units: the kernel runs their integrator too
   };
   struct Block {
     TurbineType type = TurbineType::steam;
@@ -112,13 +114,19 @@ struct Engine::Impl {
   std::vector<int> active_ties;
 
   // Hot per-slot data
-  std::vector<double> pset, pagc, kd, kiso, db, stepm, inv_lag, ramp, pmin, pmax, pm;
+  std::vector<double> pref0, kd, kiso, dbs, inv_lag, ramp, pmin, pmax;
+  // Per-slot data read outside the stage loop
+  std::vector<double> pset, pagc, pm;
   // Saved definition limits and gains to restore on unit start
   std::vector<double> def_pmin, def_pmax, def_ramp;
-  // State and RK4 work arrays
-  std::vector<double> y, k, acc, xs, pm_stage;
+  // State and RK4 work arrays (k holds the latest stage's slope)
+  std::vector<double> y, k, acc, pm_stage;
   // Hot per-area data
-  std::vector<double> dfv, gen, net_out, lc0, lc1, inv_m, rocof;
+  std::vector<double> dfv, thv, gen, net_out, lc0, lc1, inv_m;
+  // Derived outputs after the last step (see ensure_outputs)
+  std::vector<double> out_gen, out_net, rocof;
+  bool outputs_valid = false;
+  std::vector<std::size_t> ramping;  // units whose setpoint is moving
 
   // Events and metrics
   std::vector<std::pair<std::int64_t, Command>> schedule;
@@ -135,6 +143,7 @@ struct Engine::Impl {
     f0 = def.nominal_hz;
     h = def.step_s;
     n_total = std::llround(def.duration_s / h);
+    if (const double r = std::round(1.0 / h); std::fabs(1.0 / h - r) < 1e-9 * r) steps_per_s = r;
     na = def.areas.size();
     nt = def.ties.size();
     nu = def.units.size();
@@ -187,10 +196,11 @@ struct Engine::Impl {
       const UnitDef &ux = def.units[x], &uz = def.units[z];
       if (ux.turbine.type != uz.turbine.type)
         return type_rank(ux.turbine.type) < type_rank(uz.turbine.type);
-      return area_index(ux.area) < area_index(uz.area);
+      if (ux.area != uz.area) return area_index(ux.area) < area_index(uz.area);
+      return ux.governor.mode < uz.governor.mode;
     });
     unit_of_slot = order;
-    for (auto* v : {&pset, &pagc, &kd, &kiso, &db, &stepm, &inv_lag, &ramp, &pmin, &pmax, &pm,
+    for (auto* v : {&pref0, &pset, &pagc, &kd, &kiso, &dbs, &inv_lag, &ramp, &pmin, &pmax, &pm,
                     &def_pmin, &def_pmax, &def_ramp, &pm_stage})
       v->assign(nu, 0.0);
 
@@ -207,17 +217,11 @@ struct Engine::Impl {
       b.off = off;
       off += b.n * b.nstate;
       for (auto* v : {&b.p1, &b.p2, &b.p3, &b.p4}) v->assign(b.n, 0.0);
-      for (std::size_t j = 0; j < b.n; ++j) {
-        const std::size_t a = area_index(def.units[order[b.first_slot + j]].area);
-        if (b.segments.empty() || b.segments.back().area != a) b.segments.push_back({a, j, j});
-        b.segments.back().end = j + 1;
-      }
       blocks.push_back(std::move(b));
     }
     y.assign(off, 0.0);
     k.assign(off, 0.0);
     acc.assign(off, 0.0);
-    xs.assign(off, 0.0);
     for (std::size_t a = 0; a < na; ++a) y[na + a] = flows.angle_rad[a];
 
     for (std::size_t bi = 0; bi < blocks.size(); ++bi) {
@@ -250,13 +254,17 @@ struct Engine::Impl {
       }
     }
     for (std::size_t u = 0; u < nu; ++u) fill_type_params(u);
+    rebuild_segments();
     update_inertia();
     update_topology();
     for (std::size_t a = 0; a < na; ++a) refresh_participants(a);
 
     dfv.assign(na, 0.0);
+    thv.assign(na, 0.0);
     gen.assign(na, 0.0);
     net_out.assign(na, 0.0);
+    out_gen.assign(na, 0.0);
+    out_net.assign(na, 0.0);
     lc0.assign(na, 0.0);
     lc1.assign(na, 0.0);
     rocof.assign(na, 0.0);
@@ -307,6 +315,21 @@ struct Engine::Impl {
     }
   }
 
+  // Segments: maximal runs of units of one block sharing area and governor mode.
+  void rebuild_segments() {
+    for (Block& b : blocks) {
+      b.segments.clear();
+      for (std::size_t j = 0; j < b.n; ++j) {
+        const UnitRt& ur = units[unit_of_slot[b.first_slot + j]];
+        const bool iso = ur.mode == GovernorMode::isochronous;
+        if (b.segments.empty() || b.segments.back().area != ur.area || b.segments.back().iso != iso)
+          b.segments.push_back({ur.area, j, j, iso});
+        b.segments.back().end = j + 1;
+      }
+    }
+    rebuild_pieces();
+  }
+
   double& state(std::size_t u, std::size_t which) {
     const UnitRt& ur = units[u];
     const Block& b = blocks[ur.block];
@@ -320,8 +343,7 @@ struct Engine::Impl {
     if (!ur.online) return;
     kd[s] = ud.rating_mw / (ur.droop * f0);
     kiso[s] = ur.mode == GovernorMode::isochronous ? kd[s] / ud.governor.integral_s : 0.0;
-    db[s] = ur.deadband_hz;
-    stepm[s] = ur.deadband == DeadbandKind::step ? 1.0 : 0.0;
+    dbs[s] = ur.deadband == DeadbandKind::step ? -ur.deadband_hz : ur.deadband_hz;
   }
 
   // Puts a unit in service with all states at `mw` (steady), or, when starting during a run, at
@@ -337,6 +359,7 @@ struct Engine::Impl {
     ur.target_rate = 0.0;
     pset[s] = mw;
     pagc[s] = 0.0;
+    pref0[s] = mw;
     pmin[s] = def_pmin[s];
     pmax[s] = def_pmax[s];
     ramp[s] = def_ramp[s];
@@ -359,8 +382,7 @@ struct Engine::Impl {
     const Block& b = blocks[ur.block];
     ur.online = false;
     ur.target_rate = 0.0;
-    pset[s] = pagc[s] = kd[s] = kiso[s] = pmin[s] = pmax[s] = 0.0;
-    db[s] = stepm[s] = 0.0;
+    pset[s] = pagc[s] = pref0[s] = kd[s] = kiso[s] = pmin[s] = pmax[s] = dbs[s] = 0.0;
     ramp[s] = kNoRamp;
     const double energy = b.type == TurbineType::battery ? state(u, 2) : 0.0;
     for (std::size_t i = 0; i < b.nstate; ++i) state(u, i) = 0.0;
@@ -410,62 +432,111 @@ struct Engine::Impl {
     }
   }
 
-  // ---------------------------------------------------------------- right-hand side
-  void rhs(double frac, const double* x, double* dx) {
+  // ---------------------------------------------------------------- work pieces
+  // A piece is at most kPieceUnits units of one segment. The split depends only on the layout,
+  // never on the number of threads, so sums over pieces come out the same with any runner.
+  static constexpr std::size_t kPieceUnits = 1024;
+  static constexpr std::size_t kParallelMinUnits = 4096;
+  struct Piece {
+    std::size_t block, area, begin, end;  // [begin, end) within the block
+    bool iso;
+  };
+  std::vector<Piece> pieces;
+  std::vector<double> piece_gen;
+  TaskRunner* runner = nullptr;
+  int stage_now = 1;
+  double stage_c = 0.0;
+
+  void rebuild_pieces() {
+    pieces.clear();
+    for (std::size_t bi = 0; bi < blocks.size(); ++bi)
+      for (const Segment& sg : blocks[bi].segments)
+        for (std::size_t j = sg.begin; j < sg.end; j += kPieceUnits)
+          pieces.push_back({bi, sg.area, j, std::min(sg.end, j + kPieceUnits), sg.iso});
+    piece_gen.assign(pieces.size(), 0.0);
+  }
+
+  static void run_task(void* self, std::size_t task, std::size_t tasks) {
+    auto* m = static_cast<Impl*>(self);
+    for (std::size_t p = task; p < m->pieces.size(); p += tasks) m->run_piece(p);
+  }
+
+  void run_piece(std::size_t p) {
+    const Piece& pc = pieces[p];
+    Block& b = blocks[pc.block];
+    const detail::StageInfo info{stage_now, stage_c, h / 6.0, pc.iso};
+    const std::size_t s0 = b.first_slot + pc.begin, len = pc.end - pc.begin, j = pc.begin;
+    const detail::GovernorParams g{&pref0[s0], &kd[s0], &kiso[s0], &dbs[s0],
+                                   &inv_lag[s0], &ramp[s0], &pmin[s0], &pmax[s0]};
+    const detail::TypeParams tp{&b.p1[j], &b.p2[j], &b.p3[j], &b.p4[j]};
+    detail::SegmentArrays arr{};
+    for (std::size_t i = 0; i < b.nstate; ++i) {
+      const std::size_t o = b.off + i * b.n + j;
+      arr.y[i] = &y[o];
+      arr.k[i] = &k[o];
+      arr.acc[i] = &acc[o];
+    }
+    double* out = &pm_stage[s0];
+    const double df = dfv[pc.area];
+    switch (b.type) {
+      case TurbineType::steam: detail::steam_stage(len, df, g, tp, arr, info, out); break;
+      case TurbineType::reheat: detail::reheat_stage(len, df, g, tp, arr, info, out); break;
+      case TurbineType::hydro: detail::hydro_stage(len, df, g, tp, arr, info, out); break;
+      case TurbineType::gas: detail::gas_stage(len, df, g, tp, arr, info, out); break;
+      case TurbineType::battery: detail::battery_stage(len, df, g, tp, arr, info, out); break;
+    }
+    piece_gen[p] = detail::ordered_sum(len, out);
+  }
+
+  // ---------------------------------------------------------------- one RK4 stage
+  // Stage 1 reads y; stages 2-4 read y + c * (previous slope). Areas are done here in scalar
+  // code, units by the per-type kernels (which also write the new unit state in stage 4).
+  void stage(int st) {
+    const double c = st == 1 ? 0.0 : (st == 4 ? h : 0.5 * h);
+    const double frac = st == 1 ? 0.0 : (st == 4 ? 1.0 : 0.5);
     for (std::size_t a = 0; a < na; ++a) {
-      dfv[a] = x[a];
+      dfv[a] = st == 1 ? y[a] : y[a] + c * k[a];
+      thv[a] = st == 1 ? y[na + a] : y[na + a] + c * k[na + a];
       net_out[a] = 0.0;
+      gen[a] = 0.0;
     }
     for (int t : active_ties) {
       const TieRt& tr = ties[t];
-      const double f = tr.pmax * std::sin(x[na + tr.from] - x[na + tr.to]) +
+      const double f = tr.pmax * std::sin(thv[tr.from] - thv[tr.to]) +
                        tr.dt * (dfv[tr.from] - dfv[tr.to]);
       net_out[tr.from] += f;
       net_out[tr.to] -= f;
     }
-    std::fill(gen.begin(), gen.end(), 0.0);
-    for (Block& b : blocks) {
-      for (const Segment& sg : b.segments) {
-        const std::size_t s0 = b.first_slot + sg.begin, len = sg.end - sg.begin;
-        const detail::GovernorParams g{&pset[s0], &pagc[s0], &kd[s0], &kiso[s0], &db[s0],
-                                       &stepm[s0], &inv_lag[s0], &ramp[s0], &pmin[s0], &pmax[s0]};
-        detail::SegmentState st{};
-        for (std::size_t i = 0; i < b.nstate; ++i) {
-          st.x[i] = x + b.off + i * b.n + sg.begin;
-          st.dx[i] = dx + b.off + i * b.n + sg.begin;
-        }
-        double* out = &pm_stage[s0];
-        const double df = dfv[sg.area];
-        const std::size_t j = sg.begin;
-        switch (b.type) {
-          case TurbineType::steam:
-            detail::steam_rhs(len, df, g, &b.p1[j], st, out);
-            break;
-          case TurbineType::reheat:
-            detail::reheat_rhs(len, df, g, &b.p1[j], &b.p2[j], &b.p3[j], st, out);
-            break;
-          case TurbineType::hydro:
-            detail::hydro_rhs(len, df, g, &b.p1[j], &b.p2[j], &b.p3[j], st, out);
-            break;
-          case TurbineType::gas:
-            detail::gas_rhs(len, df, g, &b.p1[j], &b.p2[j], &b.p3[j], st, out);
-            break;
-          case TurbineType::battery:
-            detail::battery_rhs(len, df, g, &b.p1[j], &b.p2[j], &b.p3[j], &b.p4[j], st, out);
-            break;
-        }
-        gen[sg.area] += detail::ordered_sum(len, out);
-      }
+    stage_now = st;
+    stage_c = c;
+    const std::size_t tasks = runner && nu >= kParallelMinUnits
+                                  ? std::min(runner->concurrency(), pieces.size())
+                                  : 1;
+    if (tasks > 1) {
+      runner->run(tasks, &Impl::run_task, this);
+    } else {
+      for (std::size_t p = 0; p < pieces.size(); ++p) run_piece(p);
     }
+    // Pieces are summed in a fixed order: the result does not depend on how many ran in parallel.
+    for (std::size_t p = 0; p < pieces.size(); ++p) gen[pieces[p].area] += piece_gen[p];
     for (std::size_t a = 0; a < na; ++a) {
-      if (areas[a].collapsed) {
-        dx[a] = 0.0;
-        dx[na + a] = 0.0;
-        continue;
+      double d_df = 0.0, d_th = 0.0;
+      if (!areas[a].collapsed) {
+        const double load = lc0[a] + (lc1[a] - lc0[a]) * frac + areas[a].dmp * dfv[a];
+        d_df = (gen[a] - load - net_out[a]) * inv_m[a];
+        d_th = kTwoPi * dfv[a];
       }
-      const double load = lc0[a] + (lc1[a] - lc0[a]) * frac + areas[a].dmp * dfv[a];
-      dx[a] = (gen[a] - load - net_out[a]) * inv_m[a];
-      dx[na + a] = kTwoPi * dfv[a];
+      for (auto [i, d] : {std::pair{a, d_df}, std::pair{na + a, d_th}}) {
+        if (st == 1) {
+          k[i] = d;
+          acc[i] = d;
+        } else if (st < 4) {
+          k[i] = d;
+          acc[i] = acc[i] + 2.0 * d;
+        } else {
+          y[i] = y[i] + (h / 6.0) * (acc[i] + d);
+        }
+      }
     }
   }
 
@@ -506,36 +577,21 @@ struct Engine::Impl {
       lc0[a] = base + extra_load(ar, t0) + ar.noise_mw;
       lc1[a] = base + extra_load(ar, t0 + h) + ar.noise_next;
     }
-    const std::size_t ns = y.size();
-    rhs(0.0, y.data(), k.data());
-    detail::rk4_stage(ns, y.data(), k.data(), acc.data(), xs.data(), 1.0, 0.5 * h, true);
-    rhs(0.5, xs.data(), k.data());
-    detail::rk4_stage(ns, y.data(), k.data(), acc.data(), xs.data(), 2.0, 0.5 * h, false);
-    rhs(0.5, xs.data(), k.data());
-    detail::rk4_stage(ns, y.data(), k.data(), acc.data(), xs.data(), 2.0, h, false);
-    rhs(1.0, xs.data(), k.data());
-    detail::rk4_finish(ns, y.data(), acc.data(), k.data(), h / 6.0);
+    for (int st = 1; st <= 4; ++st) stage(st);
     ++n;
     for (AreaRt& ar : areas) ar.noise_mw = ar.noise_next;
     post_step();
   }
 
-  double time() const { return static_cast<double>(n) * h; }
+  // n / (steps per second) when that is a whole number: 278 steps of 0.01 s print as 2.78, not
+  // as 2.7800000000000002.
+  double steps_per_s = 0.0;
+  double time() const {
+    return steps_per_s > 0.0 ? static_cast<double>(n) / steps_per_s : static_cast<double>(n) * h;
+  }
 
   void post_step() {
-    // Hold valves inside their limits (RK4 may overshoot one by a hair) and batteries' energy.
-    for (Block& b : blocks) {
-      double* v = &y[b.off + valve_state(b.type) * b.n];
-      const double* lo = &pmin[b.first_slot];
-      const double* hi = &pmax[b.first_slot];
-      if (b.type != TurbineType::battery) {
-        for (std::size_t j = 0; j < b.n; ++j) v[j] = std::min(std::max(v[j], lo[j]), hi[j]);
-      } else {
-        double* e = &y[b.off + 2 * b.n];
-        for (std::size_t j = 0; j < b.n; ++j) e[j] = std::min(std::max(e[j], 0.0), b.p4[j]);
-      }
-    }
-    compute_outputs();
+    invalidate_outputs();
     const double t = time();
     for (std::size_t a = 0; a < na; ++a) ring[(static_cast<std::size_t>(n) % ring_len) * na + a] = y[a];
 
@@ -583,23 +639,30 @@ struct Engine::Impl {
       if (ar.agc_on && n % ar.period_steps == 0) run_agc(a);
     }
 
-    for (std::size_t u = 0; u < nu; ++u) {
-      UnitRt& ur = units[u];
-      if (ur.target_rate <= 0.0) continue;
-      double& p = pset[ur.slot];
+    for (std::size_t i = 0; i < ramping.size();) {
+      UnitRt& ur = units[ramping[i]];
+      const std::size_t s = ur.slot;
       const double dmax = ur.target_rate * h;
-      if (std::fabs(ur.target_mw - p) <= dmax) {
-        p = ur.target_mw;
+      if (ur.target_rate <= 0.0 || std::fabs(ur.target_mw - pset[s]) <= dmax) {
+        if (ur.target_rate > 0.0) pset[s] = ur.target_mw;
         ur.target_rate = 0.0;
+        ramping.erase(ramping.begin() + static_cast<std::ptrdiff_t>(i));
       } else {
-        p += ur.target_mw > p ? dmax : -dmax;
+        pset[s] += ur.target_mw > pset[s] ? dmax : -dmax;
+        ++i;
       }
+      pref0[s] = pset[s] + pagc[s];
     }
     update_metrics();
   }
 
-  void compute_outputs() {
-    std::fill(gen.begin(), gen.end(), 0.0);
+  // Outputs (unit powers, tie flows, area balances) are derived from the state; they are worked
+  // out when something reads them, not after every step.
+  void invalidate_outputs() { outputs_valid = false; }
+  void ensure_outputs() {
+    if (outputs_valid) return;
+    outputs_valid = true;
+    std::fill(out_gen.begin(), out_gen.end(), 0.0);
     for (Block& b : blocks) {
       const double* x1 = &y[b.off + b.n];
       const double* x2 = &y[b.off + 2 * b.n];
@@ -622,15 +685,15 @@ struct Engine::Impl {
           break;
       }
       for (const Segment& sg : b.segments)
-        gen[sg.area] += detail::ordered_sum(sg.end - sg.begin, out + sg.begin);
+        out_gen[sg.area] += detail::ordered_sum(sg.end - sg.begin, out + sg.begin);
     }
-    std::fill(net_out.begin(), net_out.end(), 0.0);
+    std::fill(out_net.begin(), out_net.end(), 0.0);
     for (std::size_t t = 0; t < nt; ++t) ties[t].flow = 0.0;
     for (int t : active_ties) {
       TieRt& tr = ties[t];
       tr.flow = tr.pmax * std::sin(y[na + tr.from] - y[na + tr.to]) + tr.dt * (y[tr.from] - y[tr.to]);
-      net_out[tr.from] += tr.flow;
-      net_out[tr.to] -= tr.flow;
+      out_net[tr.from] += tr.flow;
+      out_net[tr.to] -= tr.flow;
     }
     const double t = time();
     for (std::size_t a = 0; a < na; ++a) {
@@ -639,7 +702,7 @@ struct Engine::Impl {
         continue;
       }
       const double load = current_load(a, t);
-      rocof[a] = (gen[a] - load - net_out[a]) * inv_m[a];
+      rocof[a] = (out_gen[a] - load - out_net[a]) * inv_m[a];
     }
   }
 
@@ -648,8 +711,9 @@ struct Engine::Impl {
     return ar.pd0 - ar.shed_mw + extra_load(ar, t) + ar.noise_mw + ar.dmp * y[a];
   }
 
-  double ace(std::size_t a) const {
-    return (net_out[a] - areas[a].sched_export) + areas[a].bias * y[a];
+  double ace(std::size_t a) {
+    ensure_outputs();
+    return (out_net[a] - areas[a].sched_export) + areas[a].bias * y[a];
   }
 
   // Secondary control: PI on ACE, shared by participation, kept inside each unit's range.
@@ -697,13 +761,17 @@ struct Engine::Impl {
     double total = 0.0;
     for (std::size_t i = 0; i < parts.size(); ++i) {
       total += give[i];
-      if (commit) pagc[parts[i]] = give[i];
+      if (commit) {
+        pagc[parts[i]] = give[i];
+        pref0[parts[i]] = pset[parts[i]] + give[i];
+      }
     }
     return total;
   }
 
   // ---------------------------------------------------------------- topology changes
   void trip_tie(std::size_t t, const std::string& cause) {
+    ensure_outputs();
     TieRt& tr = ties[t];
     const double flow = tr.flow;
     tr.in_service = false;
@@ -715,7 +783,7 @@ struct Engine::Impl {
       open_disturbance(tr.to, flow, CommandKind::tie_trip,
                        cause + " (island of " + def.areas[tr.to].id + ")");
     }
-    compute_outputs();
+    invalidate_outputs();
   }
 
   void collapse_area_if_dead(std::size_t a) {
@@ -843,6 +911,7 @@ struct Engine::Impl {
   }
 
   void perform(const Command& c) {
+    ensure_outputs();
     const double t = time();
     auto unit_of = [&](const std::string& id) {
       return find_index(id, nu, [&](std::size_t i) -> const std::string& { return def.units[i].id; });
@@ -895,10 +964,12 @@ struct Engine::Impl {
         UnitRt& ur = units[unit_of(c.unit)];
         ur.target_mw = c.mw;
         if (c.ramp_mw_per_s) {
+          if (ur.target_rate <= 0.0) ramping.push_back(unit_of(c.unit));
           ur.target_rate = *c.ramp_mw_per_s;
         } else {
           ur.target_rate = 0.0;
           pset[ur.slot] = c.mw;
+          pref0[ur.slot] = c.mw + pagc[ur.slot];
         }
         text = "setpoint of " + c.unit + " to " + fmt_num(c.mw) + " MW" +
                (c.ramp_mw_per_s ? " at " + fmt_num(*c.ramp_mw_per_s) + " MW/s" : "");
@@ -910,7 +981,19 @@ struct Engine::Impl {
         if (c.droop) ur.droop = *c.droop;
         if (c.deadband_hz) ur.deadband_hz = *c.deadband_hz;
         if (c.deadband) ur.deadband = *c.deadband;
-        if (c.mode) ur.mode = *c.mode;
+        if (c.mode && *c.mode != ur.mode) {
+          // Leaving isochronous mode, the integrator's output is taken into the setpoint so the
+          // reference does not jump; entering it, the integrator starts from zero.
+          double& iso = state(u, blocks[ur.block].nstate - 1);
+          if (ur.mode == GovernorMode::isochronous) {
+            pset[ur.slot] += iso;
+            ur.target_mw = pset[ur.slot];
+            pref0[ur.slot] = pset[ur.slot] + pagc[ur.slot];
+          }
+          iso = 0.0;
+          ur.mode = *c.mode;
+          rebuild_segments();
+        }
         set_governor_gains(u);
         fill_type_params(u);
         text = "governor of " + c.unit + ": droop " + fmt_num(ur.droop) + ", deadband " +
@@ -937,7 +1020,7 @@ struct Engine::Impl {
         }
         tr.in_service = true;
         update_topology();
-        compute_outputs();
+        invalidate_outputs();
         text = "tie " + c.tie + " closed at " +
                fmt_fixed((y[na + tr.from] - y[na + tr.to]) * 180.0 / std::numbers::pi, 1) + " deg";
         break;
@@ -959,7 +1042,7 @@ struct Engine::Impl {
         break;
       }
     }
-    compute_outputs();
+    invalidate_outputs();
     notices.push_back({t, "command", text});
   }
 
@@ -982,6 +1065,7 @@ struct Engine::Impl {
   }
 
   void open_disturbance(std::size_t area, double delta, CommandKind kind, const std::string& cause) {
+    ensure_outputs();
     const std::vector<std::size_t> isl = island_areas(area);
     std::vector<std::uint32_t> ids(isl.begin(), isl.end());
     // Same instant, same island: one disturbance with the imbalances added.
@@ -1087,6 +1171,7 @@ struct Engine::Impl {
         }
       }
       if (kk == k10 || kk == k30) {
+        ensure_outputs();
         for (std::size_t u = 0; u < tk.slots.size(); ++u) {
           const double change = pm[tk.slots[u]] - d.units[u].p_at_start_mw;
           (kk == k10 ? d.units[u].response_10s_mw : d.units[u].response_30s_mw) = change;
@@ -1123,6 +1208,8 @@ CreateResult Engine::create(const SystemDef& def) {
 }
 
 void Engine::step() { impl_->step(); }
+
+void Engine::set_task_runner(TaskRunner* runner) { impl_->runner = runner; }
 
 void Engine::run(std::int64_t max_steps) {
   for (std::int64_t i = 0; i < max_steps && impl_->n < impl_->n_total; ++i) impl_->step();
@@ -1163,16 +1250,17 @@ std::optional<TieId> Engine::find_tie(std::string_view id) const {
 }
 
 AreaState Engine::area(AreaId id) const {
-  const Impl& m = *impl_;
-  if (id.index >= m.na) throw std::out_of_range("no area with index " + std::to_string(id.index));
+  if (id.index >= impl_->na) throw std::out_of_range("no area with index " + std::to_string(id.index));
+  impl_->ensure_outputs();
+  Impl& m = *impl_;
   const std::size_t a = id.index;
   const auto& ar = m.areas[a];
   AreaState s;
   s.f_hz = m.f0 + m.y[a];
   s.rocof_hz_per_s = m.rocof[a];
   s.demand_mw = m.current_load(a, m.time());
-  s.generation_mw = m.gen[a];
-  s.export_mw = m.net_out[a];
+  s.generation_mw = m.out_gen[a];
+  s.export_mw = m.out_net[a];
   s.scheduled_export_mw = ar.sched_export;
   s.ace_mw = m.ace(a);
   s.agc_mw = ar.agc_total;
@@ -1185,8 +1273,9 @@ AreaState Engine::area(AreaId id) const {
 }
 
 UnitState Engine::unit(UnitId id) const {
+  if (id.index >= impl_->nu) throw std::out_of_range("no unit with index " + std::to_string(id.index));
+  impl_->ensure_outputs();
   const Impl& m = *impl_;
-  if (id.index >= m.nu) throw std::out_of_range("no unit with index " + std::to_string(id.index));
   const auto& ur = m.units[id.index];
   const auto& b = m.blocks[ur.block];
   const std::size_t s = ur.slot;
@@ -1217,8 +1306,9 @@ UnitState Engine::unit(UnitId id) const {
 }
 
 TieState Engine::tie(TieId id) const {
+  if (id.index >= impl_->nt) throw std::out_of_range("no tie with index " + std::to_string(id.index));
+  impl_->ensure_outputs();
   const Impl& m = *impl_;
-  if (id.index >= m.nt) throw std::out_of_range("no tie with index " + std::to_string(id.index));
   const auto& tr = m.ties[id.index];
   TieState s;
   s.flow_mw = tr.flow;
@@ -1247,6 +1337,7 @@ std::vector<std::string> Engine::series_columns() const {
 }
 
 void Engine::sample(std::span<double> row) const {
+  impl_->ensure_outputs();
   const Impl& m = *impl_;
   if (row.size() < series_width()) throw std::out_of_range("series row too short");
   std::size_t i = 0;

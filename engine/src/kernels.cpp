@@ -4,7 +4,7 @@
 #include <cmath>
 
 #if defined(__GNUC__) && defined(__x86_64__) && !defined(__clang__) && !defined(DROOPLINE_NO_CLONES)
-#define DROOPLINE_CLONES __attribute__((target_clones("avx2", "default")))
+#define DROOPLINE_CLONES __attribute__((target_clones("arch=x86-64-v4", "avx2", "default")))
 #else
 #define DROOPLINE_CLONES
 #endif
@@ -12,15 +12,15 @@
 namespace droopline::detail {
 namespace {
 
-// Speed error after the deadband. e = -df; the caller passes |e| too.
-inline double deadband(double e, double ae, double db, double stepm) {
-  const double off = std::copysign(std::max(ae - db, 0.0), e);
-  const double stp = ae > db ? e : 0.0;
-  return stepm != 0.0 ? stp : off;
+// Speed error after the deadband. e = -df; dbs < 0 selects the step kind of half-width -dbs.
+inline double deadband(double e, double ae, double dbs) {
+  const double off = std::copysign(std::max(ae - dbs, 0.0), e);
+  const double stp = ae > -dbs ? e : 0.0;
+  return dbs < 0.0 ? stp : off;
 }
 
-// Valve/power rate: first-order toward the reference, rate-limited, and stopped at a limit
-// in the outward direction so the state never winds up beyond it.
+// Valve/power rate: first-order toward the reference, rate-limited, and stopped at a limit in the
+// outward direction so the state never winds up beyond it.
 inline double limited_rate(double ref, double v, double inv_lag, double ramp, double lo,
                            double hi) {
   double r = (ref - v) * inv_lag;
@@ -39,172 +39,272 @@ inline double iso_rate(double kiso, double ed, double v, double lo, double hi) {
   return r;
 }
 
+inline double clamp(double v, double lo, double hi) { return std::min(std::max(v, lo), hi); }
+
+}  // namespace
+
+// Local restrict-qualified views of one segment's arrays, and the per-stage state read and
+// bookkeeping write, shared by every kernel below (macros keep the restrict qualification that a
+// helper function's parameters would lose after inlining).
+#define DL_ARRAYS(i)                                \
+  double* __restrict y##i = a.y[i];                 \
+  double* __restrict k##i = a.k[i];                 \
+  double* __restrict ac##i = a.acc[i]
+#define DL_X(i) (S == 1 ? y##i[j] : y##i[j] + c * k##i[j])
+#define DL_PUT(i, d)                                 \
+  do {                                               \
+    if constexpr (S == 1) {                          \
+      k##i[j] = (d);                                 \
+      ac##i[j] = (d);                                \
+    } else if constexpr (S < 4) {                    \
+      k##i[j] = (d);                                 \
+      ac##i[j] = ac##i[j] + 2.0 * (d);               \
+    } else {                                         \
+      y##i[j] = y##i[j] + h6 * (ac##i[j] + (d));     \
+    }                                                \
+  } while (0)
+// The isochronous integrator: read and advanced only in isochronous segments.
+#define DL_ISO_X(i) (ISO ? DL_X(i) : 0.0)
+#define DL_ISO_PUT(i, v, lo, hi)                     \
+  do {                                               \
+    if constexpr (ISO) {                             \
+      const double diso = iso_rate(kiso[j], ed, v, lo, hi); \
+      DL_PUT(i, diso);                               \
+    }                                                \
+  } while (0)
+#define DL_GOVERNOR                                  \
+  const double* __restrict pref0 = g.pref0;          \
+  const double* __restrict kd = g.kd;                \
+  const double* __restrict kiso = g.kiso;            \
+  (void)kiso;                                        \
+  const double* __restrict dbs = g.dbs;              \
+  const double* __restrict inv_lag = g.inv_lag;      \
+  const double* __restrict ramp = g.ramp;            \
+  const double* __restrict pmin = g.pmin;            \
+  const double* __restrict pmax = g.pmax;            \
+  const double e = -df_hz, ae = std::fabs(e)
+
+// The arrays of one segment never overlap; GCC honours restrict only on function parameters, so
+// say so to the vectorizer directly.
+#if defined(__GNUC__) && !defined(__clang__)
+#define DL_IVDEP _Pragma("GCC ivdep")
+#else
+#define DL_IVDEP
+#endif
+
+namespace {
+
+template <int S, bool ISO>
+inline void steam_loop(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,
+                       const SegmentArrays& a, double c, double h6, double* __restrict out) {
+  DL_GOVERNOR;
+  DL_ARRAYS(0);
+  DL_ARRAYS(1);
+  DL_ARRAYS(2);
+  const double* __restrict inv_tch = t.p1;
+  DL_IVDEP
+  for (std::size_t j = 0; j < n; ++j) {
+    const double pv = DL_X(0), pm = DL_X(1), iso = DL_ISO_X(2);
+    const double ed = deadband(e, ae, dbs[j]);
+    const double ref = pref0[j] + kd[j] * ed + iso;
+    const double dpv = limited_rate(ref, pv, inv_lag[j], ramp[j], pmin[j], pmax[j]);
+    const double dpm = (pv - pm) * inv_tch[j];
+    out[j] = pm;
+    DL_PUT(0, dpv);
+    DL_PUT(1, dpm);
+    DL_ISO_PUT(2, pv, pmin[j], pmax[j]);
+    if constexpr (S == 4) y0[j] = clamp(y0[j], pmin[j], pmax[j]);
+  }
+}
+
+template <int S, bool ISO>
+inline void reheat_loop(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,
+                        const SegmentArrays& a, double c, double h6, double* __restrict out) {
+  DL_GOVERNOR;
+  DL_ARRAYS(0);
+  DL_ARRAYS(1);
+  DL_ARRAYS(2);
+  DL_ARRAYS(3);
+  const double* __restrict inv_tch = t.p1;
+  const double* __restrict inv_trh = t.p2;
+  const double* __restrict fhp = t.p3;
+  DL_IVDEP
+  for (std::size_t j = 0; j < n; ++j) {
+    const double pv = DL_X(0), hp = DL_X(1), rh = DL_X(2), iso = DL_ISO_X(3);
+    const double ed = deadband(e, ae, dbs[j]);
+    const double ref = pref0[j] + kd[j] * ed + iso;
+    const double dpv = limited_rate(ref, pv, inv_lag[j], ramp[j], pmin[j], pmax[j]);
+    const double dhp = (pv - hp) * inv_tch[j];
+    const double drh = (hp - rh) * inv_trh[j];
+    out[j] = fhp[j] * hp + (1.0 - fhp[j]) * rh;
+    DL_PUT(0, dpv);
+    DL_PUT(1, dhp);
+    DL_PUT(2, drh);
+    DL_ISO_PUT(3, pv, pmin[j], pmax[j]);
+    if constexpr (S == 4) y0[j] = clamp(y0[j], pmin[j], pmax[j]);
+  }
+}
+
+template <int S, bool ISO>
+inline void hydro_loop(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,
+                       const SegmentArrays& a, double c, double h6, double* __restrict out) {
+  DL_GOVERNOR;
+  DL_ARRAYS(0);
+  DL_ARRAYS(1);
+  DL_ARRAYS(2);
+  DL_ARRAYS(3);
+  const double* __restrict inv_ta = t.p1;
+  const double* __restrict gain_hf = t.p2;
+  const double* __restrict inv_half_tw = t.p3;
+  DL_IVDEP
+  for (std::size_t j = 0; j < n; ++j) {
+    const double w = DL_X(0), pv = DL_X(1), z = DL_X(2), iso = DL_ISO_X(3);
+    const double ed = deadband(e, ae, dbs[j]);
+    const double ref = pref0[j] + kd[j] * ed + iso;
+    // Transient droop (1 + s TR)/(1 + s TR RT/R) as a direct path plus a lag.
+    const double u = gain_hf[j] * ref + (1.0 - gain_hf[j]) * w;
+    const double dw = (ref - w) * inv_ta[j];
+    const double dpv = limited_rate(u, pv, inv_lag[j], ramp[j], pmin[j], pmax[j]);
+    const double dz = (pv - z) * inv_half_tw[j];
+    out[j] = 3.0 * z - 2.0 * pv;
+    DL_PUT(0, dw);
+    DL_PUT(1, dpv);
+    DL_PUT(2, dz);
+    DL_ISO_PUT(3, pv, pmin[j], pmax[j]);
+    if constexpr (S == 4) y1[j] = clamp(y1[j], pmin[j], pmax[j]);
+  }
+}
+
+template <int S, bool ISO>
+inline void gas_loop(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,
+                     const SegmentArrays& a, double c, double h6, double* __restrict out) {
+  DL_GOVERNOR;
+  DL_ARRAYS(0);
+  DL_ARRAYS(1);
+  DL_ARRAYS(2);
+  DL_ARRAYS(3);
+  const double* __restrict inv_tf = t.p1;
+  const double* __restrict inv_tc = t.p2;
+  const double* __restrict load_limit = t.p3;
+  DL_IVDEP
+  for (std::size_t j = 0; j < n; ++j) {
+    const double pv = DL_X(0), fuel = DL_X(1), pm = DL_X(2), iso = DL_ISO_X(3);
+    const double ed = deadband(e, ae, dbs[j]);
+    const double ref = pref0[j] + kd[j] * ed + iso;
+    const double dpv = limited_rate(ref, pv, inv_lag[j], ramp[j], pmin[j], pmax[j]);
+    const double dfuel = (std::min(pv, load_limit[j]) - fuel) * inv_tf[j];
+    const double dpm = (fuel - pm) * inv_tc[j];
+    out[j] = pm;
+    DL_PUT(0, dpv);
+    DL_PUT(1, dfuel);
+    DL_PUT(2, dpm);
+    DL_ISO_PUT(3, pv, pmin[j], std::min(pmax[j], load_limit[j]));
+    if constexpr (S == 4) y0[j] = clamp(y0[j], pmin[j], pmax[j]);
+  }
+}
+
+template <int S, bool ISO>
+inline void battery_loop(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,
+                         const SegmentArrays& a, double c, double h6, double* __restrict out) {
+  DL_GOVERNOR;
+  DL_ARRAYS(0);
+  DL_ARRAYS(1);
+  DL_ARRAYS(2);
+  DL_ARRAYS(3);
+  const double* __restrict inv_tfilt = t.p1;
+  const double* __restrict inv_tr = t.p2;
+  const double* __restrict kin = t.p3;
+  const double* __restrict cap = t.p4;
+  DL_IVDEP
+  for (std::size_t j = 0; j < n; ++j) {
+    const double q = DL_X(0), p = DL_X(1), en = DL_X(2), iso = DL_ISO_X(3);
+    const double ed = deadband(e, ae, dbs[j]);
+    const double rocof = (df_hz - q) * inv_tfilt[j];  // washout s/(1 + s Tf) on df
+    const double ref = pref0[j] + kd[j] * ed + iso - kin[j] * rocof;
+    // No discharge when empty, no charge when full.
+    const double hi = en <= 0.0 ? std::min(pmax[j], 0.0) : pmax[j];
+    const double lo = en >= cap[j] ? std::max(pmin[j], 0.0) : pmin[j];
+    double r = (clamp(ref, lo, hi) - p) * inv_tr[j];
+    r = std::min(r, ramp[j]);
+    r = std::max(r, -ramp[j]);
+    const double den = -p * (1.0 / 3600.0);
+    out[j] = p;
+    DL_PUT(0, rocof);
+    DL_PUT(1, r);
+    DL_PUT(2, den);
+    DL_ISO_PUT(3, p, lo, hi);
+    if constexpr (S == 4) y2[j] = clamp(y2[j], 0.0, cap[j]);
+  }
+}
+
+#undef DL_ARRAYS
+#undef DL_X
+#undef DL_PUT
+#undef DL_ISO_X
+#undef DL_ISO_PUT
+#undef DL_GOVERNOR
+#undef DL_IVDEP
+
+// Dispatches the stage number to the loop instance (compiled inside each ISA clone).
+#define DL_DISPATCH_ISO(loop, ISO)                                   \
+  switch (s.stage) {                                                 \
+    case 1: loop<1, ISO>(n, df_hz, g, t, a, s.c, s.h6, out); break;  \
+    case 2: loop<2, ISO>(n, df_hz, g, t, a, s.c, s.h6, out); break;  \
+    case 3: loop<3, ISO>(n, df_hz, g, t, a, s.c, s.h6, out); break;  \
+    default: loop<4, ISO>(n, df_hz, g, t, a, s.c, s.h6, out); break; \
+  }
+#define DL_DISPATCH(loop)          \
+  if (s.iso) {                     \
+    DL_DISPATCH_ISO(loop, true)    \
+  } else {                         \
+    DL_DISPATCH_ISO(loop, false)   \
+  }
+
 }  // namespace
 
 DROOPLINE_CLONES
-void steam_rhs(std::size_t n, double df_hz, const GovernorParams& g, const double* inv_tch,
-               const SegmentState& s, double* out_pm) {
-  const double e = -df_hz, ae = std::fabs(e);
-  const double* __restrict pv = s.x[0];
-  const double* __restrict pm = s.x[1];
-  const double* __restrict iso = s.x[2];
-  double* __restrict dpv = s.dx[0];
-  double* __restrict dpm = s.dx[1];
-  double* __restrict diso = s.dx[2];
-  for (std::size_t j = 0; j < n; ++j) {
-    const double ed = deadband(e, ae, g.db[j], g.stepm[j]);
-    const double ref = g.pset[j] + g.pagc[j] + g.kd[j] * ed + iso[j];
-    dpv[j] = limited_rate(ref, pv[j], g.inv_lag[j], g.ramp[j], g.pmin[j], g.pmax[j]);
-    dpm[j] = (pv[j] - pm[j]) * inv_tch[j];
-    diso[j] = iso_rate(g.kiso[j], ed, pv[j], g.pmin[j], g.pmax[j]);
-    out_pm[j] = pm[j];
-  }
+void steam_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,
+                 const SegmentArrays& a, const StageInfo& s, double* out) {
+  DL_DISPATCH(steam_loop)
 }
 
 DROOPLINE_CLONES
-void reheat_rhs(std::size_t n, double df_hz, const GovernorParams& g, const double* inv_tch,
-                const double* inv_trh, const double* fhp, const SegmentState& s, double* out_pm) {
-  const double e = -df_hz, ae = std::fabs(e);
-  const double* __restrict pv = s.x[0];
-  const double* __restrict hp = s.x[1];
-  const double* __restrict rh = s.x[2];
-  const double* __restrict iso = s.x[3];
-  double* __restrict dpv = s.dx[0];
-  double* __restrict dhp = s.dx[1];
-  double* __restrict drh = s.dx[2];
-  double* __restrict diso = s.dx[3];
-  for (std::size_t j = 0; j < n; ++j) {
-    const double ed = deadband(e, ae, g.db[j], g.stepm[j]);
-    const double ref = g.pset[j] + g.pagc[j] + g.kd[j] * ed + iso[j];
-    dpv[j] = limited_rate(ref, pv[j], g.inv_lag[j], g.ramp[j], g.pmin[j], g.pmax[j]);
-    dhp[j] = (pv[j] - hp[j]) * inv_tch[j];
-    drh[j] = (hp[j] - rh[j]) * inv_trh[j];
-    diso[j] = iso_rate(g.kiso[j], ed, pv[j], g.pmin[j], g.pmax[j]);
-    out_pm[j] = fhp[j] * hp[j] + (1.0 - fhp[j]) * rh[j];
-  }
+void reheat_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,
+                  const SegmentArrays& a, const StageInfo& s, double* out) {
+  DL_DISPATCH(reheat_loop)
 }
 
 DROOPLINE_CLONES
-void hydro_rhs(std::size_t n, double df_hz, const GovernorParams& g, const double* inv_ta,
-               const double* gain_hf, const double* inv_half_tw, const SegmentState& s,
-               double* out_pm) {
-  const double e = -df_hz, ae = std::fabs(e);
-  const double* __restrict w = s.x[0];
-  const double* __restrict pv = s.x[1];
-  const double* __restrict z = s.x[2];
-  const double* __restrict iso = s.x[3];
-  double* __restrict dw = s.dx[0];
-  double* __restrict dpv = s.dx[1];
-  double* __restrict dz = s.dx[2];
-  double* __restrict diso = s.dx[3];
-  for (std::size_t j = 0; j < n; ++j) {
-    const double ed = deadband(e, ae, g.db[j], g.stepm[j]);
-    const double ref = g.pset[j] + g.pagc[j] + g.kd[j] * ed + iso[j];
-    // Transient droop (1 + s TR)/(1 + s TR RT/R) as a direct path plus a lag.
-    const double u = gain_hf[j] * ref + (1.0 - gain_hf[j]) * w[j];
-    dw[j] = (ref - w[j]) * inv_ta[j];
-    dpv[j] = limited_rate(u, pv[j], g.inv_lag[j], g.ramp[j], g.pmin[j], g.pmax[j]);
-    dz[j] = (pv[j] - z[j]) * inv_half_tw[j];
-    diso[j] = iso_rate(g.kiso[j], ed, pv[j], g.pmin[j], g.pmax[j]);
-    out_pm[j] = 3.0 * z[j] - 2.0 * pv[j];
-  }
+void hydro_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,
+                 const SegmentArrays& a, const StageInfo& s, double* out) {
+  DL_DISPATCH(hydro_loop)
 }
 
 DROOPLINE_CLONES
-void gas_rhs(std::size_t n, double df_hz, const GovernorParams& g, const double* inv_tf,
-             const double* inv_tc, const double* load_limit, const SegmentState& s,
-             double* out_pm) {
-  const double e = -df_hz, ae = std::fabs(e);
-  const double* __restrict pv = s.x[0];
-  const double* __restrict fuel = s.x[1];
-  const double* __restrict pm = s.x[2];
-  const double* __restrict iso = s.x[3];
-  double* __restrict dpv = s.dx[0];
-  double* __restrict dfuel = s.dx[1];
-  double* __restrict dpm = s.dx[2];
-  double* __restrict diso = s.dx[3];
-  for (std::size_t j = 0; j < n; ++j) {
-    const double ed = deadband(e, ae, g.db[j], g.stepm[j]);
-    const double ref = g.pset[j] + g.pagc[j] + g.kd[j] * ed + iso[j];
-    dpv[j] = limited_rate(ref, pv[j], g.inv_lag[j], g.ramp[j], g.pmin[j], g.pmax[j]);
-    dfuel[j] = (std::min(pv[j], load_limit[j]) - fuel[j]) * inv_tf[j];
-    dpm[j] = (fuel[j] - pm[j]) * inv_tc[j];
-    diso[j] = iso_rate(g.kiso[j], ed, pv[j], g.pmin[j], std::min(g.pmax[j], load_limit[j]));
-    out_pm[j] = pm[j];
-  }
+void gas_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,
+               const SegmentArrays& a, const StageInfo& s, double* out) {
+  DL_DISPATCH(gas_loop)
 }
 
 DROOPLINE_CLONES
-void battery_rhs(std::size_t n, double df_hz, const GovernorParams& g, const double* inv_tfilt,
-                 const double* inv_tr, const double* kin, const double* cap,
-                 const SegmentState& s, double* out_pm) {
-  const double e = -df_hz, ae = std::fabs(e);
-  const double* __restrict q = s.x[0];
-  const double* __restrict p = s.x[1];
-  const double* __restrict en = s.x[2];
-  const double* __restrict iso = s.x[3];
-  double* __restrict dq = s.dx[0];
-  double* __restrict dp = s.dx[1];
-  double* __restrict den = s.dx[2];
-  double* __restrict diso = s.dx[3];
-  for (std::size_t j = 0; j < n; ++j) {
-    const double ed = deadband(e, ae, g.db[j], g.stepm[j]);
-    const double rocof = (df_hz - q[j]) * inv_tfilt[j];  // washout s/(1 + s Tf) on df
-    const double ref = g.pset[j] + g.pagc[j] + g.kd[j] * ed + iso[j] - kin[j] * rocof;
-    // No discharge when empty, no charge when full.
-    const double hi = en[j] <= 0.0 ? std::min(g.pmax[j], 0.0) : g.pmax[j];
-    const double lo = en[j] >= cap[j] ? std::max(g.pmin[j], 0.0) : g.pmin[j];
-    const double target = std::min(std::max(ref, lo), hi);
-    double r = (target - p[j]) * inv_tr[j];
-    r = std::min(r, g.ramp[j]);
-    r = std::max(r, -g.ramp[j]);
-    dq[j] = rocof;
-    dp[j] = r;
-    den[j] = -p[j] * (1.0 / 3600.0);
-    diso[j] = iso_rate(g.kiso[j], ed, p[j], lo, hi);
-    out_pm[j] = p[j];
-  }
+void battery_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,
+                   const SegmentArrays& a, const StageInfo& s, double* out) {
+  DL_DISPATCH(battery_loop)
 }
 
+#undef DL_DISPATCH
+#undef DL_DISPATCH_ISO
+
+// Eight interleaved partial sums combined pairwise: a fixed order the compiler can map onto vector
+// lanes without reassociating anything, so every ISA variant gives the same bits.
 DROOPLINE_CLONES
-void rk4_stage(std::size_t n, const double* y, const double* k, double* acc, double* xs, double w,
-               double c, bool first) {
-  const double* __restrict yy = y;
-  const double* __restrict kk = k;
-  double* __restrict aa = acc;
-  double* __restrict xx = xs;
-  if (first) {
-    for (std::size_t i = 0; i < n; ++i) {
-      aa[i] = kk[i];
-      xx[i] = yy[i] + c * kk[i];
-    }
-  } else {
-    for (std::size_t i = 0; i < n; ++i) {
-      aa[i] = aa[i] + w * kk[i];
-      xx[i] = yy[i] + c * kk[i];
-    }
-  }
-}
-
-DROOPLINE_CLONES
-void rk4_finish(std::size_t n, double* y, const double* acc, const double* k, double c) {
-  double* __restrict yy = y;
-  const double* __restrict aa = acc;
-  const double* __restrict kk = k;
-  for (std::size_t i = 0; i < n; ++i) yy[i] = yy[i] + c * (aa[i] + kk[i]);
-}
-
 double ordered_sum(std::size_t n, const double* v) {
-  double s0 = 0.0, s1 = 0.0, s2 = 0.0, s3 = 0.0;
+  double s[8] = {0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0};
   std::size_t i = 0;
-  for (; i + 4 <= n; i += 4) {
-    s0 += v[i];
-    s1 += v[i + 1];
-    s2 += v[i + 2];
-    s3 += v[i + 3];
-  }
-  for (; i < n; ++i) s0 += v[i];
-  return (s0 + s1) + (s2 + s3);
+  for (; i + 8 <= n; i += 8)
+    for (int l = 0; l < 8; ++l) s[l] += v[i + static_cast<std::size_t>(l)];
+  for (; i < n; ++i) s[0] += v[i];
+  return ((s[0] + s[1]) + (s[2] + s[3])) + ((s[4] + s[5]) + (s[6] + s[7]));
 }
 
 }  // namespace droopline::detail

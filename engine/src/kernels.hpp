@@ -1,8 +1,11 @@
 #pragma once
-// Hot per-type kernels of the right-hand side. Each works on one contiguous segment of units of
-// one turbine type in one area, so the area's speed error is a scalar and the loop body has no
-// branch on type: the compiler vectorizes it. Built in several instruction-set variants
-// (target_clones) and picked at load time; every variant computes bit-identical results because
+// Hot per-type kernels of the RK4 step. Each works on one contiguous segment of units of one
+// turbine type in one area, so the area's speed error is a scalar and the loop body has no branch
+// on type: the compiler vectorizes it. One call does a whole RK4 stage for the segment: it forms
+// the stage state from the step's start state and the previous stage's slope, evaluates the
+// model, and does the stage's bookkeeping (stage 4 writes the new state, valve limits applied),
+// so the unit data is read once per stage. Built in several instruction-set variants
+// (target_clones) picked at load time; every variant gives bit-identical results because
 // floating-point contraction is off and only element-wise IEEE operations are used.
 #include <cstddef>
 
@@ -10,44 +13,54 @@ namespace droopline::detail {
 
 /// Per-unit parameters shared by every turbine type, each pointer offset to the segment start.
 struct GovernorParams {
-  const double* pset;     ///< setpoint (MW)
-  const double* pagc;     ///< secondary-control correction (MW)
+  const double* pref0;    ///< setpoint plus secondary-control correction (MW)
   const double* kd;       ///< droop gain S/(R f0) (MW/Hz)
   const double* kiso;     ///< isochronous gain kd/integral_s (MW/(Hz s)); 0 in droop mode
-  const double* db;       ///< deadband half-width (Hz)
-  const double* stepm;    ///< 1 = step deadband, 0 = offset deadband
+  const double* dbs;      ///< deadband half-width (Hz); negative = step kind of |dbs|
   const double* inv_lag;  ///< 1/governor lag (1/s)
   const double* ramp;     ///< rate limit (MW/s), huge when none
   const double* pmin;     ///< lower valve/power limit (MW)
   const double* pmax;     ///< upper valve/power limit (MW)
 };
 
-/// Offsets of one segment's state and derivative arrays: state k of unit j is at base[k] + j.
-struct SegmentState {
-  const double* x[4];  ///< state arrays at the stage point
-  double* dx[4];       ///< derivative arrays
+/// Turbine parameters of a segment (meaning by type, see Engine::Impl::fill_type_params).
+struct TypeParams {
+  const double* p1;
+  const double* p2;
+  const double* p3;
+  const double* p4;
 };
 
-// df_hz: the area's frequency deviation at the stage point; out_pm receives each unit's output.
-void steam_rhs(std::size_t n, double df_hz, const GovernorParams& g, const double* inv_tch,
-               const SegmentState& s, double* out_pm);
-void reheat_rhs(std::size_t n, double df_hz, const GovernorParams& g, const double* inv_tch,
-                const double* inv_trh, const double* fhp, const SegmentState& s, double* out_pm);
-void hydro_rhs(std::size_t n, double df_hz, const GovernorParams& g, const double* inv_ta,
-               const double* gain_hf, const double* inv_half_tw, const SegmentState& s,
-               double* out_pm);
-void gas_rhs(std::size_t n, double df_hz, const GovernorParams& g, const double* inv_tf,
-             const double* inv_tc, const double* load_limit, const SegmentState& s,
-             double* out_pm);
-void battery_rhs(std::size_t n, double df_hz, const GovernorParams& g, const double* inv_tfilt,
-                 const double* inv_tr, const double* kin, const double* cap,
-                 const SegmentState& s, double* out_pm);
+/// Arrays of one segment: state i of unit j is at y[i][j]. The last state of every type is the
+/// isochronous integrator, touched only in segments of isochronous units.
+struct SegmentArrays {
+  double* y[4];    ///< state at the start of the step; stage 4 writes the new state
+  double* k[4];    ///< slope: read as the previous stage's, overwritten with this stage's
+  double* acc[4];  ///< k1 + 2 k2 + 2 k3
+};
 
-/// acc = first ? k : acc + w*k;  xs = y + c*k  (one RK4 stage bookkeeping pass).
-void rk4_stage(std::size_t n, const double* y, const double* k, double* acc, double* xs, double w,
-               double c, bool first);
-/// y += c * (acc + k)  (the final RK4 combination).
-void rk4_finish(std::size_t n, double* y, const double* acc, const double* k, double c);
+/// One RK4 stage: 1..4, the stage offset c (0, h/2, h/2, h) and h/6 for the final combination;
+/// `iso` selects the variant with the isochronous integrator.
+struct StageInfo {
+  int stage;
+  double c;
+  double h6;
+  bool iso;
+};
+
+// df_hz: the area's frequency deviation at the stage point; out_pm receives each unit's output
+// at the stage point (for the area's generation sum).
+void steam_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,
+                 const SegmentArrays& a, const StageInfo& s, double* out_pm);
+void reheat_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,
+                  const SegmentArrays& a, const StageInfo& s, double* out_pm);
+void hydro_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,
+                 const SegmentArrays& a, const StageInfo& s, double* out_pm);
+void gas_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,
+               const SegmentArrays& a, const StageInfo& s, double* out_pm);
+void battery_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,
+                   const SegmentArrays& a, const StageInfo& s, double* out_pm);
+
 /// Sum of v[0..n) in a fixed order (four interleaved partial sums), independent of the ISA.
 double ordered_sum(std::size_t n, const double* v);
 

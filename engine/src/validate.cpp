@@ -5,6 +5,7 @@
 #include <cstdio>
 #include <map>
 #include <numbers>
+#include <string_view>
 
 #include "droopline/format.hpp"
 
@@ -14,31 +15,52 @@ namespace {
 constexpr double kBalanceToleranceMw = 0.1;
 constexpr double kStepFraction = 5.0;  // step must be at most 1/5 of the fastest time constant
 
+// A path made of a prefix and a field, joined only when a message needs it: validating a large
+// fleet checks hundreds of thousands of values and reports few.
+struct Where {
+  std::string_view base;
+  const char* suffix;
+  bool dot = false;  // insert '.' between base and suffix
+  Where(const std::string& b) : base(b), suffix(nullptr) {}  // NOLINT: implicit on purpose
+  Where(const char* b) : base(b), suffix(nullptr) {}         // NOLINT: implicit on purpose
+  Where(const std::string& b, const char* s, bool d) : base(b), suffix(s), dot(d) {}
+  std::string str() const {
+    std::string out(base);
+    if (suffix) {
+      if (dot) out += '.';
+      out += suffix;
+    }
+    return out;
+  }
+};
+
+Where at(const std::string& base, const char* suffix, bool dot = false) { return {base, suffix, dot}; }
+
 class Checker {
  public:
   explicit Checker(std::vector<Issue>& out) : out_(out) {}
 
-  void error(const std::string& path, const std::string& message) {
-    out_.push_back({path, message, false});
+  void error(const Where& path, const std::string& message) {
+    out_.push_back({path.str(), message, false});
   }
-  void warn(const std::string& path, const std::string& message) {
-    out_.push_back({path, message, true});
+  void warn(const Where& path, const std::string& message) {
+    out_.push_back({path.str(), message, true});
   }
-  void positive(const std::string& path, double v) {
+  void positive(const Where& path, double v) {
     if (!(v > 0.0)) error(path, "must be > 0, got " + fmt_num(v));
   }
-  void non_negative(const std::string& path, double v) {
+  void non_negative(const Where& path, double v) {
     if (!(v >= 0.0)) error(path, "must be >= 0, got " + fmt_num(v));
   }
-  void finite(const std::string& path, double v) {
+  void finite(const Where& path, double v) {
     if (!std::isfinite(v)) error(path, "must be a finite number");
   }
-  void within(const std::string& path, double v, double lo, double hi) {
+  void within(const Where& path, double v, double lo, double hi) {
     if (!(v >= lo && v <= hi))
       error(path, "must lie within [" + fmt_num(lo) + ", " + fmt_num(hi) + "], got " + fmt_num(v));
   }
   /// Warns when a valid value lies outside its typical range (section 9 of the model notes).
-  void typical(const std::string& path, double v, double lo, double hi, const char* what) {
+  void typical(const Where& path, double v, double lo, double hi, const char* what) {
     if (v > 0.0 && (v < lo || v > hi))
       warn(path, fmt_num(v) + " is outside the typical range " + fmt_num(lo) + "-" + fmt_num(hi) +
                      " of " + what);
@@ -81,77 +103,77 @@ struct TimeConstant {
 };
 
 void check_governor(Checker& ck, const std::string& p, const GovernorDef& g, bool battery) {
-  ck.positive(p + ".droop", g.droop);
-  ck.typical(p + ".droop", g.droop, 0.02, 0.12, "droop (pu)");
-  ck.non_negative(p + ".deadband_hz", g.deadband_hz);
+  ck.positive(at(p, ".droop"), g.droop);
+  ck.typical(at(p, ".droop"), g.droop, 0.02, 0.12, "droop (pu)");
+  ck.non_negative(at(p, ".deadband_hz"), g.deadband_hz);
   if (g.deadband_hz > 0.5)
-    ck.warn(p + ".deadband_hz",
+    ck.warn(at(p, ".deadband_hz"),
             fmt_num(g.deadband_hz) + " is outside the typical range 0-0.5 of deadband (Hz)");
-  ck.positive(p + ".lag_s", g.lag_s);
-  if (!battery) ck.typical(p + ".lag_s", g.lag_s, 0.05, 0.5, "governor lag (s)");
-  ck.positive(p + ".integral_s", g.integral_s);
+  ck.positive(at(p, ".lag_s"), g.lag_s);
+  if (!battery) ck.typical(at(p, ".lag_s"), g.lag_s, 0.05, 0.5, "governor lag (s)");
+  ck.positive(at(p, ".integral_s"), g.integral_s);
 }
 
 void check_turbine(Checker& ck, const std::string& p, const UnitDef& u,
                    std::vector<TimeConstant>& tcs) {
   const TurbineDef& t = u.turbine;
   auto tc = [&](const char* name, double v) {
-    ck.positive(p + "." + name, v);
+    ck.positive(at(p, name, true), v);
     if (v > 0.0) tcs.push_back({v, p + "." + name});
   };
   switch (t.type) {
     case TurbineType::steam:
       tc("steam_chest_s", t.steam_chest_s);
-      ck.typical(p + ".steam_chest_s", t.steam_chest_s, 0.1, 0.5, "steam chest lag (s)");
+      ck.typical(at(p, ".steam_chest_s"), t.steam_chest_s, 0.1, 0.5, "steam chest lag (s)");
       break;
     case TurbineType::reheat:
       tc("steam_chest_s", t.steam_chest_s);
       tc("reheat_s", t.reheat_s);
-      ck.typical(p + ".steam_chest_s", t.steam_chest_s, 0.1, 0.5, "steam chest lag (s)");
-      ck.typical(p + ".reheat_s", t.reheat_s, 4.0, 12.0, "reheat lag (s)");
-      ck.within(p + ".hp_fraction", t.hp_fraction, 0.0, 1.0);
+      ck.typical(at(p, ".steam_chest_s"), t.steam_chest_s, 0.1, 0.5, "steam chest lag (s)");
+      ck.typical(at(p, ".reheat_s"), t.reheat_s, 4.0, 12.0, "reheat lag (s)");
+      ck.within(at(p, ".hp_fraction"), t.hp_fraction, 0.0, 1.0);
       if (t.hp_fraction >= 0.0 && t.hp_fraction <= 1.0)
-        ck.typical(p + ".hp_fraction", t.hp_fraction, 0.2, 0.4, "high-pressure fraction");
+        ck.typical(at(p, ".hp_fraction"), t.hp_fraction, 0.2, 0.4, "high-pressure fraction");
       break;
     case TurbineType::hydro: {
       tc("water_s", t.water_s);
-      ck.typical(p + ".water_s", t.water_s, 0.5, 4.0, "water starting time (s)");
+      ck.typical(at(p, ".water_s"), t.water_s, 0.5, 4.0, "water starting time (s)");
       if (t.water_s > 0.0) tcs.push_back({t.water_s / 2.0, p + ".water_s (Tw/2)"});
-      if (t.temporary_droop) ck.positive(p + ".temporary_droop", *t.temporary_droop);
-      if (t.reset_s) ck.positive(p + ".reset_s", *t.reset_s);
+      if (t.temporary_droop) ck.positive(at(p, ".temporary_droop"), *t.temporary_droop);
+      if (t.reset_s) ck.positive(at(p, ".reset_s"), *t.reset_s);
       if (!t.temporary_droop && !t.reset_s && !(u.inertia_s > 0.0))
         ck.error(p, "a hydro unit needs inertia_s > 0 or explicit temporary_droop and reset_s");
       const double rt = hydro_temporary_droop(u);
       const double tr = hydro_reset_s(u);
       if (t.water_s > 0.0 && u.inertia_s > 0.0 && rt > 0.0 && u.governor.droop > 0.0) {
         if (rt < u.governor.droop)
-          ck.warn(p + ".temporary_droop",
+          ck.warn(at(p, ".temporary_droop"),
                   fmt_num(rt) + " is below the permanent droop " + fmt_num(u.governor.droop) +
                       ": the compensation then amplifies fast changes instead of softening them");
         if (tr > 0.0) tcs.push_back({tr * rt / u.governor.droop, p + " (TR*RT/R)"});
       }
       if (!(tr > 0.0) && !t.reset_s && t.water_s > 0.0)
-        ck.error(p + ".water_s", "the design rule gives no positive reset_s for Tw = " +
+        ck.error(at(p, ".water_s"), "the design rule gives no positive reset_s for Tw = " +
                                      fmt_num(t.water_s) + " s; give reset_s explicitly");
       if (!(rt > 0.0) && !t.temporary_droop && t.water_s > 0.0 && u.inertia_s > 0.0)
-        ck.error(p + ".water_s", "the design rule gives no positive temporary_droop for Tw = " +
+        ck.error(at(p, ".water_s"), "the design rule gives no positive temporary_droop for Tw = " +
                                      fmt_num(t.water_s) + " s; give temporary_droop explicitly");
       break;
     }
     case TurbineType::gas:
       tc("fuel_s", t.fuel_s);
       tc("combustion_s", t.combustion_s);
-      if (t.load_limit_mw) ck.positive(p + ".load_limit_mw", *t.load_limit_mw);
+      if (t.load_limit_mw) ck.positive(at(p, ".load_limit_mw"), *t.load_limit_mw);
       break;
     case TurbineType::battery:
       tc("response_s", t.response_s);
       tc("rocof_filter_s", t.rocof_filter_s);
-      ck.non_negative(p + ".synthetic_inertia_s", t.synthetic_inertia_s);
+      ck.non_negative(at(p, ".synthetic_inertia_s"), t.synthetic_inertia_s);
       if (!t.energy_mwh)
-        ck.error(p + ".energy_mwh", "required for a battery");
+        ck.error(at(p, ".energy_mwh"), "required for a battery");
       else
-        ck.positive(p + ".energy_mwh", *t.energy_mwh);
-      ck.within(p + ".soc", t.soc, 0.0, 1.0);
+        ck.positive(at(p, ".energy_mwh"), *t.energy_mwh);
+      ck.within(at(p, ".soc"), t.soc, 0.0, 1.0);
       break;
   }
 }
@@ -164,7 +186,7 @@ void check_command(Checker& ck, const SystemDef& def, const Command& c, const st
                  const std::string& value, const char* what) -> const std::size_t* {
     auto it = ids.find(value);
     if (it == ids.end()) {
-      ck.error(p + "." + field, "unknown " + std::string(what) + " \"" + value + "\"");
+      ck.error(at(p, field.c_str(), true), "unknown " + std::string(what) + " \"" + value + "\"");
       return nullptr;
     }
     return &it->second;
@@ -173,18 +195,18 @@ void check_command(Checker& ck, const SystemDef& def, const Command& c, const st
     const UnitDef& u = def.units[ui];
     const double lo = unit_min_mw(u), hi = unit_max_mw(u);
     if (!(mw >= lo && mw <= hi))
-      ck.error(p + "." + field, "must lie within [min_mw, max_mw] = [" + fmt_num(lo) + ", " +
+      ck.error(at(p, field.c_str(), true), "must lie within [min_mw, max_mw] = [" + fmt_num(lo) + ", " +
                                     fmt_num(hi) + "] of unit \"" + u.id + "\", got " + fmt_num(mw));
   };
   switch (c.kind) {
     case CommandKind::load_step:
       ref(areas, "area", c.area, "area");
-      ck.finite(p + ".mw", c.mw);
+      ck.finite(at(p, ".mw"), c.mw);
       break;
     case CommandKind::load_ramp:
       ref(areas, "area", c.area, "area");
-      ck.finite(p + ".mw", c.mw);
-      ck.positive(p + ".over_s", c.over_s);
+      ck.finite(at(p, ".mw"), c.mw);
+      ck.positive(at(p, ".over_s"), c.over_s);
       break;
     case CommandKind::unit_trip:
       ref(units, "unit", c.unit, "unit");
@@ -194,12 +216,12 @@ void check_command(Checker& ck, const SystemDef& def, const Command& c, const st
       break;
     case CommandKind::setpoint:
       if (auto ui = ref(units, "unit", c.unit, "unit")) unit_range(*ui, "mw", c.mw);
-      if (c.ramp_mw_per_s) ck.positive(p + ".ramp_mw_per_s", *c.ramp_mw_per_s);
+      if (c.ramp_mw_per_s) ck.positive(at(p, ".ramp_mw_per_s"), *c.ramp_mw_per_s);
       break;
     case CommandKind::governor:
       ref(units, "unit", c.unit, "unit");
-      if (c.droop) ck.positive(p + ".droop", *c.droop);
-      if (c.deadband_hz) ck.non_negative(p + ".deadband_hz", *c.deadband_hz);
+      if (c.droop) ck.positive(at(p, ".droop"), *c.droop);
+      if (c.deadband_hz) ck.non_negative(at(p, ".deadband_hz"), *c.deadband_hz);
       if (!c.droop && !c.deadband_hz && !c.deadband && !c.mode)
         ck.error(p, "a governor command needs at least one of droop, deadband_hz, deadband, mode");
       break;
@@ -212,8 +234,8 @@ void check_command(Checker& ck, const SystemDef& def, const Command& c, const st
       break;
     case CommandKind::fluctuation:
       ref(areas, "area", c.area, "area");
-      ck.non_negative(p + ".sigma_mw", c.sigma_mw);
-      ck.positive(p + ".tau_s", c.tau_s);
+      ck.non_negative(at(p, ".sigma_mw"), c.sigma_mw);
+      ck.positive(at(p, ".tau_s"), c.tau_s);
       break;
   }
 }
@@ -492,44 +514,44 @@ std::vector<Issue> validate(const SystemDef& def) {
   for (std::size_t i = 0; i < def.areas.size(); ++i) {
     const AreaDef& a = def.areas[i];
     const std::string p = "areas[" + std::to_string(i) + "]";
-    ck.non_negative(p + ".demand_mw", a.demand_mw);
-    ck.non_negative(p + ".load_damping", a.load_damping);
+    ck.non_negative(at(p, ".demand_mw"), a.demand_mw);
+    ck.non_negative(at(p, ".load_damping"), a.load_damping);
     if (a.load_damping > 3.0)
-      ck.warn(p + ".load_damping",
+      ck.warn(at(p, ".load_damping"),
               fmt_num(a.load_damping) + " is outside the typical range 0-3 of load damping");
-    if (a.agc.bias_mw_per_hz) ck.positive(p + ".agc.bias_mw_per_hz", *a.agc.bias_mw_per_hz);
-    ck.non_negative(p + ".agc.kp", a.agc.kp);
-    ck.non_negative(p + ".agc.ki_per_s", a.agc.ki_per_s);
-    ck.non_negative(p + ".agc.period_s", a.agc.period_s);
+    if (a.agc.bias_mw_per_hz) ck.positive(at(p, ".agc.bias_mw_per_hz"), *a.agc.bias_mw_per_hz);
+    ck.non_negative(at(p, ".agc.kp"), a.agc.kp);
+    ck.non_negative(at(p, ".agc.ki_per_s"), a.agc.ki_per_s);
+    ck.non_negative(at(p, ".agc.period_s"), a.agc.period_s);
     double shed_total = 0.0;
     for (std::size_t s = 0; s < a.shedding.size(); ++s) {
       const SheddingStageDef& st = a.shedding[s];
       const std::string sp = p + ".shedding[" + std::to_string(s) + "]";
       if (!(st.below_hz > 0.0 && st.below_hz < def.nominal_hz))
-        ck.error(sp + ".below_hz", "must lie between 0 and nominal_hz (" +
+        ck.error(at(sp, ".below_hz"), "must lie between 0 and nominal_hz (" +
                                        fmt_num(def.nominal_hz) + "), got " + fmt_num(st.below_hz));
-      ck.non_negative(sp + ".delay_s", st.delay_s);
+      ck.non_negative(at(sp, ".delay_s"), st.delay_s);
       if (!(st.shed_pct > 0.0 && st.shed_pct <= 100.0))
-        ck.error(sp + ".shed_pct", "must lie within (0, 100], got " + fmt_num(st.shed_pct));
+        ck.error(at(sp, ".shed_pct"), "must lie within (0, 100], got " + fmt_num(st.shed_pct));
       else
         shed_total += st.shed_pct;
     }
     if (shed_total > 100.0)
-      ck.error(p + ".shedding", "stages shed " + fmt_num(shed_total) +
+      ck.error(at(p, ".shedding"), "stages shed " + fmt_num(shed_total) +
                                     " % of the demand in total, at most 100 %");
   }
 
   for (std::size_t i = 0; i < def.ties.size(); ++i) {
     const TieDef& t = def.ties[i];
     const std::string p = "ties[" + std::to_string(i) + "]";
-    if (!areas.count(t.from)) ck.error(p + ".from", "unknown area \"" + t.from + "\"");
-    if (!areas.count(t.to)) ck.error(p + ".to", "unknown area \"" + t.to + "\"");
+    if (!areas.count(t.from)) ck.error(at(p, ".from"), "unknown area \"" + t.from + "\"");
+    if (!areas.count(t.to)) ck.error(at(p, ".to"), "unknown area \"" + t.to + "\"");
     if (t.from == t.to && areas.count(t.from))
-      ck.error(p + ".to", "must differ from \"from\" (\"" + t.from + "\")");
-    ck.positive(p + ".pmax_mw", t.pmax_mw);
-    ck.non_negative(p + ".damping_mw_per_hz", t.damping_mw_per_hz);
+      ck.error(at(p, ".to"), "must differ from \"from\" (\"" + t.from + "\")");
+    ck.positive(at(p, ".pmax_mw"), t.pmax_mw);
+    ck.non_negative(at(p, ".damping_mw_per_hz"), t.damping_mw_per_hz);
     if (t.trip_angle_deg && !(*t.trip_angle_deg > 0.0 && *t.trip_angle_deg <= 3600.0))
-      ck.error(p + ".trip_angle_deg", "must lie within (0, 3600], got " + fmt_num(*t.trip_angle_deg));
+      ck.error(at(p, ".trip_angle_deg"), "must lie within (0, 3600], got " + fmt_num(*t.trip_angle_deg));
   }
 
   for (std::size_t i = 0; i < def.units.size(); ++i) {
@@ -537,33 +559,33 @@ std::vector<Issue> validate(const SystemDef& def) {
     const std::string p = "units[" + std::to_string(i) + "]";
     const bool battery = u.turbine.type == TurbineType::battery;
     auto area = areas.find(u.area);
-    if (area == areas.end()) ck.error(p + ".area", "unknown area \"" + u.area + "\"");
-    ck.positive(p + ".rating_mw", u.rating_mw);
+    if (area == areas.end()) ck.error(at(p, ".area"), "unknown area \"" + u.area + "\"");
+    ck.positive(at(p, ".rating_mw"), u.rating_mw);
     if (battery) {
       if (u.inertia_s != 0.0)
-        ck.error(p + ".inertia_s", "a battery has no physical inertia, got " +
+        ck.error(at(p, ".inertia_s"), "a battery has no physical inertia, got " +
                                        fmt_num(u.inertia_s) + " (use turbine.synthetic_inertia_s)");
     } else {
-      ck.non_negative(p + ".inertia_s", u.inertia_s);
+      ck.non_negative(at(p, ".inertia_s"), u.inertia_s);
       if (u.inertia_s == 0.0)
-        ck.warn(p + ".inertia_s", "0 s: this synchronous unit adds no inertia");
+        ck.warn(at(p, ".inertia_s"), "0 s: this synchronous unit adds no inertia");
       else
-        ck.typical(p + ".inertia_s", u.inertia_s, 2.0, 10.0, "inertia constant H (s)");
+        ck.typical(at(p, ".inertia_s"), u.inertia_s, 2.0, 10.0, "inertia constant H (s)");
     }
     const double lo = unit_min_mw(u), hi = unit_max_mw(u);
-    if (u.max_mw) ck.positive(p + ".max_mw", *u.max_mw);
+    if (u.max_mw) ck.positive(at(p, ".max_mw"), *u.max_mw);
     if (u.max_mw && u.rating_mw > 0.0 && *u.max_mw > u.rating_mw)
-      ck.warn(p + ".max_mw", fmt_num(*u.max_mw) + " MW is above the rating " +
+      ck.warn(at(p, ".max_mw"), fmt_num(*u.max_mw) + " MW is above the rating " +
                                  fmt_num(u.rating_mw) + " MW");
     if (!battery && u.min_mw && *u.min_mw < 0.0)
-      ck.error(p + ".min_mw", "must be >= 0 for a generating unit, got " + fmt_num(*u.min_mw));
+      ck.error(at(p, ".min_mw"), "must be >= 0 for a generating unit, got " + fmt_num(*u.min_mw));
     if (lo > hi)
-      ck.error(p + ".min_mw", "must be <= max_mw (" + fmt_num(hi) + "), got " + fmt_num(lo));
+      ck.error(at(p, ".min_mw"), "must be <= max_mw (" + fmt_num(hi) + "), got " + fmt_num(lo));
     else if (!(u.setpoint_mw >= lo && u.setpoint_mw <= hi))
-      ck.error(p + ".setpoint_mw", "must lie within [min_mw, max_mw] = [" + fmt_num(lo) + ", " +
+      ck.error(at(p, ".setpoint_mw"), "must lie within [min_mw, max_mw] = [" + fmt_num(lo) + ", " +
                                        fmt_num(hi) + "], got " + fmt_num(u.setpoint_mw));
-    if (u.ramp_mw_per_s) ck.positive(p + ".ramp_mw_per_s", *u.ramp_mw_per_s);
-    ck.non_negative(p + ".agc_share", u.agc_share);
+    if (u.ramp_mw_per_s) ck.positive(at(p, ".ramp_mw_per_s"), *u.ramp_mw_per_s);
+    ck.non_negative(at(p, ".agc_share"), u.agc_share);
     check_governor(ck, p + ".governor", u.governor, battery);
     if (!battery && u.governor.lag_s > 0.0)
       tcs.push_back({u.governor.lag_s, p + ".governor.lag_s"});
@@ -583,7 +605,7 @@ std::vector<Issue> validate(const SystemDef& def) {
     const EventDef& e = def.events[i];
     const std::string p = "events[" + std::to_string(i) + "]";
     if (!(e.at_s >= 0.0 && e.at_s <= def.duration_s))
-      ck.error(p + ".at_s", "must lie within [0, duration_s] = [0, " + fmt_num(def.duration_s) +
+      ck.error(at(p, ".at_s"), "must lie within [0, duration_s] = [0, " + fmt_num(def.duration_s) +
                                 "], got " + fmt_num(e.at_s));
     check_command(ck, def, e.command, p, areas, units, ties);
   }

@@ -108,6 +108,18 @@ struct ApplyResult {
   double at_s = 0.0;  ///< simulation time at which the command took effect
 };
 
+/// Runs independent tasks, possibly in parallel, for engines with large fleets. The engine
+/// owns no threads: a caller that has some hands them in through this interface.
+class TaskRunner {
+ public:
+  virtual ~TaskRunner() = default;
+  /// How many tasks can usefully run at once.
+  virtual std::size_t concurrency() const = 0;
+  /// Calls fn(ctx, i, count) for i in [0, count) and returns when every call has returned.
+  virtual void run(std::size_t count, void (*fn)(void* ctx, std::size_t i, std::size_t count),
+                   void* ctx) = 0;
+};
+
 class Engine;
 
 /// Result of Engine::create: an engine, or the errors that stop one being made.
@@ -124,6 +136,10 @@ class Engine {
   ~Engine();
   Engine(const Engine&) = delete;
   Engine& operator=(const Engine&) = delete;
+
+  /// Lets large fleets (4096 units and more) spread each stage over `runner` (null: one thread).
+  /// Results are bit-identical either way. The runner must outlive its use by this engine.
+  void set_task_runner(TaskRunner* runner);
 
   /// Applies the scheduled events due now, then advances exactly one step.
   void step();

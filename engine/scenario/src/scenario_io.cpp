@@ -3,6 +3,7 @@
 #include <algorithm>
 #include <fstream>
 #include <set>
+#include <string_view>
 #include <sstream>
 
 #include <nlohmann/json.hpp>
@@ -12,22 +13,25 @@
 namespace droopline {
 namespace {
 
-using json = nlohmann::json;
+// Objects as small vectors of pairs: far fewer allocations than std::map for the many small
+// objects of a large fleet, lookups over a dozen keys as fast, and output in insertion order.
+using json = nlohmann::ordered_json;
+using ijson = json;
 
 std::string join(const std::string& path, const std::string& key) {
   return path.empty() ? key : path + "." + key;
 }
 
-const char* type_name(const json& j) {
+const char* type_name(const ijson& j) {
   switch (j.type()) {
-    case json::value_t::null: return "null";
-    case json::value_t::object: return "an object";
-    case json::value_t::array: return "an array";
-    case json::value_t::string: return "a string";
-    case json::value_t::boolean: return "a boolean";
-    case json::value_t::number_integer:
-    case json::value_t::number_unsigned:
-    case json::value_t::number_float: return "a number";
+    case ijson::value_t::null: return "null";
+    case ijson::value_t::object: return "an object";
+    case ijson::value_t::array: return "an array";
+    case ijson::value_t::string: return "a string";
+    case ijson::value_t::boolean: return "a boolean";
+    case ijson::value_t::number_integer:
+    case ijson::value_t::number_unsigned:
+    case ijson::value_t::number_float: return "a number";
     default: return "something else";
   }
 }
@@ -41,17 +45,18 @@ class Reader {
     issues_.push_back({path, message, false});
   }
 
-  bool object(const json& j, const std::string& path, const std::set<std::string>& allowed) {
+  bool object(const ijson& j, const std::string& path, std::initializer_list<std::string_view> allowed) {
     if (!j.is_object()) {
       error(path, std::string("must be an object, got ") + type_name(j));
       return false;
     }
     for (auto it = j.begin(); it != j.end(); ++it)
-      if (!allowed.count(it.key())) error(join(path, it.key()), "unknown field");
+      if (std::find(allowed.begin(), allowed.end(), it.key()) == allowed.end())
+        error(join(path, it.key()), "unknown field");
     return true;
   }
 
-  const json* field(const json& obj, const std::string& key, const std::string& path, bool required) {
+  const ijson* field(const ijson& obj, const std::string& key, const std::string& path, bool required) {
     auto it = obj.find(key);
     if (it == obj.end()) {
       if (required) error(join(path, key), "required");
@@ -60,9 +65,9 @@ class Reader {
     return &*it;
   }
 
-  void number(const json& obj, const std::string& key, const std::string& path, double& out,
+  void number(const ijson& obj, const std::string& key, const std::string& path, double& out,
               bool required = false) {
-    if (const json* v = field(obj, key, path, required)) {
+    if (const ijson* v = field(obj, key, path, required)) {
       if (v->is_number())
         out = v->get<double>();
       else
@@ -70,7 +75,7 @@ class Reader {
     }
   }
 
-  void number(const json& obj, const std::string& key, const std::string& path,
+  void number(const ijson& obj, const std::string& key, const std::string& path,
               std::optional<double>& out) {
     double v = 0.0;
     const std::size_t before = issues_.size();
@@ -79,9 +84,9 @@ class Reader {
     if (issues_.size() == before) out = v;
   }
 
-  void string(const json& obj, const std::string& key, const std::string& path, std::string& out,
+  void string(const ijson& obj, const std::string& key, const std::string& path, std::string& out,
               bool required = false) {
-    if (const json* v = field(obj, key, path, required)) {
+    if (const ijson* v = field(obj, key, path, required)) {
       if (v->is_string())
         out = v->get<std::string>();
       else
@@ -89,9 +94,9 @@ class Reader {
     }
   }
 
-  void boolean(const json& obj, const std::string& key, const std::string& path, bool& out,
+  void boolean(const ijson& obj, const std::string& key, const std::string& path, bool& out,
                bool required = false) {
-    if (const json* v = field(obj, key, path, required)) {
+    if (const ijson* v = field(obj, key, path, required)) {
       if (v->is_boolean())
         out = v->get<bool>();
       else
@@ -100,10 +105,10 @@ class Reader {
   }
 
   template <class E>
-  bool choice(const json& obj, const std::string& key, const std::string& path,
+  bool choice(const ijson& obj, const std::string& key, const std::string& path,
               const std::vector<std::pair<const char*, E>>& options, E& out,
               bool required = false) {
-    const json* v = field(obj, key, path, required);
+    const ijson* v = field(obj, key, path, required);
     if (!v) return false;
     std::string names;
     for (auto& [name, value] : options) {
@@ -118,9 +123,9 @@ class Reader {
     return false;
   }
 
-  const json* array(const json& obj, const std::string& key, const std::string& path,
+  const ijson* array(const ijson& obj, const std::string& key, const std::string& path,
                     bool required = false) {
-    const json* v = field(obj, key, path, required);
+    const ijson* v = field(obj, key, path, required);
     if (v && !v->is_array()) {
       error(join(path, key), std::string("must be an array, got ") + type_name(*v));
       return nullptr;
@@ -172,7 +177,7 @@ const KindFields& fields_of(CommandKind k) {
   return table[static_cast<int>(k)];
 }
 
-std::optional<Command> read_command(Reader& r, const json& j, const std::string& path,
+std::optional<Command> read_command(Reader& r, const ijson& j, const std::string& path,
                                     bool with_time, double* at_s) {
   if (!j.is_object()) {
     r.error(path, std::string("must be an object, got ") + type_name(j));
@@ -181,11 +186,8 @@ std::optional<Command> read_command(Reader& r, const json& j, const std::string&
   Command c;
   if (!r.choice(j, "kind", path, kCommandNames, c.kind, true)) return std::nullopt;
   const KindFields& kf = fields_of(c.kind);
-  std::set<std::string> allowed = kf.allowed;
-  allowed.insert("kind");
-  if (with_time) allowed.insert("at_s");
   for (auto it = j.begin(); it != j.end(); ++it)
-    if (!allowed.count(it.key()))
+    if (!kf.allowed.count(it.key()) && it.key() != "kind" && !(with_time && it.key() == "at_s"))
       r.error(join(path, it.key()),
               it.key() == "at_s" ? "not allowed in a live command (it applies now)"
                                  : "unknown field for " + std::string(to_string(c.kind)));
@@ -213,7 +215,7 @@ std::optional<Command> read_command(Reader& r, const json& j, const std::string&
   return c;
 }
 
-void read_governor(Reader& r, const json& j, const std::string& p, GovernorDef& g) {
+void read_governor(Reader& r, const ijson& j, const std::string& p, GovernorDef& g) {
   if (!r.object(j, p, {"mode", "droop", "deadband_hz", "deadband", "lag_s", "integral_s"})) return;
   r.choice(j, "mode", p, kModeNames, g.mode);
   r.number(j, "droop", p, g.droop);
@@ -223,24 +225,21 @@ void read_governor(Reader& r, const json& j, const std::string& p, GovernorDef& 
   r.number(j, "integral_s", p, g.integral_s);
 }
 
-void read_turbine(Reader& r, const json& j, const std::string& p, TurbineDef& t) {
+void read_turbine(Reader& r, const ijson& j, const std::string& p, TurbineDef& t) {
   if (!j.is_object()) {
     r.error(p, std::string("must be an object, got ") + type_name(j));
     return;
   }
   if (!r.choice(j, "type", p, kTurbineNames, t.type, true)) return;
-  std::set<std::string> allowed{"type"};
-  switch (t.type) {
-    case TurbineType::steam: allowed.insert({"steam_chest_s"}); break;
-    case TurbineType::reheat: allowed.insert({"steam_chest_s", "reheat_s", "hp_fraction"}); break;
-    case TurbineType::hydro: allowed.insert({"water_s", "temporary_droop", "reset_s"}); break;
-    case TurbineType::gas: allowed.insert({"fuel_s", "combustion_s", "load_limit_mw"}); break;
-    case TurbineType::battery:
-      allowed.insert({"response_s", "synthetic_inertia_s", "rocof_filter_s", "energy_mwh", "soc"});
-      break;
-  }
+  static const std::vector<std::vector<std::string_view>> kAllowed = {
+      {"type", "steam_chest_s"},
+      {"type", "steam_chest_s", "reheat_s", "hp_fraction"},
+      {"type", "water_s", "temporary_droop", "reset_s"},
+      {"type", "fuel_s", "combustion_s", "load_limit_mw"},
+      {"type", "response_s", "synthetic_inertia_s", "rocof_filter_s", "energy_mwh", "soc"}};
+  const auto& allowed = kAllowed[static_cast<std::size_t>(t.type)];
   for (auto it = j.begin(); it != j.end(); ++it)
-    if (!allowed.count(it.key()))
+    if (std::find(allowed.begin(), allowed.end(), it.key()) == allowed.end())
       r.error(join(p, it.key()), "unknown field for a " + std::string(to_string(t.type)) + " turbine");
   r.number(j, "steam_chest_s", p, t.steam_chest_s);
   r.number(j, "reheat_s", p, t.reheat_s);
@@ -259,13 +258,13 @@ void read_turbine(Reader& r, const json& j, const std::string& p, TurbineDef& t)
 }
 
 template <class F>
-void each(Reader& r, const json& obj, const std::string& key, const std::string& path, bool required,
+void each(Reader& r, const ijson& obj, const std::string& key, const std::string& path, bool required,
           F&& f) {
-  if (const json* arr = r.array(obj, key, path, required))
+  if (const ijson* arr = r.array(obj, key, path, required))
     for (std::size_t i = 0; i < arr->size(); ++i) f((*arr)[i], join(path, key) + "[" + std::to_string(i) + "]");
 }
 
-SystemDef read_system(Reader& r, const json& j) {
+SystemDef read_system(Reader& r, const ijson& j) {
   SystemDef d;
   if (!r.object(j, "", {"name", "nominal_hz", "step_s", "duration_s", "output_every_s", "seed",
                         "areas", "ties", "units", "events", "description"}))
@@ -275,23 +274,23 @@ SystemDef read_system(Reader& r, const json& j) {
   r.number(j, "step_s", "", d.step_s);
   r.number(j, "duration_s", "", d.duration_s, true);
   r.number(j, "output_every_s", "", d.output_every_s);
-  if (const json* seed = r.field(j, "seed", "", false)) {
+  if (const ijson* seed = r.field(j, "seed", "", false)) {
     if (seed->is_number_unsigned() || (seed->is_number_integer() && seed->get<std::int64_t>() >= 0))
       d.seed = seed->get<std::uint64_t>();
     else
       r.error("seed", std::string("must be a whole number >= 0, got ") +
                           (seed->is_number() ? fmt_num(seed->get<double>()) : type_name(*seed)));
   }
-  if (const json* desc = r.field(j, "description", "", false); desc && !desc->is_string())
+  if (const ijson* desc = r.field(j, "description", "", false); desc && !desc->is_string())
     r.error("description", std::string("must be a string, got ") + type_name(*desc));
 
-  each(r, j, "areas", "", true, [&](const json& a, const std::string& p) {
+  each(r, j, "areas", "", true, [&](const ijson& a, const std::string& p) {
     AreaDef ad;
     if (r.object(a, p, {"id", "demand_mw", "load_damping", "agc", "shedding"})) {
       r.string(a, "id", p, ad.id, true);
       r.number(a, "demand_mw", p, ad.demand_mw, true);
       r.number(a, "load_damping", p, ad.load_damping);
-      if (const json* agc = r.field(a, "agc", p, false)) {
+      if (const ijson* agc = r.field(a, "agc", p, false)) {
         const std::string ap = join(p, "agc");
         if (r.object(*agc, ap, {"enabled", "bias_mw_per_hz", "kp", "ki_per_s", "period_s"})) {
           r.boolean(*agc, "enabled", ap, ad.agc.enabled);
@@ -301,7 +300,7 @@ SystemDef read_system(Reader& r, const json& j) {
           r.number(*agc, "period_s", ap, ad.agc.period_s);
         }
       }
-      each(r, a, "shedding", p, false, [&](const json& s, const std::string& sp) {
+      each(r, a, "shedding", p, false, [&](const ijson& s, const std::string& sp) {
         SheddingStageDef st;
         if (r.object(s, sp, {"below_hz", "delay_s", "shed_pct"})) {
           r.number(s, "below_hz", sp, st.below_hz, true);
@@ -314,7 +313,7 @@ SystemDef read_system(Reader& r, const json& j) {
     d.areas.push_back(std::move(ad));
   });
 
-  each(r, j, "ties", "", false, [&](const json& t, const std::string& p) {
+  each(r, j, "ties", "", false, [&](const ijson& t, const std::string& p) {
     TieDef td;
     if (r.object(t, p, {"id", "from", "to", "pmax_mw", "damping_mw_per_hz", "trip_angle_deg",
                         "in_service"})) {
@@ -329,7 +328,7 @@ SystemDef read_system(Reader& r, const json& j) {
     d.ties.push_back(std::move(td));
   });
 
-  each(r, j, "units", "", true, [&](const json& u, const std::string& p) {
+  each(r, j, "units", "", true, [&](const ijson& u, const std::string& p) {
     UnitDef ud;
     if (r.object(u, p, {"id", "area", "rating_mw", "inertia_s", "setpoint_mw", "min_mw", "max_mw",
                         "ramp_mw_per_s", "agc_share", "online", "governor", "turbine"})) {
@@ -342,8 +341,8 @@ SystemDef read_system(Reader& r, const json& j) {
       r.number(u, "ramp_mw_per_s", p, ud.ramp_mw_per_s);
       r.number(u, "agc_share", p, ud.agc_share);
       r.boolean(u, "online", p, ud.online);
-      if (const json* g = r.field(u, "governor", p, false)) read_governor(r, *g, join(p, "governor"), ud.governor);
-      if (const json* t = r.field(u, "turbine", p, true)) read_turbine(r, *t, join(p, "turbine"), ud.turbine);
+      if (const ijson* g = r.field(u, "governor", p, false)) read_governor(r, *g, join(p, "governor"), ud.governor);
+      if (const ijson* t = r.field(u, "turbine", p, true)) read_turbine(r, *t, join(p, "turbine"), ud.turbine);
       const bool battery = ud.turbine.type == TurbineType::battery;
       if (!battery && !u.contains("inertia_s"))
         r.error(join(p, "inertia_s"), "required for a synchronous unit");
@@ -352,7 +351,7 @@ SystemDef read_system(Reader& r, const json& j) {
     d.units.push_back(std::move(ud));
   });
 
-  each(r, j, "events", "", false, [&](const json& e, const std::string& p) {
+  each(r, j, "events", "", false, [&](const ijson& e, const std::string& p) {
     EventDef ev;
     if (auto c = read_command(r, e, p, true, &ev.at_s)) {
       ev.command = *c;
@@ -362,28 +361,78 @@ SystemDef read_system(Reader& r, const json& j) {
   return d;
 }
 
-// Parses JSON with a check for duplicate keys, which the JSON standard leaves undefined.
-std::optional<json> parse_json(std::string_view text, std::vector<Issue>& issues) {
-  std::vector<std::set<std::string>> keys;
+// Builds the document as ijson::parse does, through the SAX interface, and notes every key that
+// repeats within one object (the JSON standard leaves duplicates undefined; a scenario file
+// with one is an error, not a silent last-one-wins).
+class DomBuilder {
+ public:
+  ijson root;
   std::vector<std::string> dups;
-  auto cb = [&](int, json::parse_event_t ev, json& parsed) {
-    if (ev == json::parse_event_t::object_start) keys.emplace_back();
-    if (ev == json::parse_event_t::object_end && !keys.empty()) keys.pop_back();
-    if (ev == json::parse_event_t::key && !keys.empty()) {
-      const std::string k = parsed.get<std::string>();
-      if (!keys.back().insert(k).second) dups.push_back(k);
-    }
+  std::size_t error_byte = 0;
+  std::string error_text;
+
+  bool null() { return put(ijson(nullptr)); }
+  bool boolean(bool v) { return put(ijson(v)); }
+  bool number_integer(ijson::number_integer_t v) { return put(ijson(v)); }
+  bool number_unsigned(ijson::number_unsigned_t v) { return put(ijson(v)); }
+  bool number_float(ijson::number_float_t v, const std::string&) { return put(ijson(v)); }
+  bool string(std::string& v) { return put(ijson(std::move(v))); }
+  bool binary(ijson::binary_t& v) { return put(ijson(std::move(v))); }
+  bool start_object(std::size_t) { return open(ijson::object()); }
+  bool start_array(std::size_t) { return open(ijson::array()); }
+  bool end_object() { return close(); }
+  bool end_array() { return close(); }
+  bool key(std::string& k) {
+    if (stack_.back()->contains(k)) dups.push_back(k);
+    key_ = std::move(k);
     return true;
-  };
-  try {
-    json j = json::parse(text.begin(), text.end(), cb);
-    for (const std::string& k : dups) issues.push_back({"json", "duplicate key \"" + k + "\"", false});
-    if (!dups.empty()) return std::nullopt;
-    return j;
-  } catch (const json::parse_error& e) {
+  }
+  bool parse_error(std::size_t byte, const std::string&, const nlohmann::detail::exception& e) {
+    error_byte = byte;
+    error_text = e.what();
+    return false;
+  }
+
+ private:
+  ijson* insert(ijson&& v) {
+    if (stack_.empty()) {
+      root = std::move(v);
+      return &root;
+    }
+    ijson& top = *stack_.back();
+    if (top.is_array()) {
+      top.get_ref<ijson::array_t&>().push_back(std::move(v));
+      return &top.get_ref<ijson::array_t&>().back();
+    }
+    auto& obj = top.get_ref<ijson::object_t&>();
+    // A repeated key keeps its first value (and is reported). The element stays put while it is
+    // open: its parent gets no new key until it is closed.
+    auto it = obj.emplace(std::move(key_), std::move(v)).first;
+    return &it->second;
+  }
+  bool put(ijson&& v) {
+    insert(std::move(v));
+    return true;
+  }
+  bool open(ijson&& v) {
+    stack_.push_back(insert(std::move(v)));  // an open container gets no sibling until closed
+    return true;
+  }
+  bool close() {
+    stack_.pop_back();
+    return true;
+  }
+
+  std::vector<ijson*> stack_;
+  std::string key_;
+};
+
+std::optional<ijson> parse_json(std::string_view text, std::vector<Issue>& issues) {
+  DomBuilder dom;
+  if (!ijson::sax_parse(text.begin(), text.end(), &dom)) {
     // Convert the byte offset to line and column.
     std::size_t line = 1, col = 1;
-    const std::size_t end = std::min<std::size_t>(e.byte > 0 ? e.byte - 1 : 0, text.size());
+    const std::size_t end = std::min<std::size_t>(dom.error_byte > 0 ? dom.error_byte - 1 : 0, text.size());
     for (std::size_t i = 0; i < end; ++i) {
       if (text[i] == '\n') {
         ++line;
@@ -392,13 +441,16 @@ std::optional<json> parse_json(std::string_view text, std::vector<Issue>& issues
         ++col;
       }
     }
-    std::string what = e.what();
+    std::string what = dom.error_text;
     if (auto pos = what.find("syntax error"); pos != std::string::npos) what = what.substr(pos);
     issues.push_back({"json", "line " + std::to_string(line) + ", column " + std::to_string(col) +
                                   ": " + what,
                       false});
     return std::nullopt;
   }
+  for (const std::string& k : dom.dups) issues.push_back({"json", "duplicate key \"" + k + "\"", false});
+  if (!dom.dups.empty()) return std::nullopt;
+  return std::move(dom.root);
 }
 
 json opt(const std::optional<double>& v) { return v ? json(*v) : json(nullptr); }
@@ -418,15 +470,19 @@ LoadResult parse_scenario(std::string_view json_text) {
 }
 
 LoadResult load_scenario_file(const std::string& path) {
-  std::ifstream in(path, std::ios::binary);
+  std::ifstream in(path, std::ios::binary | std::ios::ate);
+  std::string text;
+  if (in) {
+    text.resize(static_cast<std::size_t>(in.tellg()));
+    in.seekg(0);
+    in.read(text.data(), static_cast<std::streamsize>(text.size()));
+  }
   if (!in) {
     LoadResult out;
     out.issues.push_back({"file", "cannot read \"" + path + "\"", false});
     return out;
   }
-  std::ostringstream ss;
-  ss << in.rdbuf();
-  return parse_scenario(ss.str());
+  return parse_scenario(text);
 }
 
 CommandParse parse_commands(std::string_view json_text) {

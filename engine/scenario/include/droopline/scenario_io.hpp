@@ -36,13 +36,13 @@ struct CommandParse {
 CommandParse parse_commands(std::string_view json_text);
 
 /// The scenario as JSON in the file format (defaults made explicit).
-nlohmann::json scenario_to_json(const SystemDef& def);
+nlohmann::ordered_json scenario_to_json(const SystemDef& def);
 /// One command as JSON in the file format (no `at_s`).
-nlohmann::json command_to_json(const Command& command);
+nlohmann::ordered_json command_to_json(const Command& command);
 /// One disturbance record as JSON (null for metrics not reached).
-nlohmann::json disturbance_to_json(const Engine& engine, const Disturbance& d);
+nlohmann::ordered_json disturbance_to_json(const Engine& engine, const Disturbance& d);
 /// The run summary: disturbances, final state, notices and warnings.
-nlohmann::json summary_to_json(const Engine& engine, const std::vector<Notice>& notices,
+nlohmann::ordered_json summary_to_json(const Engine& engine, const std::vector<Notice>& notices,
                                const std::vector<Issue>& warnings);
 
 /// Formats series rows as CSV with a fixed, locale-free number format (shortest round trip).

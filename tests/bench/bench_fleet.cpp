@@ -1,0 +1,276 @@
+// droopline-bench: engine speed on fleets of mixed units, and the same fleets solved by a plain
+// SciPy peer (tests/bench/peer_fleet.py). Prints a table; nothing here is a test.
+//
+//   droopline-bench [--sizes 10,100,1000,10000] [--seconds 60] [--repeat 3] [--no-peer]
+//   droopline-bench [--seconds 60] --emit UNITS FILE     (write one fleet scenario, run nothing)
+#include <sys/resource.h>
+#include <sys/wait.h>
+#include <unistd.h>
+
+#include <algorithm>
+#include <cmath>
+#include <chrono>
+#include <cstdio>
+#include <cstring>
+#include <filesystem>
+#include <fstream>
+#include <iostream>
+#include <sstream>
+#include <string>
+#include <vector>
+
+#include <nlohmann/json.hpp>
+
+#include "droopline/engine.hpp"
+#include "droopline/scenario_io.hpp"
+#include "task_pool.hpp"
+
+namespace fs = std::filesystem;
+using namespace droopline;
+
+namespace {
+
+// A deterministic mixed fleet in one 50 Hz area: the five turbine types in turn, parameters
+// spread over their typical ranges, a load step of 5 % of demand at t = 1 s.
+SystemDef fleet(std::size_t n, double seconds) {
+  SystemDef d;
+  d.name = "bench fleet of " + std::to_string(n) + " units";
+  d.nominal_hz = 50.0;
+  d.step_s = 0.01;
+  d.duration_s = seconds;
+  d.output_every_s = 1.0;
+  AreaDef a;
+  a.id = "grid";
+  a.load_damping = 1.0;
+  double demand = 0.0;
+  for (std::size_t i = 0; i < n; ++i) {
+    UnitDef u;
+    u.id = "u" + std::to_string(i);
+    u.area = "grid";
+    const double spread = static_cast<double>((i * 7919) % 101) / 100.0;  // 0 .. 1
+    u.rating_mw = 50.0 + 250.0 * spread;
+    u.setpoint_mw = 0.7 * u.rating_mw;
+    u.inertia_s = 3.0 + 4.0 * spread;
+    u.governor.droop = 0.04 + 0.02 * spread;
+    u.governor.deadband_hz = 0.01 + 0.01 * spread;
+    u.governor.lag_s = 0.15 + 0.2 * spread;
+    switch (i % 5) {
+      case 0: u.turbine.type = TurbineType::steam; u.turbine.steam_chest_s = 0.2 + 0.2 * spread; break;
+      case 1: u.turbine.type = TurbineType::reheat; u.turbine.reheat_s = 5.0 + 4.0 * spread; break;
+      case 2: u.turbine.type = TurbineType::hydro; u.turbine.water_s = 1.0 + 1.0 * spread; break;
+      case 3: u.turbine.type = TurbineType::gas; break;
+      case 4:
+        u.turbine.type = TurbineType::battery;
+        u.inertia_s = 0.0;
+        u.rating_mw = 20.0 + 30.0 * spread;
+        u.setpoint_mw = 0.0;
+        u.governor.droop = 0.02;
+        u.turbine.energy_mwh = 2.0 * u.rating_mw;
+        u.turbine.synthetic_inertia_s = 2.0 + 2.0 * spread;
+        break;
+    }
+    demand += u.setpoint_mw;
+    d.units.push_back(u);
+  }
+  a.demand_mw = demand;
+  d.areas.push_back(a);
+  EventDef ev;
+  ev.at_s = 1.0;
+  ev.command.kind = CommandKind::load_step;
+  ev.command.area = "grid";
+  ev.command.mw = 0.05 * demand;
+  d.events.push_back(ev);
+  return d;
+}
+
+// The fleet as a scenario file written the way a script would write it: only the fields that
+// differ from the defaults, no indentation.
+std::string fleet_file(const SystemDef& d) {
+  nlohmann::ordered_json j = scenario_to_json(d);
+  const UnitDef plain;
+  for (auto& u : j["units"]) {
+    const bool battery = u["turbine"]["type"] == "battery";
+    u.erase("online");
+    u.erase("agc_share");
+    u.erase("max_mw");
+    if (!battery) u.erase("min_mw");
+    auto& g = u["governor"];
+    g.erase("mode");
+    g.erase("deadband");
+    g.erase("integral_s");
+    if (battery) g.erase("lag_s");
+    auto& t = u["turbine"];
+    for (const char* k : {"load_limit_mw", "temporary_droop", "reset_s", "soc", "rocof_filter_s",
+                          "response_s", "fuel_s", "combustion_s", "hp_fraction", "steam_chest_s"})
+      if (t.contains(k) && !(t["type"] == "steam" && std::string(k) == "steam_chest_s")) t.erase(k);
+  }
+  for (auto& a : j["areas"]) {
+    a.erase("agc");
+    a.erase("shedding");
+  }
+  return j.dump();
+}
+
+double now_s() {
+  return std::chrono::duration<double>(std::chrono::steady_clock::now().time_since_epoch()).count();
+}
+
+struct ChildResult {
+  int status = -1;
+  double wall_s = 0.0;
+  long max_rss_kb = 0;
+  std::string out;
+};
+
+// Runs a program, capturing stdout, timing it and reading its peak resident memory.
+ChildResult run_child(const std::vector<std::string>& argv) {
+  ChildResult r;
+  int pipefd[2];
+  if (pipe(pipefd) != 0) return r;
+  const double t0 = now_s();
+  const pid_t pid = fork();
+  if (pid == 0) {
+    dup2(pipefd[1], STDOUT_FILENO);
+    close(pipefd[0]);
+    close(pipefd[1]);
+    std::vector<char*> args;
+    for (const auto& a : argv) args.push_back(const_cast<char*>(a.c_str()));
+    args.push_back(nullptr);
+    execv(args[0], args.data());
+    _exit(127);
+  }
+  close(pipefd[1]);
+  char buf[4096];
+  for (ssize_t k; (k = read(pipefd[0], buf, sizeof buf)) > 0;) r.out.append(buf, static_cast<std::size_t>(k));
+  close(pipefd[0]);
+  struct rusage ru {};
+  wait4(pid, &r.status, 0, &ru);
+  r.wall_s = now_s() - t0;
+  r.max_rss_kb = ru.ru_maxrss;
+  return r;
+}
+
+std::vector<std::size_t> parse_sizes(const std::string& s) {
+  std::vector<std::size_t> out;
+  std::stringstream ss(s);
+  for (std::string part; std::getline(ss, part, ',');) out.push_back(std::stoul(part));
+  return out;
+}
+
+}  // namespace
+
+int main(int argc, char** argv) {
+  std::vector<std::size_t> sizes{10, 100, 1000, 10000};
+  double seconds = 60.0;
+  int repeat = 3;
+  bool peer = true;
+  const fs::path self = fs::canonical("/proc/self/exe");
+  fs::path droopline_bin = self.parent_path().parent_path().parent_path() / "server" / "droopline";
+  fs::path peer_script = fs::path(DROOPLINE_SOURCE_DIR) / "tests" / "bench" / "peer_fleet.py";
+  for (int i = 1; i < argc; ++i) {
+    const std::string a = argv[i];
+    if (a == "--sizes" && i + 1 < argc) sizes = parse_sizes(argv[++i]);
+    else if (a == "--seconds" && i + 1 < argc) seconds = std::stod(argv[++i]);
+    else if (a == "--repeat" && i + 1 < argc) repeat = std::stoi(argv[++i]);
+    else if (a == "--no-peer") peer = false;
+    else if (a == "--emit" && i + 2 < argc) {  // write one fleet scenario and stop
+      std::ofstream(argv[i + 2]) << fleet_file(fleet(std::stoul(argv[i + 1]), seconds));
+      return 0;
+    }
+    else {
+      std::cerr << "usage: droopline-bench [--sizes 10,100,1000,10000] [--seconds 60] [--repeat 3] [--no-peer]\n"
+                   "       droopline-bench [--seconds 60] --emit UNITS FILE\n";
+      return 2;
+    }
+  }
+  const fs::path work = fs::temp_directory_path() / ("droopline-bench-" + std::to_string(getpid()));
+  fs::create_directories(work);
+
+  std::printf("droopline-bench: mixed fleets, %.0f s simulated at a 0.01 s step, best of %d\n", seconds, repeat);
+  std::printf("%8s %14s %10s %10s %10s %9s %12s %9s %12s\n", "units", "unit-steps/s", "engine s",
+              "all cores", "process s", "peak MiB", "peer solve s", "peer/us", "peer |df| Hz");
+  for (std::size_t n : sizes) {
+    const SystemDef def = fleet(n, seconds);
+    // In process, one thread: stepping only.
+    double best_engine = 1e300;
+    std::int64_t steps = 0;
+    for (int r = 0; r < repeat; ++r) {
+      auto created = Engine::create(def);
+      if (!created.engine) {
+        std::cerr << "bench fleet invalid: " << created.issues.front().text() << "\n";
+        return 1;
+      }
+      const double t0 = now_s();
+      created.engine->run();
+      best_engine = std::min(best_engine, now_s() - t0);
+      steps = created.engine->step_index();
+    }
+    const double unit_steps = static_cast<double>(steps) * static_cast<double>(n) / best_engine;
+    // The same with every core (the engine splits fleets of 4096+ units over a TaskPool).
+    double best_pool = 1e300;
+    {
+      TaskPool pool(std::max(1u, std::thread::hardware_concurrency()));
+      for (int r = 0; r < repeat; ++r) {
+        auto created = Engine::create(def);
+        created.engine->set_task_runner(&pool);
+        const double t0 = now_s();
+        created.engine->run();
+        best_pool = std::min(best_pool, now_s() - t0);
+      }
+    }
+
+    // Whole process: load the file, run, write series.csv and summary.json.
+    const fs::path file = work / ("fleet_" + std::to_string(n) + ".json");
+    std::ofstream(file) << fleet_file(def);
+    double best_process = 1e300;
+    long rss = 0;
+    for (int r = 0; r < repeat; ++r) {
+      ChildResult c = run_child({droopline_bin.string(), "run", file.string(), "--out",
+                                 (work / ("out_" + std::to_string(n))).string(), "--quiet"});
+      if (c.status != 0) {
+        std::cerr << "droopline run failed on the " << n << "-unit fleet\n";
+        return 1;
+      }
+      best_process = std::min(best_process, c.wall_s);
+      rss = std::max(rss, c.max_rss_kb);
+    }
+    // droopline's frequency at each output time, to compare the peer's accuracy against.
+    std::vector<double> ours;
+    {
+      std::ifstream csv(work / ("out_" + std::to_string(n)) / "series.csv");
+      std::string line;
+      std::getline(csv, line);
+      while (std::getline(csv, line)) {
+        const auto c1 = line.find(','), c2 = line.find(',', c1 + 1);
+        ours.push_back(std::stod(line.substr(c1 + 1, c2 - c1 - 1)));
+      }
+    }
+    double best_peer = -1.0, peer_diff = 0.0;
+    if (peer) {
+      for (int r = 0; r < repeat; ++r) {
+        ChildResult c = run_child({"/usr/bin/python3", peer_script.string(), file.string()});
+        if (c.status != 0) {
+          std::cerr << "peer failed on the " << n << "-unit fleet: " << c.out << "\n";
+          return 1;
+        }
+        const auto j = nlohmann::json::parse(c.out);
+        const double solve = j.at("solve_s").get<double>();
+        const auto f = j.at("f_hz").get<std::vector<double>>();
+        for (std::size_t k = 0; k < std::min(f.size(), ours.size()); ++k)
+          peer_diff = std::max(peer_diff, std::fabs(f[k] - ours[k]));
+        best_peer = best_peer < 0 ? solve : std::min(best_peer, solve);
+      }
+    }
+    char peer_s[32] = "-", ratio[32] = "-", diff[32] = "-";
+    if (peer) {
+      std::snprintf(peer_s, sizeof peer_s, "%.4f", best_peer);
+      std::snprintf(ratio, sizeof ratio, "%.2f", best_peer / best_process);
+      std::snprintf(diff, sizeof diff, "%.1e", peer_diff);
+    }
+    std::printf("%8zu %14.3e %10.4f %10.4f %10.4f %9.1f %12s %9s %12s\n", n, unit_steps, best_engine,
+                best_pool, best_process, static_cast<double>(rss) / 1024.0, peer_s, ratio, diff);
+    std::fflush(stdout);
+  }
+  fs::remove_all(work);
+  return 0;
+}
