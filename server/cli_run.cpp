@@ -5,6 +5,7 @@
 #include <chrono>
 #include <cmath>
 #include <cstdio>
+#include <cstdlib>
 #include <filesystem>
 #include <fstream>
 #include <iostream>
@@ -127,13 +128,21 @@ RunOutcome run_to_strings(const SystemDef& def, const std::vector<Issue>& warnin
     notices.insert(notices.end(), n.begin(), n.end());
   }
   engine.close_disturbances();
-  out.summary = summary_to_json(engine, notices, warnings).dump(2) + "\n";
+  out.summary = to_text(summary_to_json(engine, notices, warnings));
   out.ok = true;
   return out;
 }
 
 int run(const std::string& file, const std::string& out_dir, bool quiet, unsigned threads) {
+  const auto t_start = std::chrono::steady_clock::now();
+  auto lap = [&, last = t_start](const char* what) mutable {
+    if (!std::getenv("DROOPLINE_TIMINGS")) return;
+    const auto now = std::chrono::steady_clock::now();
+    std::fprintf(stderr, "droopline: %-8s %.4f s\n", what, std::chrono::duration<double>(now - last).count());
+    last = now;
+  };
   LoadResult r = load_scenario_file(file);
+  lap("load");
   print_issues(r.issues, file);
   if (!r.def) return 2;
   const SystemDef& def = *r.def;
@@ -152,6 +161,7 @@ int run(const std::string& file, const std::string& out_dir, bool quiet, unsigne
     print_issues(created.issues, file);
     return 2;
   }
+  lap("create");
   Engine& engine = *created.engine;
   TaskPool pool(def.units.size() >= 4096 ? (threads ? threads : std::max(1u, std::thread::hardware_concurrency())) : 1);
   engine.set_task_runner(&pool);
@@ -181,13 +191,15 @@ int run(const std::string& file, const std::string& out_dir, bool quiet, unsigne
     notices.insert(notices.end(), n.begin(), n.end());
     if ((engine.step_index() & 1023) == 0) progress.update(engine.time_s(), def.duration_s);
   }
+  lap("simulate");
   series.stream().write(buf.data(), static_cast<std::streamsize>(buf.size()));
   engine.close_disturbances();
-  summary.stream() << summary_to_json(engine, notices, warnings).dump(2) << "\n";
+  summary.stream() << to_text(summary_to_json(engine, notices, warnings));
   if (!series.stream() || !summary.stream() || !series.commit() || !summary.commit()) {
     std::cerr << "droopline: writing the results in \"" << out_dir << "\" failed (disk full?)\n";
     return 1;
   }
+  lap("write");
   if (!quiet) {
     std::cout << "droopline: \"" << def.name << "\": " << fmt_num(engine.time_s()) << " s simulated; wrote "
               << (fs::path(out_dir) / "series.csv").string() << " and "

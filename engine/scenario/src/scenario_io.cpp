@@ -455,6 +455,12 @@ std::optional<ijson> parse_json(std::string_view text, std::vector<Issue>& issue
 
 json opt(const std::optional<double>& v) { return v ? json(*v) : json(nullptr); }
 
+// Appends a member whose key is known to be new (validated unique ids): operator[] on an ordered
+// object searches its keys one by one, which costs O(n^2) over a 10,000-unit fleet.
+void append_member(json& obj, const std::string& key, json value) {
+  obj.get_ref<json::object_t&>().push_back({key, std::move(value)});
+}
+
 }  // namespace
 
 LoadResult parse_scenario(std::string_view json_text) {
@@ -647,10 +653,10 @@ json summary_to_json(const Engine& engine, const std::vector<Notice>& notices,
   fin["areas"] = json::object();
   for (std::size_t a = 0; a < def.areas.size(); ++a) {
     const AreaState s = engine.area(AreaId{static_cast<std::uint32_t>(a)});
-    fin["areas"][def.areas[a].id] = {{"f_hz", s.f_hz},           {"demand_mw", s.demand_mw},
+    append_member(fin["areas"], def.areas[a].id, {{"f_hz", s.f_hz},           {"demand_mw", s.demand_mw},
                                      {"generation_mw", s.generation_mw},
                                      {"export_mw", s.export_mw},   {"ace_mw", s.ace_mw},
-                                     {"shed_mw", s.shed_mw},       {"collapsed", s.collapsed}};
+                                     {"shed_mw", s.shed_mw},       {"collapsed", s.collapsed}});
   }
   fin["units"] = json::object();
   for (std::size_t u = 0; u < def.units.size(); ++u) {
@@ -658,13 +664,13 @@ json summary_to_json(const Engine& engine, const std::vector<Notice>& notices,
     json ju{{"p_mw", s.p_mw}, {"setpoint_mw", s.setpoint_mw}, {"agc_mw", s.agc_mw},
             {"status", to_string(s.status)}};
     if (def.units[u].turbine.type == TurbineType::battery) ju["energy_mwh"] = s.energy_mwh;
-    fin["units"][def.units[u].id] = ju;
+    append_member(fin["units"], def.units[u].id, std::move(ju));
   }
   fin["ties"] = json::object();
   for (std::size_t t = 0; t < def.ties.size(); ++t) {
     const TieState s = engine.tie(TieId{static_cast<std::uint32_t>(t)});
-    fin["ties"][def.ties[t].id] = {{"flow_mw", s.flow_mw}, {"angle_deg", s.angle_deg},
-                                   {"in_service", s.in_service}};
+    append_member(fin["ties"], def.ties[t].id,
+                  {{"flow_mw", s.flow_mw}, {"angle_deg", s.angle_deg}, {"in_service", s.in_service}});
   }
   j["final"] = fin;
   j["notices"] = json::array();
@@ -672,6 +678,47 @@ json summary_to_json(const Engine& engine, const std::vector<Notice>& notices,
   j["warnings"] = json::array();
   for (const Issue& w : warnings) j["warnings"].push_back(w.text());
   return j;
+}
+
+namespace {
+
+bool is_flat(const json& j) {
+  if (!j.is_structured()) return true;
+  for (const auto& v : j) if (v.is_structured()) return false;
+  return true;
+}
+
+void write_text(const json& j, int indent, std::string& out) {
+  if (is_flat(j)) {
+    out += j.dump(-1, ' ', false, json::error_handler_t::replace);
+    return;
+  }
+  const std::string pad(static_cast<std::size_t>(indent + 2), ' ');
+  const bool obj = j.is_object();
+  out += obj ? "{\n" : "[\n";
+  bool first = true;
+  for (auto it = j.begin(); it != j.end(); ++it) {
+    if (!first) out += ",\n";
+    first = false;
+    out += pad;
+    if (obj) {
+      out += json(it.key()).dump();
+      out += ": ";
+    }
+    write_text(*it, indent + 2, out);
+  }
+  out += '\n';
+  out.append(static_cast<std::size_t>(indent), ' ');
+  out += obj ? '}' : ']';
+}
+
+}  // namespace
+
+std::string to_text(const json& doc) {
+  std::string out;
+  write_text(doc, 0, out);
+  out += '\n';
+  return out;
 }
 
 std::string SeriesCsv::header(const Engine& engine) {

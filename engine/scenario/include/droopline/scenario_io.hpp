@@ -45,6 +45,10 @@ nlohmann::ordered_json disturbance_to_json(const Engine& engine, const Disturban
 nlohmann::ordered_json summary_to_json(const Engine& engine, const std::vector<Notice>& notices,
                                const std::vector<Issue>& warnings);
 
+/// JSON text with one line per object or array of scalars (one line per unit, per area...),
+/// indented above that: readable by people, and quicker to write for large fleets.
+std::string to_text(const nlohmann::ordered_json& doc);
+
 /// Formats series rows as CSV with a fixed, locale-free number format (shortest round trip).
 class SeriesCsv {
  public:
