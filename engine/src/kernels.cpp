@@ -79,6 +79,7 @@ inline double clamp(double v, double lo, double hi) { return std::min(std::max(v
   (void)kiso;                                        \
   const double* __restrict dbs = g.dbs;              \
   const double* __restrict inv_lag = g.inv_lag;      \
+  (void)inv_lag;                                     \
   const double* __restrict ramp = g.ramp;            \
   const double* __restrict pmin = g.pmin;            \
   const double* __restrict pmax = g.pmax;            \
