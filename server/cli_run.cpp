@@ -14,6 +14,7 @@
 
 #include "droopline/format.hpp"
 #include "droopline/scenario_io.hpp"
+#include "journal.hpp"
 #include "task_pool.hpp"
 
 namespace droopline::cli {
@@ -217,6 +218,71 @@ int run(const std::string& file, const std::string& out_dir, bool quiet, unsigne
                 << opt_text(d.response_mw_per_0p1hz, 1, " MW/0.1 Hz") << "\n";
     }
   }
+  return 0;
+}
+
+int replay(const std::string& journal, const std::string& out_dir, int run_number, bool quiet) {
+  JournalRead jr = read_journal(journal);
+  print_issues(jr.issues, journal);
+  if (!jr.issues.empty()) return 2;
+  if (jr.runs.empty()) {
+    std::cerr << journal << ": error: the journal holds no scenario\n";
+    return 2;
+  }
+  const int count = static_cast<int>(jr.runs.size());
+  const int pick = run_number == 0 ? count : run_number;
+  if (pick < 1 || pick > count) {
+    std::cerr << journal << ": error: --run " << run_number << ": the journal holds runs 1 to " << count << "\n";
+    return 2;
+  }
+  const JournalRun& run = jr.runs[static_cast<std::size_t>(pick - 1)];
+  CreateResult created = Engine::create(run.def);
+  if (!created.engine) {
+    print_issues(created.issues, journal);
+    return 2;
+  }
+  Engine& engine = *created.engine;
+  std::error_code ec;
+  fs::create_directories(out_dir, ec);
+  AtomicFile series(fs::path(out_dir) / "series.csv");
+  AtomicFile summary(fs::path(out_dir) / "summary.json");
+  if (ec || !series.ok() || !summary.ok()) {
+    std::cerr << "droopline: cannot write in \"" << out_dir << "\"\n";
+    return 1;
+  }
+  const std::int64_t every = std::max<std::int64_t>(1, std::llround(run.def.output_every_s / run.def.step_s));
+  SeriesCsv csv;
+  std::string buf = SeriesCsv::header(engine);
+  csv.append_row(engine, buf);
+  std::vector<Notice> notices;
+  std::size_t next = 0;
+  auto apply_due = [&] {
+    while (next < run.commands.size() && run.commands[next].first <= engine.step_index()) {
+      const ApplyResult r = engine.apply_all(run.commands[next].second);
+      if (!r.ok) std::cerr << journal << ": warning: commands at step " << run.commands[next].first << " refused on replay: " << r.error << "\n";
+      ++next;
+    }
+  };
+  while (engine.step_index() < run.last_step) {
+    apply_due();
+    engine.step();
+    if (engine.step_index() % every == 0) csv.append_row(engine, buf);
+    auto n = engine.take_notices();
+    notices.insert(notices.end(), n.begin(), n.end());
+  }
+  apply_due();
+  auto n = engine.take_notices();
+  notices.insert(notices.end(), n.begin(), n.end());
+  engine.close_disturbances();
+  series.stream().write(buf.data(), static_cast<std::streamsize>(buf.size()));
+  summary.stream() << to_text(summary_to_json(engine, notices, {}));
+  if (!series.commit() || !summary.commit()) {
+    std::cerr << "droopline: writing the results in \"" << out_dir << "\" failed\n";
+    return 1;
+  }
+  if (!quiet)
+    std::cout << "droopline: replayed run " << pick << " of " << count << " (\"" << run.def.name << "\", "
+              << run.commands.size() << " command batch(es), " << fmt_num(engine.time_s()) << " s) into " << out_dir << "\n";
   return 0;
 }
 

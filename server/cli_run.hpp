@@ -14,6 +14,10 @@ int check(const std::string& file);
 /// `threads` 0 = one per core (used only by fleets large enough to gain from it).
 int run(const std::string& file, const std::string& out_dir, bool quiet, unsigned threads = 0);
 
+/// `droopline replay JOURNAL --out DIR`: rebuilds a live session's series from its journal.
+/// `run_number` 0 = the last scenario of the journal, else 1-based.
+int replay(const std::string& journal, const std::string& out_dir, int run_number, bool quiet);
+
 /// A whole run held in memory (for replays over HTTP): the same text `run` writes.
 struct RunOutcome {
   bool ok = false;

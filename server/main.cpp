@@ -4,7 +4,10 @@
 #include <string>
 #include <vector>
 
+#include <spdlog/spdlog.h>
+
 #include "cli_run.hpp"
+#include "server.hpp"
 
 namespace {
 
@@ -15,6 +18,19 @@ usage:
   droopline run FILE --out DIR     simulate to the end; write DIR/series.csv, DIR/summary.json
         [--quiet]                  print nothing but errors
         [--threads N]              worker threads for fleets of 4096+ units (default: one per core)
+  droopline serve --scenario FILE  run the scenario in real time behind HTTP and WebSocket
+        [--listen HOST:PORT]       default 127.0.0.1:8080; 0.0.0.0:PORT for a LAN
+        [--token-file FILE]        instructor token (else $DROOPLINE_TOKEN, else generated)
+        [--journal FILE]           append every accepted command to FILE (JSON lines)
+        [--web DIR]                static files to serve (default: the web/ folder)
+        [--speed X]                simulated seconds per wall second, 0.1-100 (default 1)
+        [--frame-rate HZ]          telemetry frames per second (default 20)
+        [--history S]              seconds of history kept for late joiners (default 600)
+        [--allow-origin URL]       also accept WebSocket upgrades from this Origin (repeatable)
+        [--max-connections N]      default 256
+        [--log-level LEVEL]        trace, debug, info (default), warn, error
+  droopline replay JOURNAL --out DIR [--run N]
+                                   rebuild a live session's series from its journal
   droopline --version | --help
 
 Exit codes: 0 success, 1 input/output failure, 2 invalid scenario or arguments.
@@ -23,6 +39,69 @@ Exit codes: 0 success, 1 input/output failure, 2 invalid scenario or arguments.
 int usage_error(const std::string& what) {
   std::cerr << "droopline: " << what << "\n\n" << kUsage;
   return 2;
+}
+
+bool parse_number(const std::string& text, double lo, double hi, double& out) {
+  char* end = nullptr;
+  out = std::strtod(text.c_str(), &end);
+  return !text.empty() && end == text.c_str() + text.size() && out >= lo && out <= hi;
+}
+
+int serve_command(const std::vector<std::string>& args) {
+  droopline::server::Options o;
+  o.web_root = DROOPLINE_WEB_ROOT;
+  std::string level = "info";
+  for (std::size_t i = 1; i < args.size(); ++i) {
+    const std::string& a = args[i];
+    auto value = [&](std::string& out) {
+      if (i + 1 >= args.size()) return false;
+      out = args[++i];
+      return true;
+    };
+    std::string v;
+    double x = 0;
+    if (a == "--scenario" && value(o.scenario_file)) continue;
+    if (a == "--token-file" && value(o.token_file)) continue;
+    if (a == "--journal" && value(o.journal)) continue;
+    if (a == "--web" && value(o.web_root)) continue;
+    if (a == "--log-level" && value(level)) continue;
+    if (a == "--allow-origin" && value(v)) {
+      o.allow_origins.push_back(v);
+      continue;
+    }
+    if (a == "--listen" && value(v)) {
+      const auto colon = v.rfind(':');
+      if (colon == std::string::npos || !parse_number(v.substr(colon + 1), 0, 65535, x))
+        return usage_error("--listen takes HOST:PORT, got \"" + v + "\"");
+      o.host = v.substr(0, colon);
+      if (o.host.size() > 2 && o.host.front() == '[' && o.host.back() == ']') o.host = o.host.substr(1, o.host.size() - 2);
+      o.port = static_cast<unsigned short>(x);
+      continue;
+    }
+    if (a == "--speed" && value(v)) {
+      if (!parse_number(v, 0.1, 100, o.speed)) return usage_error("--speed takes 0.1 to 100, got \"" + v + "\"");
+      continue;
+    }
+    if (a == "--frame-rate" && value(v)) {
+      if (!parse_number(v, 0.1, 100, o.frame_hz)) return usage_error("--frame-rate takes 0.1 to 100, got \"" + v + "\"");
+      continue;
+    }
+    if (a == "--history" && value(v)) {
+      if (!parse_number(v, 1, 86400, o.history_s)) return usage_error("--history takes 1 to 86400 seconds, got \"" + v + "\"");
+      continue;
+    }
+    if (a == "--max-connections" && value(v)) {
+      if (!parse_number(v, 1, 100000, x)) return usage_error("--max-connections takes 1 to 100000, got \"" + v + "\"");
+      o.max_connections = static_cast<std::size_t>(x);
+      continue;
+    }
+    return usage_error("unknown or incomplete option \"" + a + "\" for serve");
+  }
+  if (o.scenario_file.empty()) return usage_error("serve needs --scenario FILE");
+  const auto lvl = spdlog::level::from_str(level);
+  if (lvl == spdlog::level::off && level != "off") return usage_error("--log-level: unknown level \"" + level + "\"");
+  spdlog::set_level(lvl);
+  return droopline::server::serve(o);
 }
 
 }  // namespace
@@ -43,31 +122,39 @@ int main(int argc, char** argv) {
     if (args.size() != 2) return usage_error("check takes exactly one FILE");
     return droopline::cli::check(args[1]);
   }
-  if (cmd == "run") {
+  if (cmd == "serve") return serve_command(args);
+  if (cmd == "run" || cmd == "replay") {
     std::string file, out;
     bool quiet = false;
     unsigned threads = 0;
+    int run_number = 0;
     for (std::size_t i = 1; i < args.size(); ++i) {
       if (args[i] == "--out" && i + 1 < args.size()) {
         out = args[++i];
-      } else if (args[i] == "--threads" && i + 1 < args.size()) {
+      } else if (cmd == "run" && args[i] == "--threads" && i + 1 < args.size()) {
         const std::string& v = args[++i];
         if (v.empty() || v.size() > 3 || v.find_first_not_of("0123456789") != std::string::npos ||
             std::stoi(v) < 1)
           return usage_error("--threads takes a whole number from 1 to 999, got \"" + v + "\"");
         threads = static_cast<unsigned>(std::stoi(v));
+      } else if (cmd == "replay" && args[i] == "--run" && i + 1 < args.size()) {
+        const std::string& v = args[++i];
+        if (v.empty() || v.size() > 6 || v.find_first_not_of("0123456789") != std::string::npos)
+          return usage_error("--run takes a run number, got \"" + v + "\"");
+        run_number = std::stoi(v);
       } else if (args[i] == "--quiet") {
         quiet = true;
       } else if (!args[i].empty() && args[i][0] == '-') {
-        return usage_error("unknown option \"" + args[i] + "\" for run");
+        return usage_error("unknown option \"" + args[i] + "\" for " + cmd);
       } else if (file.empty()) {
         file = args[i];
       } else {
-        return usage_error("run takes one FILE, got \"" + args[i] + "\" too");
+        return usage_error(cmd + " takes one FILE, got \"" + args[i] + "\" too");
       }
     }
-    if (file.empty()) return usage_error("run needs a scenario FILE");
-    if (out.empty()) return usage_error("run needs --out DIR");
+    if (file.empty()) return usage_error(cmd + " needs a " + (cmd == "run" ? "scenario FILE" : "JOURNAL"));
+    if (out.empty()) return usage_error(cmd + " needs --out DIR");
+    if (cmd == "replay") return droopline::cli::replay(file, out, run_number, quiet);
     return droopline::cli::run(file, out, quiet, threads);
   }
   return usage_error("unknown command \"" + cmd + "\"");

@@ -880,6 +880,13 @@ struct Engine::Impl {
   }
 
   ApplyResult apply_checked(std::span<const Command> cmds) {
+    ApplyResult r = check(cmds);
+    if (!r.ok) return r;
+    for (const Command& c : cmds) perform(c);
+    return r;
+  }
+
+  ApplyResult check(std::span<const Command> cmds) const {
     Shadow sh = shadow();
     std::vector<std::string> errors;
     for (std::size_t i = 0; i < cmds.size(); ++i) {
@@ -894,12 +901,8 @@ struct Engine::Impl {
     }
     ApplyResult r;
     r.at_s = time();
-    if (!errors.empty()) {
-      for (std::size_t i = 0; i < errors.size(); ++i) r.error += (i ? "; " : "") + errors[i];
-      return r;
-    }
-    for (const Command& c : cmds) perform(c);
-    r.ok = true;
+    for (std::size_t i = 0; i < errors.size(); ++i) r.error += (i ? "; " : "") + errors[i];
+    r.ok = errors.empty();
     return r;
   }
 
@@ -1227,6 +1230,10 @@ ApplyResult Engine::apply(const Command& command) {
 
 ApplyResult Engine::apply_all(std::span<const Command> commands) {
   return impl_->apply_checked(commands);
+}
+
+ApplyResult Engine::check_all(std::span<const Command> commands) const {
+  return impl_->check(commands);
 }
 
 double Engine::time_s() const { return impl_->time(); }

@@ -154,6 +154,8 @@ class Engine {
   ApplyResult apply(const Command& command);
   /// Applies several commands atomically: all when every one validates, else none.
   ApplyResult apply_all(std::span<const Command> commands);
+  /// What apply_all would answer, without changing anything.
+  ApplyResult check_all(std::span<const Command> commands) const;
 
   /// Simulation time (s) = step_index * step_s.
   double time_s() const;

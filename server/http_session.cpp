@@ -1,0 +1,473 @@
+#include "http_session.hpp"
+
+#include <filesystem>
+#include <fstream>
+#include <sstream>
+
+#include <nlohmann/json.hpp>
+#include <spdlog/spdlog.h>
+
+#include "cli_run.hpp"
+#include "droopline/format.hpp"
+#include "droopline/scenario_io.hpp"
+#include "websocket_session.hpp"
+
+namespace droopline::server {
+namespace {
+
+using json = nlohmann::ordered_json;
+namespace fs = std::filesystem;
+
+constexpr auto kHeaderTimeout = std::chrono::seconds(10);  // slow-loris guard per request
+constexpr std::size_t kHeaderLimit = 16 * 1024;
+
+std::string error_json(const std::string& message, const std::vector<std::string>& issues = {}) {
+  json j{{"error", message}};
+  if (!issues.empty()) j["issues"] = issues;
+  return j.dump();
+}
+
+std::vector<std::string> issue_texts(const std::vector<Issue>& issues) {
+  std::vector<std::string> out;
+  for (const Issue& i : issues)
+    if (!i.warning) out.push_back(i.text());
+  return out;
+}
+
+std::string percent_decode(std::string_view s, bool& ok) {
+  std::string out;
+  ok = true;
+  for (std::size_t i = 0; i < s.size(); ++i) {
+    if (s[i] == '%') {
+      if (i + 2 >= s.size() || !std::isxdigit(static_cast<unsigned char>(s[i + 1])) ||
+          !std::isxdigit(static_cast<unsigned char>(s[i + 2]))) {
+        ok = false;
+        return {};
+      }
+      out += static_cast<char>(std::stoi(std::string(s.substr(i + 1, 2)), nullptr, 16));
+      i += 2;
+    } else if (s[i] == '+') {
+      out += ' ';
+    } else {
+      out += s[i];
+    }
+  }
+  return out;
+}
+
+struct Target {
+  std::string path;
+  std::vector<std::pair<std::string, std::string>> query;
+  bool ok = true;
+  std::string get(const std::string& key, const std::string& fallback = "") const {
+    for (auto& [k, v] : query)
+      if (k == key) return v;
+    return fallback;
+  }
+  bool has(const std::string& key) const {
+    for (auto& [k, v] : query)
+      if (k == key) return true;
+    return false;
+  }
+};
+
+Target parse_target(std::string_view target) {
+  Target t;
+  const auto q = target.find('?');
+  t.path = percent_decode(target.substr(0, q), t.ok);
+  if (!t.ok || q == std::string_view::npos) return t;
+  std::string_view rest = target.substr(q + 1);
+  while (!rest.empty()) {
+    const auto amp = rest.find('&');
+    std::string_view part = rest.substr(0, amp);
+    const auto eq = part.find('=');
+    bool ok1 = true, ok2 = true;
+    std::string k = percent_decode(part.substr(0, eq), ok1);
+    std::string v = eq == std::string_view::npos ? "" : percent_decode(part.substr(eq + 1), ok2);
+    if (!ok1 || !ok2) {
+      t.ok = false;
+      return t;
+    }
+    if (!k.empty()) t.query.emplace_back(std::move(k), std::move(v));
+    if (amp == std::string_view::npos) break;
+    rest = rest.substr(amp + 1);
+  }
+  return t;
+}
+
+// A number from the query, or an error message naming the parameter.
+bool query_number(const Target& t, const std::string& key, double fallback, double& out,
+                  std::string& error) {
+  if (!t.has(key)) {
+    out = fallback;
+    return true;
+  }
+  const std::string v = t.get(key);
+  char* end = nullptr;
+  out = std::strtod(v.c_str(), &end);
+  if (v.empty() || end != v.c_str() + v.size() || !std::isfinite(out)) {
+    error = "query parameter " + key + ": must be a number, got \"" + v + "\"";
+    return false;
+  }
+  return true;
+}
+
+const char* content_type(const fs::path& p) {
+  const std::string ext = p.extension().string();
+  if (ext == ".html") return "text/html; charset=utf-8";
+  if (ext == ".js" || ext == ".mjs") return "text/javascript; charset=utf-8";
+  if (ext == ".css") return "text/css; charset=utf-8";
+  if (ext == ".json") return "application/json";
+  if (ext == ".svg") return "image/svg+xml";
+  if (ext == ".png") return "image/png";
+  if (ext == ".ico") return "image/x-icon";
+  if (ext == ".map") return "application/json";
+  if (ext == ".txt") return "text/plain; charset=utf-8";
+  if (ext == ".woff2") return "font/woff2";
+  return "application/octet-stream";
+}
+
+std::string metrics_text(const Context& ctx) {
+  const LiveCounters& l = ctx.live->counters();
+  const NetCounters& n = ctx.counters;
+  std::ostringstream o;
+  auto metric = [&](const char* name, const char* type, const char* help, double value) {
+    o << "# HELP " << name << ' ' << help << "\n# TYPE " << name << ' ' << type << '\n'
+      << name << ' ' << fmt_exact(value) << '\n';
+  };
+  metric("droopline_steps_total", "counter", "Engine steps taken.", static_cast<double>(l.steps.load()));
+  metric("droopline_step_overruns_total", "counter", "Loop wakes more than one step behind the deadline.",
+         static_cast<double>(l.overruns.load()));
+  metric("droopline_step_slips_total", "counter", "Times the schedule was rebased after a bounded catch-up.",
+         static_cast<double>(l.slips.load()));
+  metric("droopline_loop_lag_seconds", "gauge", "Lateness of the last step against its deadline.", l.lag_s.load());
+  metric("droopline_loop_lag_max_seconds", "gauge", "Worst lateness since start.", l.jitter_max_s.load());
+  metric("droopline_realtime_factor", "gauge", "Simulated seconds per wall second over the last second.",
+         l.realtime_factor.load());
+  metric("droopline_speed", "gauge", "Requested speed factor.", ctx.live->speed());
+  metric("droopline_paused", "gauge", "1 while paused.", ctx.live->paused() ? 1.0 : 0.0);
+  metric("droopline_clients", "gauge", "Open streaming clients.", static_cast<double>(n.clients.load()));
+  metric("droopline_connections", "gauge", "Open TCP connections.", static_cast<double>(n.connections.load()));
+  metric("droopline_connections_refused_total", "counter", "Connections refused at the limit.",
+         static_cast<double>(n.refused.load()));
+  metric("droopline_frames_encoded_total", "counter", "Telemetry frames encoded.", static_cast<double>(l.frames.load()));
+  metric("droopline_frames_sent_total", "counter", "Telemetry frames delivered to clients.",
+         static_cast<double>(n.frames_sent.load()));
+  metric("droopline_frames_dropped_total", "counter", "Telemetry frames dropped for slow clients.",
+         static_cast<double>(n.frames_dropped.load()));
+  metric("droopline_slow_clients_closed_total", "counter", "Clients closed for staying behind.",
+         static_cast<double>(n.slow_closed.load()));
+  metric("droopline_commands_total", "counter", "Commands applied.", static_cast<double>(l.commands.load()));
+  metric("droopline_commands_refused_total", "counter", "Commands refused.", static_cast<double>(l.commands_refused.load()));
+  metric("droopline_http_requests_total", "counter", "HTTP requests answered.", static_cast<double>(n.requests.load()));
+  metric("droopline_replays_total", "counter", "Replays run.", static_cast<double>(n.replays.load()));
+  metric("droopline_replays_refused_total", "counter", "Replays refused (busy or too large).",
+         static_cast<double>(n.replays_refused.load()));
+  metric("droopline_replays_active", "gauge", "Replays running or queued.", static_cast<double>(n.replays_active.load()));
+  return o.str();
+}
+
+}  // namespace
+
+http::response<http::string_body> json_response(unsigned version, bool keep_alive, int status,
+                                                std::string body) {
+  http::response<http::string_body> res{static_cast<http::status>(status), version};
+  res.set(http::field::server, "droopline");
+  res.set(http::field::content_type, "application/json");
+  res.set(http::field::cache_control, "no-store");
+  res.keep_alive(keep_alive);
+  res.body() = std::move(body);
+  res.prepare_payload();
+  return res;
+}
+
+HttpSession::HttpSession(tcp::socket&& socket, Context& ctx, std::shared_ptr<void> slot)
+    : stream_(std::move(socket)), ctx_(ctx), slot_(std::move(slot)) {}
+
+void HttpSession::run() {
+  net::dispatch(stream_.get_executor(), beast::bind_front_handler(&HttpSession::do_read, shared_from_this()));
+}
+
+void HttpSession::do_read() {
+  parser_.emplace();
+  parser_->body_limit(ctx_.options.max_body_bytes);
+  parser_->header_limit(kHeaderLimit);
+  stream_.expires_after(kHeaderTimeout);
+  http::async_read(stream_, buffer_, *parser_, beast::bind_front_handler(&HttpSession::on_read, shared_from_this()));
+}
+
+void HttpSession::on_read(beast::error_code ec, std::size_t) {
+  if (ec == http::error::end_of_stream || ec == beast::error::timeout || ec == net::error::operation_aborted ||
+      ec == net::error::connection_reset) {
+    beast::error_code ignored;
+    stream_.socket().shutdown(tcp::socket::shutdown_send, ignored);
+    return;
+  }
+  if (ec == http::error::body_limit) {
+    return send(json_response(11, false, 413, error_json("request body larger than " +
+                                                         std::to_string(ctx_.options.max_body_bytes) + " bytes")));
+  }
+  if (ec == http::error::header_limit) {
+    return send(json_response(11, false, 431, error_json("request headers larger than 16 KiB")));
+  }
+  if (ec) {
+    return send(json_response(11, false, 400, error_json("malformed HTTP request: " + ec.message())));
+  }
+  Request req = parser_->release();
+  ctx_.counters.requests.fetch_add(1);
+  spdlog::debug("{} {}", std::string(req.method_string()), std::string(req.target()));
+  if (websocket::is_upgrade(req)) return upgrade(std::move(req));
+  handle(std::move(req));
+}
+
+void HttpSession::send(Response res) {
+  const bool keep_alive = res.keep_alive();
+  writing_ = std::make_shared<Response>(std::move(res));
+  stream_.expires_after(std::chrono::seconds(30));
+  http::async_write(stream_, *writing_,
+                    beast::bind_front_handler(&HttpSession::on_write, shared_from_this(), keep_alive));
+}
+
+void HttpSession::on_write(bool keep_alive, beast::error_code ec, std::size_t) {
+  writing_.reset();
+  if (ec) return;
+  if (!keep_alive || ctx_.stopping.load()) {
+    beast::error_code ignored;
+    stream_.socket().shutdown(tcp::socket::shutdown_send, ignored);
+    return;
+  }
+  do_read();
+}
+
+std::function<void(int, std::string)> HttpSession::later(const Request& req) {
+  return [self = shared_from_this(), version = req.version(), keep = req.keep_alive()](int status, std::string body) {
+    net::post(self->stream_.get_executor(), [self, version, keep, status, body = std::move(body)]() mutable {
+      self->send(json_response(version, keep, status, std::move(body)));
+    });
+  };
+}
+
+void HttpSession::upgrade(Request&& req) {
+  const Target t = parse_target(req.target());
+  auto refuse = [&](int status, const std::string& why) {
+    send(json_response(req.version(), false, status, error_json(why)));
+  };
+  if (t.path != "/api/v1/stream") return refuse(404, "WebSocket is served at /api/v1/stream only");
+  // Browsers send Origin; it must be this server (or an allowed origin). Scripts may omit it.
+  if (req.count(http::field::origin)) {
+    const std::string origin(req[http::field::origin]);
+    const std::string host(req[http::field::host]);
+    bool allowed = origin == "http://" + host || origin == "https://" + host;
+    for (const auto& a : ctx_.options.allow_origins) allowed = allowed || origin == a;
+    if (!allowed) return refuse(403, "WebSocket origin \"" + origin + "\" is not allowed (use --allow-origin)");
+  }
+  bool instructor = false;
+  if (req.count(http::field::authorization)) {
+    const std::string auth(req[http::field::authorization]);
+    if (auth.rfind("Bearer ", 0) != 0 || !token_matches(auth.substr(7), ctx_.token))
+      return refuse(403, "wrong instructor token");
+    instructor = true;
+  }
+  stream_.expires_never();
+  std::make_shared<WebsocketSession>(stream_.release_socket(), ctx_, instructor, slot_)->run(std::move(req));
+}
+
+void HttpSession::handle(Request&& req) {
+  const unsigned version = req.version();
+  const bool keep = req.keep_alive();
+  auto reply = [&](int status, std::string body) { send(json_response(version, keep, status, std::move(body))); };
+  const Target t = parse_target(req.target());
+  if (!t.ok) return reply(400, error_json("malformed percent-encoding in the request target"));
+  const std::string& path = t.path;
+  const auto method = req.method();
+
+  auto method_not_allowed = [&](const char* allow) {
+    Response res = json_response(version, keep, 405, error_json(std::string("method not allowed; use ") + allow));
+    res.set(http::field::allow, allow);
+    send(std::move(res));
+  };
+  // Anything that changes the simulation needs the instructor token.
+  auto authorized = [&]() {
+    if (!req.count(http::field::authorization)) {
+      reply(401, error_json("this changes the simulation: send the instructor token as 'Authorization: Bearer TOKEN'"));
+      return false;
+    }
+    const std::string auth(req[http::field::authorization]);
+    if (auth.rfind("Bearer ", 0) != 0 || !token_matches(auth.substr(7), ctx_.token)) {
+      reply(403, error_json("wrong instructor token"));
+      return false;
+    }
+    return true;
+  };
+
+  if (path == "/healthz") {
+    if (method != http::verb::get) return method_not_allowed("GET");
+    return reply(200, json{{"status", "ok"}, {"paused", ctx_.live->paused()}, {"clients", ctx_.counters.clients.load()}}.dump());
+  }
+  if (path == "/metrics") {
+    if (method != http::verb::get) return method_not_allowed("GET");
+    Response res{http::status::ok, version};
+    res.set(http::field::content_type, "text/plain; version=0.0.4; charset=utf-8");
+    res.set(http::field::cache_control, "no-store");
+    res.keep_alive(keep);
+    res.body() = metrics_text(ctx_);
+    res.prepare_payload();
+    return send(std::move(res));
+  }
+  if (path.rfind("/api/", 0) == 0) {
+    if (path == "/api/v1/state") {
+      if (method != http::verb::get) return method_not_allowed("GET");
+      auto done = later(req);
+      ctx_.live->state([done](std::string s) { done(200, std::move(s)); });
+      return;
+    }
+    if (path == "/api/v1/scenario") {
+      if (method == http::verb::get) {
+        auto done = later(req);
+        ctx_.live->scenario([done](std::string s) { done(200, std::move(s)); });
+        return;
+      }
+      if (method != http::verb::put) return method_not_allowed("GET, PUT");
+      if (!authorized()) return;
+      LoadResult r = parse_scenario(req.body());
+      if (!r.def) return reply(400, error_json("invalid scenario; nothing changed", issue_texts(r.issues)));
+      auto done = later(req);
+      ctx_.live->load(std::move(*r.def), [done](LiveSession::Reply rep) { done(rep.status, std::move(rep.body)); });
+      return;
+    }
+    if (path == "/api/v1/commands") {
+      if (method != http::verb::post) return method_not_allowed("POST");
+      if (!authorized()) return;
+      CommandParse cp = parse_commands(req.body());
+      if (!cp.issues.empty()) return reply(400, error_json("invalid command; nothing applied", issue_texts(cp.issues)));
+      auto done = later(req);
+      ctx_.live->apply(std::move(cp.commands), [done](LiveSession::Reply rep) { done(rep.status, std::move(rep.body)); });
+      return;
+    }
+    if (path == "/api/v1/control") {
+      if (method != http::verb::post) return method_not_allowed("POST");
+      if (!authorized()) return;
+      auto j = json::parse(req.body(), nullptr, false);
+      if (j.is_discarded() || !j.is_object() || !j.contains("action") || !j["action"].is_string())
+        return reply(400, error_json("body must be {\"action\": \"pause\" | \"resume\" | \"reset\" | \"speed\", \"speed\": x}"));
+      const std::string action = j["action"].get<std::string>();
+      auto done = later(req);
+      auto cb = [done](LiveSession::Reply rep) { done(rep.status, std::move(rep.body)); };
+      if (action == "pause") return ctx_.live->pause(cb);
+      if (action == "resume") return ctx_.live->resume(cb);
+      if (action == "reset") return ctx_.live->reset(cb);
+      if (action == "speed") {
+        if (!j.contains("speed") || !j["speed"].is_number())
+          return reply(400, error_json("speed: required, a number from 0.1 to 100"));
+        const double s = j["speed"].get<double>();
+        if (!(s >= 0.1 && s <= 100.0))
+          return reply(400, error_json("speed: must lie within [0.1, 100], got " + fmt_num(s)));
+        return ctx_.live->set_speed(s, cb);
+      }
+      return reply(400, error_json("action: must be one of \"pause\", \"resume\", \"reset\", \"speed\", got \"" + action + "\""));
+    }
+    if (path == "/api/v1/history") {
+      if (method != http::verb::get) return method_not_allowed("GET");
+      double from = 0, to = 0, every = 0;
+      std::string err;
+      if (!query_number(t, "from_s", -1e300, from, err) || !query_number(t, "to_s", 1e300, to, err) ||
+          !query_number(t, "every_s", 0.0, every, err))
+        return reply(400, error_json(err));
+      const std::string format = t.get("format", "json");
+      if (format != "json" && format != "csv")
+        return reply(400, error_json("query parameter format: must be json or csv, got \"" + format + "\""));
+      if (every < 0) return reply(400, error_json("query parameter every_s: must be >= 0"));
+      const bool csv = format == "csv";
+      Response res{http::status::ok, version};
+      res.set(http::field::content_type, csv ? "text/csv; charset=utf-8" : "application/json");
+      res.set(http::field::cache_control, "no-store");
+      res.keep_alive(keep);
+      res.body() = ctx_.live->history(from, to, every, csv);
+      res.prepare_payload();
+      return send(std::move(res));
+    }
+    if (path == "/api/v1/events") {
+      if (method != http::verb::get) return method_not_allowed("GET");
+      double since = 0;
+      std::string err;
+      if (!query_number(t, "since", 0, since, err) || since < 0) return reply(400, error_json(err.empty() ? "since: must be >= 0" : err));
+      return reply(200, ctx_.live->events(static_cast<std::uint64_t>(since)));
+    }
+    if (path == "/api/v1/replays") {
+      if (method != http::verb::post) return method_not_allowed("POST");
+      LoadResult r = parse_scenario(req.body());
+      if (!r.def) return reply(400, error_json("invalid scenario", issue_texts(r.issues)));
+      const double unit_steps = r.def->duration_s / r.def->step_s * static_cast<double>(std::max<std::size_t>(1, r.def->units.size()));
+      if (unit_steps > ctx_.options.max_replay_unit_steps) {
+        ctx_.counters.replays_refused.fetch_add(1);
+        return reply(413, error_json("replay too large: " + fmt_num(unit_steps) + " unit-steps (duration_s / step_s * units), at most " +
+                                     fmt_num(ctx_.options.max_replay_unit_steps)));
+      }
+      if (ctx_.counters.replays_active.fetch_add(1) >= ctx_.options.max_replays) {
+        ctx_.counters.replays_active.fetch_sub(1);
+        ctx_.counters.replays_refused.fetch_add(1);
+        Response res = json_response(version, keep, 429, error_json("too many replays at once (at most " +
+                                                                     std::to_string(ctx_.options.max_replays) + "); retry later"));
+        res.set(http::field::retry_after, "2");
+        return send(std::move(res));
+      }
+      std::vector<Issue> warnings;
+      for (const Issue& i : r.issues)
+        if (i.warning) warnings.push_back(i);
+      auto done = later(req);
+      net::post(*ctx_.replay_pool, [this, def = std::move(*r.def), warnings, done, self = shared_from_this()] {
+        cli::RunOutcome out = cli::run_to_strings(def, warnings);
+        ctx_.counters.replays_active.fetch_sub(1);
+        ctx_.counters.replays.fetch_add(1);
+        if (!out.ok) return done(400, error_json("invalid scenario", issue_texts(out.issues)));
+        // The summary goes in as it is written to summary.json, the series as one CSV string.
+        std::string body = "{\"summary\":" + out.summary + ",\"series\":" + json(out.series).dump() + "}";
+        done(200, std::move(body));
+      });
+      return;
+    }
+    if (path == "/api/v1/openapi.json") {
+      if (method != http::verb::get) return method_not_allowed("GET");
+      std::ifstream in(fs::path(ctx_.options.web_root) / "openapi.json", std::ios::binary);
+      if (!in) return reply(404, error_json("openapi.json is not installed"));
+      std::ostringstream ss;
+      ss << in.rdbuf();
+      return reply(200, ss.str());
+    }
+    if (path == "/api/v1/stream") return reply(426, error_json("/api/v1/stream is a WebSocket: send an upgrade request"));
+    return reply(404, error_json("no API endpoint " + path));
+  }
+
+  // Static files from web/: GET and HEAD only, no traversal, no listings.
+  if (method != http::verb::get && method != http::verb::head) return method_not_allowed("GET, HEAD");
+  if (path.find('\0') != std::string::npos || path.empty() || path[0] != '/')
+    return reply(400, error_json("malformed path"));
+  fs::path rel = fs::path(path.substr(1)).lexically_normal();
+  if (rel.empty() || rel == ".") rel = "index.html";
+  for (const auto& part : rel)
+    if (part == ".." || (!part.empty() && part.string()[0] == '.'))
+      return reply(404, error_json("not found: " + path));
+  const fs::path root = fs::path(ctx_.options.web_root);
+  fs::path file = root / rel;
+  std::error_code ec;
+  if (fs::is_directory(file, ec)) file /= "index.html";
+  if (!fs::is_regular_file(file, ec)) return reply(404, error_json("not found: " + path));
+  std::ifstream in(file, std::ios::binary);
+  std::ostringstream ss;
+  ss << in.rdbuf();
+  Response res{http::status::ok, version};
+  res.set(http::field::server, "droopline");
+  res.set(http::field::content_type, content_type(file));
+  res.set(http::field::cache_control, file.extension() == ".html" ? "no-cache" : "public, max-age=300");
+  res.set("X-Content-Type-Options", "nosniff");
+  res.keep_alive(keep);
+  if (method == http::verb::head) {
+    res.content_length(ss.str().size());
+  } else {
+    res.body() = ss.str();
+    res.prepare_payload();
+  }
+  send(std::move(res));
+}
+
+}  // namespace droopline::server

@@ -1,0 +1,150 @@
+#pragma once
+// The live simulation of `droopline serve`: one engine stepped in real time on its own thread
+// against absolute deadlines of a steady clock, never blocked by network I/O. Everything that
+// touches the engine (commands, state, scenario loads) runs on that thread between steps, posted
+// as tasks; results travel back through callbacks. Frames and events leave through a sink that
+// must not block (the hub queues them per client).
+#include <atomic>
+#include <chrono>
+#include <condition_variable>
+#include <cstdint>
+#include <deque>
+#include <functional>
+#include <memory>
+#include <mutex>
+#include <string>
+#include <thread>
+#include <vector>
+
+#include "droopline/engine.hpp"
+#include "journal.hpp"
+
+namespace droopline {
+
+struct LiveConfig {
+  double speed = 1.0;            ///< simulated seconds per wall second, 0.1 .. 100
+  double frame_hz = 20.0;        ///< telemetry frames per wall second
+  double history_s = 600.0;      ///< simulated seconds of history kept for late joiners
+  int max_catchup_steps = 20;    ///< a late loop runs at most this many steps per wake, then slips
+  std::string journal_path;      ///< empty: no journal
+};
+
+/// Counters for /metrics (read from any thread).
+struct LiveCounters {
+  std::atomic<std::uint64_t> steps{0};
+  std::atomic<std::uint64_t> overruns{0};       ///< wakes later than one step behind the deadline
+  std::atomic<std::uint64_t> slips{0};          ///< schedule given up and rebased
+  std::atomic<std::uint64_t> frames{0};
+  std::atomic<std::uint64_t> commands{0};       ///< commands applied
+  std::atomic<std::uint64_t> commands_refused{0};
+  std::atomic<double> lag_s{0.0};               ///< how late the last step ran (wall s)
+  std::atomic<double> jitter_max_s{0.0};        ///< worst lateness since start (wall s)
+  std::atomic<double> realtime_factor{0.0};     ///< simulated s per wall s over the last second
+};
+
+/// A message for clients: `droppable` telemetry may be dropped for a slow client, events never.
+struct Outgoing {
+  std::shared_ptr<const std::string> text;
+  bool droppable = false;
+};
+
+class LiveSession {
+ public:
+  using Sink = std::function<void(const Outgoing&)>;
+  using Task = std::function<void(Engine&)>;
+
+  /// Starts the loop thread on a valid definition. `sink` is called on the loop thread.
+  LiveSession(const SystemDef& def, LiveConfig config, Sink sink);
+  ~LiveSession();
+  LiveSession(const LiveSession&) = delete;
+  LiveSession& operator=(const LiveSession&) = delete;
+
+  /// False when the journal could not be opened (the reason in journal_error()).
+  bool journal_ok() const { return journal_.ok(); }
+  const std::string& journal_error() const { return journal_.error(); }
+
+  /// Runs `task` on the loop thread between two steps.
+  void post(Task task);
+
+  /// Result of a change: `status` is an HTTP status (200, 400, 409, 507...), `body` JSON.
+  struct Reply {
+    int status = 200;
+    std::string body;
+  };
+  using Done = std::function<void(Reply)>;
+
+  /// Applies commands atomically (all or none), journals them, then answers.
+  void apply(std::vector<Command> commands, Done done);
+  /// Replaces the scenario (already validated) and restarts from t = 0.
+  void load(SystemDef def, Done done);
+  /// Restarts the current scenario from t = 0.
+  void reset(Done done);
+  void pause(Done done);
+  void resume(Done done);
+  /// Sets the speed factor (0.1 .. 100).
+  void set_speed(double speed, Done done);
+
+  /// The greeting a new client gets: scenario, columns, history, recent events.
+  void hello(std::function<void(std::shared_ptr<const std::string>)> done);
+  /// Current state as JSON (t_s, areas, units, ties, ...).
+  void state(std::function<void(std::string)> done);
+  /// The current scenario as JSON.
+  void scenario(std::function<void(std::string)> done);
+
+  /// History rows within [from_s, to_s], every `every_s` (0 = all), as CSV or JSON (thread-safe).
+  std::string history(double from_s, double to_s, double every_s, bool csv) const;
+  /// Event log entries with sequence number > since, as JSON (thread-safe).
+  std::string events(std::uint64_t since) const;
+
+  const LiveCounters& counters() const { return counters_; }
+  double speed() const { return speed_.load(); }
+  bool paused() const { return paused_.load(); }
+
+  /// Stops the loop (writes the journal's stop record). Idempotent.
+  void stop();
+
+ private:
+  void run();
+  void start_engine(const SystemDef& def, bool journal_it);
+  void rebase();
+  void emit_frame(double wall_s);
+  void drain_notices();
+  void record_history();
+  std::string state_json(double wall_s) const;
+  void push_event(const std::string& json);
+
+  LiveConfig config_;
+  Sink sink_;
+  Journal journal_;
+  LiveCounters counters_;
+
+  // Loop-thread state
+  std::unique_ptr<Engine> engine_;
+  SystemDef def_;
+  std::int64_t output_every_ = 10;
+  std::size_t reported_ = 0;  // disturbances already sent as events
+  std::chrono::steady_clock::time_point base_wall_;
+  std::int64_t base_step_ = 0;
+  std::chrono::steady_clock::time_point next_frame_;
+  std::chrono::steady_clock::time_point rate_wall_;
+  double rate_sim_ = 0.0;
+
+  // Shared with other threads
+  std::atomic<double> speed_{1.0};
+  std::atomic<bool> paused_{false};
+  std::atomic<bool> stop_{false};
+  std::mutex tasks_mutex_;
+  std::condition_variable tasks_cv_;
+  std::vector<Task> tasks_;
+
+  mutable std::mutex history_mutex_;
+  std::vector<std::string> columns_;
+  std::deque<std::vector<double>> history_;
+  std::size_t history_cap_ = 6000;
+  std::deque<std::pair<std::uint64_t, std::string>> events_;  // (seq, json)
+  std::uint64_t event_seq_ = 0;
+
+  std::thread thread_;
+};
+
+}  // namespace droopline

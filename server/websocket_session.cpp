@@ -1,0 +1,211 @@
+#include "websocket_session.hpp"
+
+#include <nlohmann/json.hpp>
+#include <spdlog/spdlog.h>
+
+#include "droopline/scenario_io.hpp"
+
+namespace droopline::server {
+namespace {
+using json = nlohmann::ordered_json;
+// A client that has lost this many frames in a row (10 s at 20 frames/s) is hopelessly behind.
+constexpr std::uint64_t kMaxDropStreak = 200;
+// Events and replies are never dropped; a client holding this many unsent has stopped reading.
+constexpr std::size_t kMaxQueuedEvents = 4096;
+}  // namespace
+
+WebsocketSession::WebsocketSession(tcp::socket&& socket, Context& ctx, bool instructor,
+                                   std::shared_ptr<void> slot)
+    : ws_(std::move(socket)), ctx_(ctx), instructor_(instructor), slot_(std::move(slot)) {
+  beast::error_code ec;
+  const auto ep = beast::get_lowest_layer(ws_).socket().remote_endpoint(ec);
+  peer_ = ec ? "?" : ep.address().to_string() + ":" + std::to_string(ep.port());
+}
+
+WebsocketSession::~WebsocketSession() {
+  ctx_.hub.leave(this);
+  if (joined_) {
+    ctx_.counters.clients.fetch_sub(1);
+    spdlog::info("client {} disconnected", peer_);
+  }
+}
+
+void WebsocketSession::fail(beast::error_code ec, const char* what) {
+  if (ec == websocket::error::closed || ec == net::error::operation_aborted ||
+      ec == beast::error::timeout || ec == net::error::eof || ec == net::error::connection_reset)
+    return;
+  spdlog::debug("client {}: {}: {}", peer_, what, ec.message());
+}
+
+void WebsocketSession::run(http::request<http::string_body> req) {
+  ws_.set_option(websocket::stream_base::timeout::suggested(beast::role_type::server));
+  ws_.set_option(websocket::stream_base::decorator([](websocket::response_type& res) {
+    res.set(http::field::server, "droopline");
+  }));
+  ws_.read_message_max(ctx_.options.max_message_bytes);
+  ws_.text(true);
+  ws_.async_accept(req, beast::bind_front_handler(&WebsocketSession::on_accept, shared_from_this()));
+}
+
+void WebsocketSession::on_accept(beast::error_code ec) {
+  if (ec) return fail(ec, "accept");
+  joined_ = true;
+  ctx_.counters.clients.fetch_add(1);
+  spdlog::info("client {} connected{}", peer_, instructor_ ? " (instructor)" : "");
+  // The greeting is made on the loop thread; joining the hub there too keeps the order: nothing
+  // sent after the greeting's history can be missing from it or come before it.
+  auto self = shared_from_this();
+  ctx_.live->hello([self](std::shared_ptr<const std::string> hello) {
+    self->deliver({hello, false});
+    self->ctx_.hub.join(self);
+  });
+  do_read();
+}
+
+void WebsocketSession::do_read() {
+  ws_.async_read(buffer_, beast::bind_front_handler(&WebsocketSession::on_read, shared_from_this()));
+}
+
+void WebsocketSession::on_read(beast::error_code ec, std::size_t) {
+  if (ec) return fail(ec, "read");
+  const std::string text = beast::buffers_to_string(buffer_.data());
+  buffer_.consume(buffer_.size());
+  handle_message(text);
+  do_read();
+}
+
+void WebsocketSession::reply(std::string text) {
+  deliver({std::make_shared<const std::string>(std::move(text)), false});
+}
+
+void WebsocketSession::handle_message(const std::string& text) {
+  auto j = json::parse(text, nullptr, false);
+  if (j.is_discarded() || !j.is_object() || !j.contains("type") || !j["type"].is_string()) {
+    reply(json{{"type", "error"}, {"error", "messages are JSON objects with a \"type\""}}.dump());
+    return;
+  }
+  const std::string type = j["type"].get<std::string>();
+  const json id = j.contains("id") ? j["id"] : json(nullptr);
+  if (type == "auth") {
+    const bool ok = j.contains("token") && j["token"].is_string() &&
+                    token_matches(j["token"].get<std::string>(), ctx_.token);
+    if (ok) instructor_ = true;
+    reply(json{{"type", "auth"}, {"id", id}, {"ok", ok}, {"role", instructor_ ? "instructor" : "viewer"}}.dump());
+    if (ok) spdlog::info("client {} authenticated as instructor", peer_);
+    return;
+  }
+  if (type != "commands" && type != "control") {
+    reply(json{{"type", "error"}, {"id", id}, {"error", "unknown message type \"" + type + "\""}}.dump());
+    return;
+  }
+  if (!instructor_) {
+    reply(json{{"type", "reply"}, {"id", id}, {"status", 403},
+               {"body", {{"error", "changing the simulation needs the instructor token (send {\"type\":\"auth\",\"token\":...})"}}}}
+              .dump());
+    return;
+  }
+  auto self = shared_from_this();
+  auto done = [self, id](LiveSession::Reply r) {
+    self->reply(json{{"type", "reply"}, {"id", id}, {"status", r.status}, {"body", json::parse(r.body)}}.dump());
+  };
+  if (type == "commands") {
+    CommandParse cp = parse_commands(j.contains("commands") ? j["commands"].dump() : "null");
+    if (!cp.issues.empty()) {
+      std::vector<std::string> msgs;
+      for (const Issue& i : cp.issues) msgs.push_back(i.text());
+      done({400, json{{"error", "invalid command"}, {"issues", msgs}}.dump()});
+      return;
+    }
+    ctx_.live->apply(std::move(cp.commands), done);
+    return;
+  }
+  const std::string action = j.value("action", "");
+  if (action == "pause") ctx_.live->pause(done);
+  else if (action == "resume") ctx_.live->resume(done);
+  else if (action == "reset") ctx_.live->reset(done);
+  else if (action == "speed" && j.contains("speed") && j["speed"].is_number() &&
+           j["speed"].get<double>() >= 0.1 && j["speed"].get<double>() <= 100.0)
+    ctx_.live->set_speed(j["speed"].get<double>(), done);
+  else
+    done({400, json{{"error", "control needs action pause, resume, reset or speed (with speed 0.1-100)"}}.dump()});
+}
+
+void WebsocketSession::deliver(const Outgoing& msg) {
+  net::post(ws_.get_executor(), [self = shared_from_this(), msg] { self->enqueue(msg); });
+}
+
+void WebsocketSession::enqueue(const Outgoing& msg) {
+  if (closing_) return;
+  if (msg.droppable && queue_.size() >= ctx_.options.client_queue) {
+    // Drop the oldest telemetry frame that is not being written; the new one replaces it.
+    auto victim = std::find_if(queue_.begin() + (writing_ ? 1 : 0), queue_.end(),
+                               [](const Outgoing& o) { return o.droppable; });
+    if (victim != queue_.end()) {
+      queue_.erase(victim);
+    }
+    ++dropped_;
+    ctx_.counters.frames_dropped.fetch_add(1);
+    if (++drop_streak_ > kMaxDropStreak) {
+      ctx_.counters.slow_closed.fetch_add(1);
+      close(websocket::close_code::policy_error, "client too slow: frames dropped for 10 s");
+      return;
+    }
+    if (victim == queue_.end()) return;  // nothing could give way: the new frame is the one lost
+  }
+  if (!msg.droppable && queue_.size() > kMaxQueuedEvents) {
+    ctx_.counters.slow_closed.fetch_add(1);
+    close(websocket::close_code::policy_error, "client stopped reading");
+    return;
+  }
+  queue_.push_back(msg);
+  if (!writing_) do_write();
+}
+
+void WebsocketSession::do_write() {
+  if (queue_.empty() || closing_) {
+    writing_ = false;
+    return;
+  }
+  writing_ = true;
+  if (queue_.front().droppable && dropped_ > 0) {
+    // Tell the client what it missed before the next frame.
+    queue_.push_front({std::make_shared<const std::string>(
+                           json{{"type", "dropped"}, {"frames", dropped_}}.dump()),
+                       false});
+    dropped_ = 0;
+  }
+  ws_.async_write(net::buffer(*queue_.front().text),
+                  beast::bind_front_handler(&WebsocketSession::on_write, shared_from_this()));
+}
+
+void WebsocketSession::on_write(beast::error_code ec, std::size_t) {
+  if (ec) {
+    writing_ = false;
+    return fail(ec, "write");
+  }
+  if (queue_.front().droppable) {
+    ctx_.counters.frames_sent.fetch_add(1);
+    drop_streak_ = 0;
+  }
+  queue_.pop_front();
+  do_write();
+}
+
+void WebsocketSession::close(websocket::close_code code, const std::string& reason) {
+  net::post(ws_.get_executor(), [self = shared_from_this(), code, reason] {
+    if (self->closing_) return;
+    self->closing_ = true;
+    spdlog::info("closing client {}: {}", self->peer_, reason);
+    if (self->writing_) {
+      // A write is stuck behind a client that does not read: the close frame could never go
+      // out, so the connection is cut instead.
+      beast::error_code ignored;
+      beast::get_lowest_layer(self->ws_).socket().shutdown(tcp::socket::shutdown_both, ignored);
+      beast::get_lowest_layer(self->ws_).socket().close(ignored);
+      return;
+    }
+    self->ws_.async_close(websocket::close_reason(code, reason), [self](beast::error_code) {});
+  });
+}
+
+}  // namespace droopline::server

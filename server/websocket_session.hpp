@@ -1,0 +1,50 @@
+#pragma once
+// One streaming client: its own strand, one write in flight, a bounded queue in which old
+// telemetry frames give way (counted and reported) but events and replies never do.
+#include <deque>
+#include <memory>
+#include <string>
+
+#include "server.hpp"
+
+namespace droopline::server {
+
+class WebsocketSession : public std::enable_shared_from_this<WebsocketSession> {
+ public:
+  WebsocketSession(tcp::socket&& socket, Context& ctx, bool instructor,
+                   std::shared_ptr<void> slot);
+  ~WebsocketSession();
+
+  /// Accepts the upgrade request, then greets the client and joins the hub.
+  void run(http::request<http::string_body> req);
+  /// Queues a message (any thread).
+  void deliver(const Outgoing& msg);
+  /// Sends a close frame with `reason` (any thread).
+  void close(websocket::close_code code, const std::string& reason);
+
+ private:
+  void on_accept(beast::error_code ec);
+  void do_read();
+  void on_read(beast::error_code ec, std::size_t bytes);
+  void handle_message(const std::string& text);
+  void reply(std::string text);
+  void enqueue(const Outgoing& msg);
+  void do_write();
+  void on_write(beast::error_code ec, std::size_t bytes);
+  void fail(beast::error_code ec, const char* what);
+
+  websocket::stream<beast::tcp_stream> ws_;
+  Context& ctx_;
+  bool instructor_;
+  std::shared_ptr<void> slot_;  // holds this connection's place under the limit
+  beast::flat_buffer buffer_;
+  std::deque<Outgoing> queue_;
+  bool writing_ = false;
+  bool closing_ = false;
+  bool joined_ = false;
+  std::uint64_t dropped_ = 0;      // not yet reported to the client
+  std::uint64_t drop_streak_ = 0;  // frames dropped since the last one delivered
+  std::string peer_;
+};
+
+}  // namespace droopline::server
