@@ -8,7 +8,7 @@ cd "$(dirname "$0")/.."
 
 # Debian 12 packages the build, the tests and the benchmarks need.
 PACKAGES=(cmake ninja-build g++ pkg-config libboost-dev nlohmann-json3-dev libspdlog-dev catch2
-          python3-scipy python3-numpy)
+          python3-scipy python3-numpy python3-websockets)
 
 setup() {
   local missing=()

@@ -24,7 +24,7 @@ constexpr std::size_t kHeaderLimit = 16 * 1024;
 std::string error_json(const std::string& message, const std::vector<std::string>& issues = {}) {
   json j{{"error", message}};
   if (!issues.empty()) j["issues"] = issues;
-  return j.dump();
+  return j.dump(-1, ' ', false, json::error_handler_t::replace);
 }
 
 std::vector<std::string> issue_texts(const std::vector<Issue>& issues) {
@@ -217,7 +217,13 @@ void HttpSession::on_read(beast::error_code ec, std::size_t) {
   ctx_.counters.requests.fetch_add(1);
   spdlog::debug("{} {}", std::string(req.method_string()), std::string(req.target()));
   if (websocket::is_upgrade(req)) return upgrade(std::move(req));
-  handle(std::move(req));
+  const unsigned version = req.version();
+  try {
+    handle(std::move(req));
+  } catch (const std::exception& e) {  // input never takes the server down
+    spdlog::error("request failed: {}", e.what());
+    send(json_response(version, false, 500, error_json("internal error handling the request")));
+  }
 }
 
 void HttpSession::send(Response res) {

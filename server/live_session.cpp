@@ -22,7 +22,7 @@ double wall_now_s() {
 std::string error_body(const std::string& message, const std::vector<std::string>& issues = {}) {
   json j{{"error", message}};
   if (!issues.empty()) j["issues"] = issues;
-  return j.dump();
+  return j.dump(-1, ' ', false, json::error_handler_t::replace);
 }
 
 std::vector<std::string> split_errors(const std::string& joined) {

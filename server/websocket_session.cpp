@@ -12,6 +12,8 @@ using json = nlohmann::ordered_json;
 constexpr std::uint64_t kMaxDropStreak = 200;
 // Events and replies are never dropped; a client holding this many unsent has stopped reading.
 constexpr std::size_t kMaxQueuedEvents = 4096;
+// Messages quote what the client sent; invalid UTF-8 in it is replaced, never thrown on.
+std::string safe_dump(const json& j) { return j.dump(-1, ' ', false, json::error_handler_t::replace); }
 }  // namespace
 
 WebsocketSession::WebsocketSession(tcp::socket&& socket, Context& ctx, bool instructor,
@@ -70,7 +72,12 @@ void WebsocketSession::on_read(beast::error_code ec, std::size_t) {
   if (ec) return fail(ec, "read");
   const std::string text = beast::buffers_to_string(buffer_.data());
   buffer_.consume(buffer_.size());
-  handle_message(text);
+  try {
+    handle_message(text);
+  } catch (const std::exception& e) {  // input never takes the server down
+    spdlog::error("client {}: message failed: {}", peer_, e.what());
+    reply(safe_dump(json{{"type", "error"}, {"error", "internal error handling the message"}}));
+  }
   do_read();
 }
 
@@ -81,7 +88,7 @@ void WebsocketSession::reply(std::string text) {
 void WebsocketSession::handle_message(const std::string& text) {
   auto j = json::parse(text, nullptr, false);
   if (j.is_discarded() || !j.is_object() || !j.contains("type") || !j["type"].is_string()) {
-    reply(json{{"type", "error"}, {"error", "messages are JSON objects with a \"type\""}}.dump());
+    reply(safe_dump(json{{"type", "error"}, {"error", "messages are JSON objects with a \"type\""}}));
     return;
   }
   const std::string type = j["type"].get<std::string>();
@@ -90,30 +97,29 @@ void WebsocketSession::handle_message(const std::string& text) {
     const bool ok = j.contains("token") && j["token"].is_string() &&
                     token_matches(j["token"].get<std::string>(), ctx_.token);
     if (ok) instructor_ = true;
-    reply(json{{"type", "auth"}, {"id", id}, {"ok", ok}, {"role", instructor_ ? "instructor" : "viewer"}}.dump());
+    reply(safe_dump(json{{"type", "auth"}, {"id", id}, {"ok", ok}, {"role", instructor_ ? "instructor" : "viewer"}}));
     if (ok) spdlog::info("client {} authenticated as instructor", peer_);
     return;
   }
   if (type != "commands" && type != "control") {
-    reply(json{{"type", "error"}, {"id", id}, {"error", "unknown message type \"" + type + "\""}}.dump());
+    reply(safe_dump(json{{"type", "error"}, {"id", id}, {"error", "unknown message type \"" + type + "\""}}));
     return;
   }
   if (!instructor_) {
-    reply(json{{"type", "reply"}, {"id", id}, {"status", 403},
-               {"body", {{"error", "changing the simulation needs the instructor token (send {\"type\":\"auth\",\"token\":...})"}}}}
-              .dump());
+    reply(safe_dump(json{{"type", "reply"}, {"id", id}, {"status", 403},
+                         {"body", {{"error", "changing the simulation needs the instructor token (send {\"type\":\"auth\",\"token\":...})"}}}}));
     return;
   }
   auto self = shared_from_this();
   auto done = [self, id](LiveSession::Reply r) {
-    self->reply(json{{"type", "reply"}, {"id", id}, {"status", r.status}, {"body", json::parse(r.body)}}.dump());
+    self->reply(safe_dump(json{{"type", "reply"}, {"id", id}, {"status", r.status}, {"body", json::parse(r.body)}}));
   };
   if (type == "commands") {
     CommandParse cp = parse_commands(j.contains("commands") ? j["commands"].dump() : "null");
     if (!cp.issues.empty()) {
       std::vector<std::string> msgs;
       for (const Issue& i : cp.issues) msgs.push_back(i.text());
-      done({400, json{{"error", "invalid command"}, {"issues", msgs}}.dump()});
+      done({400, safe_dump(json{{"error", "invalid command"}, {"issues", msgs}})});
       return;
     }
     ctx_.live->apply(std::move(cp.commands), done);

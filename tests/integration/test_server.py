@@ -1,0 +1,448 @@
+#!/usr/bin/python3
+"""Integration tests of `droopline serve`: the real server on a loopback port, real HTTP and
+WebSocket clients (Debian's python3-websockets). Every test is bounded in time and count.
+
+    /usr/bin/python3 test_server.py DROOPLINE_BINARY SOURCE_DIR
+"""
+import asyncio
+import http.client
+import json
+import os
+import re
+import signal
+import socket
+import subprocess
+import sys
+import tempfile
+import time
+import unittest
+
+import websockets
+
+BIN = SRC = None
+TOKEN = "integration-test-token-0123456789"
+
+
+def free_port():
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return s.getsockname()[1]
+
+
+class Server:
+    """One `droopline serve` process on a free loopback port."""
+
+    def __init__(self, scenario, extra=(), frame_rate=20):
+        self.dir = tempfile.mkdtemp(prefix="droopline-it-")
+        self.port = free_port()
+        self.journal = os.path.join(self.dir, "journal.jsonl")
+        token_file = os.path.join(self.dir, "token")
+        with open(token_file, "w") as fh:
+            fh.write(TOKEN + "\n")
+        self.proc = subprocess.Popen(
+            [BIN, "serve", "--scenario", scenario, "--listen", f"127.0.0.1:{self.port}",
+             "--token-file", token_file, "--journal", self.journal, "--frame-rate", str(frame_rate),
+             "--log-level", "warn", *extra],
+            stdout=subprocess.PIPE, stderr=subprocess.STDOUT, text=True)
+        deadline = time.time() + 10
+        while time.time() < deadline:
+            line = self.proc.stdout.readline()
+            if line.startswith("listening on"):
+                return
+            if self.proc.poll() is not None:
+                raise RuntimeError("server exited: " + line)
+        raise RuntimeError("server did not start")
+
+    def stop(self):
+        if self.proc.poll() is None:
+            self.proc.send_signal(signal.SIGTERM)
+            try:
+                return self.proc.wait(timeout=10)
+            except subprocess.TimeoutExpired:
+                self.proc.kill()
+                return -9
+        return self.proc.returncode
+
+    def request(self, method, path, body=None, token=None, headers=None, timeout=10):
+        conn = http.client.HTTPConnection("127.0.0.1", self.port, timeout=timeout)
+        h = dict(headers or {})
+        if token:
+            h["Authorization"] = "Bearer " + token
+        if isinstance(body, (dict, list)):
+            body = json.dumps(body)
+        conn.request(method, path, body=body, headers=h)
+        r = conn.getresponse()
+        data = r.read()
+        conn.close()
+        ctype = r.getheader("Content-Type", "")
+        return r.status, (json.loads(data) if ctype.startswith("application/json") and data else data), r
+
+    def rss_kb(self):
+        with open(f"/proc/{self.proc.pid}/status") as fh:
+            for line in fh:
+                if line.startswith("VmRSS:"):
+                    return int(line.split()[1])
+        return 0
+
+    def open_fds(self):
+        return len(os.listdir(f"/proc/{self.proc.pid}/fd"))
+
+    def metric(self, name):
+        _, text, _ = self.request("GET", "/metrics")
+        m = re.search(rf"^{name} (\S+)$", text.decode(), re.M)
+        return float(m.group(1))
+
+    def ws_url(self):
+        return f"ws://127.0.0.1:{self.port}/api/v1/stream"
+
+
+def run(coro, timeout=30):
+    return asyncio.run(asyncio.wait_for(coro, timeout))
+
+
+async def next_of(ws, kind, timeout=5):
+    deadline = time.time() + timeout
+    while time.time() < deadline:
+        m = json.loads(await asyncio.wait_for(ws.recv(), timeout))
+        if m["type"] == kind:
+            return m
+    raise TimeoutError(kind)
+
+
+class StreamTests(unittest.TestCase):
+    @classmethod
+    def setUpClass(cls):
+        cls.srv = Server(os.path.join(SRC, "scenarios", "demo_three_areas.json"))
+
+    @classmethod
+    def tearDownClass(cls):
+        cls.srv.stop()
+
+    def test_hello_then_frames_at_the_configured_rate(self):
+        async def go():
+            async with websockets.connect(self.srv.ws_url(), max_size=2**24) as ws:
+                hello = json.loads(await ws.recv())
+                self.assertEqual(hello["type"], "hello")
+                self.assertIn("scenario", hello)
+                self.assertEqual(hello["columns"][0], "t_s")
+                await next_of(ws, "frame")
+                t0, n = time.time(), 0
+                while time.time() - t0 < 2.0:
+                    m = json.loads(await ws.recv())
+                    n += m["type"] == "frame"
+                return n
+        n = run(go())
+        self.assertGreaterEqual(n, 36)  # 20 frames/s for 2 s, allowing for timing at the ends
+        self.assertLessEqual(n, 44)
+
+    def test_frame_content(self):
+        async def go():
+            async with websockets.connect(self.srv.ws_url(), max_size=2**24) as ws:
+                return await next_of(ws, "frame")
+        f = run(go())
+        for key in ("t_s", "wall_s", "areas", "units", "ties"):
+            self.assertIn(key, f)
+        self.assertIn("rocof_hz_per_s", f["areas"]["oskany"])
+        u = f["units"]["V1"]
+        for key in ("p_mw", "setpoint_mw", "headroom_up_mw", "headroom_down_mw", "status"):
+            self.assertIn(key, u)
+        self.assertIn("angle_deg", f["ties"]["vel_osk"])
+
+    def test_load_step_over_http_shows_in_the_stream_within_two_frames(self):
+        async def go():
+            async with websockets.connect(self.srv.ws_url(), max_size=2**24) as ws:
+                await next_of(ws, "frame")
+                before = (await next_of(ws, "frame"))["areas"]["dreyholt"]["demand_mw"]
+                status, body, _ = await asyncio.to_thread(
+                    self.srv.request, "POST", "/api/v1/commands",
+                    {"kind": "load_step", "area": "dreyholt", "mw": 30}, TOKEN)
+                self.assertEqual(status, 200, body)
+                self.assertIn("t_s", body)
+                seen = []
+                for _ in range(2):
+                    f = await next_of(ws, "frame")
+                    seen.append(f["areas"]["dreyholt"]["demand_mw"])
+                return before, seen, body["t_s"]
+        before, seen, t_cmd = run(go())
+        self.assertTrue(any(s > before + 25 for s in seen), (before, seen))
+
+    def test_viewers_cannot_change_the_simulation(self):
+        s, body, _ = self.srv.request("POST", "/api/v1/commands", {"kind": "load_step", "area": "oskany", "mw": 1})
+        self.assertEqual(s, 401)
+        s, body, _ = self.srv.request("POST", "/api/v1/commands", {"kind": "load_step", "area": "oskany", "mw": 1},
+                                      token="wrong-token-wrong-token-wrong-tok")
+        self.assertEqual(s, 403)
+
+        async def go():
+            async with websockets.connect(self.srv.ws_url(), max_size=2**24) as ws:
+                await ws.send(json.dumps({"type": "commands", "id": 7, "commands": [{"kind": "agc", "area": "oskany", "enabled": False}]}))
+                r1 = await next_of(ws, "reply")
+                await ws.send(json.dumps({"type": "auth", "token": TOKEN}))
+                a = await next_of(ws, "auth")
+                await ws.send(json.dumps({"type": "commands", "id": 8, "commands": [{"kind": "agc", "area": "oskany", "enabled": True}]}))
+                r2 = await next_of(ws, "reply")
+                return r1, a, r2
+        r1, a, r2 = run(go())
+        self.assertEqual(r1["status"], 403)
+        self.assertTrue(a["ok"])
+        self.assertEqual(r2["status"], 200, r2)
+
+    def test_origin_is_checked(self):
+        async def go(origin):
+            try:
+                async with websockets.connect(self.srv.ws_url(), origin=origin) as ws:
+                    await ws.recv()
+                    return True
+            except websockets.exceptions.InvalidStatusCode as e:
+                return e.status_code
+        self.assertEqual(run(go(f"http://127.0.0.1:{self.srv.port}")), True)
+        self.assertEqual(run(go("http://elsewhere.invalid")), 403)
+
+    def test_never_reading_client_does_not_delay_others(self):
+        async def go():
+            stuck = await websockets.connect(self.srv.ws_url(), max_size=2**24, read_limit=2**10,
+                                             max_queue=1)
+            stuck.transport.pause_reading()  # never reads again
+            try:
+                async with websockets.connect(self.srv.ws_url(), max_size=2**24) as ws:
+                    await next_of(ws, "frame")
+                    gaps, last = [], time.time()
+                    for _ in range(60):  # 3 s
+                        await next_of(ws, "frame")
+                        now = time.time()
+                        gaps.append(now - last)
+                        last = now
+                    return max(gaps)
+            finally:
+                stuck.transport.abort()
+        worst = run(go())
+        self.assertLess(worst, 0.25)  # frames keep coming at 20/s to the reading client
+
+    def test_state_answers_the_fixed_names(self):
+        s, st, _ = self.srv.request("GET", "/api/v1/state")
+        self.assertEqual(s, 200)
+        self.assertIn("t_s", st)
+        self.assertIn("f_hz", st["areas"]["vellmark"])
+        self.assertIn("p_mw", st["units"]["O2"])
+        self.assertIn("flow_mw", st["ties"]["osk_dre"])
+
+    def test_history_and_events(self):
+        s, text, r = self.srv.request("GET", "/api/v1/history?format=csv&every_s=0.5&from_s=0&to_s=2")
+        self.assertEqual(s, 200)
+        lines = text.decode().strip().split("\n")
+        self.assertTrue(lines[0].startswith("t_s,vellmark.f_hz"))
+        self.assertEqual([l.split(",")[0] for l in lines[1:]], ["0", "0.5", "1", "1.5", "2"])
+        s, h, _ = self.srv.request("GET", "/api/v1/history?every_s=1")
+        self.assertEqual(h["columns"][0], "t_s")
+        s, ev, _ = self.srv.request("GET", "/api/v1/events?since=0")
+        self.assertEqual(s, 200)
+        self.assertIn("events", ev)
+
+    def test_static_files(self):
+        s, body, r = self.srv.request("GET", "/")
+        self.assertEqual(s, 200)
+        self.assertTrue(r.getheader("Content-Type").startswith("text/html"))
+        self.assertEqual(r.getheader("Cache-Control"), "no-cache")
+        s, body, r = self.srv.request("GET", "/openapi.json")
+        self.assertEqual(s, 200)
+        for path in ("/../CMakeLists.txt", "/%2e%2e/CMakeLists.txt", "/.git/config", "/nothing.html"):
+            s, body, _ = self.srv.request("GET", path)
+            self.assertEqual(s, 404, path)
+
+    def test_metrics_and_health(self):
+        s, body, r = self.srv.request("GET", "/healthz")
+        self.assertEqual(s, 200)
+        self.assertEqual(body["status"], "ok")
+        s, text, r = self.srv.request("GET", "/metrics")
+        self.assertTrue(r.getheader("Content-Type").startswith("text/plain"))
+        for name in ("droopline_step_overruns_total", "droopline_loop_lag_seconds", "droopline_realtime_factor",
+                     "droopline_clients", "droopline_frames_sent_total", "droopline_frames_dropped_total",
+                     "droopline_commands_total", "droopline_replays_total"):
+            self.assertIn(name, text.decode())
+
+
+BAD = [
+    # (method, path, body, token, status, message fragment)
+    ("POST", "/api/v1/commands", "{not json", TOKEN, 400, "syntax error"),
+    ("POST", "/api/v1/commands", '{"kind": "load_step", "area": "oskany", "mw": "ten"}', TOKEN, 400, "command.mw: must be a number, got a string"),
+    ("POST", "/api/v1/commands", '{"kind": "load_step", "area": "atlantis", "mw": 5}', TOKEN, 400, 'command.area: unknown area \\"atlantis\\"'),
+    ("POST", "/api/v1/commands", '{"kind": "unit_trip", "unit": "ZZ"}', TOKEN, 400, 'command.unit: unknown unit \\"ZZ\\"'),
+    ("POST", "/api/v1/commands", '{"kind": "setpoint", "unit": "V1", "mw": 5000}', TOKEN, 400, "command.mw: must lie within [min_mw, max_mw] = [0, 900]"),
+    ("POST", "/api/v1/commands", '{"kind": "explode"}', TOKEN, 400, "command.kind: must be one of"),
+    ("POST", "/api/v1/commands", '{"kind": "load_step", "area": "oskany", "mw": 5, "at_s": 3}', TOKEN, 400, "command.at_s: not allowed in a live command"),
+    ("POST", "/api/v1/commands", '[{"kind": "load_step", "area": "oskany", "mw": 5}, {"kind": "tie_trip", "tie": "nope"}]', TOKEN, 400, 'commands[1].tie: unknown tie \\"nope\\"'),
+    ("POST", "/api/v1/commands", "[]", TOKEN, 400, "commands: must hold at least one command"),
+    ("POST", "/api/v1/commands", '{"kind": "governor", "unit": "V1", "droop": -1}', TOKEN, 400, "command.droop: must be > 0, got -1"),
+    ("POST", "/api/v1/commands", '{"kind": "load_step", "area": "oskany", "mw": 5}', None, 401, "instructor token"),
+    ("POST", "/api/v1/commands", '{"kind": "load_step", "area": "oskany", "mw": 5}', "x" * 33, 403, "wrong instructor token"),
+    ("POST", "/api/v1/commands", b'{"kind": "load_step", "area": "osk\xff\xfeany", "mw": 5}', TOKEN, 400, "invalid"),
+    ("PUT", "/api/v1/scenario", '{"name": "x"}', TOKEN, 400, "duration_s: required"),
+    ("PUT", "/api/v1/scenario", '{"duration_s": 10, "areas": [{"id": "a", "demand_mw": 10}], "units": []}', TOKEN, 400, "has no inertia"),
+    ("POST", "/api/v1/control", '{"action": "fly"}', TOKEN, 400, 'action: must be one of'),
+    ("POST", "/api/v1/control", '{"action": "speed", "speed": 1000}', TOKEN, 400, "speed: must lie within [0.1, 100], got 1000"),
+    ("GET", "/api/v1/history?every_s=abc", None, None, 400, 'every_s: must be a number, got \\"abc\\"'),
+    ("GET", "/api/v1/history?format=xml", None, None, 400, "format: must be json or csv"),
+    ("GET", "/api/v1/nothing", None, None, 404, "no API endpoint /api/v1/nothing"),
+    ("DELETE", "/api/v1/state", None, None, 405, "method not allowed; use GET"),
+    ("POST", "/api/v1/replays", '{"duration_s": 5e7, "areas": [{"id": "a", "demand_mw": 10}], "units": [{"id": "g", "area": "a", "rating_mw": 20, "inertia_s": 5, "setpoint_mw": 10, "turbine": {"type": "steam"}}]}', None, 413, "replay too large"),
+    ("POST", "/api/v1/replays", "[1,2", None, 400, "syntax error"),
+    ("GET", "/api/v1/stream", None, None, 426, "is a WebSocket"),
+]
+
+
+class BadInputTests(unittest.TestCase):
+    @classmethod
+    def setUpClass(cls):
+        cls.srv = Server(os.path.join(SRC, "scenarios", "demo_three_areas.json"), extra=["--max-connections", "40"])
+
+    @classmethod
+    def tearDownClass(cls):
+        cls.srv.stop()
+
+    def test_table_of_bad_inputs(self):
+        self.assertGreaterEqual(len(BAD), 20)
+        applied_before = self.srv.metric("droopline_commands_total")
+        for method, path, body, token, status, fragment in BAD:
+            with self.subTest(method=method, path=path, body=str(body)[:60]):
+                s, reply, _ = self.srv.request(method, path, body, token)
+                self.assertEqual(s, status, reply)
+                text = json.dumps(reply)
+                self.assertIn(fragment, text)
+        self.assertEqual(self.srv.metric("droopline_commands_total"), applied_before)  # nothing applied
+
+    def test_oversized_body_gets_413(self):
+        # The limit applies as soon as the headers announce the length: nothing more is read.
+        for length in (2 << 20, 1 << 30):
+            with socket.create_connection(("127.0.0.1", self.srv.port), timeout=10) as s:
+                s.sendall(f"POST /api/v1/commands HTTP/1.1\r\nHost: x\r\nAuthorization: Bearer {TOKEN}\r\n"
+                          f"Content-Type: application/json\r\nContent-Length: {length}\r\n\r\n[".encode())
+                data = b""
+                while b"}" not in data:
+                    chunk = s.recv(4096)
+                    if not chunk:
+                        break
+                    data += chunk
+                self.assertTrue(data.startswith(b"HTTP/1.1 413"), data[:80])
+                self.assertIn(b"larger than 1048576 bytes", data)
+
+    def test_oversized_websocket_message_closes_with_reason(self):
+        async def go():
+            async with websockets.connect(self.srv.ws_url(), max_size=2**24) as ws:
+                await ws.send("x" * (70 * 1024))
+                try:
+                    while True:
+                        await asyncio.wait_for(ws.recv(), 5)
+                except websockets.exceptions.ConnectionClosed as e:
+                    return e.code
+        self.assertEqual(run(go()), 1009)  # message too big
+
+    def test_bad_websocket_messages_get_errors_not_crashes(self):
+        async def go():
+            async with websockets.connect(self.srv.ws_url(), max_size=2**24) as ws:
+                out = []
+                for msg in ["not json", "[]", '{"type": 3}', '{"type": "nope"}']:
+                    await ws.send(msg)
+                    out.append(await next_of(ws, "error"))
+                return out
+        replies = run(go())
+        self.assertEqual(len(replies), 4)
+        s, body, _ = self.srv.request("GET", "/healthz")
+        self.assertEqual(s, 200)
+
+    def test_slow_headers_time_out(self):
+        with socket.create_connection(("127.0.0.1", self.srv.port), timeout=20) as s:
+            s.sendall(b"GET /healthz HTTP/1.1\r\nHost: x\r\n")  # never finishes the headers
+            t0 = time.time()
+            data = s.recv(100)
+            self.assertEqual(data, b"")  # closed by the server
+            self.assertLess(time.time() - t0, 15)
+
+    def test_connections_past_the_limit_get_503(self):
+        import select
+        socks = []
+        try:
+            for _ in range(50):  # the limit is 40
+                socks.append(socket.create_connection(("127.0.0.1", self.srv.port), timeout=5))
+            time.sleep(0.5)
+            readable, _, _ = select.select(socks, [], [], 1.0)
+            refused = [s for s in readable if b"503 Service Unavailable" in s.recv(200)]
+            self.assertGreaterEqual(len(refused), 10)  # everyone past the limit was told, at once
+            self.assertLessEqual(len(socks) - len(refused), 40)
+        finally:
+            for s in socks:
+                s.close()
+        time.sleep(0.5)
+        s, _, _ = self.srv.request("GET", "/healthz")
+        self.assertEqual(s, 200)  # served again once the others left
+
+
+class LifecycleTests(unittest.TestCase):
+    def test_connect_disconnect_cycles_leave_no_leak(self):
+        srv = Server(os.path.join(SRC, "scenarios", "demo_island.json"))
+        try:
+            async def cycle(n):
+                for _ in range(n):
+                    async with websockets.connect(srv.ws_url(), max_size=2**24) as ws:
+                        await ws.recv()
+            run(cycle(20))
+            time.sleep(0.5)
+            base_rss, base_fds = srv.rss_kb(), srv.open_fds()
+            run(cycle(200), timeout=120)
+            time.sleep(0.5)
+            self.assertEqual(srv.metric("droopline_clients"), 0)
+            self.assertLessEqual(srv.open_fds(), base_fds)
+            self.assertLess(srv.rss_kb(), base_rss + 4096)  # within 4 MiB of the baseline
+        finally:
+            self.assertEqual(srv.stop(), 0)
+
+    def test_replay_endpoint_equals_droopline_run(self):
+        srv = Server(os.path.join(SRC, "scenarios", "demo_island.json"))
+        try:
+            for name in ("textbook_two_areas.json", "demo_unit_trip_shedding.json"):
+                path = os.path.join(SRC, "scenarios", name)
+                with open(path, "rb") as fh:
+                    s, reply, _ = srv.request("POST", "/api/v1/replays", fh.read(), timeout=60)
+                self.assertEqual(s, 200)
+                out = tempfile.mkdtemp()
+                subprocess.run([BIN, "run", path, "--out", out, "--quiet"], check=True)
+                with open(os.path.join(out, "series.csv")) as fh:
+                    self.assertEqual(reply["series"], fh.read())
+                with open(os.path.join(out, "summary.json")) as fh:
+                    self.assertEqual(reply["summary"], json.load(fh))
+        finally:
+            srv.stop()
+
+    def test_journal_replay_equals_the_live_series_and_shutdown_is_clean(self):
+        srv = Server(os.path.join(SRC, "scenarios", "demo_three_areas.json"), extra=["--speed", "5"])
+        try:
+            for cmd in ({"kind": "load_step", "area": "oskany", "mw": 35},
+                        [{"kind": "setpoint", "unit": "V1", "mw": 800, "ramp_mw_per_s": 5},
+                         {"kind": "governor", "unit": "D1", "droop": 0.04}],
+                        {"kind": "tie_trip", "tie": "osk_dre"}):
+                s, body, _ = srv.request("POST", "/api/v1/commands", cmd, TOKEN)
+                self.assertEqual(s, 200, body)
+                time.sleep(0.4)
+            s, body, _ = srv.request("POST", "/api/v1/control", {"action": "pause"}, TOKEN)
+            self.assertEqual(s, 200)
+            s, live, _ = srv.request("GET", "/api/v1/history?format=csv")
+            self.assertEqual(srv.stop(), 0)
+            out = tempfile.mkdtemp()
+            subprocess.run([BIN, "replay", srv.journal, "--out", out, "--quiet"], check=True)
+            with open(os.path.join(out, "series.csv")) as fh:
+                replayed = fh.read()
+            self.assertGreater(len(live.decode().split("\n")), 20)
+            self.assertEqual(live.decode(), replayed)
+            with open(srv.journal) as fh:
+                self.assertEqual(json.loads(fh.read().strip().split("\n")[-1])["type"], "stop")
+        finally:
+            srv.stop()
+
+
+def main():
+    global BIN, SRC
+    BIN, SRC = sys.argv[1], sys.argv[2]
+    unittest.main(argv=[sys.argv[0], "-v"], exit=True)
+
+
+if __name__ == "__main__":
+    main()
