@@ -1,7 +1,7 @@
-# droopline on Debian 12: builds with the project's own set-up script and runs the demo.
+# droopline on Debian 12: built with the project's own set-up script; starts the live service on
+# all interfaces with the demo scenario.
 #   docker build -t droopline .
-#   docker run --rm -v "$PWD/out:/src/out" droopline            # the demo scenario
-#   docker run --rm droopline droopline check scenarios/demo_three_areas.json
+#   docker run --rm -p 8080:8080 -e DROOPLINE_TOKEN=choose-a-long-token droopline
 FROM debian:12-slim
 WORKDIR /src
 COPY . /src
@@ -9,4 +9,6 @@ RUN apt-get update -qq \
  && bash scripts/dev.sh build \
  && install -m 0755 build/release/server/droopline /usr/local/bin/droopline \
  && rm -rf /var/lib/apt/lists/*
-CMD ["droopline", "run", "scenarios/demo_island.json", "--out", "out/demo"]
+EXPOSE 8080
+CMD ["droopline", "serve", "--scenario", "scenarios/demo_three_areas.json", "--listen", "0.0.0.0:8080", \
+     "--web", "/src/web", "--journal", "/tmp/droopline-journal.jsonl"]

@@ -1,8 +1,8 @@
 #!/usr/bin/env bash
 # droopline developer entry point: one script for set-up, build, tests, the demo and benchmarks.
-#   bash scripts/dev.sh demo    install what is missing, build, run the bundled demo scenario
+#   bash scripts/dev.sh demo    install what is missing, build, serve the bundled demo scenario live
 #   bash scripts/dev.sh test    install what is missing, build with warnings as errors, run all tests
-#   bash scripts/dev.sh setup | build | bench
+#   bash scripts/dev.sh setup | build | bench | stream-bench
 set -euo pipefail
 cd "$(dirname "$0")/.."
 
@@ -43,13 +43,26 @@ case "${1:-}" in
   demo)
     setup
     build release
-    scenario="${2:-scenarios/demo_island.json}"
-    ./build/release/server/droopline run "$scenario" --out out/demo
+    scenario="${2:-scenarios/demo_three_areas.json}"
+    mkdir -p out
+    echo "demo: open http://127.0.0.1:8080/ (Ctrl-C stops; the session journal goes to out/demo-journal.jsonl)"
+    exec ./build/release/server/droopline serve --scenario "$scenario" --listen 127.0.0.1:8080 \
+      --journal out/demo-journal.jsonl
     ;;
   bench)
     setup
     build release
     ./build/release/tests/bench/droopline-bench "${@:2}"
+    ;;
+  stream-bench)
+    setup
+    build release
+    # The Node.js peer: node and npm as the machine has them, else Debian's.
+    if ! command -v npm >/dev/null; then
+      [ "$(id -u)" -eq 0 ] && apt-get install -y -qq nodejs npm || sudo apt-get install -y -qq nodejs npm
+    fi
+    npm install --prefix tests/bench --no-audit --no-fund --silent
+    ./build/release/tests/bench/droopline-stream-bench "${@:2}"
     ;;
   *)
     sed -n '2,6p' "$0" | sed 's/^# \{0,1\}//'

@@ -142,6 +142,17 @@ std::string metrics_text(const Context& ctx) {
          static_cast<double>(l.slips.load()));
   metric("droopline_loop_lag_seconds", "gauge", "Lateness of the last step against its deadline.", l.lag_s.load());
   metric("droopline_loop_lag_max_seconds", "gauge", "Worst lateness since start.", l.jitter_max_s.load());
+  o << "# HELP droopline_loop_lateness_seconds Lateness of each loop wake against its step deadline.\n"
+       "# TYPE droopline_loop_lateness_seconds histogram\n";
+  std::uint64_t cumulative = 0;
+  for (std::size_t b = 0; b < LiveCounters::kLagBuckets; ++b) {
+    cumulative += l.lag_counts[b].load();
+    o << "droopline_loop_lateness_seconds_bucket{le=\""
+      << (b < std::size(LiveCounters::kLagBounds) ? fmt_exact(LiveCounters::kLagBounds[b]) : std::string("+Inf"))
+      << "\"} " << cumulative << '\n';
+  }
+  o << "droopline_loop_lateness_seconds_sum " << fmt_exact(l.lag_sum_s.load()) << '\n'
+    << "droopline_loop_lateness_seconds_count " << cumulative << '\n';
   metric("droopline_realtime_factor", "gauge", "Simulated seconds per wall second over the last second.",
          l.realtime_factor.load());
   metric("droopline_speed", "gauge", "Requested speed factor.", ctx.live->speed());

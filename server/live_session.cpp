@@ -3,6 +3,9 @@
 #include <algorithm>
 #include <cmath>
 
+#include <pthread.h>
+#include <sched.h>
+
 #include <nlohmann/json.hpp>
 #include <spdlog/spdlog.h>
 
@@ -92,6 +95,14 @@ void LiveSession::rebase() {
 }
 
 void LiveSession::run() {
+  // A real-time priority keeps the loop on its deadlines while network threads are busy; it
+  // needs the privilege (root or CAP_SYS_NICE), so without it the loop runs at normal priority.
+  sched_param sp{};
+  sp.sched_priority = 10;
+  if (pthread_setschedparam(pthread_self(), SCHED_FIFO, &sp) == 0)
+    spdlog::info("real-time loop running at SCHED_FIFO priority {}", sp.sched_priority);
+  else
+    spdlog::info("real-time loop at normal priority (no privilege for SCHED_FIFO)");
   const double h = def_.step_s;
   while (!stop_.load()) {
     // Tasks first: they run between steps, at the current simulation time.
@@ -134,9 +145,15 @@ void LiveSession::run() {
     const auto woke = clock::now();
     const double late_s = std::chrono::duration<double>(woke - deadline(next)).count();
     counters_.lag_s = late_s;
+    counters_.record_lag(std::max(0.0, late_s));
     if (late_s > counters_.jitter_max_s.load()) counters_.jitter_max_s = late_s;
     if (late_s > step_wall) {
-      counters_.overruns.fetch_add(1);
+      const auto n_over = counters_.overruns.fetch_add(1) + 1;
+      if (woke - last_overrun_log_ > std::chrono::seconds(10)) {  // at most one line per 10 s
+        spdlog::warn("real-time loop overrun at t = {:.2f} s: {:.2f} ms late ({} overruns so far)",
+                     engine_->time_s(), late_s * 1e3, n_over);
+        last_overrun_log_ = woke;
+      }
     }
     int ran = 0;
     while (ran < config_.max_catchup_steps && clock::now() >= deadline(engine_->step_index() + 1)) {

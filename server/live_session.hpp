@@ -9,6 +9,7 @@
 #include <condition_variable>
 #include <cstdint>
 #include <deque>
+#include <iterator>
 #include <functional>
 #include <memory>
 #include <mutex>
@@ -40,6 +41,17 @@ struct LiveCounters {
   std::atomic<double> lag_s{0.0};               ///< how late the last step ran (wall s)
   std::atomic<double> jitter_max_s{0.0};        ///< worst lateness since start (wall s)
   std::atomic<double> realtime_factor{0.0};     ///< simulated s per wall s over the last second
+  /// Upper bounds (s) of the lateness histogram; the last bucket is everything above.
+  static constexpr double kLagBounds[] = {1e-5, 2e-5, 5e-5, 1e-4, 2e-4, 5e-4, 1e-3, 2e-3, 5e-3, 1e-2, 1e-1};
+  static constexpr std::size_t kLagBuckets = std::size(kLagBounds) + 1;
+  std::atomic<std::uint64_t> lag_counts[kLagBuckets] = {};  ///< wakes per lateness bucket
+  std::atomic<double> lag_sum_s{0.0};
+  void record_lag(double late_s) {
+    std::size_t b = 0;
+    while (b < std::size(kLagBounds) && late_s > kLagBounds[b]) ++b;
+    lag_counts[b].fetch_add(1, std::memory_order_relaxed);
+    lag_sum_s = lag_sum_s.load() + late_s;
+  }
 };
 
 /// A message for clients: `droppable` telemetry may be dropped for a slow client, events never.
@@ -127,6 +139,7 @@ class LiveSession {
   std::int64_t base_step_ = 0;
   std::chrono::steady_clock::time_point next_frame_;
   std::chrono::steady_clock::time_point rate_wall_;
+  std::chrono::steady_clock::time_point last_overrun_log_{};
   double rate_sim_ = 0.0;
 
   // Shared with other threads

@@ -46,6 +46,7 @@ void WebsocketSession::run(http::request<http::string_body> req) {
   }));
   ws_.read_message_max(ctx_.options.max_message_bytes);
   ws_.text(true);
+  ws_.auto_fragment(false);  // one frame per message: the shared buffer goes out without a copy
   ws_.async_accept(req, beast::bind_front_handler(&WebsocketSession::on_accept, shared_from_this()));
 }
 

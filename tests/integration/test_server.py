@@ -218,6 +218,23 @@ class StreamTests(unittest.TestCase):
         worst = run(go())
         self.assertLess(worst, 0.25)  # frames keep coming at 20/s to the reading client
 
+    def test_speed_and_pause_follow_the_wall_clock(self):
+        def t_now():
+            return self.srv.request("GET", "/api/v1/state")[1]["t_s"]
+        self.assertEqual(self.srv.request("POST", "/api/v1/control", {"action": "speed", "speed": 10}, TOKEN)[0], 200)
+        t0, w0 = t_now(), time.time()
+        time.sleep(1.5)
+        t1, w1 = t_now(), time.time()
+        self.assertAlmostEqual((t1 - t0) / (w1 - w0), 10.0, delta=1.0)
+        self.assertEqual(self.srv.request("POST", "/api/v1/control", {"action": "pause"}, TOKEN)[0], 200)
+        p0 = t_now()
+        time.sleep(0.5)
+        self.assertEqual(t_now(), p0)
+        for body in ({"action": "speed", "speed": 1}, {"action": "resume"}):
+            self.assertEqual(self.srv.request("POST", "/api/v1/control", body, TOKEN)[0], 200)
+        time.sleep(0.3)
+        self.assertGreater(t_now(), p0)
+
     def test_state_answers_the_fixed_names(self):
         s, st, _ = self.srv.request("GET", "/api/v1/state")
         self.assertEqual(s, 200)
