@@ -23,6 +23,7 @@
 
 #include "droopline/engine.hpp"
 #include "droopline/scenario_io.hpp"
+#include "child_process.hpp"
 #include "task_pool.hpp"
 
 namespace fs = std::filesystem;
@@ -125,26 +126,14 @@ struct ChildResult {
 // Runs a program, capturing stdout, timing it and reading its peak resident memory.
 ChildResult run_child(const std::vector<std::string>& argv) {
   ChildResult r;
-  int pipefd[2];
-  if (pipe(pipefd) != 0) return r;
   const double t0 = now_s();
-  const pid_t pid = fork();
-  if (pid == 0) {
-    dup2(pipefd[1], STDOUT_FILENO);
-    close(pipefd[0]);
-    close(pipefd[1]);
-    std::vector<char*> args;
-    for (const auto& a : argv) args.push_back(const_cast<char*>(a.c_str()));
-    args.push_back(nullptr);
-    execv(args[0], args.data());
-    _exit(127);
-  }
-  close(pipefd[1]);
+  const bench::Child c = bench::spawn(argv);
+  if (c.pid < 0) return r;
   char buf[4096];
-  for (ssize_t k; (k = read(pipefd[0], buf, sizeof buf)) > 0;) r.out.append(buf, static_cast<std::size_t>(k));
-  close(pipefd[0]);
+  for (ssize_t k; (k = read(c.out_fd, buf, sizeof buf)) > 0;) r.out.append(buf, static_cast<std::size_t>(k));
+  close(c.out_fd);
   struct rusage ru {};
-  wait4(pid, &r.status, 0, &ru);
+  wait4(c.pid, &r.status, 0, &ru);
   r.wall_s = now_s() - t0;
   r.max_rss_kb = ru.ru_maxrss;
   return r;

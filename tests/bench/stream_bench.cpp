@@ -28,6 +28,8 @@
 #include <boost/asio.hpp>
 #include <boost/beast.hpp>
 
+#include "child_process.hpp"
+
 namespace net = boost::asio;
 namespace beast = boost::beast;
 namespace http = beast::http;
@@ -100,28 +102,8 @@ class Client : public std::enable_shared_from_this<Client> {
   std::string host_;
 };
 
-struct Child {
-  pid_t pid = -1;
-  int out_fd = -1;
-};
-
-Child spawn(const std::vector<std::string>& argv) {
-  int p[2];
-  if (pipe(p) != 0) return {};
-  const pid_t pid = fork();
-  if (pid == 0) {
-    dup2(p[1], STDOUT_FILENO);
-    close(p[0]);
-    close(p[1]);
-    std::vector<char*> args;
-    for (const auto& a : argv) args.push_back(const_cast<char*>(a.c_str()));
-    args.push_back(nullptr);
-    execvp(args[0], args.data());
-    _exit(127);
-  }
-  close(p[1]);
-  return {pid, p[0]};
-}
+using bench::Child;
+using bench::spawn;
 
 bool wait_listening(const Child& c) {
   std::string line;
