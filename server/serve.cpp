@@ -162,6 +162,7 @@ int serve(Options options) {
   }
 
   net::io_context ioc{static_cast<int>(std::max(1u, opt.io_threads))};
+  ctx.ioc = &ioc;
   beast::error_code ec;
   const auto address = net::ip::make_address(opt.host, ec);
   if (ec) {

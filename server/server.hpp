@@ -82,6 +82,7 @@ class Hub {
 /// Shared by every session of one server.
 struct Context {
   Options options;
+  net::io_context* ioc = nullptr;
   std::string token;
   std::unique_ptr<LiveSession> live;
   Hub hub;

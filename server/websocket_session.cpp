@@ -16,11 +16,19 @@ constexpr std::size_t kMaxQueuedEvents = 4096;
 std::string safe_dump(const json& j) { return j.dump(-1, ' ', false, json::error_handler_t::replace); }
 }  // namespace
 
+WebsocketSession::Socket WebsocketSession::adopt(net::io_context& ioc, tcp::socket&& socket) {
+  Socket out(net::make_strand(ioc));
+  beast::error_code ec;
+  const auto protocol = socket.local_endpoint(ec).protocol();
+  out.assign(protocol, socket.release(ec), ec);
+  return out;
+}
+
 WebsocketSession::WebsocketSession(tcp::socket&& socket, Context& ctx, bool instructor,
                                    std::shared_ptr<void> slot)
-    : ws_(std::move(socket)), ctx_(ctx), instructor_(instructor), slot_(std::move(slot)) {
+    : ws_(adopt(*ctx.ioc, std::move(socket))), ctx_(ctx), instructor_(instructor), slot_(std::move(slot)) {
   beast::error_code ec;
-  const auto ep = beast::get_lowest_layer(ws_).socket().remote_endpoint(ec);
+  const auto ep = beast::get_lowest_layer(ws_).remote_endpoint(ec);
   peer_ = ec ? "?" : ep.address().to_string() + ":" + std::to_string(ep.port());
 }
 
@@ -207,8 +215,8 @@ void WebsocketSession::close(websocket::close_code code, const std::string& reas
       // A write is stuck behind a client that does not read: the close frame could never go
       // out, so the connection is cut instead.
       beast::error_code ignored;
-      beast::get_lowest_layer(self->ws_).socket().shutdown(tcp::socket::shutdown_both, ignored);
-      beast::get_lowest_layer(self->ws_).socket().close(ignored);
+      beast::get_lowest_layer(self->ws_).shutdown(tcp::socket::shutdown_both, ignored);
+      beast::get_lowest_layer(self->ws_).close(ignored);
       return;
     }
     self->ws_.async_close(websocket::close_reason(code, reason), [self](beast::error_code) {});

@@ -33,7 +33,11 @@ class WebsocketSession : public std::enable_shared_from_this<WebsocketSession> {
   void on_write(beast::error_code ec, std::size_t bytes);
   void fail(beast::error_code ec, const char* what);
 
-  websocket::stream<beast::tcp_stream> ws_;
+  // A socket bound to a concrete strand type: no type-erased executor to allocate on every write.
+  using Strand = net::strand<net::io_context::executor_type>;
+  using Socket = net::basic_stream_socket<tcp, Strand>;
+  static Socket adopt(net::io_context& ioc, tcp::socket&& socket);
+  websocket::stream<Socket> ws_;
   Context& ctx_;
   bool instructor_;
   std::shared_ptr<void> slot_;  // holds this connection's place under the limit
