@@ -8,22 +8,29 @@ cd "$(dirname "$0")/.."
 
 # Debian 12 packages the build, the tests and the benchmarks need.
 PACKAGES=(cmake ninja-build g++ pkg-config libboost-dev nlohmann-json3-dev libspdlog-dev catch2
-          python3-scipy python3-numpy python3-websockets)
+          python3-scipy python3-numpy python3-websockets chromium)
 
 setup() {
   local missing=()
   for p in "${PACKAGES[@]}"; do
     dpkg-query -W -f='${Status}' "$p" 2>/dev/null | grep -q "install ok installed" || missing+=("$p")
   done
-  if [ ${#missing[@]} -eq 0 ]; then
-    echo "setup: all ${#PACKAGES[@]} packages present"
-    return
-  fi
   local sudo=""
   [ "$(id -u)" -eq 0 ] || sudo="sudo"
-  echo "setup: installing ${missing[*]}"
-  $sudo apt-get update -qq
-  DEBIAN_FRONTEND=noninteractive $sudo apt-get install -y -qq --no-install-recommends "${missing[@]}"
+  if [ ${#missing[@]} -eq 0 ]; then
+    echo "setup: all ${#PACKAGES[@]} packages present"
+  else
+    echo "setup: installing ${missing[*]}"
+    $sudo apt-get update -qq
+    DEBIAN_FRONTEND=noninteractive $sudo apt-get install -y -qq --no-install-recommends "${missing[@]}"
+  fi
+  # The page's npm packages (uPlot; playwright-core for the browser tests), from the lock file.
+  if ! command -v npm >/dev/null; then
+    DEBIAN_FRONTEND=noninteractive $sudo apt-get install -y -qq nodejs npm
+  fi
+  if [ ! -d web/node_modules/uplot ] || [ web/package-lock.json -nt web/node_modules/.package-lock.json ]; then
+    npm ci --prefix web --no-audit --no-fund --silent
+  fi
 }
 
 build() {  # build PRESET

@@ -338,6 +338,12 @@ void HttpSession::handle(Request&& req) {
       ctx_.live->state([done](std::string s) { done(200, std::move(s)); });
       return;
     }
+    if (path == "/api/v1/role") {
+      if (method != http::verb::get) return method_not_allowed("GET");
+      if (!req.count(http::field::authorization)) return reply(200, json{{"role", "viewer"}}.dump());
+      if (!authorized()) return;
+      return reply(200, json{{"role", "instructor"}}.dump());
+    }
     if (path == "/api/v1/scenario") {
       if (method == http::verb::get) {
         auto done = later(req);

@@ -74,6 +74,7 @@ void LiveSession::start_engine(const SystemDef& def, bool journal_it) {
   engine_ = std::move(created.engine);  // def was validated by the caller
   output_every_ = std::max<std::int64_t>(1, std::llround(def_.output_every_s / def_.step_s));
   reported_ = 0;
+  announced_ = 0;
   {
     std::lock_guard lock(history_mutex_);
     columns_ = engine_->series_columns();
@@ -193,6 +194,17 @@ void LiveSession::emit_frame(double wall_s) {
   auto text = std::make_shared<const std::string>(state_json(wall_s));
   counters_.frames.fetch_add(1);
   sink_({text, true});
+  // Disturbances still being measured: their metrics so far, twice a second (droppable, not logged).
+  if (++frame_count_ % std::max<std::uint64_t>(1, static_cast<std::uint64_t>(config_.frame_hz / 2)) == 0) {
+    const auto& d = engine_->disturbances();
+    for (std::size_t i = reported_; i < d.size(); ++i) {
+      if (!d[i].open) continue;
+      json j = disturbance_to_json(*engine_, d[i]);
+      j["type"] = "disturbance";
+      j["index"] = i;
+      sink_({std::make_shared<const std::string>(j.dump()), true});
+    }
+  }
 }
 
 std::string LiveSession::state_json(double wall_s) const {
@@ -268,10 +280,20 @@ void LiveSession::drain_notices() {
     if (n.kind != "command") spdlog::info("t = {:.2f} s: {}", n.t_s, n.text);
     push_event(json{{"type", "event"}, {"t_s", n.t_s}, {"kind", n.kind}, {"text", n.text}}.dump());
   }
+  // Each disturbance is announced when it begins (metrics still filling in, "open": true) and
+  // again, complete, when its window ends.
   const auto& d = engine_->disturbances();
+  while (announced_ < d.size()) {
+    json j = disturbance_to_json(*engine_, d[announced_]);
+    j["type"] = "disturbance";
+    j["index"] = announced_;
+    push_event(j.dump());
+    ++announced_;
+  }
   while (reported_ < d.size() && !d[reported_].open) {
     json j = disturbance_to_json(*engine_, d[reported_]);
     j["type"] = "disturbance";
+    j["index"] = reported_;
     push_event(j.dump());
     ++reported_;
   }

@@ -134,7 +134,9 @@ class LiveSession {
   std::unique_ptr<Engine> engine_;
   SystemDef def_;
   std::int64_t output_every_ = 10;
-  std::size_t reported_ = 0;  // disturbances already sent as events
+  std::size_t reported_ = 0;   // disturbances already sent complete
+  std::size_t announced_ = 0;  // disturbances already sent as begun
+  std::uint64_t frame_count_ = 0;
   std::chrono::steady_clock::time_point base_wall_;
   std::int64_t base_step_ = 0;
   std::chrono::steady_clock::time_point next_frame_;
