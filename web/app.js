@@ -100,7 +100,7 @@ function buildCharts() {
   const unitEl = $('chart-units');
   app.charts.units = new uPlot(chartOptions(unitEl, units.flatMap((id, i) => [
     { label: `${id} MW`, stroke: PALETTE[i % PALETTE.length], width: 2, value: (u, v) => v == null ? '-' : v.toFixed(1) },
-    { label: `${id} set`, stroke: PALETTE[i % PALETTE.length], width: 1, dash: [5, 4], value: (u, v) => v == null ? '-' : v.toFixed(1) },
+    { label: `${id} set`, stroke: PALETTE[i % PALETTE.length], width: 1, dash: [5, 4], points: { show: false }, value: (u, v) => v == null ? '-' : v.toFixed(1) },
   ])), app.data.units, unitEl);
   $('tie-card').hidden = ties.length === 0;
   $('tie-controls').hidden = ties.length === 0;
