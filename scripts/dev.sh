@@ -2,13 +2,13 @@
 # droopline developer entry point: one script for set-up, build, tests, the demo and benchmarks.
 #   bash scripts/dev.sh demo    install what is missing, build, serve the bundled demo scenario live
 #   bash scripts/dev.sh test    install what is missing, build with warnings as errors, run all tests
-#   bash scripts/dev.sh setup | build | bench | stream-bench
+#   bash scripts/dev.sh setup | build | sanitize | bench | stream-bench
 set -euo pipefail
 cd "$(dirname "$0")/.."
 
 # Debian 12 packages the build, the tests and the benchmarks need.
 PACKAGES=(cmake ninja-build g++ pkg-config libboost-dev nlohmann-json3-dev libspdlog-dev catch2
-          python3-scipy python3-numpy python3-websockets chromium)
+          python3-scipy python3-numpy python3-websockets chromium clang libclang-rt-14-dev)
 
 setup() {
   local missing=()
@@ -46,6 +46,15 @@ case "${1:-}" in
     setup
     build ci
     ctest --preset ci -j "$(nproc)"
+    ;;
+  sanitize)
+    # The whole suite under AddressSanitizer + UndefinedBehaviorSanitizer, and the server's
+    # threads (integration, page, task pool) under ThreadSanitizer: any report fails the run.
+    setup
+    build asan
+    ASAN_OPTIONS=detect_leaks=1:abort_on_error=1 UBSAN_OPTIONS=print_stacktrace=1 ctest --preset asan -j "$(nproc)"
+    build tsan
+    TSAN_OPTIONS=halt_on_error=1 ctest --preset tsan -j "$(nproc)" -R "server_integration|web_page|test_models"
     ;;
   demo)
     setup
