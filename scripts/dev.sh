@@ -2,7 +2,7 @@
 # droopline developer entry point: one script for set-up, build, tests, the demo and benchmarks.
 #   bash scripts/dev.sh demo    install what is missing, build, serve the bundled demo scenario live
 #   bash scripts/dev.sh test    install what is missing, build with warnings as errors, run all tests
-#   bash scripts/dev.sh setup | build | sanitize | bench | stream-bench
+#   bash scripts/dev.sh setup | build | sanitize | fuzz [SECONDS] | bench | stream-bench
 set -euo pipefail
 cd "$(dirname "$0")/.."
 
@@ -55,6 +55,20 @@ case "${1:-}" in
     ASAN_OPTIONS=detect_leaks=1:abort_on_error=1 UBSAN_OPTIONS=print_stacktrace=1 ctest --preset asan -j "$(nproc)"
     build tsan
     TSAN_OPTIONS=halt_on_error=1 ctest --preset tsan -j "$(nproc)" -R "server_integration|web_page|test_models"
+    ;;
+  fuzz)
+    # Each libFuzzer target for a bounded time from the committed seed corpus (copied, so the
+    # corpus in the tree stays as committed): a crash, leak or a 1 s hang fails the run.
+    setup
+    build fuzz
+    seconds="${2:-60}"
+    for target in scenario commands target; do
+      work="$(mktemp -d)"
+      cp -r "tests/fuzz/corpus/$target/." "$work/"
+      (cd "$work" && "$OLDPWD/build/fuzz/tests/fuzz/fuzz_$target" "$work" -max_total_time="$seconds" \
+         -timeout=1 -rss_limit_mb=2048 -print_final_stats=1 2>&1 | tail -n 4)
+      rm -rf "$work"
+    done
     ;;
   demo)
     setup

@@ -10,6 +10,7 @@
 #include "cli_run.hpp"
 #include "droopline/format.hpp"
 #include "droopline/scenario_io.hpp"
+#include "http_target.hpp"
 #include "websocket_session.hpp"
 
 namespace droopline::server {
@@ -32,67 +33,6 @@ std::vector<std::string> issue_texts(const std::vector<Issue>& issues) {
   for (const Issue& i : issues)
     if (!i.warning) out.push_back(i.text());
   return out;
-}
-
-std::string percent_decode(std::string_view s, bool& ok) {
-  std::string out;
-  ok = true;
-  for (std::size_t i = 0; i < s.size(); ++i) {
-    if (s[i] == '%') {
-      if (i + 2 >= s.size() || !std::isxdigit(static_cast<unsigned char>(s[i + 1])) ||
-          !std::isxdigit(static_cast<unsigned char>(s[i + 2]))) {
-        ok = false;
-        return {};
-      }
-      out += static_cast<char>(std::stoi(std::string(s.substr(i + 1, 2)), nullptr, 16));
-      i += 2;
-    } else if (s[i] == '+') {
-      out += ' ';
-    } else {
-      out += s[i];
-    }
-  }
-  return out;
-}
-
-struct Target {
-  std::string path;
-  std::vector<std::pair<std::string, std::string>> query;
-  bool ok = true;
-  std::string get(const std::string& key, const std::string& fallback = "") const {
-    for (auto& [k, v] : query)
-      if (k == key) return v;
-    return fallback;
-  }
-  bool has(const std::string& key) const {
-    for (auto& [k, v] : query)
-      if (k == key) return true;
-    return false;
-  }
-};
-
-Target parse_target(std::string_view target) {
-  Target t;
-  const auto q = target.find('?');
-  t.path = percent_decode(target.substr(0, q), t.ok);
-  if (!t.ok || q == std::string_view::npos) return t;
-  std::string_view rest = target.substr(q + 1);
-  while (!rest.empty()) {
-    const auto amp = rest.find('&');
-    std::string_view part = rest.substr(0, amp);
-    const auto eq = part.find('=');
-    bool ok1 = true, ok2 = true;
-    std::string k = percent_decode(part.substr(0, eq), ok1);
-    std::string v = eq == std::string_view::npos ? "" : percent_decode(part.substr(eq + 1), ok2);
-    if (!ok1 || !ok2) {
-      t.ok = false;
-      return t;
-    }
-    if (!k.empty()) t.query.emplace_back(std::move(k), std::move(v));
-    if (amp == std::string_view::npos) break;
-    rest = rest.substr(amp + 1);
-  }
-  return t;
 }
 
 // A number from the query, or an error message naming the parameter.

@@ -250,3 +250,14 @@ TEST_CASE("every shipped scenario validates and runs to its end") {
   }
   CHECK(count >= 7);
 }
+
+// Found by fuzz_commands / fuzz_scenario: a repeated key whose second value is a container used
+// to throw from the parser (a crash of `droopline check`) instead of reporting the duplicate.
+TEST_CASE("a repeated key holding a container is reported, not thrown") {
+  auto c = parse_commands(R"([{"kind": "tie_trip", "tie": "t", "tie": ["k"]}, {"kind": false}])");
+  REQUIRE_FALSE(c.issues.empty());
+  CHECK(c.issues[0].text() == "json: duplicate key \"tie\"");
+  LoadResult r = parse_scenario(R"({"name": "x", "areas": [], "areas": [{"id": "a", "x": {"y": 1}}]})");
+  REQUIRE(r.issues.size() == 1);
+  CHECK(r.issues[0].text() == "json: duplicate key \"areas\"");
+}

@@ -405,9 +405,11 @@ class DomBuilder {
       return &top.get_ref<ijson::array_t&>().back();
     }
     auto& obj = top.get_ref<ijson::object_t&>();
-    // A repeated key keeps its first value (and is reported). The element stays put while it is
-    // open: its parent gets no new key until it is closed.
-    auto it = obj.emplace(std::move(key_), std::move(v)).first;
+    // A repeated key (reported as an error) takes the new value, so a container opened under it
+    // is the one that receives its members. The element stays put while it is open: its parent
+    // gets no new key until it is closed.
+    auto [it, fresh] = obj.emplace(key_, ijson());
+    it->second = std::move(v);
     return &it->second;
   }
   bool put(ijson&& v) {
