@@ -610,6 +610,16 @@ std::vector<Issue> validate(const SystemDef& def) {
     check_command(ck, def, e.command, p, areas, units, ties);
   }
 
+  // The governors act on frequency through the area's inertia: M/beta (s) is how fast that loop
+  // can move, and a fixed step must resolve it like any other time constant.
+  if (def.step_s > 0.0)
+    for (std::size_t i = 0; i < def.areas.size(); ++i) {
+      const double m = 2.0 * inertia[i] / def.nominal_hz;
+      const double beta = natural_response_mw_per_hz(def, i);
+      if (m > 0.0 && beta > 0.0 && def.nominal_hz > 0.0)
+        tcs.push_back({m / beta, "areas[" + std::to_string(i) + "] (inertia over natural response, M/beta)"});
+    }
+
   if (def.step_s > 0.0 && !tcs.empty()) {
     auto fastest = std::min_element(tcs.begin(), tcs.end(), [](auto& a, auto& b) {
       return a.value_s < b.value_s;

@@ -90,8 +90,9 @@ test('a load step from the instructor controls shows as a dip and a new disturba
   await page.fill('#step-mw', '200');
   const tCmd = await page.evaluate(() => window.droopline.last.t_s);
   await page.click('#do-step');
-  await page.waitForSelector('#disturbances .disturbance', { timeout: 5000 });
-  assert.match(await page.locator('#disturbances .disturbance .head').first().textContent(), /load step 200 MW in area oskany/);
+  // (the scenario has its own load step at t = 10 s: look for this one among them)
+  await page.locator('#disturbances .disturbance .head', { hasText: 'load step 200 MW in area oskany' })
+    .waitFor({ timeout: 8000 });
   // The dip: the oskany frequency on the chart falls well below nominal after the step.
   await page.waitForFunction((t0) => {
     const d = window.droopline.data.freq;
