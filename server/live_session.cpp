@@ -104,7 +104,6 @@ void LiveSession::run() {
     spdlog::info("real-time loop running at SCHED_FIFO priority {}", sp.sched_priority);
   else
     spdlog::info("real-time loop at normal priority (no privilege for SCHED_FIFO)");
-  const double h = def_.step_s;
   while (!stop_.load()) {
     // Tasks first: they run between steps, at the current simulation time.
     std::vector<Task> tasks;
@@ -176,7 +175,6 @@ void LiveSession::run() {
       next_frame_ = keep_frame;
     }
     if (clock::now() >= next_frame_) emit_frame(wall_now_s());
-    (void)h;
   }
 }
 
