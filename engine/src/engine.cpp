@@ -809,22 +809,18 @@ struct Engine::Impl {
     std::vector<bool> unit_online, tie_in;
   };
 
+  // Dense index of a scenario id (the count when absent); commands are validated first.
+  template <class T>
+  static std::size_t index_of(const std::vector<T>& items, const std::string& id) {
+    for (std::size_t i = 0; i < items.size(); ++i)
+      if (items[i].id == id) return i;
+    return items.size();
+  }
+  std::size_t unit_idx(const std::string& id) const { return index_of(def.units, id); }
+  std::size_t area_idx(const std::string& id) const { return index_of(def.areas, id); }
+  std::size_t tie_idx(const std::string& id) const { return index_of(def.ties, id); }
+
   std::string dynamic_error(const Command& c, Shadow& sh, const std::string& path) const {
-    auto unit_idx = [&](const std::string& id) {
-      for (std::size_t u = 0; u < nu; ++u)
-        if (def.units[u].id == id) return u;
-      return nu;
-    };
-    auto area_idx = [&](const std::string& id) {
-      for (std::size_t a = 0; a < na; ++a)
-        if (def.areas[a].id == id) return a;
-      return na;
-    };
-    auto tie_idx = [&](const std::string& id) {
-      for (std::size_t t = 0; t < nt; ++t)
-        if (def.ties[t].id == id) return t;
-      return nt;
-    };
     switch (c.kind) {
       case CommandKind::unit_trip: {
         const std::size_t u = unit_idx(c.unit);
@@ -906,43 +902,27 @@ struct Engine::Impl {
     return r;
   }
 
-  std::size_t find_index(const std::string& id, std::size_t count,
-                         const auto& get) const {
-    for (std::size_t i = 0; i < count; ++i)
-      if (get(i) == id) return i;
-    return count;
-  }
-
   void perform(const Command& c) {
     ensure_outputs();
     const double t = time();
-    auto unit_of = [&](const std::string& id) {
-      return find_index(id, nu, [&](std::size_t i) -> const std::string& { return def.units[i].id; });
-    };
-    auto area_of = [&](const std::string& id) {
-      return find_index(id, na, [&](std::size_t i) -> const std::string& { return def.areas[i].id; });
-    };
-    auto tie_of = [&](const std::string& id) {
-      return find_index(id, nt, [&](std::size_t i) -> const std::string& { return def.ties[i].id; });
-    };
     std::string text;
     switch (c.kind) {
       case CommandKind::load_step: {
-        const std::size_t a = area_of(c.area);
+        const std::size_t a = area_idx(c.area);
         areas[a].steps_mw += c.mw;
         text = "load step " + fmt_num(c.mw) + " MW in area " + c.area;
         open_disturbance(a, c.mw, c.kind, text);
         break;
       }
       case CommandKind::load_ramp: {
-        const std::size_t a = area_of(c.area);
+        const std::size_t a = area_idx(c.area);
         areas[a].ramps.push_back({t, c.over_s, c.mw});
         text = "load ramp " + fmt_num(c.mw) + " MW over " + fmt_num(c.over_s) + " s in area " + c.area;
         open_disturbance(a, c.mw, c.kind, text);
         break;
       }
       case CommandKind::unit_trip: {
-        const std::size_t u = unit_of(c.unit);
+        const std::size_t u = unit_idx(c.unit);
         const double lost = pm[units[u].slot];
         const std::size_t a = units[u].area;
         take_offline(u);
@@ -955,7 +935,7 @@ struct Engine::Impl {
         break;
       }
       case CommandKind::unit_start: {
-        const std::size_t u = unit_of(c.unit);
+        const std::size_t u = unit_idx(c.unit);
         bring_online(u, c.mw, false);
         update_inertia();
         refresh_participants(units[u].area);
@@ -964,10 +944,10 @@ struct Engine::Impl {
         break;
       }
       case CommandKind::setpoint: {
-        UnitRt& ur = units[unit_of(c.unit)];
+        UnitRt& ur = units[unit_idx(c.unit)];
         ur.target_mw = c.mw;
         if (c.ramp_mw_per_s) {
-          if (ur.target_rate <= 0.0) ramping.push_back(unit_of(c.unit));
+          if (ur.target_rate <= 0.0) ramping.push_back(unit_idx(c.unit));
           ur.target_rate = *c.ramp_mw_per_s;
         } else {
           ur.target_rate = 0.0;
@@ -979,7 +959,7 @@ struct Engine::Impl {
         break;
       }
       case CommandKind::governor: {
-        const std::size_t u = unit_of(c.unit);
+        const std::size_t u = unit_idx(c.unit);
         UnitRt& ur = units[u];
         if (c.droop) ur.droop = *c.droop;
         if (c.deadband_hz) ur.deadband_hz = *c.deadband_hz;
@@ -1004,13 +984,13 @@ struct Engine::Impl {
         break;
       }
       case CommandKind::tie_trip: {
-        const std::size_t ti = tie_of(c.tie);
+        const std::size_t ti = tie_idx(c.tie);
         text = "tie " + c.tie + " tripped carrying " + fmt_fixed(ties[ti].flow, 1) + " MW";
         trip_tie(ti, "trip of tie " + c.tie);
         break;
       }
       case CommandKind::tie_close: {
-        const std::size_t ti = tie_of(c.tie);
+        const std::size_t ti = tie_idx(c.tie);
         TieRt& tr = ties[ti];
         // Closing between islands: shift the joining island's angles by whole turns so the
         // tracked (unwrapped) difference starts within +/-180 degrees.
@@ -1029,13 +1009,13 @@ struct Engine::Impl {
         break;
       }
       case CommandKind::agc: {
-        const std::size_t a = area_of(c.area);
+        const std::size_t a = area_idx(c.area);
         areas[a].agc_on = c.enabled;
         text = std::string("secondary control ") + (c.enabled ? "on" : "off") + " in area " + c.area;
         break;
       }
       case CommandKind::fluctuation: {
-        AreaRt& ar = areas[area_of(c.area)];
+        AreaRt& ar = areas[area_idx(c.area)];
         ar.noise_sigma = c.sigma_mw;
         ar.noise_tau = c.tau_s;
         if (c.sigma_mw <= 0.0) ar.noise_mw = 0.0;
