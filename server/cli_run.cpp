@@ -246,7 +246,8 @@ int replay(const std::string& journal, const std::string& out_dir, int run_numbe
   fs::create_directories(out_dir, ec);
   AtomicFile series(fs::path(out_dir) / "series.csv");
   AtomicFile summary(fs::path(out_dir) / "summary.json");
-  if (ec || !series.ok() || !summary.ok()) {
+  AtomicFile applied(fs::path(out_dir) / "commands.jsonl");
+  if (ec || !series.ok() || !summary.ok() || !applied.ok()) {
     std::cerr << "droopline: cannot write in \"" << out_dir << "\"\n";
     return 1;
   }
@@ -258,8 +259,15 @@ int replay(const std::string& journal, const std::string& out_dir, int run_numbe
   std::size_t next = 0;
   auto apply_due = [&] {
     while (next < run.commands.size() && run.commands[next].first <= engine.step_index()) {
-      const ApplyResult r = engine.apply_all(run.commands[next].second);
-      if (!r.ok) std::cerr << journal << ": warning: commands at step " << run.commands[next].first << " refused on replay: " << r.error << "\n";
+      const auto& [step, batch] = run.commands[next];
+      const ApplyResult r = engine.apply_all(batch);
+      if (!r.ok) {
+        std::cerr << journal << ": warning: commands at step " << step << " refused on replay: " << r.error << "\n";
+      } else {
+        nlohmann::ordered_json cmds = nlohmann::ordered_json::array();
+        for (const Command& c : batch) cmds.push_back(command_to_json(c));
+        applied.stream() << nlohmann::ordered_json{{"step", step}, {"t_s", r.at_s}, {"commands", cmds}}.dump() << '\n';
+      }
       ++next;
     }
   };
@@ -276,7 +284,7 @@ int replay(const std::string& journal, const std::string& out_dir, int run_numbe
   engine.close_disturbances();
   series.stream().write(buf.data(), static_cast<std::streamsize>(buf.size()));
   summary.stream() << to_text(summary_to_json(engine, notices, {}));
-  if (!series.commit() || !summary.commit()) {
+  if (!series.commit() || !summary.commit() || !applied.commit()) {
     std::cerr << "droopline: writing the results in \"" << out_dir << "\" failed\n";
     return 1;
   }

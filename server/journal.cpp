@@ -1,5 +1,7 @@
 #include "journal.hpp"
 
+#include <fcntl.h>
+#include <sys/stat.h>
 #include <unistd.h>
 
 #include <cerrno>
@@ -14,25 +16,108 @@ namespace droopline {
 
 Journal::Journal(std::string path) : path_(std::move(path)) {
   if (path_.empty()) return;
-  file_ = std::fopen(path_.c_str(), "ab");
-  if (!file_) error_ = "cannot open journal \"" + path_ + "\": " + std::strerror(errno);
-}
-
-Journal::~Journal() {
-  if (file_) std::fclose(file_);
+  const int fd = ::open(path_.c_str(), O_WRONLY | O_APPEND | O_CREAT | O_CLOEXEC, 0644);
+  if (fd < 0) {
+    ok_ = false;
+    error_ = "cannot open journal \"" + path_ + "\" for appending: " + std::strerror(errno);
+    return;
+  }
+  ::close(fd);
 }
 
 bool Journal::append(const std::string& json_line) {
   if (path_.empty()) return true;
-  if (!file_) return false;
-  const bool wrote = std::fwrite(json_line.data(), 1, json_line.size(), file_) == json_line.size() &&
-                     std::fputc('\n', file_) != EOF && std::fflush(file_) == 0 &&
-                     ::fdatasync(::fileno(file_)) == 0;
-  if (!wrote) {
-    error_ = "writing the journal \"" + path_ + "\" failed: " + std::strerror(errno);
-    std::clearerr(file_);
+  auto fail = [this](const char* what, int err) {
+    error_ = "writing the journal \"" + path_ + "\" failed (" + what + "): " + std::strerror(err);
+    status_ = (err == ENOSPC || err == EDQUOT) ? 507 : 500;
+    return false;
+  };
+  const int fd = ::open(path_.c_str(), O_WRONLY | O_APPEND | O_CREAT | O_CLOEXEC, 0644);
+  if (fd < 0) return fail("open", errno);
+  struct stat st {};
+  const bool regular = ::fstat(fd, &st) == 0 && S_ISREG(st.st_mode);
+  std::string line = json_line + '\n';
+  const char* p = line.data();
+  std::size_t left = line.size();
+  int err = 0;
+  const char* what = "write";
+  while (left > 0) {
+    const ssize_t n = ::write(fd, p, left);
+    if (n < 0 && errno == EINTR) continue;
+    if (n <= 0) {
+      err = n < 0 ? errno : ENOSPC;
+      break;
+    }
+    p += n;
+    left -= static_cast<std::size_t>(n);
   }
-  return wrote;
+  if (err == 0 && ::fdatasync(fd) != 0 && errno != EINVAL) {  // EINVAL: a device without sync
+    err = errno;
+    what = "fdatasync";
+  }
+  if (err != 0) {
+    // Never leave part of a record in front of the next one.
+    if (regular && left < line.size()) (void)!::ftruncate(fd, st.st_size);
+    ::close(fd);
+    return fail(what, err);
+  }
+  if (::close(fd) != 0) return fail("close", errno);
+  return true;
+}
+
+JournalWriter::JournalWriter(std::string path, std::function<void()> wake)
+    : journal_(std::move(path)), wake_(std::move(wake)), thread_([this] { run(); }) {}
+
+JournalWriter::~JournalWriter() {
+  {
+    std::lock_guard lock(mutex_);
+    stop_ = true;
+  }
+  cv_.notify_all();
+  thread_.join();
+}
+
+std::shared_ptr<const JournalWriter::Outcome> JournalWriter::submit(std::string json_line) {
+  auto outcome = std::make_shared<Outcome>();
+  {
+    std::lock_guard lock(mutex_);
+    queue_.emplace_back(std::move(json_line), outcome);
+  }
+  cv_.notify_all();
+  return outcome;
+}
+
+void JournalWriter::wait_idle() {
+  std::unique_lock lock(mutex_);
+  cv_.wait(lock, [this] { return queue_.empty() && !busy_; });
+}
+
+bool JournalWriter::append_now(const std::string& json_line) {
+  wait_idle();
+  return journal_.append(json_line);
+}
+
+void JournalWriter::run() {
+  std::unique_lock lock(mutex_);
+  for (;;) {
+    cv_.wait(lock, [this] { return stop_ || !queue_.empty(); });
+    if (queue_.empty()) return;  // stopping, and everything submitted is written
+    auto [line, outcome] = std::move(queue_.front());
+    queue_.pop_front();
+    busy_ = true;
+    lock.unlock();
+    if (journal_.append(line)) {
+      outcome->state.store(durable, std::memory_order_release);
+    } else {
+      outcome->error = journal_.error();
+      outcome->status = journal_.http_status();
+      outcome->state.store(failed, std::memory_order_release);
+    }
+    if (wake_) wake_();
+    lock.lock();
+    busy_ = false;
+    cv_.notify_all();
+  }
 }
 
 JournalRead read_journal(const std::string& path) {

@@ -1,11 +1,22 @@
 #pragma once
 // The session journal: one JSON object per line, appended and flushed to the disk before the
 // command it records is acknowledged, so `droopline replay` can rebuild a live session exactly.
+// The file is opened for each record (commands are rare next to the cost of fdatasync), so the
+// journal survives log rotation and a disk that is remounted or freed while the service runs; a
+// record that cannot be written whole is cut off again, so the file never holds half a line
+// ahead of later records.
 //
 //   {"type":"scenario","step":0,"scenario":{...}}     a scenario was loaded (or the session reset)
 //   {"type":"commands","step":N,"commands":[...]}     commands applied before step N
 //   {"type":"stop","step":N}                          graceful shutdown after N steps
-#include <cstdio>
+#include <atomic>
+#include <condition_variable>
+#include <cstdint>
+#include <deque>
+#include <functional>
+#include <memory>
+#include <mutex>
+#include <thread>
 #include <string>
 #include <vector>
 
@@ -16,24 +27,70 @@ namespace droopline {
 
 class Journal {
  public:
-  /// Opens (appends to) `path`; an empty path journals nothing.
+  /// Appends to `path` (created if missing); an empty path journals nothing.
   explicit Journal(std::string path);
-  ~Journal();
   Journal(const Journal&) = delete;
   Journal& operator=(const Journal&) = delete;
 
-  /// False when the file could not be opened; `error()` says why.
-  bool ok() const { return path_.empty() || file_ != nullptr; }
+  /// False when the file could not be created or opened for appending; `error()` says why.
+  bool ok() const { return ok_; }
   const std::string& error() const { return error_; }
   const std::string& path() const { return path_; }
 
-  /// Appends one line and makes it durable (fflush + fdatasync). False, with error(), on failure.
+  /// Appends one line and makes it durable (write + fdatasync). On failure: false, nothing of the
+  /// line left in the file, `error()` says why and `http_status()` is 507 for a full disk or
+  /// quota, 500 for anything else (read-only, I/O error).
   bool append(const std::string& json_line);
+  int http_status() const { return status_; }
 
  private:
   std::string path_;
-  std::FILE* file_ = nullptr;
+  bool ok_ = true;
   std::string error_;
+  int status_ = 500;
+};
+
+/// Writes journal records on a thread of its own, so the real-time loop never waits on the disk.
+/// Records are written in the order submitted; each submission's outcome turns from `writing` to
+/// `durable` or `failed`, and `wake` is called after each (from the writer thread).
+class JournalWriter {
+ public:
+  enum State : int { writing = 0, durable = 1, failed = 2 };
+  struct Outcome {
+    std::atomic<int> state{writing};
+    int status = 500;   ///< HTTP status when failed: 507 full disk, 500 otherwise
+    std::string error;  ///< why it failed (set before `state`)
+  };
+
+  JournalWriter(std::string path, std::function<void()> wake);
+  ~JournalWriter();
+  JournalWriter(const JournalWriter&) = delete;
+  JournalWriter& operator=(const JournalWriter&) = delete;
+
+  bool ok() const { return journal_.ok(); }
+  const std::string& path() const { return journal_.path(); }
+
+  /// Queues one record; the outcome is shared with the writer thread.
+  std::shared_ptr<const Outcome> submit(std::string json_line);
+  /// Blocks until every submitted record is durable or failed.
+  void wait_idle();
+  /// Waits for the queue to drain, then writes one record on the calling thread. Only for the
+  /// thread that submits (so nothing else writes meanwhile); false with `error()` on failure.
+  bool append_now(const std::string& json_line);
+  const std::string& error() const { return journal_.error(); }
+  int http_status() const { return journal_.http_status(); }
+
+ private:
+  void run();
+
+  Journal journal_;
+  std::function<void()> wake_;
+  std::mutex mutex_;
+  std::condition_variable cv_;
+  std::deque<std::pair<std::string, std::shared_ptr<Outcome>>> queue_;
+  bool busy_ = false;
+  bool stop_ = false;
+  std::thread thread_;
 };
 
 /// One scenario-long stretch of a journal: the scenario and the commands applied to it.

@@ -43,9 +43,15 @@ std::vector<std::string> split_errors(const std::string& joined) {
 }  // namespace
 
 LiveSession::LiveSession(const SystemDef& def, LiveConfig config, Sink sink)
-    : config_(std::move(config)), sink_(std::move(sink)), journal_(config_.journal_path) {
+    : config_(std::move(config)),
+      sink_(std::move(sink)),
+      journal_(config_.journal_path, [this] {
+        { std::lock_guard lock(tasks_mutex_); }  // no wake-up lost between a check and a wait
+        tasks_cv_.notify_all();
+      }) {
   speed_ = std::clamp(config_.speed, 0.1, 100.0);
-  start_engine(def, true);
+  if (journal_.ok() && !journal_scenario(def)) journal_failed_ = true;
+  start_engine(def);
   thread_ = std::thread([this] { run(); });
 }
 
@@ -55,7 +61,10 @@ void LiveSession::stop() {
   if (stop_.exchange(true)) return;
   tasks_cv_.notify_all();
   if (thread_.joinable()) thread_.join();
-  if (engine_) journal_.append(json{{"type", "stop"}, {"step", engine_->step_index()}}.dump());
+  if (!engine_) return;
+  settle_pending();
+  if (!journal_failed_ && !journal_.append_now(json{{"type", "stop"}, {"step", engine_->step_index()}}.dump()))
+    spdlog::error("{}", journal_.error());  // replay then runs to the last command
 }
 
 void LiveSession::post(Task task) {
@@ -68,7 +77,13 @@ void LiveSession::post(Task task) {
 
 // ------------------------------------------------------------------ loop thread
 
-void LiveSession::start_engine(const SystemDef& def, bool journal_it) {
+bool LiveSession::journal_scenario(const SystemDef& def) {
+  if (journal_.append_now(json{{"type", "scenario"}, {"step", 0}, {"scenario", scenario_to_json(def)}}.dump())) return true;
+  spdlog::error("{}", journal_.error());
+  return false;
+}
+
+void LiveSession::start_engine(const SystemDef& def) {
   def_ = def;
   auto created = Engine::create(def_);
   engine_ = std::move(created.engine);  // def was validated by the caller
@@ -76,13 +91,14 @@ void LiveSession::start_engine(const SystemDef& def, bool journal_it) {
   reported_ = 0;
   announced_ = 0;
   {
+    auto scenario_text = std::make_shared<const std::string>(scenario_to_json(def_).dump());
     std::lock_guard lock(history_mutex_);
     columns_ = engine_->series_columns();
-    history_.clear();
-    history_cap_ = static_cast<std::size_t>(std::max(1.0, config_.history_s / def_.output_every_s)) + 1;
+    history_every_s_ = def_.output_every_s;
+    scenario_json_ = std::move(scenario_text);
+    history_.reset(columns_.size(),
+                   static_cast<std::size_t>(std::max(1.0, config_.history_s / def_.output_every_s)) + 1);
   }
-  if (journal_it)
-    journal_.append(json{{"type", "scenario"}, {"step", 0}, {"scenario", scenario_to_json(def_)}}.dump());
   record_history();
   rebase();
 }
@@ -112,6 +128,13 @@ void LiveSession::run() {
       tasks.swap(tasks_);
     }
     for (Task& t : tasks) t(*engine_);
+    apply_due();
+    if (due_unwritten()) {  // the disk is slower than the lead: hold this step until it is done
+      std::unique_lock lock(tasks_mutex_);
+      tasks_cv_.wait_for(lock, std::chrono::milliseconds(5),
+                         [&] { return stop_.load() || !tasks_.empty() || pending_ready(); });
+      continue;
+    }
 
     const auto now = clock::now();
     const double step_wall = def_.step_s / speed_.load();
@@ -121,7 +144,7 @@ void LiveSession::run() {
         next_frame_ = now + std::chrono::milliseconds(500);  // a paused session sends 2 frames/s
       }
       std::unique_lock lock(tasks_mutex_);
-      tasks_cv_.wait_until(lock, next_frame_, [&] { return stop_.load() || !tasks_.empty(); });
+      tasks_cv_.wait_until(lock, next_frame_, [&] { return stop_.load() || !tasks_.empty() || pending_ready(); });
       continue;
     }
     auto deadline = [&](std::int64_t step) {
@@ -132,7 +155,7 @@ void LiveSession::run() {
     if (now < deadline(next)) {
       std::unique_lock lock(tasks_mutex_);
       tasks_cv_.wait_until(lock, std::min(deadline(next), next_frame_),
-                           [&] { return stop_.load() || !tasks_.empty(); });
+                           [&] { return stop_.load() || !tasks_.empty() || pending_ready(); });
       if (clock::now() < deadline(next)) {
         if (clock::now() >= next_frame_) {
           lock.unlock();
@@ -157,6 +180,8 @@ void LiveSession::run() {
     }
     int ran = 0;
     while (ran < config_.max_catchup_steps && clock::now() >= deadline(engine_->step_index() + 1)) {
+      apply_due();
+      if (due_unwritten()) break;
       engine_->step();
       ++ran;
       counters_.steps.fetch_add(1);
@@ -252,11 +277,10 @@ std::string LiveSession::state_json(double wall_s) const {
 }
 
 void LiveSession::record_history() {
-  std::vector<double> row(engine_->series_width());
-  engine_->sample(row);
+  sample_row_.resize(engine_->series_width());
+  engine_->sample(sample_row_);
   std::lock_guard lock(history_mutex_);
-  history_.push_back(std::move(row));
-  while (history_.size() > history_cap_) history_.pop_front();
+  history_.push(sample_row_);
 }
 
 void LiveSession::push_event(const std::string& text) {
@@ -300,33 +324,95 @@ void LiveSession::drain_notices() {
 // ------------------------------------------------------------------ requests
 
 void LiveSession::apply(std::vector<Command> commands, Done done) {
-  post([this, commands = std::move(commands), done = std::move(done)](Engine& e) {
-    // Check, journal, apply: a command is applied and acknowledged only once it is on disk, and
-    // one that fails either step changes nothing.
+  post([this, commands = std::move(commands), done = std::move(done)](Engine& e) mutable {
+    // Check, journal, apply: a command is applied and acknowledged only once its record is on
+    // disk, at the step the record names; one refused by either changes nothing. The journal is
+    // written on its own thread, so the command is scheduled a little ahead (journal_lead_s of
+    // wall time) for the record to get there first.
     const ApplyResult check = e.check_all(commands);
     if (!check.ok) {
       counters_.commands_refused.fetch_add(commands.size());
       done({400, error_body("command refused", split_errors(check.error))});
       return;
     }
+    std::int64_t step = e.step_index();
+    if (!paused_.load())
+      step += static_cast<std::int64_t>(std::ceil(config_.journal_lead_s * speed_.load() / def_.step_s));
+    if (!pending_.empty()) step = std::max(step, pending_.back().step);
     json cmds = json::array();
     for (const Command& c : commands) cmds.push_back(command_to_json(c));
-    if (!journal_.append(json{{"type", "commands"}, {"step", e.step_index()}, {"commands", cmds}}.dump())) {
-      spdlog::error("{}", journal_.error());
-      counters_.commands_refused.fetch_add(commands.size());
-      done({507, error_body("command refused: " + journal_.error())});
-      return;
-    }
-    const ApplyResult r = e.apply_all(commands);
-    counters_.commands.fetch_add(commands.size());
-    drain_notices();
-    done({200, json{{"ok", true}, {"applied", commands.size()}, {"t_s", r.at_s}, {"step", e.step_index()}}.dump()});
+    auto outcome = journal_.submit(json{{"type", "commands"}, {"step", step}, {"commands", cmds}}.dump());
+    pending_.push_back({step, std::move(commands), std::move(done), std::move(outcome)});
   });
+}
+
+bool LiveSession::due_unwritten() const {
+  return !pending_.empty() && pending_.front().step <= engine_->step_index() &&
+         pending_.front().outcome->state.load(std::memory_order_acquire) == JournalWriter::writing;
+}
+
+bool LiveSession::pending_ready() const {
+  for (const Pending& p : pending_) {
+    const int state = p.outcome->state.load(std::memory_order_acquire);
+    if (state == JournalWriter::failed) return true;
+    if (&p == &pending_.front() && state == JournalWriter::durable && p.step <= engine_->step_index()) return true;
+  }
+  return false;
+}
+
+void LiveSession::apply_due() {
+  if (pending_.empty()) return;
+  for (auto it = pending_.begin(); it != pending_.end();) {
+    if (it->outcome->state.load(std::memory_order_acquire) != JournalWriter::failed) {
+      ++it;
+      continue;
+    }
+    spdlog::error("{}", it->outcome->error);
+    counters_.commands_refused.fetch_add(it->commands.size());
+    it->done({it->outcome->status, error_body("command refused, nothing applied: " + it->outcome->error)});
+    it = pending_.erase(it);
+  }
+  Engine& e = *engine_;
+  while (!pending_.empty() && pending_.front().step <= e.step_index() &&
+         pending_.front().outcome->state.load(std::memory_order_acquire) == JournalWriter::durable) {
+    Pending p = std::move(pending_.front());
+    pending_.pop_front();
+    const ApplyResult r = e.apply_all(p.commands);
+    if (!r.ok) {  // replay refuses it the same way
+      counters_.commands_refused.fetch_add(p.commands.size());
+      p.done({400, error_body("command refused", split_errors(r.error))});
+      continue;
+    }
+    counters_.commands.fetch_add(p.commands.size());
+    drain_notices();
+    p.done({200, json{{"ok", true}, {"applied", p.commands.size()}, {"t_s", r.at_s}, {"step", e.step_index()}}.dump()});
+  }
+}
+
+void LiveSession::settle_pending() {
+  // Before a new scenario, a reset or the stop record: every durable command is applied at its
+  // step, exactly as replay will (the few steps run here are catch-up, like a late wake).
+  journal_.wait_idle();
+  apply_due();
+  while (!pending_.empty()) {
+    while (engine_->step_index() < pending_.front().step) {
+      engine_->step();
+      counters_.steps.fetch_add(1);
+      if (engine_->step_index() % output_every_ == 0) record_history();
+      drain_notices();
+    }
+    apply_due();
+  }
 }
 
 void LiveSession::load(SystemDef def, Done done) {
   post([this, def = std::move(def), done = std::move(done)](Engine&) {
-    start_engine(def, true);
+    settle_pending();
+    if (!journal_scenario(def)) {
+      done({journal_.http_status(), error_body("scenario refused, the session goes on unchanged: " + journal_.error())});
+      return;
+    }
+    start_engine(def);
     push_event(json{{"type", "event"}, {"t_s", 0.0}, {"kind", "scenario"}, {"text", "scenario \"" + def.name + "\" loaded"}}.dump());
     done({200, json{{"ok", true}, {"scenario", def.name}}.dump()});
   });
@@ -334,8 +420,13 @@ void LiveSession::load(SystemDef def, Done done) {
 
 void LiveSession::reset(Done done) {
   post([this, done = std::move(done)](Engine&) {
+    settle_pending();
     const SystemDef def = def_;
-    start_engine(def, true);
+    if (!journal_scenario(def)) {
+      done({journal_.http_status(), error_body("reset refused, the session goes on unchanged: " + journal_.error())});
+      return;
+    }
+    start_engine(def);
     push_event(json{{"type", "event"}, {"t_s", 0.0}, {"kind", "reset"}, {"text", "session reset to t = 0"}}.dump());
     done({200, json{{"ok", true}, {"t_s", 0.0}}.dump()});
   });
@@ -366,26 +457,77 @@ void LiveSession::set_speed(double speed, Done done) {
   });
 }
 
-void LiveSession::hello(std::function<void(std::shared_ptr<const std::string>)> done) {
+void LiveSession::hello(std::function<void(std::shared_ptr<const HelloSnapshot>)> done) {
   post([this, done = std::move(done)](Engine&) {
-    json j;
-    j["type"] = "hello";
-    j["scenario"] = scenario_to_json(def_);
-    j["speed"] = speed_.load();
-    j["paused"] = paused_.load();
+    auto snap = std::make_shared<HelloSnapshot>();
+    snap->speed = speed_.load();
+    snap->paused = paused_.load();
     {
       std::lock_guard lock(history_mutex_);
-      j["columns"] = columns_;
-      j["history_every_s"] = def_.output_every_s;
-      json rows = json::array();
-      for (const auto& r : history_) rows.push_back(r);
-      j["history"] = std::move(rows);
-      json ev = json::array();
-      for (const auto& [seq, text] : events_) ev.push_back(json::parse(text));
-      j["events"] = std::move(ev);
+      snap->scenario_json = scenario_json_;
+      snap->columns = columns_;
+      snap->every_s = history_every_s_;
+      snap->rows = history_.flat();
+      snap->events.reserve(events_.size());
+      for (const auto& e : events_) snap->events.push_back(e.second);
     }
-    done(std::make_shared<const std::string>(j.dump()));
+    done(std::move(snap));
   });
+}
+
+std::string HelloSnapshot::to_json() const {
+  // Built as text around the pieces that already are JSON (scenario, events).
+  std::string out = "{\"type\":\"hello\",\"scenario\":";
+  out += *scenario_json;
+  out += ",\"speed\":";
+  append_exact(out, speed);
+  out += paused ? ",\"paused\":true" : ",\"paused\":false";
+  out += ",\"columns\":" + json(columns).dump();
+  out += ",\"history_every_s\":";
+  append_exact(out, every_s);
+  out += ",\"history\":[";
+  const std::size_t w = std::max<std::size_t>(1, columns.size());
+  for (std::size_t i = 0; i < rows.size(); i += w) {
+    out += i ? ",[" : "[";
+    for (std::size_t c = 0; c < w && i + c < rows.size(); ++c) {
+      if (c) out += ',';
+      append_json_number(out, rows[i + c]);
+    }
+    out += ']';
+  }
+  out += "],\"events\":[";
+  for (std::size_t i = 0; i < events.size(); ++i) {
+    if (i) out += ',';
+    out += events[i];
+  }
+  out += "]}";
+  return out;
+}
+
+void HistoryRing::reset(std::size_t width, std::size_t capacity) {
+  width_ = width;
+  cap_ = std::max<std::size_t>(1, capacity);
+  start_ = count_ = 0;
+  data_.assign(width_ * cap_, 0.0);
+}
+
+void HistoryRing::push(const std::vector<double>& row) {
+  const std::size_t slot = (start_ + count_) % cap_;
+  if (count_ == cap_)
+    start_ = (start_ + 1) % cap_;
+  else
+    ++count_;
+  std::copy_n(row.begin(), std::min(row.size(), width_), data_.begin() + static_cast<std::ptrdiff_t>(slot * width_));
+}
+
+std::vector<double> HistoryRing::flat() const {
+  std::vector<double> out;
+  out.reserve(count_ * width_);
+  const std::size_t first = std::min(count_, cap_ - start_);  // rows before the wrap
+  const auto begin = data_.begin() + static_cast<std::ptrdiff_t>(start_ * width_);
+  out.insert(out.end(), begin, begin + static_cast<std::ptrdiff_t>(first * width_));
+  out.insert(out.end(), data_.begin(), data_.begin() + static_cast<std::ptrdiff_t>((count_ - first) * width_));
+  return out;
 }
 
 void LiveSession::state(std::function<void(std::string)> done) {
@@ -400,32 +542,43 @@ void LiveSession::scenario(std::function<void(std::string)> done) {
 }
 
 std::string LiveSession::history(double from_s, double to_s, double every_s, bool csv) const {
-  std::lock_guard lock(history_mutex_);
-  const double out_dt = def_.output_every_s;
+  std::vector<std::string> columns;
+  std::vector<double> rows;
+  double out_dt = 0.1;
+  {
+    std::lock_guard lock(history_mutex_);  // copy out; format without holding the loop up
+    columns = columns_;
+    rows = history_.flat();
+    out_dt = history_every_s_;
+  }
   const std::int64_t stride =
       every_s > 0.0 ? std::max<std::int64_t>(1, std::llround(every_s / out_dt)) : 1;
+  const std::size_t w = std::max<std::size_t>(1, columns.size());
   std::string out;
-  json rows = json::array();
   if (csv) {
-    for (std::size_t i = 0; i < columns_.size(); ++i) out += (i ? "," : "") + columns_[i];
+    for (std::size_t i = 0; i < columns.size(); ++i) out += (i ? "," : "") + columns[i];
     out += '\n';
+  } else {
+    out = "{\"columns\":" + json(columns).dump() + ",\"rows\":[";
   }
-  for (const auto& r : history_) {
-    const double t = r[0];
+  bool first = true;
+  for (std::size_t i = 0; i + w <= rows.size(); i += w) {
+    const double t = rows[i];
     if (t < from_s - 1e-9 || t > to_s + 1e-9) continue;
     if (std::llround(t / out_dt) % stride != 0) continue;
-    if (csv) {
-      for (std::size_t i = 0; i < r.size(); ++i) {
-        if (i) out += ',';
-        append_exact(out, r[i]);
-      }
-      out += '\n';
-    } else {
-      rows.push_back(r);
+    if (!csv) out += first ? "[" : ",[";
+    first = false;
+    for (std::size_t c = 0; c < w; ++c) {
+      if (c) out += ',';
+      if (csv)
+        append_exact(out, rows[i + c]);
+      else
+        append_json_number(out, rows[i + c]);
     }
+    out += csv ? "\n" : "]";
   }
-  if (csv) return out;
-  return json{{"columns", columns_}, {"rows", rows}}.dump();
+  if (!csv) out += "]}";
+  return out;
 }
 
 std::string LiveSession::events(std::uint64_t since) const {

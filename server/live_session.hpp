@@ -28,6 +28,9 @@ struct LiveConfig {
   double history_s = 600.0;      ///< simulated seconds of history kept for late joiners
   int max_catchup_steps = 20;    ///< a late loop runs at most this many steps per wake, then slips
   std::string journal_path;      ///< empty: no journal
+  /// Wall time a command is scheduled ahead so that its journal record is on disk before the loop
+  /// reaches it; the loop waits at that step only if the disk is slower than this.
+  double journal_lead_s = 0.02;
 };
 
 /// Counters for /metrics (read from any thread).
@@ -60,6 +63,35 @@ struct Outgoing {
   bool droppable = false;
 };
 
+/// Fixed-capacity ring of equal-width rows in one flat array: the loop appends without
+/// allocating, and a reader copies it out in two block copies.
+class HistoryRing {
+ public:
+  void reset(std::size_t width, std::size_t capacity);
+  void push(const std::vector<double>& row);  ///< row.size() == width(); the oldest row gives way
+  std::size_t width() const { return width_; }
+  std::size_t size() const { return count_; }
+  /// All rows, oldest first, concatenated.
+  std::vector<double> flat() const;
+
+ private:
+  std::size_t width_ = 0, cap_ = 0, start_ = 0, count_ = 0;
+  std::vector<double> data_;
+};
+
+/// What a joining client is greeted with, copied on the loop thread between two steps (cheap) and
+/// turned into JSON elsewhere (not cheap: up to `history_s` of rows).
+struct HelloSnapshot {
+  std::shared_ptr<const std::string> scenario_json;
+  std::vector<std::string> columns;
+  double every_s = 0.1;
+  std::vector<double> rows;  ///< flat, columns.size() per row
+  std::vector<std::string> events;
+  double speed = 1.0;
+  bool paused = false;
+  std::string to_json() const;
+};
+
 class LiveSession {
  public:
   using Sink = std::function<void(const Outgoing&)>;
@@ -72,7 +104,7 @@ class LiveSession {
   LiveSession& operator=(const LiveSession&) = delete;
 
   /// False when the journal could not be opened (the reason in journal_error()).
-  bool journal_ok() const { return journal_.ok(); }
+  bool journal_ok() const { return journal_.ok() && !journal_failed_; }
   const std::string& journal_error() const { return journal_.error(); }
 
   /// Runs `task` on the loop thread between two steps.
@@ -96,8 +128,9 @@ class LiveSession {
   /// Sets the speed factor (0.1 .. 100).
   void set_speed(double speed, Done done);
 
-  /// The greeting a new client gets: scenario, columns, history, recent events.
-  void hello(std::function<void(std::shared_ptr<const std::string>)> done);
+  /// The greeting a new client gets (scenario, columns, history, recent events), handed to `done`
+  /// on the loop thread between two steps, so that nothing broadcast after it is missing from it.
+  void hello(std::function<void(std::shared_ptr<const HelloSnapshot>)> done);
   /// Current state as JSON (t_s, areas, units, ties, ...).
   void state(std::function<void(std::string)> done);
   /// The current scenario as JSON.
@@ -117,7 +150,13 @@ class LiveSession {
 
  private:
   void run();
-  void start_engine(const SystemDef& def, bool journal_it);
+  void start_engine(const SystemDef& def);
+  bool journal_scenario(const SystemDef& def);  ///< false (logged) when the record failed
+  // Commands wait here, scheduled for a step, until their journal record is durable.
+  void apply_due();             ///< answers failed ones; applies durable ones whose step has come
+  bool due_unwritten() const;   ///< the next command is due but its record is not on disk yet
+  bool pending_ready() const;   ///< apply_due() has something to do
+  void settle_pending();        ///< waits for the writer and runs the engine to every pending step
   void rebase();
   void emit_frame(double wall_s);
   void drain_notices();
@@ -127,7 +166,15 @@ class LiveSession {
 
   LiveConfig config_;
   Sink sink_;
-  Journal journal_;
+  JournalWriter journal_;
+  bool journal_failed_ = false;  ///< the first scenario record could not be written
+  struct Pending {
+    std::int64_t step;
+    std::vector<Command> commands;
+    Done done;
+    std::shared_ptr<const JournalWriter::Outcome> outcome;
+  };
+  std::deque<Pending> pending_;  // loop thread only
   LiveCounters counters_;
 
   // Loop-thread state
@@ -154,8 +201,10 @@ class LiveSession {
 
   mutable std::mutex history_mutex_;
   std::vector<std::string> columns_;
-  std::deque<std::vector<double>> history_;
-  std::size_t history_cap_ = 6000;
+  HistoryRing history_;
+  double history_every_s_ = 0.1;
+  std::shared_ptr<const std::string> scenario_json_;
+  std::vector<double> sample_row_;  // loop thread only
   std::deque<std::pair<std::uint64_t, std::string>> events_;  // (seq, json)
   std::uint64_t event_seq_ = 0;
 

@@ -1,3 +1,5 @@
+#include <sys/resource.h>
+
 #include <csignal>
 #include <cstdlib>
 #include <fstream>
@@ -70,7 +72,7 @@ std::shared_ptr<void> take_slot(Context& ctx) {
 class Listener : public std::enable_shared_from_this<Listener> {
  public:
   Listener(net::io_context& ioc, tcp::endpoint endpoint, Context& ctx, beast::error_code& ec)
-      : ioc_(ioc), acceptor_(net::make_strand(ioc)), ctx_(ctx) {
+      : ioc_(ioc), acceptor_(net::make_strand(ioc)), retry_(acceptor_.get_executor()), ctx_(ctx) {
     acceptor_.open(endpoint.protocol(), ec);
     if (!ec) acceptor_.set_option(net::socket_base::reuse_address(true), ec);
     if (!ec) acceptor_.bind(endpoint, ec);
@@ -98,6 +100,15 @@ class Listener : public std::enable_shared_from_this<Listener> {
       } else {
         std::make_shared<HttpSession>(std::move(socket), ctx_, take_slot(ctx_))->run();
       }
+    } else if (!ctx_.stopping.load()) {
+      // Out of descriptors (EMFILE/ENFILE) or memory: pause instead of spinning on the error;
+      // connections wait in the listen backlog meanwhile.
+      spdlog::warn("accept failed: {}; retrying in 50 ms", ec.message());
+      retry_.expires_after(std::chrono::milliseconds(50));
+      retry_.async_wait([self = shared_from_this()](beast::error_code e) {
+        if (!e && !self->ctx_.stopping.load()) self->do_accept();
+      });
+      return;
     }
     if (!ctx_.stopping.load()) do_accept();
   }
@@ -118,8 +129,25 @@ class Listener : public std::enable_shared_from_this<Listener> {
 
   net::io_context& ioc_;
   tcp::acceptor acceptor_;
+  net::steady_timer retry_;
   Context& ctx_;
 };
+
+// Every connection is a descriptor, and a refused one is one too until its 503 is written: ask
+// for the hard limit (common practice for servers) and warn when even that is below the
+// connection limit plus room for files.
+void raise_descriptor_limit(std::size_t max_connections) {
+  rlimit lim{};
+  if (::getrlimit(RLIMIT_NOFILE, &lim) != 0) return;
+  if (lim.rlim_cur < lim.rlim_max) {
+    lim.rlim_cur = lim.rlim_max;
+    ::setrlimit(RLIMIT_NOFILE, &lim);
+    ::getrlimit(RLIMIT_NOFILE, &lim);
+  }
+  if (lim.rlim_cur != RLIM_INFINITY && lim.rlim_cur < max_connections + 64)
+    spdlog::warn("only {} file descriptors allowed (ulimit -n) for --max-connections {}; accepts will pause when they run out",
+                 static_cast<unsigned long long>(lim.rlim_cur), max_connections);
+}
 
 std::string make_token() {
   std::random_device rd;
@@ -161,6 +189,7 @@ int serve(Options options) {
     std::fflush(stdout);
   }
 
+  raise_descriptor_limit(opt.max_connections);
   net::io_context ioc{static_cast<int>(std::max(1u, opt.io_threads))};
   ctx.ioc = &ioc;
   beast::error_code ec;

@@ -41,6 +41,10 @@ struct Options {
   std::size_t max_message_bytes = 64 << 10; ///< WebSocket message limit
   std::size_t max_connections = 256;
   std::size_t client_queue = 64;            ///< queued messages per client before old frames drop
+  /// Kernel send buffer per streaming socket. Bounded (instead of the kernel's autotuning, which
+  /// goes to megabytes) so a client that stops reading is noticed by the queue above within
+  /// seconds, rather than being fed minutes of stale frames from the kernel's buffer.
+  int stream_send_buffer = 128 << 10;
   std::size_t replay_workers = 2;
   std::size_t max_replays = 2;              ///< replays running or queued at once (then 429)
   double max_replay_unit_steps = 2e9;       ///< duration/step * units per replay (then 413)

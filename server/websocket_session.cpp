@@ -48,6 +48,8 @@ void WebsocketSession::fail(beast::error_code ec, const char* what) {
 }
 
 void WebsocketSession::run(http::request<http::string_body> req) {
+  beast::error_code ignored;
+  beast::get_lowest_layer(ws_).set_option(net::socket_base::send_buffer_size(ctx_.options.stream_send_buffer), ignored);
   ws_.set_option(websocket::stream_base::timeout::suggested(beast::role_type::server));
   ws_.set_option(websocket::stream_base::decorator([](websocket::response_type& res) {
     res.set(http::field::server, "droopline");
@@ -63,11 +65,14 @@ void WebsocketSession::on_accept(beast::error_code ec) {
   joined_ = true;
   ctx_.counters.clients.fetch_add(1);
   spdlog::info("client {} connected{}", peer_, instructor_ ? " (instructor)" : "");
-  // The greeting is made on the loop thread; joining the hub there too keeps the order: nothing
-  // sent after the greeting's history can be missing from it or come before it.
+  // The greeting's contents are copied on the loop thread and the hub joined there too, which
+  // keeps the order: nothing sent after the greeting's history can be missing from it or come
+  // before it. Its JSON is written on this socket's strand, ahead of every frame posted later.
   auto self = shared_from_this();
-  ctx_.live->hello([self](std::shared_ptr<const std::string> hello) {
-    self->deliver({hello, false});
+  ctx_.live->hello([self](std::shared_ptr<const HelloSnapshot> snap) {
+    net::post(self->ws_.get_executor(), [self, snap] {
+      self->enqueue({std::make_shared<const std::string>(snap->to_json()), false});
+    });
     self->ctx_.hub.join(self);
   });
   do_read();

@@ -1,6 +1,7 @@
 #include "droopline/format.hpp"
 
 #include <charconv>
+#include <cmath>
 #include <cstdio>
 
 namespace droopline {
@@ -21,6 +22,13 @@ void append_exact(std::string& out, double v) {
   char buf[32];
   auto res = std::to_chars(buf, buf + sizeof buf, v);
   out.append(buf, res.ptr);
+}
+
+void append_json_number(std::string& out, double v) {
+  if (std::isfinite(v))
+    append_exact(out, v);
+  else
+    out += "null";
 }
 
 std::string fmt_exact(double v) {

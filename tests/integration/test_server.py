@@ -32,10 +32,10 @@ def free_port():
 class Server:
     """One `droopline serve` process on a free loopback port."""
 
-    def __init__(self, scenario, extra=(), frame_rate=20):
+    def __init__(self, scenario, extra=(), frame_rate=20, journal=None):
         self.dir = tempfile.mkdtemp(prefix="droopline-it-")
         self.port = free_port()
-        self.journal = os.path.join(self.dir, "journal.jsonl")
+        self.journal = journal or os.path.join(self.dir, "journal.jsonl")
         token_file = os.path.join(self.dir, "token")
         with open(token_file, "w") as fh:
             fh.write(TOKEN + "\n")
@@ -466,7 +466,7 @@ class LifecycleTests(unittest.TestCase):
 def main():
     global BIN, SRC
     BIN, SRC = sys.argv[1], sys.argv[2]
-    unittest.main(argv=[sys.argv[0], "-v"], exit=True)
+    unittest.main(argv=[sys.argv[0], "-v", *sys.argv[3:]], exit=True)
 
 
 if __name__ == "__main__":

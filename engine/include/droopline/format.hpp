@@ -12,5 +12,7 @@ std::string fmt_fixed(double v, int decimals);
 std::string fmt_exact(double v);
 /// Appends fmt_exact(v) to out without a temporary string.
 void append_exact(std::string& out, double v);
+/// As append_exact, but `null` for a value JSON cannot hold (infinity, NaN).
+void append_json_number(std::string& out, double v);
 
 }  // namespace droopline
