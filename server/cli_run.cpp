@@ -14,6 +14,7 @@
 
 #include "droopline/format.hpp"
 #include "droopline/scenario_io.hpp"
+#include "cli_files.hpp"
 #include "journal.hpp"
 #include "task_pool.hpp"
 
@@ -27,69 +28,6 @@ void print_issues(const std::vector<Issue>& issues, const std::string& file) {
     std::cerr << file << ": " << (i.warning ? "warning: " : "error: ") << i.text() << "\n";
 }
 
-// A file that appears under its final name only when complete: written to a hidden temporary
-// name beside it and renamed (atomic on one filesystem); removed if never committed.
-class AtomicFile {
- public:
-  explicit AtomicFile(fs::path final_path) : final_(std::move(final_path)) {
-    std::string name(1, '.');
-    name += final_.filename().string();
-    name += ".partial-";
-    name += std::to_string(::getpid());
-    temp_ = final_.parent_path() / name;
-    out_.open(temp_, std::ios::binary | std::ios::trunc);
-  }
-  ~AtomicFile() {
-    if (!committed_) {
-      out_.close();
-      std::error_code ec;
-      fs::remove(temp_, ec);
-    }
-  }
-  bool ok() const { return static_cast<bool>(out_); }
-  std::ofstream& stream() { return out_; }
-  bool commit() {
-    out_.flush();
-    out_.close();
-    if (!out_) return false;
-    std::error_code ec;
-    fs::rename(temp_, final_, ec);
-    committed_ = !ec;
-    return committed_;
-  }
-  const fs::path& temp() const { return temp_; }
-
- private:
-  fs::path final_, temp_;
-  std::ofstream out_;
-  bool committed_ = false;
-};
-
-class Progress {
- public:
-  explicit Progress(bool enabled) : enabled_(enabled), last_(std::chrono::steady_clock::now()) {}
-  void update(double done, double total) {
-    if (!enabled_) return;
-    const auto now = std::chrono::steady_clock::now();
-    if (now - last_ < std::chrono::milliseconds(200)) return;
-    last_ = now;
-    shown_ = true;
-    const int width = 40;
-    const double frac = total > 0 ? std::min(1.0, done / total) : 1.0;
-    const int fill = static_cast<int>(frac * width);
-    std::fprintf(stderr, "\r[%s%s] %5.1f %%  t = %.1f / %.1f s", std::string(fill, '#').c_str(),
-                 std::string(width - fill, ' ').c_str(), frac * 100.0, done, total);
-    std::fflush(stderr);
-  }
-  ~Progress() {
-    if (shown_) std::fprintf(stderr, "\r%80s\r", "");
-  }
-
- private:
-  bool enabled_;
-  bool shown_ = false;
-  std::chrono::steady_clock::time_point last_;
-};
 
 std::string opt_text(const std::optional<double>& v, int decimals, const char* unit) {
   return v ? fmt_fixed(*v, decimals) + unit : std::string("-");

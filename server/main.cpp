@@ -7,6 +7,7 @@
 #include <spdlog/spdlog.h>
 
 #include "cli_run.hpp"
+#include "cli_sweep.hpp"
 #include "server.hpp"
 
 namespace {
@@ -31,6 +32,16 @@ usage:
         [--log-level LEVEL]        trace, debug, info (default), warn, error
   droopline replay JOURNAL --out DIR [--run N]
                                    rebuild a live session's series from its journal
+  droopline sweep FILE --vary PATH=VALUES [--vary ...] --out DIR
+                                   run every combination; one row of metrics per run
+        VALUES                     V1,V2,... or START:STOP:STEP; PATH as units[V1].governor.droop
+        [--sample N] [--seed S]    a seeded random sample of N combinations of the grid
+        [--shard I/N]              run only slice I of N (join the slices with merge)
+        [--threads N]              parallel runs (default: one per core)
+        [--metric NAME]            the metric plotted in DIR/sweep.svg (default nadir_hz)
+        [--quiet]
+  droopline merge DIR... --out DIR [--metric NAME]
+                                   join the shards of one sweep
   droopline --version | --help
 
 Exit codes: 0 success, 1 input/output failure, 2 invalid scenario or arguments.
@@ -104,6 +115,66 @@ int serve_command(const std::vector<std::string>& args) {
   return droopline::server::serve(o);
 }
 
+bool whole_number(const std::string& v, std::uint64_t lo, std::uint64_t hi, std::uint64_t& out) {
+  if (v.empty() || v.size() > 12 || v.find_first_not_of("0123456789") != std::string::npos) return false;
+  out = std::stoull(v);
+  return out >= lo && out <= hi;
+}
+
+int sweep_command(const std::vector<std::string>& args) {
+  const bool merging = args[0] == "merge";
+  droopline::cli::SweepArgs a;
+  std::vector<std::string> dirs;
+  for (std::size_t i = 1; i < args.size(); ++i) {
+    const std::string& o = args[i];
+    const bool has = i + 1 < args.size();
+    std::uint64_t n = 0;
+    if (o == "--out" && has) {
+      a.out_dir = args[++i];
+    } else if (o == "--metric" && has) {
+      a.metric = args[++i];
+    } else if (o == "--quiet") {
+      a.quiet = true;
+    } else if (!merging && o == "--vary" && has) {
+      a.vary.push_back(args[++i]);
+    } else if (!merging && o == "--sample" && has) {
+      if (!whole_number(args[++i], 1, 1ULL << 40, n)) return usage_error("--sample takes a count of runs, got \"" + args[i] + "\"");
+      a.sample = n;
+    } else if (!merging && o == "--seed" && has) {
+      if (!whole_number(args[++i], 0, ~0ULL >> 1, n)) return usage_error("--seed takes a whole number, got \"" + args[i] + "\"");
+      a.seed = n;
+    } else if (!merging && o == "--threads" && has) {
+      if (!whole_number(args[++i], 1, 999, n)) return usage_error("--threads takes 1 to 999, got \"" + args[i] + "\"");
+      a.threads = static_cast<unsigned>(n);
+    } else if (!merging && o == "--shard" && has) {
+      const std::string& v = args[++i];
+      const auto slash = v.find('/');
+      std::uint64_t s = 0;
+      if (slash == std::string::npos || !whole_number(v.substr(0, slash), 1, 100000, s) ||
+          !whole_number(v.substr(slash + 1), 1, 100000, n) || s > n)
+        return usage_error("--shard takes I/N with 1 <= I <= N, got \"" + v + "\"");
+      a.shard = static_cast<std::uint32_t>(s);
+      a.shards = static_cast<std::uint32_t>(n);
+    } else if (!o.empty() && o[0] == '-') {
+      return usage_error("unknown option \"" + o + "\" for " + args[0]);
+    } else if (merging) {
+      dirs.push_back(o);
+    } else if (a.scenario_file.empty()) {
+      a.scenario_file = o;
+    } else {
+      return usage_error("sweep takes one scenario FILE, got \"" + o + "\" too");
+    }
+  }
+  if (a.out_dir.empty()) return usage_error(args[0] + " needs --out DIR");
+  if (merging) {
+    if (dirs.empty()) return usage_error("merge needs the shard directories");
+    return droopline::cli::merge(dirs, a.out_dir, a.metric, a.quiet);
+  }
+  if (a.scenario_file.empty()) return usage_error("sweep needs a scenario FILE");
+  if (a.vary.empty()) return usage_error("sweep needs at least one --vary PATH=VALUES");
+  return droopline::cli::sweep(a);
+}
+
 }  // namespace
 
 int main(int argc, char** argv) {
@@ -123,6 +194,7 @@ int main(int argc, char** argv) {
     return droopline::cli::check(args[1]);
   }
   if (cmd == "serve") return serve_command(args);
+  if (cmd == "sweep" || cmd == "merge") return sweep_command(args);
   if (cmd == "run" || cmd == "replay") {
     std::string file, out;
     bool quiet = false;

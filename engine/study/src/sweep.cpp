@@ -1,0 +1,424 @@
+#include "droopline/sweep.hpp"
+
+#include <algorithm>
+#include <atomic>
+#include <chrono>
+#include <cmath>
+#include <cstdio>
+#include <random>
+#include <set>
+#include <thread>
+
+#include "droopline/engine.hpp"
+#include "droopline/format.hpp"
+#include "droopline/scenario_io.hpp"
+
+namespace droopline::study {
+namespace {
+
+using json = nlohmann::ordered_json;
+
+bool parse_double(const std::string& text, double& out) {
+  if (text.empty()) return false;
+  char* end = nullptr;
+  out = std::strtod(text.c_str(), &end);
+  return end == text.c_str() + text.size() && std::isfinite(out);
+}
+
+std::string join_ids(const json& arr) {
+  std::string out;
+  int n = 0;
+  for (const auto& e : arr) {
+    if (!e.is_object() || !e.contains("id") || !e["id"].is_string()) continue;
+    if (n == 6) return out + ", ...";
+    out += (n++ ? ", " : "") + e["id"].get<std::string>();
+  }
+  return out;
+}
+
+// FNV-1a, 64 bit: a stable fingerprint across machines and builds.
+std::uint64_t fnv1a(std::uint64_t h, const std::string& s) {
+  for (unsigned char c : s) {
+    h ^= c;
+    h *= 1099511628211ULL;
+  }
+  return h;
+}
+
+enum Metric : std::size_t {
+  m_disturbances, m_delta, m_rocof, m_nadir, m_nadir_after, m_settling, m_response,
+  m_lowest, m_highest, m_shed, m_tripped, m_final_min, m_count
+};
+
+SweepRow run_one(const SweepSpec& spec, std::uint64_t index, const std::vector<std::uint64_t>& strides) {
+  SweepRow row;
+  row.index = index;
+  json doc = spec.scenario;
+  for (std::size_t k = 0; k < spec.vary.size(); ++k) {
+    const auto& v = spec.vary[k].values;
+    const double value = v[(index / strides[k]) % v.size()];
+    row.values.push_back(value);
+    std::string err;
+    set_path(doc, spec.vary[k].path, value, err);  // resolved on the base already
+  }
+  LoadResult loaded = parse_scenario(doc.dump());
+  CreateResult created;
+  if (loaded.def) created = Engine::create(*loaded.def);
+  if (!created.engine) {
+    row.status = "invalid";
+    for (const Issue& i : loaded.def ? created.issues : loaded.issues) {
+      if (i.warning) continue;
+      row.error += (row.error.empty() ? "" : "; ") + i.text();
+    }
+    return row;
+  }
+  Engine& e = *created.engine;
+  const SystemDef& def = e.def();
+  const std::int64_t every = std::max<std::int64_t>(1, std::llround(def.output_every_s / def.step_s));
+  double lowest = INFINITY, highest = -INFINITY;
+  auto sample = [&] {
+    for (std::uint32_t a = 0; a < def.areas.size(); ++a) {
+      const AreaState s = e.area(AreaId{a});
+      if (s.collapsed) continue;
+      lowest = std::min(lowest, s.f_hz);
+      highest = std::max(highest, s.f_hz);
+    }
+  };
+  sample();
+  while (!e.finished()) {
+    e.run(every);
+    sample();
+  }
+  e.close_disturbances();
+  row.status = "ok";
+  row.metrics.assign(m_count, std::nullopt);
+  const auto& ds = e.disturbances();
+  row.metrics[m_disturbances] = static_cast<double>(ds.size());
+  const Disturbance* worst = nullptr;
+  double worst_dev = -1.0;
+  for (const Disturbance& d : ds) {
+    if (!d.nadir_hz) continue;
+    if (d.zenith)
+      highest = std::max(highest, *d.nadir_hz);  // extremes between two samples
+    else
+      lowest = std::min(lowest, *d.nadir_hz);
+    const double dev = std::abs(*d.nadir_hz - d.pre_hz);
+    if (dev > worst_dev) {
+      worst_dev = dev;
+      worst = &d;
+    }
+  }
+  if (worst) {
+    row.worst_cause = worst->cause;
+    row.metrics[m_delta] = worst->delta_mw;
+    row.metrics[m_rocof] = worst->rocof_hz_per_s;
+    row.metrics[m_nadir] = worst->nadir_hz;
+    if (worst->nadir_at_s) row.metrics[m_nadir_after] = *worst->nadir_at_s - worst->at_s;
+    row.metrics[m_settling] = worst->settling_hz;
+    row.metrics[m_response] = worst->response_mw_per_0p1hz;
+  }
+  if (std::isfinite(lowest)) row.metrics[m_lowest] = lowest;
+  if (std::isfinite(highest)) row.metrics[m_highest] = highest;
+  double shed = 0.0, final_min = INFINITY;
+  for (std::uint32_t a = 0; a < def.areas.size(); ++a) {
+    const AreaState s = e.area(AreaId{a});
+    shed += s.shed_mw;
+    if (!s.collapsed) final_min = std::min(final_min, s.f_hz);
+  }
+  row.metrics[m_shed] = shed;
+  double tripped = 0;
+  for (std::uint32_t u = 0; u < def.units.size(); ++u) tripped += e.unit(UnitId{u}).status == UnitStatus::tripped;
+  row.metrics[m_tripped] = tripped;
+  if (std::isfinite(final_min)) row.metrics[m_final_min] = final_min;
+  return row;
+}
+
+}  // namespace
+
+const std::vector<std::string>& metric_names() {
+  static const std::vector<std::string> names{
+      "disturbances", "delta_mw", "rocof_hz_per_s", "nadir_hz", "nadir_after_s", "settling_hz",
+      "response_mw_per_0p1hz", "lowest_hz", "highest_hz", "shed_mw", "units_tripped", "final_min_hz"};
+  return names;
+}
+
+std::optional<Vary> parse_vary(const std::string& spec, std::string& error) {
+  const auto eq = spec.find('=');
+  if (eq == std::string::npos || eq == 0 || eq + 1 == spec.size()) {
+    error = "--vary \"" + spec + "\": expected PATH=V1,V2,... or PATH=START:STOP:STEP";
+    return std::nullopt;
+  }
+  Vary v;
+  v.path = spec.substr(0, eq);
+  const std::string values = spec.substr(eq + 1);
+  auto bad = [&](const std::string& what) {
+    error = "--vary " + v.path + ": " + what;
+    return std::nullopt;
+  };
+  if (values.find(':') != std::string::npos) {
+    double a[3];
+    std::size_t start = 0;
+    for (int i = 0; i < 3; ++i) {
+      const std::size_t end = i < 2 ? values.find(':', start) : values.size();
+      if (end == std::string::npos || !parse_double(values.substr(start, end - start), a[i]))
+        return bad("\"" + values + "\" is not START:STOP:STEP with three numbers");
+      start = end + 1;
+    }
+    if (!(a[2] > 0.0)) return bad("STEP must be > 0, got " + fmt_num(a[2]));
+    if (a[1] < a[0]) return bad("STOP " + fmt_num(a[1]) + " is below START " + fmt_num(a[0]));
+    const double count = std::floor((a[1] - a[0]) / a[2] + 1e-9) + 1.0;
+    if (count > 1e6) return bad("more than a million values");
+    for (std::int64_t i = 0; i < static_cast<std::int64_t>(count); ++i)
+      v.values.push_back(a[0] + static_cast<double>(i) * a[2]);  // no accumulated rounding
+  } else {
+    std::size_t start = 0;
+    while (start <= values.size()) {
+      std::size_t end = values.find(',', start);
+      if (end == std::string::npos) end = values.size();
+      double x;
+      if (!parse_double(values.substr(start, end - start), x))
+        return bad("\"" + values.substr(start, end - start) + "\" is not a number");
+      v.values.push_back(x);
+      start = end + 1;
+    }
+  }
+  std::set<double> distinct(v.values.begin(), v.values.end());
+  if (distinct.size() != v.values.size()) return bad("a value is listed twice");
+  return v;
+}
+
+bool set_path(json& scenario, const std::string& path, double value, std::string& error) {
+  json* node = &scenario;
+  std::string walked;
+  std::size_t i = 0;
+  auto fail = [&](const std::string& what) {
+    error = path + ": " + what;
+    return false;
+  };
+  while (i < path.size()) {
+    std::size_t end = path.find_first_of(".[", i);
+    const std::string key = path.substr(i, end == std::string::npos ? std::string::npos : end - i);
+    if (key.empty()) return fail("empty name after \"" + walked + "\"");
+    if (!node->is_object()) return fail("\"" + walked + "\" is not an object");
+    walked += (walked.empty() ? "" : ".") + key;
+    i = end == std::string::npos ? path.size() : end;
+    const bool last = i == path.size();
+    if (last) {
+      if (!node->contains(key)) {
+        std::string fields;
+        for (auto it = node->begin(); it != node->end(); ++it)
+          if (it.value().is_number()) fields += (fields.empty() ? "" : ", ") + it.key();
+        return fail("no number \"" + walked + "\" in the scenario" + (fields.empty() ? "" : " (numbers here: " + fields + ")"));
+      }
+      if (!(*node)[key].is_number()) return fail("\"" + walked + "\" is not a number in the scenario");
+      (*node)[key] = value;
+      return true;
+    }
+    if (!node->contains(key)) return fail("no field \"" + walked + "\" in the scenario");
+    node = &(*node)[key];
+    while (i < path.size() && path[i] == '[') {
+      const std::size_t close = path.find(']', i);
+      if (close == std::string::npos) return fail("unclosed [");
+      const std::string sel = path.substr(i + 1, close - i - 1);
+      if (!node->is_array()) return fail("\"" + walked + "\" is not a list");
+      json* found = nullptr;
+      for (auto& el : *node)
+        if (el.is_object() && el.contains("id") && el["id"].is_string() && el["id"].get<std::string>() == sel) found = &el;
+      if (!found && !sel.empty() && sel.find_first_not_of("0123456789") == std::string::npos) {
+        const std::size_t k = std::stoul(sel);
+        if (k < node->size()) found = &(*node)[k];
+      }
+      if (!found) {
+        const std::string ids = join_ids(*node);
+        return fail("no element \"" + sel + "\" in " + walked + " (" + std::to_string(node->size()) + " element(s)" +
+                    (ids.empty() ? "" : ": " + ids) + ")");
+      }
+      walked += "[" + sel + "]";
+      node = found;
+      i = close + 1;
+    }
+    if (i < path.size()) {
+      if (path[i] != '.') return fail("expected . after \"" + walked + "\"");
+      ++i;
+      if (i == path.size()) return fail("ends with .");
+    } else {
+      return fail("\"" + walked + "\" names an element, not a number");
+    }
+  }
+  return fail("empty path");
+}
+
+std::vector<std::uint64_t> selected_indices(const SweepSpec& spec, std::uint64_t grid_size) {
+  std::vector<std::uint64_t> out;
+  if (!spec.sample || *spec.sample >= grid_size) {
+    out.resize(grid_size);
+    for (std::uint64_t i = 0; i < grid_size; ++i) out[i] = i;
+    return out;
+  }
+  // Floyd's algorithm on the raw 64-bit generator (specified by the standard, so every machine
+  // draws the same sample for the same seed; the modulo bias is below 1e-12 for any real grid).
+  std::mt19937_64 rng(spec.seed);
+  std::set<std::uint64_t> chosen;
+  for (std::uint64_t j = grid_size - *spec.sample; j < grid_size; ++j) {
+    const std::uint64_t t = rng() % (j + 1);
+    if (!chosen.insert(t).second) chosen.insert(j);
+  }
+  out.assign(chosen.begin(), chosen.end());
+  return out;
+}
+
+std::string sweep_fingerprint(const SweepSpec& spec) {
+  std::uint64_t h = 1469598103934665603ULL;
+  h = fnv1a(h, spec.scenario.dump());
+  for (const Vary& v : spec.vary) {
+    h = fnv1a(h, "|" + v.path + "=");
+    for (double x : v.values) h = fnv1a(h, fmt_exact(x) + ",");
+  }
+  h = fnv1a(h, spec.sample ? "|sample=" + std::to_string(*spec.sample) + "|seed=" + std::to_string(spec.seed) : "|grid");
+  char buf[24];
+  std::snprintf(buf, sizeof buf, "%016llx", static_cast<unsigned long long>(h));
+  return buf;
+}
+
+SweepResult run_sweep(const SweepSpec& spec, std::string& error,
+                      const std::function<void(std::uint64_t, std::uint64_t)>& progress) {
+  SweepResult res;
+  if (spec.vary.empty()) {
+    error = "nothing to vary: give at least one --vary PATH=VALUES";
+    return res;
+  }
+  if (spec.shards < 1 || spec.shard < 1 || spec.shard > spec.shards) {
+    error = "--shard " + std::to_string(spec.shard) + "/" + std::to_string(spec.shards) + ": I must lie within 1..N";
+    return res;
+  }
+  std::uint64_t grid = 1;
+  std::vector<std::uint64_t> strides(spec.vary.size());
+  for (std::size_t k = spec.vary.size(); k-- > 0;) {
+    json probe = spec.scenario;
+    if (!set_path(probe, spec.vary[k].path, spec.vary[k].values.front(), error)) {
+      error = "--vary " + error;
+      return res;
+    }
+    strides[k] = grid;
+    grid *= spec.vary[k].values.size();
+    if (grid > (1ULL << 40)) {
+      error = "the grid has more than 2^40 combinations; use --sample N";
+      return res;
+    }
+  }
+  res.grid_size = grid;
+  res.fingerprint = sweep_fingerprint(spec);
+  const std::vector<std::uint64_t> all = selected_indices(spec, grid);
+  res.selected = all.size();
+  std::vector<std::uint64_t> mine;
+  for (std::size_t p = 0; p < all.size(); ++p)
+    if (p % spec.shards == spec.shard - 1) mine.push_back(all[p]);
+
+  res.threads = spec.threads ? spec.threads : std::max(1u, std::thread::hardware_concurrency());
+  res.threads = static_cast<unsigned>(std::min<std::size_t>(res.threads, std::max<std::size_t>(1, mine.size())));
+  res.rows.resize(mine.size());
+  std::atomic<std::size_t> next{0}, done{0};
+  const auto t0 = std::chrono::steady_clock::now();
+  {
+    // The pool: each worker takes the next combination; every row has one writer.
+    std::vector<std::jthread> workers;
+    for (unsigned w = 0; w < res.threads; ++w)
+      workers.emplace_back([&] {
+        for (std::size_t i; (i = next.fetch_add(1)) < mine.size();) {
+          res.rows[i] = run_one(spec, mine[i], strides);
+          done.fetch_add(1);
+        }
+      });
+    while (progress && done.load() < mine.size()) {
+      progress(done.load(), mine.size());
+      std::this_thread::sleep_for(std::chrono::milliseconds(200));
+    }
+  }
+  res.wall_s = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+  return res;
+}
+
+json sweep_to_json(const SweepSpec& spec, const SweepResult& r) {
+  json meta;
+  meta["scenario"] = spec.scenario.value("name", "");
+  meta["fingerprint"] = r.fingerprint;
+  meta["vary"] = json::array();
+  for (const Vary& v : spec.vary) meta["vary"].push_back({{"path", v.path}, {"values", v.values}});
+  meta["grid_size"] = r.grid_size;
+  meta["selected"] = r.selected;
+  if (spec.sample) {
+    meta["sample"] = *spec.sample;
+    meta["seed"] = spec.seed;
+  }
+  meta["shard"] = spec.shard;
+  meta["shards"] = spec.shards;
+  meta["metrics"] = metric_names();
+  json rows = json::array();
+  for (const SweepRow& row : r.rows) {
+    json j{{"index", row.index}, {"values", row.values}, {"status", row.status}};
+    if (!row.error.empty()) j["error"] = row.error;
+    if (!row.metrics.empty()) {
+      json m = json::object();
+      for (std::size_t k = 0; k < row.metrics.size(); ++k)
+        m[metric_names()[k]] = row.metrics[k] ? json(*row.metrics[k]) : json(nullptr);
+      j["metrics"] = std::move(m);
+      j["worst_cause"] = row.worst_cause;
+    }
+    rows.push_back(std::move(j));
+  }
+  return json{{"sweep", meta}, {"rows", rows}};
+}
+
+bool rows_from_json(const json& doc, std::vector<SweepRow>& rows, std::string& error) {
+  try {
+    for (const auto& j : doc.at("rows")) {
+      SweepRow row;
+      row.index = j.at("index").get<std::uint64_t>();
+      row.values = j.at("values").get<std::vector<double>>();
+      row.status = j.at("status").get<std::string>();
+      row.error = j.value("error", "");
+      row.worst_cause = j.value("worst_cause", "");
+      if (j.contains("metrics"))
+        for (const std::string& name : metric_names()) {
+          const auto& m = j["metrics"];
+          row.metrics.push_back(m.contains(name) && m[name].is_number() ? std::optional<double>(m[name].get<double>())
+                                                                        : std::nullopt);
+        }
+      rows.push_back(std::move(row));
+    }
+  } catch (const std::exception& ex) {
+    error = std::string("not a sweep result: ") + ex.what();
+    return false;
+  }
+  return true;
+}
+
+std::string sweep_to_csv(const std::vector<std::string>& paths, const std::vector<SweepRow>& rows) {
+  auto quote = [](const std::string& s) {
+    if (s.find_first_of(",\"\n") == std::string::npos) return s;
+    std::string q = "\"";
+    for (char c : s) q += c == '"' ? std::string("\"\"") : std::string(1, c);
+    return q + "\"";
+  };
+  std::string out = "index";
+  for (const auto& p : paths) out += "," + quote(p);
+  out += ",status";
+  for (const auto& m : metric_names()) out += "," + m;
+  out += ",worst_cause,error\n";
+  for (const SweepRow& r : rows) {
+    out += std::to_string(r.index);
+    for (double v : r.values) {
+      out += ',';
+      append_exact(out, v);
+    }
+    out += "," + r.status;
+    for (std::size_t k = 0; k < metric_names().size(); ++k) {
+      out += ',';
+      if (k < r.metrics.size() && r.metrics[k]) append_exact(out, *r.metrics[k]);
+    }
+    out += "," + quote(r.worst_cause) + "," + quote(r.error) + "\n";
+  }
+  return out;
+}
+
+}  // namespace droopline::study

@@ -1,0 +1,174 @@
+// The sweep plot, drawn as plain SVG text: a line of the metric against one varied field, or a
+// heat map over two. Self-contained (no fonts or scripts fetched), readable in any browser.
+#include <algorithm>
+#include <cmath>
+#include <cstdio>
+#include <map>
+#include <string>
+
+#include "droopline/format.hpp"
+#include "droopline/sweep.hpp"
+
+namespace droopline::study {
+namespace {
+
+std::string esc(const std::string& s) {
+  std::string o;
+  for (char c : s) {
+    if (c == '<') o += "&lt;";
+    else if (c == '>') o += "&gt;";
+    else if (c == '&') o += "&amp;";
+    else if (c == '"') o += "&quot;";
+    else o += c;
+  }
+  return o;
+}
+
+std::string num(double v) {
+  char b[32];
+  std::snprintf(b, sizeof b, "%.1f", v);
+  return b;
+}
+
+// About five round tick values covering [lo, hi].
+std::vector<double> ticks(double lo, double hi) {
+  if (!(hi > lo)) return {lo};
+  const double raw = (hi - lo) / 5.0;
+  const double mag = std::pow(10.0, std::floor(std::log10(raw)));
+  const double r = raw / mag;
+  const double step = (r < 1.5 ? 1 : r < 3.5 ? 2 : r < 7.5 ? 5 : 10) * mag;
+  std::vector<double> out;
+  for (double t = std::ceil(lo / step) * step; t <= hi + step * 1e-9; t += step) out.push_back(std::abs(t) < step * 1e-9 ? 0.0 : t);
+  return out;
+}
+
+// A sequential ramp from deep teal (low) through pale sand to brick red (high).
+std::string ramp(double f) {
+  f = std::clamp(f, 0.0, 1.0);
+  const double stops[3][3] = {{22, 96, 110}, {238, 226, 196}, {170, 58, 40}};
+  const double u = f < 0.5 ? f * 2 : (f - 0.5) * 2;
+  const auto& a = stops[f < 0.5 ? 0 : 1];
+  const auto& b = stops[f < 0.5 ? 1 : 2];
+  char buf[16];
+  std::snprintf(buf, sizeof buf, "#%02x%02x%02x", static_cast<int>(a[0] + (b[0] - a[0]) * u),
+                static_cast<int>(a[1] + (b[1] - a[1]) * u), static_cast<int>(a[2] + (b[2] - a[2]) * u));
+  return buf;
+}
+
+constexpr double W = 720, H = 460, L = 90, R = 30, T = 50, B = 70;
+
+std::string frame(const std::string& title, const std::string& xlabel, const std::string& ylabel, double extra_right = 0) {
+  std::string s = "<svg xmlns=\"http://www.w3.org/2000/svg\" width=\"" + num(W + extra_right) + "\" height=\"" + num(H) +
+                  "\" viewBox=\"0 0 " + num(W + extra_right) + " " + num(H) +
+                  "\" font-family=\"sans-serif\" font-size=\"12\">\n"
+                  "<rect width=\"100%\" height=\"100%\" fill=\"#ffffff\"/>\n";
+  s += "<text x=\"" + num(L) + "\" y=\"28\" font-size=\"15\" font-weight=\"bold\">" + esc(title) + "</text>\n";
+  s += "<text x=\"" + num(L + (W - L - R) / 2) + "\" y=\"" + num(H - 22) + "\" text-anchor=\"middle\">" + esc(xlabel) + "</text>\n";
+  s += "<text transform=\"translate(22," + num(T + (H - T - B) / 2) + ") rotate(-90)\" text-anchor=\"middle\">" + esc(ylabel) +
+       "</text>\n";
+  return s;
+}
+
+}  // namespace
+
+std::string sweep_svg(const std::vector<std::string>& paths, const std::vector<std::vector<double>>& axis_values,
+                      const std::vector<SweepRow>& rows, const std::string& metric, const std::string& title) {
+  const auto& names = metric_names();
+  const auto it = std::find(names.begin(), names.end(), metric);
+  if (it == names.end() || paths.empty() || paths.size() > 2 || axis_values.size() != paths.size()) return {};
+  const std::size_t mi = static_cast<std::size_t>(it - names.begin());
+  auto value_of = [&](const SweepRow& r) -> std::optional<double> {
+    if (r.status != "ok" || mi >= r.metrics.size()) return std::nullopt;
+    return r.metrics[mi];
+  };
+  double lo = INFINITY, hi = -INFINITY;
+  for (const SweepRow& r : rows)
+    if (auto v = value_of(r)) {
+      lo = std::min(lo, *v);
+      hi = std::max(hi, *v);
+    }
+  if (!std::isfinite(lo)) return {};
+  const double pw = W - L - R, ph = H - T - B;
+
+  if (paths.size() == 1) {
+    std::vector<std::pair<double, double>> pts;
+    for (const SweepRow& r : rows)
+      if (auto v = value_of(r)) pts.emplace_back(r.values[0], *v);
+    std::sort(pts.begin(), pts.end());
+    double x0 = pts.front().first, x1 = pts.back().first;
+    if (x1 == x0) x1 = x0 + 1;
+    double y0 = lo, y1 = hi;
+    if (y1 == y0) {
+      y0 -= 0.5 * std::max(1e-3, std::abs(y0) * 1e-3);
+      y1 += 0.5 * std::max(1e-3, std::abs(y1) * 1e-3);
+    }
+    const double pad = (y1 - y0) * 0.06;
+    y0 -= pad;
+    y1 += pad;
+    auto X = [&](double x) { return L + (x - x0) / (x1 - x0) * pw; };
+    auto Y = [&](double y) { return T + (1 - (y - y0) / (y1 - y0)) * ph; };
+    std::string s = frame(title, paths[0], metric);
+    s += "<rect x=\"" + num(L) + "\" y=\"" + num(T) + "\" width=\"" + num(pw) + "\" height=\"" + num(ph) +
+         "\" fill=\"none\" stroke=\"#888\"/>\n";
+    for (double t : ticks(y0, y1)) {
+      s += "<line x1=\"" + num(L) + "\" x2=\"" + num(L + pw) + "\" y1=\"" + num(Y(t)) + "\" y2=\"" + num(Y(t)) +
+           "\" stroke=\"#e4e4e4\"/><text x=\"" + num(L - 6) + "\" y=\"" + num(Y(t) + 4) + "\" text-anchor=\"end\">" +
+           fmt_num(t) + "</text>\n";
+    }
+    for (double t : ticks(x0, x1))
+      s += "<text x=\"" + num(X(t)) + "\" y=\"" + num(T + ph + 18) + "\" text-anchor=\"middle\">" + fmt_num(t) + "</text>\n";
+    s += "<polyline fill=\"none\" stroke=\"#1d5f8a\" stroke-width=\"2\" points=\"";
+    for (auto [x, y] : pts) s += num(X(x)) + "," + num(Y(y)) + " ";
+    s += "\"/>\n";
+    for (auto [x, y] : pts)
+      s += "<circle cx=\"" + num(X(x)) + "\" cy=\"" + num(Y(y)) + "\" r=\"3\" fill=\"#1d5f8a\"><title>" + esc(paths[0]) +
+           " = " + fmt_num(x) + ": " + metric + " = " + fmt_num(y) + "</title></circle>\n";
+    return s + "</svg>\n";
+  }
+
+  // Two fields: a heat map, the first field across, the second up; cells not run stay grey.
+  const auto& xs = axis_values[0];
+  const auto& ys = axis_values[1];
+  std::map<std::pair<std::size_t, std::size_t>, double> cell;
+  for (const SweepRow& r : rows) {
+    auto v = value_of(r);
+    if (!v) continue;
+    const auto xi = static_cast<std::size_t>(std::find(xs.begin(), xs.end(), r.values[0]) - xs.begin());
+    const auto yi = static_cast<std::size_t>(std::find(ys.begin(), ys.end(), r.values[1]) - ys.begin());
+    cell[{xi, yi}] = *v;
+  }
+  const double cw = pw / static_cast<double>(xs.size()), ch = ph / static_cast<double>(ys.size());
+  std::string s = frame(title, paths[0], paths[1], 90);
+  const bool label = xs.size() * ys.size() <= 144;
+  for (std::size_t xi = 0; xi < xs.size(); ++xi)
+    for (std::size_t yi = 0; yi < ys.size(); ++yi) {
+      const double x = L + static_cast<double>(xi) * cw, y = T + ph - static_cast<double>(yi + 1) * ch;
+      const auto c = cell.find({xi, yi});
+      const double f = c == cell.end() || hi == lo ? 0.5 : (c->second - lo) / (hi - lo);
+      s += "<rect x=\"" + num(x) + "\" y=\"" + num(y) + "\" width=\"" + num(cw + 0.5) + "\" height=\"" + num(ch + 0.5) +
+           "\" fill=\"" + (c == cell.end() ? std::string("#cccccc") : ramp(f)) + "\">";
+      s += "<title>" + esc(paths[0]) + " = " + fmt_num(xs[xi]) + ", " + esc(paths[1]) + " = " + fmt_num(ys[yi]) + ": " +
+           (c == cell.end() ? std::string("not run") : metric + " = " + fmt_num(c->second)) + "</title></rect>\n";
+      if (label && c != cell.end())
+        s += "<text x=\"" + num(x + cw / 2) + "\" y=\"" + num(y + ch / 2 + 4) + "\" text-anchor=\"middle\" font-size=\"10\" fill=\"" +
+             (f < 0.25 || f > 0.8 ? "#ffffff" : "#222222") + "\">" + fmt_num(c->second) + "</text>\n";
+    }
+  const std::size_t xstep = std::max<std::size_t>(1, xs.size() / 10), ystep = std::max<std::size_t>(1, ys.size() / 10);
+  for (std::size_t xi = 0; xi < xs.size(); xi += xstep)
+    s += "<text x=\"" + num(L + (static_cast<double>(xi) + 0.5) * cw) + "\" y=\"" + num(T + ph + 18) +
+         "\" text-anchor=\"middle\">" + fmt_num(xs[xi]) + "</text>\n";
+  for (std::size_t yi = 0; yi < ys.size(); yi += ystep)
+    s += "<text x=\"" + num(L - 6) + "\" y=\"" + num(T + ph - (static_cast<double>(yi) + 0.5) * ch + 4) +
+         "\" text-anchor=\"end\">" + fmt_num(ys[yi]) + "</text>\n";
+  // Colour key.
+  const double kx = W + 10;
+  for (int i = 0; i < 50; ++i)
+    s += "<rect x=\"" + num(kx) + "\" y=\"" + num(T + ph - (i + 1) * ph / 50) + "\" width=\"16\" height=\"" + num(ph / 50 + 0.5) +
+         "\" fill=\"" + ramp(i / 49.0) + "\"/>\n";
+  s += "<text x=\"" + num(kx + 20) + "\" y=\"" + num(T + 10) + "\">" + fmt_num(hi) + "</text>\n";
+  s += "<text x=\"" + num(kx + 20) + "\" y=\"" + num(T + ph) + "\">" + fmt_num(lo) + "</text>\n";
+  s += "<text x=\"" + num(kx) + "\" y=\"" + num(T - 8) + "\">" + esc(metric) + "</text>\n";
+  return s + "</svg>\n";
+}
+
+}  // namespace droopline::study
