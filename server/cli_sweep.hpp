@@ -1,5 +1,5 @@
 #pragma once
-// `droopline sweep` and `droopline merge`.
+// The study commands: `droopline sweep`, `droopline merge` and `droopline modes`.
 #include <string>
 #include <vector>
 
@@ -26,5 +26,8 @@ int sweep(const SweepArgs& args);
 /// Joins shard directories of one sweep into `out_dir` (same files as a whole sweep). Refuses
 /// shards of different sweeps, a shard given twice or missing.
 int merge(const std::vector<std::string>& shard_dirs, const std::string& out_dir, const std::string& metric, bool quiet);
+
+/// `droopline modes FILE`: prints the small-signal modes (table, or JSON with `as_json`).
+int modes(const std::string& file, double damping_threshold, bool as_json);
 
 }  // namespace droopline::cli

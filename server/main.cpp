@@ -42,6 +42,9 @@ usage:
         [--quiet]
   droopline merge DIR... --out DIR [--metric NAME]
                                    join the shards of one sweep
+  droopline modes FILE [--damping-threshold X] [--json]
+                                   small-signal modes at the initial point (default
+                                   threshold 0.05 = 5 % damping ratio)
   droopline --version | --help
 
 Exit codes: 0 success, 1 input/output failure, 2 invalid scenario or arguments.
@@ -195,6 +198,27 @@ int main(int argc, char** argv) {
   }
   if (cmd == "serve") return serve_command(args);
   if (cmd == "sweep" || cmd == "merge") return sweep_command(args);
+  if (cmd == "modes") {
+    std::string file;
+    double threshold = 0.05;
+    bool as_json = false;
+    for (std::size_t i = 1; i < args.size(); ++i) {
+      if (args[i] == "--damping-threshold" && i + 1 < args.size()) {
+        if (!parse_number(args[++i], 0.0, 1.0, threshold))
+          return usage_error("--damping-threshold takes a ratio from 0 to 1, got \"" + args[i] + "\"");
+      } else if (args[i] == "--json") {
+        as_json = true;
+      } else if (!args[i].empty() && args[i][0] == '-') {
+        return usage_error("unknown option \"" + args[i] + "\" for modes");
+      } else if (file.empty()) {
+        file = args[i];
+      } else {
+        return usage_error("modes takes one FILE");
+      }
+    }
+    if (file.empty()) return usage_error("modes needs a scenario FILE");
+    return droopline::cli::modes(file, threshold, as_json);
+  }
   if (cmd == "run" || cmd == "replay") {
     std::string file, out;
     bool quiet = false;

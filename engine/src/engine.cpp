@@ -583,6 +583,44 @@ struct Engine::Impl {
     post_step();
   }
 
+  void step_state(std::span<const double> x, std::span<double> next) {
+    const std::vector<double> saved = y;
+    std::copy(x.begin(), x.end(), y.begin());
+    const double t0 = time();
+    for (std::size_t a = 0; a < na; ++a) {
+      const AreaRt& ar = areas[a];
+      lc0[a] = lc1[a] = ar.pd0 - ar.shed_mw + extra_load(ar, t0);
+    }
+    for (int st = 1; st <= 4; ++st) stage(st);
+    std::copy(y.begin(), y.end(), next.begin());
+    y = saved;
+    invalidate_outputs();
+  }
+
+  std::vector<std::string> state_names() const {
+    std::vector<std::string> out(y.size());
+    for (std::size_t a = 0; a < na; ++a) {
+      out[a] = def.areas[a].id + ".df_hz";
+      out[na + a] = def.areas[a].id + ".angle_rad";
+    }
+    for (const Block& b : blocks) {
+      static const char* const steam[] = {"valve", "power", "iso_integral"};
+      static const char* const reheat[] = {"valve", "hp_power", "reheat_power", "iso_integral"};
+      static const char* const hydro[] = {"water_power", "gate", "transient_droop", "iso_integral"};
+      static const char* const gas[] = {"valve", "fuel", "power", "iso_integral"};
+      static const char* const battery[] = {"df_filter", "power", "energy", "iso_integral"};
+      const char* const* names = b.type == TurbineType::steam    ? steam
+                                 : b.type == TurbineType::reheat ? reheat
+                                 : b.type == TurbineType::hydro  ? hydro
+                                 : b.type == TurbineType::gas    ? gas
+                                                                 : battery;
+      for (std::size_t which = 0; which < b.nstate; ++which)
+        for (std::size_t j = 0; j < b.n; ++j)
+          out[b.off + which * b.n + j] = def.units[unit_of_slot[b.first_slot + j]].id + "." + names[which];
+    }
+    return out;
+  }
+
   // n / (steps per second) when that is a whole number: 278 steps of 0.01 s print as 2.78, not
   // as 2.7800000000000002.
   double steps_per_s = 0.0;
@@ -1311,6 +1349,14 @@ std::vector<Notice> Engine::take_notices() {
   std::vector<Notice> out;
   out.swap(impl_->notices);
   return out;
+}
+
+std::vector<double> Engine::state() const { return impl_->y; }
+std::vector<std::string> Engine::state_names() const { return impl_->state_names(); }
+void Engine::step_state(std::span<const double> x, std::span<double> next) {
+  if (x.size() != impl_->y.size() || next.size() != impl_->y.size())
+    throw std::invalid_argument("step_state: the state has " + std::to_string(impl_->y.size()) + " values");
+  impl_->step_state(x, next);
 }
 
 std::size_t Engine::series_width() const { return 1 + impl_->na + impl_->nu + impl_->nt; }

@@ -183,6 +183,17 @@ class Engine {
   /// Number of values in a series row.
   std::size_t series_width() const;
 
+  // Linear analysis (small-signal studies linearize the step below around a state).
+  /// The integrated state: each area's frequency deviation (Hz) and angle (rad), then every
+  /// unit's turbine and governor states.
+  std::vector<double> state() const;
+  /// Names of state(), e.g. `oskany.df_hz`, `oskany.angle_rad`, `V1.valve`, `H1.gate`.
+  std::vector<std::string> state_names() const;
+  /// One integration step from state `x` into `next` with the loads held as they are now and
+  /// nothing discrete run (no events, protection, shedding, secondary control, ramps or metrics);
+  /// the engine's own state and time are left as they were.
+  void step_state(std::span<const double> x, std::span<double> next);
+
  private:
   struct Impl;
   explicit Engine(std::unique_ptr<Impl> impl);

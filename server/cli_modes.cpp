@@ -1,0 +1,50 @@
+// `droopline modes`: the small-signal modes of a scenario, as a table or JSON.
+#include <cstdio>
+#include <iostream>
+
+#include "cli_sweep.hpp"
+#include "droopline/format.hpp"
+#include "droopline/modes.hpp"
+#include "droopline/scenario_io.hpp"
+
+namespace droopline::cli {
+
+int modes(const std::string& file, double damping_threshold, bool as_json) {
+  LoadResult r = load_scenario_file(file);
+  if (!r.def) {
+    for (const Issue& i : r.issues) std::cerr << file << ": " << (i.warning ? "warning: " : "error: ") << i.text() << "\n";
+    return 2;
+  }
+  study::ModesOptions opt;
+  opt.damping_threshold = damping_threshold;
+  const study::ModesResult res = study::small_signal(*r.def, opt);
+  if (!res.error.empty()) {
+    std::cerr << file << ": error: " << res.error << "\n";
+    return 2;
+  }
+  if (as_json) {
+    std::cout << to_text(study::modes_to_json(res, opt)) << "\n";
+    return 0;
+  }
+  std::cout << "droopline: modes of \"" << r.def->name << "\" (" << res.states.size() << " states)\n";
+  std::printf("%3s  %-12s %12s %14s %10s %10s  %s\n", "#", "kind", "real 1/s", "imag rad/s", "f Hz", "damping", "states taking part");
+  int k = 0;
+  for (const study::Mode& m : res.modes) {
+    std::string parts;
+    for (const auto& [s, p] : m.participation)
+      if (p >= 0.05) parts += (parts.empty() ? "" : ", ") + s + " " + fmt_fixed(p * 100, 0) + "%";
+    const std::string damp = m.kind == "oscillatory" ? fmt_fixed(m.damping_ratio * 100, 1) + " %"
+                             : m.kind == "real"      ? "T " + fmt_num(m.time_constant_s) + " s"
+                                                     : "-";
+    std::printf("%3d%s %-12s %12.5f %14.5f %10s %10s  %s\n", ++k, m.flagged ? "!" : " ", m.kind.c_str(), m.lambda.real(),
+                m.lambda.imag(), m.kind == "oscillatory" ? fmt_fixed(m.frequency_hz, 3).c_str() : "-", damp.c_str(), parts.c_str());
+  }
+  std::size_t flagged = 0;
+  for (const auto& m : res.modes) flagged += m.flagged;
+  std::cout << (flagged ? std::to_string(flagged) + " mode(s) flagged (!): unstable, or damped below " : "no mode unstable or damped below ")
+            << fmt_num(damping_threshold * 100) << " %\n";
+  for (const auto& n : res.notes) std::cout << "note: " << n << "\n";
+  return 0;
+}
+
+}  // namespace droopline::cli
