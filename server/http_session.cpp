@@ -9,6 +9,7 @@
 
 #include "cli_run.hpp"
 #include "droopline/format.hpp"
+#include "droopline/modes.hpp"
 #include "droopline/scenario_io.hpp"
 #include "http_target.hpp"
 #include "websocket_session.hpp"
@@ -387,6 +388,31 @@ void HttpSession::handle(Request&& req) {
         std::string body = "{\"summary\":" + out.summary + ",\"series\":" + json(out.series).dump() + "}";
         done(200, std::move(body));
       });
+      return;
+    }
+    if (path == "/api/v1/modes") {
+      // The small-signal modes of the live scenario (GET) or of a posted one (POST), computed on
+      // the replay workers so neither the loop nor the network thread waits for the solver.
+      if (method != http::verb::get && method != http::verb::post) return method_not_allowed("GET, POST");
+      double threshold = 0.05;
+      std::string err;
+      if (!query_number(t, "damping_threshold", 0.05, threshold, err)) return reply(400, error_json(err));
+      if (!(threshold >= 0.0 && threshold <= 1.0))
+        return reply(400, error_json("query parameter damping_threshold: must lie within [0, 1], got " + fmt_num(threshold)));
+      auto done = later(req);
+      auto analyse = [this, threshold, done, self = shared_from_this()](std::string scenario_text) {
+        net::post(*ctx_.replay_pool, [threshold, done, text = std::move(scenario_text)] {
+          LoadResult r = parse_scenario(text);
+          if (!r.def) return done(400, error_json("invalid scenario", issue_texts(r.issues)));
+          study::ModesOptions opt;
+          opt.damping_threshold = threshold;
+          const study::ModesResult m = study::small_signal(*r.def, opt);
+          if (!m.error.empty()) return done(422, error_json(m.error));
+          done(200, study::modes_to_json(m, opt).dump());
+        });
+      };
+      if (method == http::verb::post) return analyse(req.body());
+      ctx_.live->scenario(analyse);
       return;
     }
     if (path == "/api/v1/openapi.json") {

@@ -255,6 +255,22 @@ class StreamTests(unittest.TestCase):
         self.assertEqual(s, 200)
         self.assertIn("events", ev)
 
+    def test_modes_of_the_live_and_of_a_posted_scenario(self):
+        s, body, _ = self.srv.request("GET", "/api/v1/modes")
+        self.assertEqual(s, 200, body)
+        self.assertEqual(body["modes"][0]["kind"], "oscillatory")
+        self.assertIn("oskany.df_hz", body["states"])
+        with open(os.path.join(SRC, "scenarios", "textbook_isolated_station.json")) as fh:
+            station = json.load(fh)
+        station["units"][0]["governor"]["droop"] = 1 / 75.0  # past the Routh limit of 73.965
+        s, body, _ = self.srv.request("POST", "/api/v1/modes?damping_threshold=0.1", station)
+        self.assertEqual(s, 200, body)
+        self.assertTrue(body["modes"][0]["flagged"])
+        self.assertGreater(body["modes"][0]["real_per_s"], 0)
+        s, body, _ = self.srv.request("GET", "/api/v1/modes?damping_threshold=2")
+        self.assertEqual(s, 400)
+        self.assertIn("damping_threshold: must lie within [0, 1]", body["error"])
+
     def test_static_files(self):
         s, body, r = self.srv.request("GET", "/")
         self.assertEqual(s, 200)

@@ -32,6 +32,11 @@ ModesResult small_signal(const SystemDef& base, const ModesOptions& opt) {
   const std::vector<double> x0 = e.state();
   const std::vector<std::string> names = e.state_names();
   const std::size_t n = x0.size();
+  if (n > opt.max_states) {
+    out.error = "the linear model would have " + std::to_string(n) + " states; at most " + std::to_string(opt.max_states) +
+                " are analysed (a dense eigen-analysis grows with the cube of the states)";
+    return out;
+  }
   std::vector<double> xp(n), xm(n), fp(n), fm(n);
   e.step_state(x0, fp);
   for (std::size_t i = 0; i < n; ++i) out.equilibrium_rate = std::max(out.equilibrium_rate, std::abs(fp[i] - x0[i]) / h);

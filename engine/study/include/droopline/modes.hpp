@@ -17,6 +17,7 @@ struct ModesOptions {
   double damping_threshold = 0.05;  ///< oscillatory modes below this damping ratio are flagged
   double perturbation = 1e-6;       ///< relative finite-difference step
   std::size_t top_states = 4;       ///< participating states listed per mode
+  std::size_t max_states = 2000;    ///< larger models are refused (dense eigen-analysis is O(n^3))
 };
 
 struct Mode {
