@@ -1,9 +1,12 @@
-// `droopline modes`: the small-signal modes of a scenario, as a table or JSON.
+// `droopline modes` (small-signal modes) and `droopline assess` (requirement checks).
 #include <cstdio>
+#include <fstream>
 #include <iostream>
+#include <sstream>
 
 #include "cli_sweep.hpp"
 #include "droopline/format.hpp"
+#include "droopline/assess.hpp"
 #include "droopline/modes.hpp"
 #include "droopline/scenario_io.hpp"
 
@@ -45,6 +48,46 @@ int modes(const std::string& file, double damping_threshold, bool as_json) {
             << fmt_num(damping_threshold * 100) << " %\n";
   for (const auto& n : res.notes) std::cout << "note: " << n << "\n";
   return 0;
+}
+
+int assess(const std::string& file, const std::string& requirements_file, bool as_json) {
+  LoadResult r = load_scenario_file(file);
+  if (!r.def) {
+    for (const Issue& i : r.issues) std::cerr << file << ": " << (i.warning ? "warning: " : "error: ") << i.text() << "\n";
+    return 2;
+  }
+  std::ifstream in(requirements_file, std::ios::binary);
+  if (!in) {
+    std::cerr << requirements_file << ": error: cannot read the file\n";
+    return 2;
+  }
+  std::stringstream text;
+  text << in.rdbuf();
+  std::vector<Issue> issues;
+  const auto req = study::parse_requirements(text.str(), issues);
+  if (!req) {
+    for (const Issue& i : issues) std::cerr << requirements_file << ": error: " << i.text() << "\n";
+    return 2;
+  }
+  const study::Assessment a = study::assess(*r.def, *req);
+  if (as_json) {
+    std::cout << to_text(study::assessment_to_json(a, *req)) << "\n";
+    return a.passed ? 0 : 3;
+  }
+  std::cout << "droopline: \"" << r.def->name << "\" against \"" << req->name << "\"\n";
+  std::printf("%-52s %-16s %-14s %-10s %-10s\n", "requirement", "limit", "measured", "margin", "result");
+  for (const study::CheckRow& c : a.rows) {
+    const int digits = c.unit == "Hz" ? 3 : 2;
+    const std::string lim = c.relation + " " + fmt_fixed(c.limit, digits) + " " + c.unit;
+    const std::string meas = c.measured ? fmt_fixed(*c.measured, digits) + " " + c.unit : "-";
+    const std::string margin = c.measured ? (c.margin >= 0 ? "+" : "") + fmt_fixed(c.margin, digits) : "-";
+    std::printf("%-52s %-16s %-14s %-10s %-10s\n", c.requirement.c_str(), lim.c_str(), meas.c_str(), margin.c_str(),
+                c.result == "fail" ? "FAIL" : c.result.c_str());
+    if (!c.detail.empty()) std::printf("    %s\n", c.detail.c_str());
+  }
+  std::cout << (a.passed ? "all requirements met" : "requirements NOT met") << " (sources: --json, or the requirements file)\n"
+            << "A training and study result: settings are for qualified engineers to validate against plant models and the grid code.\n";
+  return a.passed ? 0 : 3;
 }
 
 }  // namespace droopline::cli

@@ -1,5 +1,6 @@
 #pragma once
-// The study commands: `droopline sweep`, `droopline merge` and `droopline modes`.
+// The study commands: `droopline sweep`, `droopline merge`, `droopline modes`
+// and `droopline assess`.
 #include <string>
 #include <vector>
 
@@ -29,5 +30,8 @@ int merge(const std::vector<std::string>& shard_dirs, const std::string& out_dir
 
 /// `droopline modes FILE`: prints the small-signal modes (table, or JSON with `as_json`).
 int modes(const std::string& file, double damping_threshold, bool as_json);
+
+/// `droopline assess FILE --requirements REQ`: runs and checks; 0 all met, 3 some failed, 2 bad input.
+int assess(const std::string& file, const std::string& requirements_file, bool as_json);
 
 }  // namespace droopline::cli

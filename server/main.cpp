@@ -45,9 +45,13 @@ usage:
   droopline modes FILE [--damping-threshold X] [--json]
                                    small-signal modes at the initial point (default
                                    threshold 0.05 = 5 % damping ratio)
+  droopline assess FILE --requirements REQ [--json]
+                                   run and check against a requirements file
+                                   (exit 0 all met, 3 some not met)
   droopline --version | --help
 
-Exit codes: 0 success, 1 input/output failure, 2 invalid scenario or arguments.
+Exit codes: 0 success, 1 input/output failure, 2 invalid scenario or arguments,
+3 (assess) a requirement not met.
 )";
 
 int usage_error(const std::string& what) {
@@ -198,6 +202,20 @@ int main(int argc, char** argv) {
   }
   if (cmd == "serve") return serve_command(args);
   if (cmd == "sweep" || cmd == "merge") return sweep_command(args);
+  if (cmd == "assess") {
+    std::string file, req;
+    bool as_json = false;
+    for (std::size_t i = 1; i < args.size(); ++i) {
+      if (args[i] == "--requirements" && i + 1 < args.size()) req = args[++i];
+      else if (args[i] == "--json") as_json = true;
+      else if (!args[i].empty() && args[i][0] == '-') return usage_error("unknown option \"" + args[i] + "\" for assess");
+      else if (file.empty()) file = args[i];
+      else return usage_error("assess takes one scenario FILE");
+    }
+    if (file.empty()) return usage_error("assess needs a scenario FILE");
+    if (req.empty()) return usage_error("assess needs --requirements FILE");
+    return droopline::cli::assess(file, req, as_json);
+  }
   if (cmd == "modes") {
     std::string file;
     double threshold = 0.05;
