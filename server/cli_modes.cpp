@@ -6,7 +6,10 @@
 
 #include "cli_sweep.hpp"
 #include "droopline/format.hpp"
+#include "cli_files.hpp"
 #include "droopline/assess.hpp"
+#include "droopline/comtrade.hpp"
+#include "droopline/engine.hpp"
 #include "droopline/modes.hpp"
 #include "droopline/scenario_io.hpp"
 
@@ -88,6 +91,72 @@ int assess(const std::string& file, const std::string& requirements_file, bool a
   std::cout << (a.passed ? "all requirements met" : "requirements NOT met") << " (sources: --json, or the requirements file)\n"
             << "A training and study result: settings are for qualified engineers to validate against plant models and the grid code.\n";
   return a.passed ? 0 : 3;
+}
+
+int record(const RecordArgs& args) {
+  LoadResult r = load_scenario_file(args.scenario_file);
+  if (!r.def) {
+    for (const Issue& i : r.issues)
+      std::cerr << args.scenario_file << ": " << (i.warning ? "warning: " : "error: ") << i.text() << "\n";
+    return 2;
+  }
+  auto created = Engine::create(*r.def);
+  if (!created.engine) return 2;
+  Engine& e = *created.engine;
+  const double to = std::min(args.to_s, r.def->duration_s);
+  if (!(args.from_s < to)) {
+    std::cerr << "droopline: --from " << fmt_num(args.from_s) << " must lie before --to " << fmt_num(to) << " (the run ends at "
+              << fmt_num(r.def->duration_s) << " s)\n";
+    return 2;
+  }
+  study::ComtradeInput in;
+  in.station = r.def->name;
+  in.columns = e.series_columns();
+  in.sample_hz = 1.0 / r.def->output_every_s;
+  in.nominal_hz = r.def->nominal_hz;
+  in.start = args.start;
+  const std::int64_t every = std::max<std::int64_t>(1, std::llround(r.def->output_every_s / r.def->step_s));
+  std::vector<double> row(e.series_width());
+  auto keep = [&] {
+    const double t = e.time_s();
+    if (t < args.from_s - 1e-9 || t > to + 1e-9) return;
+    e.sample(row);
+    in.rows.insert(in.rows.end(), row.begin(), row.end());
+  };
+  keep();
+  while (!e.finished() && e.time_s() < to + 1e-9) {
+    e.run(every);
+    keep();
+  }
+  in.trigger_s = args.from_s;
+  for (const Disturbance& d : e.disturbances())
+    if (d.at_s >= args.from_s) {
+      in.trigger_s = d.at_s;
+      break;
+    }
+  const study::ComtradeRecord rec = study::make_comtrade(in);
+  if (!rec.error.empty()) {
+    std::cerr << "droopline: " << rec.error << "\n";
+    return 2;
+  }
+  std::error_code ec;
+  fs::create_directories(args.out_dir, ec);
+  AtomicFile cfg(fs::path(args.out_dir) / (args.name + ".cfg")), dat(fs::path(args.out_dir) / (args.name + ".dat"));
+  if (ec || !cfg.ok() || !dat.ok()) {
+    std::cerr << "droopline: cannot write in \"" << args.out_dir << "\"\n";
+    return 1;
+  }
+  cfg.stream() << rec.cfg;
+  dat.stream() << rec.dat;
+  if (!dat.commit() || !cfg.commit()) {
+    std::cerr << "droopline: writing the record in \"" << args.out_dir << "\" failed\n";
+    return 1;
+  }
+  if (!args.quiet)
+    std::cout << "droopline: wrote " << (fs::path(args.out_dir) / (args.name + ".cfg")).string() << " and .dat: "
+              << in.columns.size() - 1 << " analog channels, " << in.rows.size() / in.columns.size() << " samples at "
+              << fmt_num(in.sample_hz) << " Hz (IEEE C37.111-1999 ASCII)\n";
+  return 0;
 }
 
 }  // namespace droopline::cli

@@ -1,6 +1,7 @@
 #pragma once
 // The study commands: `droopline sweep`, `droopline merge`, `droopline modes`
 // and `droopline assess`.
+#include <chrono>
 #include <string>
 #include <vector>
 
@@ -33,5 +34,14 @@ int modes(const std::string& file, double damping_threshold, bool as_json);
 
 /// `droopline assess FILE --requirements REQ`: runs and checks; 0 all met, 3 some failed, 2 bad input.
 int assess(const std::string& file, const std::string& requirements_file, bool as_json);
+
+struct RecordArgs {
+  std::string scenario_file, out_dir, name = "record";
+  double from_s = 0.0, to_s = 1e300;
+  std::chrono::system_clock::time_point start;  ///< wall time of t = 0
+  bool quiet = false;
+};
+/// `droopline record FILE --out DIR`: runs the scenario and writes DIR/NAME.cfg and .dat (COMTRADE).
+int record(const RecordArgs& args);
 
 }  // namespace droopline::cli

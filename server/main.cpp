@@ -1,5 +1,8 @@
 // droopline: command-line entry point.
+#include <chrono>
+#include <cstdio>
 #include <cstring>
+#include <ctime>
 #include <iostream>
 #include <string>
 #include <vector>
@@ -48,6 +51,10 @@ usage:
   droopline assess FILE --requirements REQ [--json]
                                    run and check against a requirements file
                                    (exit 0 all met, 3 some not met)
+  droopline record FILE --out DIR [--from S] [--to S] [--start YYYY-MM-DDTHH:MM:SSZ] [--name NAME]
+                                   run and write a COMTRADE (IEEE C37.111-1999 ASCII)
+                                   disturbance record DIR/NAME.cfg + .dat; --start is the
+                                   wall time of t = 0 (default: now, UTC)
   droopline --version | --help
 
 Exit codes: 0 success, 1 input/output failure, 2 invalid scenario or arguments,
@@ -202,6 +209,47 @@ int main(int argc, char** argv) {
   }
   if (cmd == "serve") return serve_command(args);
   if (cmd == "sweep" || cmd == "merge") return sweep_command(args);
+  if (cmd == "record") {
+    droopline::cli::RecordArgs a;
+    a.start = std::chrono::floor<std::chrono::seconds>(std::chrono::system_clock::now());
+    for (std::size_t i = 1; i < args.size(); ++i) {
+      const bool has = i + 1 < args.size();
+      if (args[i] == "--out" && has) {
+        a.out_dir = args[++i];
+      } else if (args[i] == "--name" && has) {
+        a.name = args[++i];
+        if (a.name.empty() || a.name.find_first_of("/\\") != std::string::npos)
+          return usage_error("--name takes a file name without folders, got \"" + a.name + "\"");
+      } else if ((args[i] == "--from" || args[i] == "--to") && has) {
+        double v = 0;
+        if (!parse_number(args[i + 1], 0.0, 1e9, v)) return usage_error(args[i] + " takes seconds, got \"" + args[i + 1] + "\"");
+        (args[i] == "--from" ? a.from_s : a.to_s) = v;
+        ++i;
+      } else if (args[i] == "--start" && has) {
+        std::tm tm{};
+        const std::string& v = args[++i];
+        char z = 0;
+        if (std::sscanf(v.c_str(), "%4d-%2d-%2dT%2d:%2d:%2d%c", &tm.tm_year, &tm.tm_mon, &tm.tm_mday, &tm.tm_hour, &tm.tm_min,
+                        &tm.tm_sec, &z) < 6 || (z != 0 && z != 'Z') || tm.tm_mon < 1 || tm.tm_mon > 12 || tm.tm_mday < 1 ||
+            tm.tm_mday > 31 || tm.tm_hour > 23 || tm.tm_min > 59 || tm.tm_sec > 60)
+          return usage_error("--start takes UTC as YYYY-MM-DDTHH:MM:SSZ, got \"" + v + "\"");
+        tm.tm_year -= 1900;
+        tm.tm_mon -= 1;
+        a.start = std::chrono::system_clock::from_time_t(timegm(&tm));
+      } else if (args[i] == "--quiet") {
+        a.quiet = true;
+      } else if (!args[i].empty() && args[i][0] == '-') {
+        return usage_error("unknown option \"" + args[i] + "\" for record");
+      } else if (a.scenario_file.empty()) {
+        a.scenario_file = args[i];
+      } else {
+        return usage_error("record takes one scenario FILE");
+      }
+    }
+    if (a.scenario_file.empty()) return usage_error("record needs a scenario FILE");
+    if (a.out_dir.empty()) return usage_error("record needs --out DIR");
+    return droopline::cli::record(a);
+  }
   if (cmd == "assess") {
     std::string file, req;
     bool as_json = false;
