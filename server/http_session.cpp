@@ -390,6 +390,25 @@ void HttpSession::handle(Request&& req) {
       });
       return;
     }
+    if (path == "/api/v1/record") {
+      if (method != http::verb::get) return method_not_allowed("GET");
+      double from = 0, to = 0;
+      std::string err;
+      if (!query_number(t, "from_s", 0.0, from, err) || !query_number(t, "to_s", 1e300, to, err)) return reply(400, error_json(err));
+      const std::string part = t.get("part", "cfg");
+      if (part != "cfg" && part != "dat") return reply(400, error_json("query parameter part: must be cfg or dat, got \"" + part + "\""));
+      if (!(from < to)) return reply(400, error_json("query parameters: from_s must lie before to_s"));
+      study::ComtradeRecord rec = ctx_.live->record(from, to);
+      if (!rec.error.empty()) return reply(404, error_json(rec.error + " (the history holds the last " + fmt_num(ctx_.options.history_s) + " s)"));
+      Response res{http::status::ok, version};
+      res.set(http::field::content_type, "text/plain; charset=us-ascii");
+      res.set(http::field::content_disposition, "attachment; filename=\"droopline-record." + part + "\"");
+      res.set(http::field::cache_control, "no-store");
+      res.keep_alive(keep);
+      res.body() = part == "cfg" ? std::move(rec.cfg) : std::move(rec.dat);
+      res.prepare_payload();
+      return send(std::move(res));
+    }
     if (path == "/api/v1/modes") {
       // The small-signal modes of the live scenario (GET) or of a posted one (POST), computed on
       // the replay workers so neither the loop nor the network thread waits for the solver.

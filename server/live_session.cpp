@@ -96,6 +96,9 @@ void LiveSession::start_engine(const SystemDef& def) {
     columns_ = engine_->series_columns();
     history_every_s_ = def_.output_every_s;
     scenario_json_ = std::move(scenario_text);
+    scenario_name_ = def_.name;
+    nominal_hz_ = def_.nominal_hz;
+    started_ = std::chrono::system_clock::now();
     history_.reset(columns_.size(),
                    static_cast<std::size_t>(std::max(1.0, config_.history_s / def_.output_every_s)) + 1);
   }
@@ -579,6 +582,26 @@ std::string LiveSession::history(double from_s, double to_s, double every_s, boo
   }
   if (!csv) out += "]}";
   return out;
+}
+
+study::ComtradeRecord LiveSession::record(double from_s, double to_s) const {
+  study::ComtradeInput in;
+  std::vector<double> rows;
+  {
+    std::lock_guard lock(history_mutex_);
+    in.columns = columns_;
+    in.sample_hz = 1.0 / history_every_s_;
+    in.station = scenario_name_;
+    in.nominal_hz = nominal_hz_;
+    in.start = started_;
+    rows = history_.flat();
+  }
+  const std::size_t w = std::max<std::size_t>(1, in.columns.size());
+  for (std::size_t i = 0; i + w <= rows.size(); i += w)
+    if (rows[i] >= from_s - 1e-9 && rows[i] <= to_s + 1e-9) in.rows.insert(in.rows.end(), rows.begin() + static_cast<std::ptrdiff_t>(i),
+                                                                          rows.begin() + static_cast<std::ptrdiff_t>(i + w));
+  in.trigger_s = from_s;
+  return study::make_comtrade(in);
 }
 
 std::string LiveSession::events(std::uint64_t since) const {

@@ -17,6 +17,7 @@
 #include <thread>
 #include <vector>
 
+#include "droopline/comtrade.hpp"
 #include "droopline/engine.hpp"
 #include "journal.hpp"
 
@@ -138,6 +139,9 @@ class LiveSession {
 
   /// History rows within [from_s, to_s], every `every_s` (0 = all), as CSV or JSON (thread-safe).
   std::string history(double from_s, double to_s, double every_s, bool csv) const;
+  /// A COMTRADE record (IEEE C37.111-1999 ASCII) of the history within [from_s, to_s]
+  /// (thread-safe). Times are simulation times after the wall time the scenario started.
+  study::ComtradeRecord record(double from_s, double to_s) const;
   /// Event log entries with sequence number > since, as JSON (thread-safe).
   std::string events(std::uint64_t since) const;
 
@@ -203,6 +207,9 @@ class LiveSession {
   std::vector<std::string> columns_;
   HistoryRing history_;
   double history_every_s_ = 0.1;
+  std::string scenario_name_;
+  double nominal_hz_ = 50.0;
+  std::chrono::system_clock::time_point started_;  // wall time of t = 0
   std::shared_ptr<const std::string> scenario_json_;
   std::vector<double> sample_row_;  // loop thread only
   std::deque<std::pair<std::uint64_t, std::string>> events_;  // (seq, json)

@@ -424,5 +424,50 @@ function wireControls() {
   if (app.token) $('token').value = app.token;
 }
 
+// Studies: the modes of the loaded scenario, and COMTRADE records of a window of the history.
+async function analyseModes() {
+  const out = document.querySelector('[data-error-for="modes"]');
+  out.textContent = '';
+  const res = await fetch('/api/v1/modes');
+  const body = await res.json();
+  if (!res.ok) {
+    out.textContent = body.error || `modes: HTTP ${res.status}`;
+    return;
+  }
+  const tbody = $('modes-table').querySelector('tbody');
+  tbody.replaceChildren();
+  const leastDamped = body.modes.findIndex((m) => m.kind === 'oscillatory');
+  body.modes.forEach((m, i) => {
+    const tr = document.createElement('tr');
+    if (i === leastDamped) tr.className = 'least';
+    if (m.flagged) tr.classList.add('flagged');
+    const damping = m.kind === 'oscillatory' ? `${fmt(m.damping_ratio * 100, 1)} %`
+      : m.kind === 'real' ? `T ${fmt(m.time_constant_s, 3)} s` : '-';
+    const parts = m.participation.filter((p) => p.share >= 0.05).map((p) => `${p.state} ${fmt(p.share * 100, 0)}%`).join(', ');
+    for (const v of [`${i + 1}${m.flagged ? ' !' : ''}`, m.kind, fmt(m.real_per_s, 4), fmt(m.imag_rad_per_s, 4),
+      m.kind === 'oscillatory' ? fmt(m.frequency_hz, 3) : '-', damping, parts]) {
+      const td = document.createElement('td');
+      td.textContent = v;
+      tr.append(td);
+    }
+    tbody.append(tr);
+  });
+  $('modes-table').hidden = false;
+  $('modes-notes').replaceChildren(...body.notes.map((n) => Object.assign(document.createElement('li'), { textContent: n })));
+}
+
+function syncRecordLinks() {
+  const q = `from_s=${encodeURIComponent($('rec-from').value || 0)}&to_s=${encodeURIComponent($('rec-to').value || 0)}`;
+  $('rec-cfg').href = `/api/v1/record?${q}&part=cfg`;
+  $('rec-dat').href = `/api/v1/record?${q}&part=dat`;
+}
+
+function wireStudies() {
+  $('do-modes').addEventListener('click', analyseModes);
+  for (const id of ['rec-from', 'rec-to']) $(id).addEventListener('input', syncRecordLinks);
+  syncRecordLinks();
+}
+
 wireControls();
+wireStudies();
 connect();

@@ -271,6 +271,25 @@ class StreamTests(unittest.TestCase):
         self.assertEqual(s, 400)
         self.assertIn("damping_threshold: must lie within [0, 1]", body["error"])
 
+    def test_comtrade_record_of_a_live_window(self):
+        time.sleep(1.0)
+        s, cfg, r = self.srv.request("GET", "/api/v1/record?from_s=0&to_s=0.5&part=cfg")
+        self.assertEqual(s, 200)
+        self.assertIn("attachment", r.getheader("Content-Disposition"))
+        lines = cfg.decode().split("\r\n")
+        self.assertTrue(lines[0].endswith(",droopline,1999"), lines[0])
+        n_analog = int(lines[1].split(",")[1][:-1])
+        self.assertEqual(n_analog, 15)
+        rate, samples = lines[2 + n_analog + 2].split(",")
+        s, dat, _ = self.srv.request("GET", "/api/v1/record?from_s=0&to_s=0.5&part=dat")
+        self.assertEqual(s, 200)
+        self.assertEqual(len(dat.decode().strip().split("\r\n")), int(samples))
+        s, body, _ = self.srv.request("GET", "/api/v1/record?part=zip")
+        self.assertEqual(s, 400)
+        self.assertIn("part: must be cfg or dat", body["error"])
+        s, body, _ = self.srv.request("GET", "/api/v1/record?from_s=5000&to_s=6000")
+        self.assertEqual(s, 404)
+
     def test_static_files(self):
         s, body, r = self.srv.request("GET", "/")
         self.assertEqual(s, 200)

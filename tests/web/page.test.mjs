@@ -107,6 +107,26 @@ test('a load step from the instructor controls shows as a dip and a new disturba
   await page.close();
 });
 
+test('the studies: the modes table highlights the least-damped mode, and the record links download COMTRADE', async () => {
+  const { page, errors } = await openPage();
+  await page.click('#do-modes');
+  await page.waitForSelector('#modes-table:not([hidden])');
+  const least = page.locator('#modes-table tbody tr.least');
+  assert.equal(await least.count(), 1);
+  assert.equal(await least.locator('td').nth(1).textContent(), 'oscillatory');
+  assert.ok((await page.locator('#modes-table tbody tr').count()) > 5);
+  assert.ok((await page.locator('#modes-notes li').count()) >= 1);
+  await page.fill('#rec-from', '0');
+  await page.fill('#rec-to', '1');
+  const href = await page.locator('#rec-cfg').getAttribute('href');
+  assert.equal(href, '/api/v1/record?from_s=0&to_s=1&part=cfg');
+  const cfg = await page.evaluate(async (h) => (await fetch(h)).text(), href);
+  assert.match(cfg.split('\r\n')[0], /,droopline,1999$/);
+  assert.deepEqual(errors, []);
+  await page.locator('.studies').screenshot({ path: join(SHOTS, 'page-studies.png') });
+  await page.close();
+});
+
 test('a wrong token is refused with a message, and server errors show beside their control', async () => {
   const { page } = await openPage();
   await page.fill('#token', 'not-the-token-not-the-token-xx');
