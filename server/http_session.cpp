@@ -10,6 +10,7 @@
 #include "cli_run.hpp"
 #include "droopline/format.hpp"
 #include "droopline/modes.hpp"
+#include "droopline/sweep.hpp"
 #include "droopline/scenario_io.hpp"
 #include "http_target.hpp"
 #include "websocket_session.hpp"
@@ -389,6 +390,81 @@ void HttpSession::handle(Request&& req) {
         done(200, std::move(body));
       });
       return;
+    }
+    if (path == "/api/v1/sweeps") {
+      // {"scenario": {...} (default: the loaded one), "vary": ["PATH=VALUES", ...],
+      //  "sample": N, "seed": S, "metric": "nadir_hz"}: a job; answers 202 with its id.
+      if (method != http::verb::post) return method_not_allowed("POST");
+      if (!authorized()) return;
+      const json j = json::parse(req.body(), nullptr, false);
+      if (j.is_discarded() || !j.is_object()) return reply(400, error_json("body must be a JSON object with \"vary\": [\"PATH=VALUES\", ...]"));
+      study::SweepSpec spec;
+      std::vector<std::string> problems;
+      if (!j.contains("vary") || !j["vary"].is_array() || j["vary"].empty()) problems.push_back("vary: required, a list of \"PATH=VALUES\"");
+      else
+        for (const auto& v : j["vary"]) {
+          std::string err;
+          auto parsed = v.is_string() ? study::parse_vary(v.get<std::string>(), err) : std::nullopt;
+          if (!parsed) problems.push_back(v.is_string() ? err : "vary: each entry must be a string PATH=VALUES");
+          else spec.vary.push_back(std::move(*parsed));
+        }
+      if (j.contains("sample")) {
+        if (!j["sample"].is_number_unsigned() || j["sample"].get<std::uint64_t>() == 0) problems.push_back("sample: must be a whole number >= 1");
+        else spec.sample = j["sample"].get<std::uint64_t>();
+      }
+      if (j.contains("seed")) {
+        if (!j["seed"].is_number_unsigned()) problems.push_back("seed: must be a whole number >= 0");
+        else spec.seed = j["seed"].get<std::uint64_t>();
+      }
+      const std::string metric = j.contains("metric") && j["metric"].is_string() ? j["metric"].get<std::string>() : "nadir_hz";
+      const auto& names = study::metric_names();
+      if (std::find(names.begin(), names.end(), metric) == names.end()) problems.push_back("metric: unknown metric \"" + metric + "\"");
+      if (!problems.empty()) return reply(400, error_json("sweep refused", problems));
+      spec.threads = std::max(1u, std::thread::hardware_concurrency() - 1);  // one core left to the loop
+      auto done = later(req);
+      auto start = [this, spec = std::move(spec), metric, done, self = shared_from_this()](std::string scenario_text) mutable {
+        LoadResult r = parse_scenario(scenario_text);
+        if (!r.def) return done(400, error_json("invalid scenario", issue_texts(r.issues)));
+        spec.scenario = scenario_to_json(*r.def);
+        for (const auto& v : spec.vary) {
+          json probe = spec.scenario;
+          std::string err;
+          if (!study::set_path(probe, v.path, v.values.front(), err)) return done(400, error_json("vary " + err));
+        }
+        std::string err;
+        auto job = ctx_.sweeps.submit(std::move(spec), metric, err);
+        if (!job) return done(429, error_json(err));
+        done(202, SweepJobs::status_json(*job).dump());
+      };
+      if (j.contains("scenario")) return start(j["scenario"].dump());
+      ctx_.live->scenario(std::move(start));
+      return;
+    }
+    if (path.rfind("/api/v1/sweeps/", 0) == 0) {
+      std::string id = path.substr(15);
+      const bool result = id.size() > 7 && id.compare(id.size() - 7, 7, "/result") == 0;
+      if (result) id.resize(id.size() - 7);
+      auto job = ctx_.sweeps.find(id);
+      if (!job) return reply(404, error_json("no sweep job \"" + id + "\" (finished jobs are kept until 16 newer ones)"));
+      if (!result && method == http::verb::delete_) {
+        if (!authorized()) return;
+        job->cancel = true;
+        return reply(200, SweepJobs::status_json(*job).dump());
+      }
+      if (method != http::verb::get) return method_not_allowed(result ? "GET" : "GET, DELETE");
+      if (!result) return reply(200, SweepJobs::status_json(*job).dump());
+      if (!job->finished.load(std::memory_order_acquire)) return reply(409, error_json("sweep " + id + " is still running"));
+      if (job->status == "failed") return reply(409, error_json("sweep " + id + " failed: " + job->error));
+      const std::string format = t.get("format", "json");
+      if (format != "json" && format != "csv" && format != "svg")
+        return reply(400, error_json("query parameter format: must be json, csv or svg, got \"" + format + "\""));
+      if (format == "svg" && job->svg.empty()) return reply(404, error_json("no plot: it needs one or two varied fields"));
+      Response res{http::status::ok, version};
+      res.set(http::field::content_type, format == "json" ? "application/json" : format == "csv" ? "text/csv; charset=utf-8" : "image/svg+xml");
+      res.keep_alive(keep);
+      res.body() = format == "json" ? job->result.dump() : format == "csv" ? job->csv : job->svg;
+      res.prepare_payload();
+      return send(std::move(res));
     }
     if (path == "/api/v1/record") {
       if (method != http::verb::get) return method_not_allowed("GET");

@@ -16,6 +16,7 @@
 #include <boost/beast.hpp>
 
 #include "live_session.hpp"
+#include "sweep_jobs.hpp"
 
 namespace droopline::server {
 
@@ -92,6 +93,7 @@ struct Context {
   Hub hub;
   NetCounters counters;
   std::unique_ptr<net::thread_pool> replay_pool;
+  SweepJobs sweeps;
   std::atomic<bool> stopping{false};
 };
 

@@ -290,6 +290,53 @@ class StreamTests(unittest.TestCase):
         s, body, _ = self.srv.request("GET", "/api/v1/record?from_s=5000&to_s=6000")
         self.assertEqual(s, 404)
 
+    def test_sweep_job_submit_poll_fetch_cancel(self):
+        vary = ["units[V1].governor.droop=0.03,0.05", "events[0].mw=100,200"]
+        s, body, _ = self.srv.request("POST", "/api/v1/sweeps", {"vary": vary})
+        self.assertEqual(s, 401)
+        s, body, _ = self.srv.request("POST", "/api/v1/sweeps", {"vary": ["units[V9].governor.droop=0.03"]}, TOKEN)
+        self.assertEqual(s, 400)
+        self.assertIn('no element "V9" in units', body["error"])
+        s, body, _ = self.srv.request("POST", "/api/v1/sweeps", {"vary": vary, "metric": "settling_hz"}, TOKEN)
+        self.assertEqual(s, 202, body)
+        job = body["id"]
+        deadline = time.time() + 60
+        while time.time() < deadline:
+            s, st, _ = self.srv.request("GET", f"/api/v1/sweeps/{job}")
+            if st["status"] != "running":
+                break
+            time.sleep(0.2)
+        self.assertEqual(st["status"], "done", st)
+        self.assertEqual((st["done"], st["total"]), (4, 4))
+        s, csv_text, _ = self.srv.request("GET", f"/api/v1/sweeps/{job}/result?format=csv")
+        self.assertEqual(s, 200)
+        # The same sweep from the command line gives the same rows (the live scenario is the file's).
+        out = tempfile.mkdtemp()
+        subprocess.run([BIN, "sweep", os.path.join(SRC, "scenarios", "demo_three_areas.json"), "--vary", vary[0],
+                        "--vary", vary[1], "--out", out, "--quiet"], check=True)
+        with open(os.path.join(out, "sweep.csv")) as fh:
+            self.assertEqual(csv_text.decode(), fh.read())
+        s, svg, r = self.srv.request("GET", f"/api/v1/sweeps/{job}/result?format=svg")
+        self.assertEqual(s, 200)
+        self.assertTrue(svg.startswith(b"<svg"))
+        # A large one, cancelled while it runs; a second one meanwhile is refused.
+        s, big, _ = self.srv.request("POST", "/api/v1/sweeps", {"vary": ["units[V1].governor.droop=0.02:0.1:0.0001"]}, TOKEN)
+        self.assertEqual(s, 202, big)
+        s, body, _ = self.srv.request("POST", "/api/v1/sweeps", {"vary": vary}, TOKEN)
+        self.assertEqual(s, 429)
+        s, body, _ = self.srv.request("DELETE", f"/api/v1/sweeps/{big['id']}", None, TOKEN)
+        self.assertEqual(s, 200)
+        deadline = time.time() + 30
+        while time.time() < deadline:
+            s, st, _ = self.srv.request("GET", f"/api/v1/sweeps/{big['id']}")
+            if st["status"] != "running":
+                break
+            time.sleep(0.2)
+        self.assertEqual(st["status"], "cancelled")
+        self.assertLess(st["done"], 801)
+        s, body, _ = self.srv.request("GET", "/api/v1/sweeps/999")
+        self.assertEqual(s, 404)
+
     def test_static_files(self):
         s, body, r = self.srv.request("GET", "/")
         self.assertEqual(s, 200)

@@ -281,7 +281,7 @@ std::string sweep_fingerprint(const SweepSpec& spec) {
 }
 
 SweepResult run_sweep(const SweepSpec& spec, std::string& error,
-                      const std::function<void(std::uint64_t, std::uint64_t)>& progress) {
+                      const std::function<void(std::uint64_t, std::uint64_t)>& progress, const std::atomic<bool>* cancel) {
   SweepResult res;
   if (spec.vary.empty()) {
     error = "nothing to vary: give at least one --vary PATH=VALUES";
@@ -325,6 +325,10 @@ SweepResult run_sweep(const SweepSpec& spec, std::string& error,
     for (unsigned w = 0; w < res.threads; ++w)
       workers.emplace_back([&] {
         for (std::size_t i; (i = next.fetch_add(1)) < mine.size();) {
+          if (cancel && cancel->load()) {
+            done.fetch_add(1);
+            continue;  // leaves the row empty
+          }
           res.rows[i] = run_one(spec, mine[i], strides);
           done.fetch_add(1);
         }
@@ -335,6 +339,10 @@ SweepResult run_sweep(const SweepSpec& spec, std::string& error,
     }
   }
   res.wall_s = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+  if (cancel && cancel->load()) {
+    res.cancelled = true;
+    std::erase_if(res.rows, [](const SweepRow& r) { return r.status.empty(); });
+  }
   return res;
 }
 

@@ -3,6 +3,7 @@
 /// one row of disturbance metrics per combination. Runs go in parallel, one engine per run and
 /// nothing mutable shared; a deterministic shard of the combinations can run on each machine
 /// and the shards be merged afterwards.
+#include <atomic>
 #include <cstdint>
 #include <functional>
 #include <optional>
@@ -59,6 +60,7 @@ struct SweepResult {
   std::vector<SweepRow> rows;   ///< this shard's rows, by index
   double wall_s = 0.0;
   unsigned threads = 1;
+  bool cancelled = false;
 };
 
 /// The combinations of the sweep, all shards together, as grid indices in ascending order.
@@ -68,9 +70,11 @@ std::string sweep_fingerprint(const SweepSpec& spec);
 
 /// Validates the spec (every path resolves on the base scenario, the grid is not empty) and
 /// runs this shard. `progress(done, total)` is called from the calling thread now and then.
-/// Errors in the spec come back in `error` with nothing run.
+/// Errors in the spec come back in `error` with nothing run. When `cancel` turns true the
+/// workers take no new combination; the rows not run are dropped and `cancelled` is set.
 SweepResult run_sweep(const SweepSpec& spec, std::string& error,
-                      const std::function<void(std::uint64_t, std::uint64_t)>& progress = {});
+                      const std::function<void(std::uint64_t, std::uint64_t)>& progress = {},
+                      const std::atomic<bool>* cancel = nullptr);
 
 /// The result as JSON (`sweep`: meta, `rows`) and CSV text, and back from JSON (for merging).
 nlohmann::ordered_json sweep_to_json(const SweepSpec& spec, const SweepResult& result);
