@@ -2,7 +2,7 @@
 # droopline developer entry point: one script for set-up, build, tests, the demo and benchmarks.
 #   bash scripts/dev.sh demo    install what is missing, build, serve the bundled demo scenario live
 #   bash scripts/dev.sh test    install what is missing, build with warnings as errors, run all tests
-#   bash scripts/dev.sh setup | build | sanitize | fuzz [SECONDS] | bench | stream-bench
+#   bash scripts/dev.sh setup | build | sanitize | fuzz [SECONDS] | bench | stream-bench | soak [--minutes M]
 set -euo pipefail
 cd "$(dirname "$0")/.."
 
@@ -93,6 +93,11 @@ case "${1:-}" in
     fi
     npm install --prefix tests/bench --no-audit --no-fund --silent
     ./build/release/tests/bench/droopline-stream-bench "${@:2}"
+    ;;
+  soak)
+    setup
+    build release
+    ./build/release/tests/bench/droopline-soak "${@:2}"
     ;;
   *)
     sed -n '2,6p' "$0" | sed 's/^# \{0,1\}//'

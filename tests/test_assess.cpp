@@ -65,7 +65,7 @@ TEST_CASE("isolated station: measured values, margins and the unit on its droop 
 }
 
 TEST_CASE("the shipped example requirements parse and every figure names its source") {
-  std::ifstream in(test::source_path("scenarios/requirements_grid_code_example.json"));
+  std::ifstream in(test::source_path("scenarios/requirements/grid_code_example.json"));
   std::stringstream ss;
   ss << in.rdbuf();
   const Requirements r = parse_ok(ss.str());
