@@ -9,6 +9,7 @@
 
 #include "cli_run.hpp"
 #include "droopline/format.hpp"
+#include "droopline/assess.hpp"
 #include "droopline/modes.hpp"
 #include "droopline/sweep.hpp"
 #include "droopline/scenario_io.hpp"
@@ -484,6 +485,29 @@ void HttpSession::handle(Request&& req) {
       res.body() = part == "cfg" ? std::move(rec.cfg) : std::move(rec.dat);
       res.prepare_payload();
       return send(std::move(res));
+    }
+    if (path == "/api/v1/assess") {
+      // A requirements file (the body) checked against a run of the loaded scenario, on the workers.
+      if (method != http::verb::post) return method_not_allowed("POST");
+      std::vector<Issue> issues;
+      auto req_def = study::parse_requirements(req.body(), issues);
+      if (!req_def) return reply(400, error_json("invalid requirements", issue_texts(issues)));
+      if (ctx_.counters.replays_active.fetch_add(1) >= ctx_.options.max_replays) {
+        ctx_.counters.replays_active.fetch_sub(1);
+        return reply(429, error_json("too many runs at once; retry later"));
+      }
+      auto done = later(req);
+      ctx_.live->scenario([this, done, requirements = std::move(*req_def), self = shared_from_this()](std::string text) {
+        net::post(*ctx_.replay_pool, [this, done, requirements, text = std::move(text), self] {
+          LoadResult r = parse_scenario(text);
+          std::string body;
+          if (r.def) body = study::assessment_to_json(study::assess(*r.def, requirements), requirements).dump();
+          ctx_.counters.replays_active.fetch_sub(1);
+          if (!r.def) return done(400, error_json("invalid scenario", issue_texts(r.issues)));
+          done(200, std::move(body));
+        });
+      });
+      return;
     }
     if (path == "/api/v1/modes") {
       // The small-signal modes of the live scenario (GET) or of a posted one (POST), computed on

@@ -462,8 +462,87 @@ function syncRecordLinks() {
   $('rec-dat').href = `/api/v1/record?${q}&part=dat`;
 }
 
+function fillTable(table, head, rows, rowClass = () => '') {
+  if (head) {
+    const tr = document.createElement('tr');
+    for (const h of head) tr.append(Object.assign(document.createElement('th'), { textContent: h }));
+    table.querySelector('thead').replaceChildren(tr);
+  }
+  table.querySelector('tbody').replaceChildren(...rows.map((cells, i) => {
+    const tr = document.createElement('tr');
+    tr.className = rowClass(i);
+    for (const c of cells) tr.append(Object.assign(document.createElement('td'), { textContent: c }));
+    return tr;
+  }));
+  table.hidden = false;
+}
+
+async function assessFile() {
+  const file = $('assess-file').files[0];
+  if (!file) return;
+  const out = document.querySelector('[data-error-for="assess"]');
+  out.textContent = '';
+  $('assess-verdict').textContent = 'running the scenario...';
+  const res = await fetch('/api/v1/assess', { method: 'POST', body: await file.text() });
+  const body = await res.json();
+  if (!res.ok) {
+    $('assess-verdict').textContent = '';
+    out.textContent = [body.error, ...(body.issues || [])].join('; ');
+    return;
+  }
+  const d = (c) => (c.unit === 'Hz' ? 3 : 2);
+  fillTable($('assess-table'), null, body.checks.map((c) => [
+    c.requirement + (c.detail ? ` (${c.detail})` : ''), `${c.relation} ${fmt(c.limit, d(c))} ${c.unit}`,
+    c.measured == null ? '-' : `${fmt(c.measured, d(c))} ${c.unit}`,
+    c.margin == null ? '-' : `${c.margin >= 0 ? '+' : ''}${fmt(c.margin, d(c))}`, c.result, c.source]),
+  (i) => (body.checks[i].result === 'fail' ? 'fail' : ''));
+  $('assess-verdict').textContent = body.passed ? 'All requirements met.' : 'Requirements NOT met.';
+}
+
+async function runSweep() {
+  const out = document.querySelector('[data-error-for="sweep"]');
+  out.textContent = '';
+  const vary = $('sweep-vary').value.split('\n').map((l) => l.trim()).filter(Boolean);
+  const metric = $('sweep-metric').value;
+  const res = await fetch('/api/v1/sweeps', {
+    method: 'POST', headers: app.token ? { Authorization: `Bearer ${app.token}` } : {}, body: JSON.stringify({ vary, metric }),
+  });
+  let job = await res.json();
+  if (!res.ok) {
+    out.textContent = [job.error, ...(job.issues || [])].join('; ');
+    return;
+  }
+  app.sweepJob = job.id;
+  $('do-sweep-cancel').hidden = false;
+  while (job.status === 'running') {
+    $('sweep-progress').textContent = `${job.done} of ${job.total || '?'} runs`;
+    await new Promise((r) => setTimeout(r, 400));
+    job = await (await fetch(`/api/v1/sweeps/${job.id}`)).json();
+  }
+  $('do-sweep-cancel').hidden = true;
+  $('sweep-progress').textContent = `${job.status}: ${job.done} runs in ${fmt(job.wall_s, 1)} s`;
+  if (job.status === 'failed') {
+    out.textContent = job.error;
+    return;
+  }
+  const result = await (await fetch(`/api/v1/sweeps/${job.id}/result`)).json();
+  const paths = result.sweep.vary.map((v) => v.path);
+  const shown = [metric, ...['nadir_hz', 'settling_hz', 'rocof_hz_per_s', 'shed_mw'].filter((m) => m !== metric)];
+  fillTable($('sweep-table'), [...paths, 'status', ...shown], result.rows.map((r) => [
+    ...r.values.map((v) => String(v)), r.status, ...shown.map((m) => (r.metrics ? fmt(r.metrics[m], 4) : '-'))]));
+  if (paths.length <= 2) {
+    $('sweep-plot').src = `/api/v1/sweeps/${job.id}/result?format=svg`;
+    $('sweep-plot').hidden = false;
+  }
+}
+
 function wireStudies() {
   $('do-modes').addEventListener('click', analyseModes);
+  $('assess-file').addEventListener('change', assessFile);
+  $('do-sweep').addEventListener('click', runSweep);
+  $('do-sweep-cancel').addEventListener('click', () => fetch(`/api/v1/sweeps/${app.sweepJob}`, {
+    method: 'DELETE', headers: { Authorization: `Bearer ${app.token}` },
+  }));
   for (const id of ['rec-from', 'rec-to']) $(id).addEventListener('input', syncRecordLinks);
   syncRecordLinks();
 }

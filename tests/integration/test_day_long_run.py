@@ -45,4 +45,5 @@ assert rows == 864001, rows
 assert abs(t_last - 86400.0) < 1e-6, t_last
 assert len(summary["disturbances"]) == 3, summary["disturbances"]
 assert size > 30 * 2**20, size                      # the series is large ...
-assert peak_kib * 1024 < size / 2, (peak_kib, size)  # ... and was never held in memory whole
+if not os.environ.get("DROOPLINE_SANITIZED"):  # ASan's shadow memory and quarantine inflate RSS
+    assert peak_kib * 1024 < size / 2, (peak_kib, size)  # ... and was never held in memory whole

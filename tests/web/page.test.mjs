@@ -127,6 +127,30 @@ test('the studies: the modes table highlights the least-damped mode, and the rec
   await page.close();
 });
 
+test('the studies: requirement table from a file, and a sweep with its table and plot', async () => {
+  const { page, errors } = await openPage();
+  await page.setInputFiles('#assess-file', join(SRC, 'scenarios', 'requirements', 'grid_code_example.json'));
+  await page.waitForSelector('#assess-table:not([hidden])', { timeout: 20000 });
+  assert.ok((await page.locator('#assess-table tbody tr').count()) >= 4);
+  assert.match(await page.locator('#assess-verdict').textContent(), /requirements/i);
+  assert.equal(await page.locator('#assess-table tbody tr').first().locator('td').nth(4).textContent(), 'pass');
+  // Sweeps need the instructor: refused with the reason first, then run once unlocked.
+  await page.fill('#sweep-vary', 'units[V1].governor.droop=0.03,0.06');
+  await page.click('#do-sweep');
+  await page.locator('[data-error-for="sweep"]', { hasText: 'instructor token' }).waitFor({ timeout: 5000 });
+  await page.fill('#token', TOKEN);
+  await page.click('#auth-form button');
+  await page.waitForSelector('#controls:not([hidden])');
+  await page.click('#do-sweep');
+  await page.waitForSelector('#sweep-table:not([hidden])', { timeout: 30000 });
+  assert.equal(await page.locator('#sweep-table tbody tr').count(), 2);
+  await page.waitForFunction(() => { const i = document.getElementById('sweep-plot'); return !i.hidden && i.complete && i.naturalWidth > 0; });
+  assert.match(await page.locator('#sweep-progress').textContent(), /^done: 2 runs/);
+  assert.deepEqual(errors.filter((e) => !e.includes('401')), []);  // the refused sweep logs its 401
+  await page.locator('.studies').screenshot({ path: join(SHOTS, 'page-studies-sweep.png') });
+  await page.close();
+});
+
 test('a wrong token is refused with a message, and server errors show beside their control', async () => {
   const { page } = await openPage();
   await page.fill('#token', 'not-the-token-not-the-token-xx');
