@@ -216,7 +216,9 @@ class StreamTests(unittest.TestCase):
             finally:
                 stuck.transport.abort()
         worst = run(go())
-        self.assertLess(worst, 0.25)  # frames keep coming at 20/s to the reading client
+        # Frames keep coming at 20/s to the reading client (a stuck client would stall it for
+        # seconds). Under the sanitizers, with other tests running beside, allow one slow frame.
+        self.assertLess(worst, 0.5 if os.environ.get("DROOPLINE_SANITIZED") else 0.25)
 
     def test_speed_and_pause_follow_the_wall_clock(self):
         def t_now():
