@@ -297,6 +297,15 @@ class StreamTests(unittest.TestCase):
         s, body, _ = self.srv.request("GET", "/api/v1/record?from_s=5000&to_s=6000")
         self.assertEqual(s, 404)
 
+    def wait_sweep(self, job, timeout_s):
+        """Polls a sweep job until it is no longer running (or the time is up); its last status."""
+        deadline = time.time() + timeout_s
+        while True:
+            _, st, _ = self.srv.request("GET", f"/api/v1/sweeps/{job}")
+            if st["status"] != "running" or time.time() >= deadline:
+                return st
+            time.sleep(0.2)
+
     def test_sweep_job_submit_poll_fetch_cancel(self):
         vary = ["units[V1].governor.droop=0.03,0.05", "events[0].mw=100,200"]
         s, body, _ = self.srv.request("POST", "/api/v1/sweeps", {"vary": vary})
@@ -307,12 +316,7 @@ class StreamTests(unittest.TestCase):
         s, body, _ = self.srv.request("POST", "/api/v1/sweeps", {"vary": vary, "metric": "settling_hz"}, TOKEN)
         self.assertEqual(s, 202, body)
         job = body["id"]
-        deadline = time.time() + 60
-        while time.time() < deadline:
-            s, st, _ = self.srv.request("GET", f"/api/v1/sweeps/{job}")
-            if st["status"] != "running":
-                break
-            time.sleep(0.2)
+        st = self.wait_sweep(job, 60)
         self.assertEqual(st["status"], "done", st)
         self.assertEqual((st["done"], st["total"]), (4, 4))
         s, csv_text, _ = self.srv.request("GET", f"/api/v1/sweeps/{job}/result?format=csv")
@@ -333,12 +337,7 @@ class StreamTests(unittest.TestCase):
         self.assertEqual(s, 429)
         s, body, _ = self.srv.request("DELETE", f"/api/v1/sweeps/{big['id']}", None, TOKEN)
         self.assertEqual(s, 200)
-        deadline = time.time() + 30
-        while time.time() < deadline:
-            s, st, _ = self.srv.request("GET", f"/api/v1/sweeps/{big['id']}")
-            if st["status"] != "running":
-                break
-            time.sleep(0.2)
+        st = self.wait_sweep(big["id"], 30)
         self.assertEqual(st["status"], "cancelled")
         self.assertLess(st["done"], 801)
         s, body, _ = self.srv.request("GET", "/api/v1/sweeps/999")
