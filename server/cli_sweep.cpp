@@ -11,6 +11,7 @@
 
 #include "cli_files.hpp"
 #include "droopline/format.hpp"
+#include "droopline/json_input.hpp"
 #include "droopline/scenario_io.hpp"
 
 namespace droopline::cli {
@@ -131,11 +132,13 @@ int merge(const std::vector<std::string>& shard_dirs, const std::string& out_dir
   json all = json::array();
   for (const std::string& dir : shard_dirs) {
     const std::string file = (fs::path(dir) / "sweep.json").string();
-    std::ifstream in(file);
-    json doc = json::parse(in, nullptr, false);
-    if (!in.good() && !in.eof()) doc = json::value_t::discarded;
+    std::ifstream in(file, std::ios::binary);
+    const std::string text((std::istreambuf_iterator<char>(in)), std::istreambuf_iterator<char>());
+    std::string bad;
+    const auto parsed = parse_untrusted_json(text, bad);
+    const json doc = parsed ? *parsed : json(json::value_t::discarded);
     if (doc.is_discarded() || !doc.is_object() || !doc.contains("sweep")) {
-      std::cerr << file << ": error: not a sweep result (missing or not JSON)\n";
+      std::cerr << file << ": error: not a sweep result (" << (bad.empty() ? "missing, or no \"sweep\" object" : bad) << ")\n";
       return 2;
     }
     const json& meta = doc["sweep"];

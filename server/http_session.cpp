@@ -1,7 +1,5 @@
 #include "http_session.hpp"
 
-#include <filesystem>
-#include <fstream>
 #include <sstream>
 
 #include <nlohmann/json.hpp>
@@ -9,6 +7,7 @@
 
 #include "cli_run.hpp"
 #include "droopline/format.hpp"
+#include "droopline/json_input.hpp"
 #include "droopline/assess.hpp"
 #include "droopline/modes.hpp"
 #include "droopline/sweep.hpp"
@@ -20,10 +19,23 @@ namespace droopline::server {
 namespace {
 
 using json = nlohmann::ordered_json;
-namespace fs = std::filesystem;
 
 constexpr auto kHeaderTimeout = std::chrono::seconds(10);  // slow-loris guard per request
 constexpr std::size_t kHeaderLimit = 16 * 1024;
+// Why a route needs the instructor token, in words a trainee can act on.
+constexpr const char* kChanges = "only the instructor can change the simulation";
+constexpr const char* kSweeps = "sweeps are for the instructor (a sweep job runs on the server's spare cores)";
+// Lingering close after an early error reply: what is still read and thrown away, at most.
+constexpr auto kLingerTime = std::chrono::seconds(5);
+constexpr std::size_t kLingerBytes = 8u << 20;
+
+// A client-supplied text quoted in a message, cut to a readable length.
+std::string quote_cut(std::string_view text) {
+  constexpr std::size_t kMax = 120;
+  std::string out = "\"";
+  for (char c : text.substr(0, kMax)) out += (c >= 0x20 && c < 0x7f) ? c : '?';  // printable ASCII only
+  return out + (text.size() > kMax ? "...\"" : "\"");
+}
 
 std::string error_json(const std::string& message, const std::vector<std::string>& issues = {}) {
   json j{{"error", message}};
@@ -53,21 +65,6 @@ bool query_number(const Target& t, const std::string& key, double fallback, doub
     return false;
   }
   return true;
-}
-
-const char* content_type(const fs::path& p) {
-  const std::string ext = p.extension().string();
-  if (ext == ".html") return "text/html; charset=utf-8";
-  if (ext == ".js" || ext == ".mjs") return "text/javascript; charset=utf-8";
-  if (ext == ".css") return "text/css; charset=utf-8";
-  if (ext == ".json") return "application/json";
-  if (ext == ".svg") return "image/svg+xml";
-  if (ext == ".png") return "image/png";
-  if (ext == ".ico") return "image/x-icon";
-  if (ext == ".map") return "application/json";
-  if (ext == ".txt") return "text/plain; charset=utf-8";
-  if (ext == ".woff2") return "font/woff2";
-  return "application/octet-stream";
 }
 
 std::string metrics_text(const Context& ctx) {
@@ -158,14 +155,14 @@ void HttpSession::on_read(beast::error_code ec, std::size_t) {
     return;
   }
   if (ec == http::error::body_limit) {
-    return send(json_response(11, false, 413, error_json("request body larger than " +
+    return send_then_linger(json_response(11, false, 413, error_json("request body larger than " +
                                                          std::to_string(ctx_.options.max_body_bytes) + " bytes")));
   }
   if (ec == http::error::header_limit) {
-    return send(json_response(11, false, 431, error_json("request headers larger than 16 KiB")));
+    return send_then_linger(json_response(11, false, 431, error_json("request headers larger than 16 KiB")));
   }
   if (ec) {
-    return send(json_response(11, false, 400, error_json("malformed HTTP request: " + ec.message())));
+    return send_then_linger(json_response(11, false, 400, error_json("malformed HTTP request: " + ec.message())));
   }
   Request req = parser_->release();
   ctx_.counters.requests.fetch_add(1);
@@ -180,12 +177,13 @@ void HttpSession::on_read(beast::error_code ec, std::size_t) {
   }
 }
 
-void HttpSession::send(Response res) {
+template <class Body>
+void HttpSession::send(http::response<Body> res) {
   const bool keep_alive = res.keep_alive();
-  writing_ = std::make_shared<Response>(std::move(res));
+  auto msg = std::make_shared<http::response<Body>>(std::move(res));
+  writing_ = msg;
   stream_.expires_after(std::chrono::seconds(30));
-  http::async_write(stream_, *writing_,
-                    beast::bind_front_handler(&HttpSession::on_write, shared_from_this(), keep_alive));
+  http::async_write(stream_, *msg, beast::bind_front_handler(&HttpSession::on_write, shared_from_this(), keep_alive));
 }
 
 void HttpSession::on_write(bool keep_alive, beast::error_code ec, std::size_t) {
@@ -194,9 +192,28 @@ void HttpSession::on_write(bool keep_alive, beast::error_code ec, std::size_t) {
   if (!keep_alive || ctx_.stopping.load()) {
     beast::error_code ignored;
     stream_.socket().shutdown(tcp::socket::shutdown_send, ignored);
+    if (linger_) do_discard();
     return;
   }
   do_read();
+}
+
+void HttpSession::send_then_linger(Response res) {
+  linger_ = true;
+  send(std::move(res));
+}
+
+void HttpSession::do_discard() {
+  stream_.expires_after(kLingerTime);  // the whole linger, not per read
+  stream_.async_read_some(net::buffer(discard_buffer_),
+                          beast::bind_front_handler(&HttpSession::on_discard, shared_from_this()));
+}
+
+void HttpSession::on_discard(beast::error_code ec, std::size_t bytes) {
+  discarded_ += bytes;
+  if (ec || discarded_ >= kLingerBytes) return;  // end of stream, reset, timeout or enough: close
+  stream_.async_read_some(net::buffer(discard_buffer_),
+                          beast::bind_front_handler(&HttpSession::on_discard, shared_from_this()));
 }
 
 std::function<void(int, std::string)> HttpSession::later(const Request& req) {
@@ -246,10 +263,11 @@ void HttpSession::handle(Request&& req) {
     res.set(http::field::allow, allow);
     send(std::move(res));
   };
-  // Anything that changes the simulation needs the instructor token.
-  auto authorized = [&]() {
+  // Anything that changes the simulation, or takes the server's spare cores, needs the
+  // instructor token; `why` says which, in words a trainee can act on.
+  auto authorized = [&](const char* why = kChanges) {
     if (!req.count(http::field::authorization)) {
-      reply(401, error_json("this changes the simulation: send the instructor token as 'Authorization: Bearer TOKEN'"));
+      reply(401, error_json(std::string(why) + ": send the instructor token as 'Authorization: Bearer TOKEN'"));
       return false;
     }
     const std::string auth(req[http::field::authorization]);
@@ -313,8 +331,11 @@ void HttpSession::handle(Request&& req) {
     if (path == "/api/v1/control") {
       if (method != http::verb::post) return method_not_allowed("POST");
       if (!authorized()) return;
-      auto j = json::parse(req.body(), nullptr, false);
-      if (j.is_discarded() || !j.is_object() || !j.contains("action") || !j["action"].is_string())
+      std::string bad;
+      const auto parsed = parse_untrusted_json(req.body(), bad);
+      if (!parsed) return reply(400, error_json(bad));
+      const json& j = *parsed;
+      if (!j.is_object() || !j.contains("action") || !j["action"].is_string())
         return reply(400, error_json("body must be {\"action\": \"pause\" | \"resume\" | \"reset\" | \"speed\", \"speed\": x}"));
       const std::string action = j["action"].get<std::string>();
       auto done = later(req);
@@ -396,9 +417,12 @@ void HttpSession::handle(Request&& req) {
       // {"scenario": {...} (default: the loaded one), "vary": ["PATH=VALUES", ...],
       //  "sample": N, "seed": S, "metric": "nadir_hz"}: a job; answers 202 with its id.
       if (method != http::verb::post) return method_not_allowed("POST");
-      if (!authorized()) return;
-      const json j = json::parse(req.body(), nullptr, false);
-      if (j.is_discarded() || !j.is_object()) return reply(400, error_json("body must be a JSON object with \"vary\": [\"PATH=VALUES\", ...]"));
+      if (!authorized(kSweeps)) return;
+      std::string bad;
+      const auto body_json = parse_untrusted_json(req.body(), bad);
+      if (!body_json) return reply(400, error_json(bad));
+      const json& j = *body_json;
+      if (!j.is_object()) return reply(400, error_json("body must be a JSON object with \"vary\": [\"PATH=VALUES\", ...]"));
       study::SweepSpec spec;
       std::vector<std::string> problems;
       if (!j.contains("vary") || !j["vary"].is_array() || j["vary"].empty()) problems.push_back("vary: required, a list of \"PATH=VALUES\"");
@@ -448,7 +472,7 @@ void HttpSession::handle(Request&& req) {
       auto job = ctx_.sweeps.find(id);
       if (!job) return reply(404, error_json("no sweep job \"" + id + "\" (finished jobs are kept until 16 newer ones)"));
       if (!result && method == http::verb::delete_) {
-        if (!authorized()) return;
+        if (!authorized(kSweeps)) return;
         job->cancel = true;
         return reply(200, SweepJobs::status_json(*job).dump());
       }
@@ -536,45 +560,44 @@ void HttpSession::handle(Request&& req) {
     }
     if (path == "/api/v1/openapi.json") {
       if (method != http::verb::get) return method_not_allowed("GET");
-      std::ifstream in(fs::path(ctx_.options.web_root) / "openapi.json", std::ios::binary);
-      if (!in) return reply(404, error_json("openapi.json is not installed"));
-      std::ostringstream ss;
-      ss << in.rdbuf();
-      return reply(200, ss.str());
+      return serve_file(req, "/openapi.json");
     }
     if (path == "/api/v1/stream") return reply(426, error_json("/api/v1/stream is a WebSocket: send an upgrade request"));
     return reply(404, error_json("no API endpoint " + path));
   }
 
-  // Static files from web/: GET and HEAD only, no traversal, no listings.
+  // Everything else is one of the page's files, or nothing.
   if (method != http::verb::get && method != http::verb::head) return method_not_allowed("GET, HEAD");
-  if (path.find('\0') != std::string::npos || path.empty() || path[0] != '/')
-    return reply(400, error_json("malformed path"));
-  fs::path rel = fs::path(path.substr(1)).lexically_normal();
-  if (rel.empty() || rel == ".") rel = "index.html";
-  for (const auto& part : rel)
-    if (part == ".." || (!part.empty() && part.string()[0] == '.'))
-      return reply(404, error_json("not found: " + path));
-  const fs::path root = fs::path(ctx_.options.web_root);
-  fs::path file = root / rel;
-  std::error_code ec;
-  if (fs::is_directory(file, ec)) file /= "index.html";
-  if (!fs::is_regular_file(file, ec)) return reply(404, error_json("not found: " + path));
-  std::ifstream in(file, std::ios::binary);
-  std::ostringstream ss;
-  ss << in.rdbuf();
-  Response res{http::status::ok, version};
-  res.set(http::field::server, "droopline");
-  res.set(http::field::content_type, content_type(file));
-  res.set(http::field::cache_control, file.extension() == ".html" ? "no-cache" : "public, max-age=300");
-  res.set("X-Content-Type-Options", "nosniff");
-  res.keep_alive(keep);
-  if (method == http::verb::head) {
-    res.content_length(ss.str().size());
-  } else {
-    res.body() = ss.str();
-    res.prepare_payload();
+  serve_file(req, path);
+}
+
+void HttpSession::serve_file(const Request& req, const std::string& path) {
+  const unsigned version = req.version();
+  const bool keep = req.keep_alive();
+  const StaticFiles::Lookup found = ctx_.files->resolve(path);
+  if (found.status != 200)
+    return send(json_response(version, keep, found.status, error_json("not served: " + quote_cut(path) + " (" + found.error + ")")));
+  beast::error_code ec;
+  http::file_body::value_type body;
+  body.open(found.file.c_str(), beast::file_mode::scan, ec);
+  if (ec) return send(json_response(version, keep, 404, error_json("not served: " + quote_cut(path) + " (cannot be opened)")));
+  auto headers = [&](auto& res) {
+    res.set(http::field::server, "droopline");
+    res.set(http::field::content_type, content_type_of(found.file));
+    res.set(http::field::cache_control, found.file.extension() == ".html" ? "no-cache" : "public, max-age=300");
+    res.set("X-Content-Type-Options", "nosniff");
+    res.keep_alive(keep);
+  };
+  if (req.method() == http::verb::head) {
+    http::response<http::empty_body> res{http::status::ok, version};
+    headers(res);
+    res.content_length(body.size());
+    return send(std::move(res));
   }
+  http::response<http::file_body> res{std::piecewise_construct, std::make_tuple(std::move(body)),
+                                      std::make_tuple(http::status::ok, version)};
+  headers(res);
+  res.prepare_payload();
   send(std::move(res));
 }
 

@@ -1,6 +1,7 @@
 #pragma once
 // One HTTP connection: reads requests under size and time limits, answers the API and static
 // files, and hands WebSocket upgrades of /api/v1/stream to a WebsocketSession.
+#include <array>
 #include <memory>
 #include <optional>
 
@@ -19,8 +20,17 @@ class HttpSession : public std::enable_shared_from_this<HttpSession> {
  private:
   void do_read();
   void on_read(beast::error_code ec, std::size_t bytes);
-  void send(Response res);
+  /// Writes one response (string, file or empty body); one write in flight per connection.
+  template <class Body>
+  void send(http::response<Body> res);
   void on_write(bool keep_alive, beast::error_code ec, std::size_t bytes);
+  /// Answers an error found while the request was still arriving, then reads and discards the
+  /// rest for a bounded time and size before closing, so a client that sends its whole body
+  /// before reading (Python's http.client does) gets the answer instead of a reset.
+  void send_then_linger(Response res);
+  void do_discard();
+  void on_discard(beast::error_code ec, std::size_t bytes);
+  void serve_file(const Request& req, const std::string& path);
   void upgrade(Request&& req);
   void handle(Request&& req);
   /// Answers later, from any thread: the reply is carried back to this connection's strand.
@@ -31,7 +41,10 @@ class HttpSession : public std::enable_shared_from_this<HttpSession> {
   std::shared_ptr<void> slot_;
   beast::flat_buffer buffer_;
   std::optional<http::request_parser<http::string_body>> parser_;
-  std::shared_ptr<Response> writing_;
+  std::shared_ptr<void> writing_;  // the response being written (any body type)
+  bool linger_ = false;             // after this write: discard what the client still sends
+  std::size_t discarded_ = 0;       // bytes discarded while lingering
+  std::array<char, 16 * 1024> discard_buffer_{};
 };
 
 /// A JSON response with the common headers.

@@ -10,6 +10,7 @@
 
 #include <nlohmann/json.hpp>
 
+#include "droopline/json_input.hpp"
 #include "droopline/scenario_io.hpp"
 
 namespace droopline {
@@ -131,14 +132,16 @@ JournalRead read_journal(const std::string& path) {
   for (int n = 1; std::getline(in, line); ++n) {
     if (line.empty()) continue;
     const std::string where = "journal line " + std::to_string(n);
-    auto j = nlohmann::json::parse(line, nullptr, false);
-    if (j.is_discarded() || !j.is_object() || !j.contains("type") || !j.contains("step") ||
-        !j["step"].is_number_integer()) {
+    std::string bad;
+    auto parsed = parse_untrusted_json(line, bad);
+    if (!parsed || !parsed->is_object() || !parsed->contains("type") || !(*parsed)["type"].is_string() ||
+        !parsed->contains("step") || !(*parsed)["step"].is_number_integer()) {
       // A torn last line (a crash mid-write) was never acknowledged: stop there.
       if (in.peek() == EOF) break;
-      out.issues.push_back({where, "not a journal record", false});
+      out.issues.push_back({where, "not a journal record" + (bad.empty() ? std::string() : " (" + bad + ")"), false});
       return out;
     }
+    nlohmann::ordered_json& j = *parsed;
     const std::string type = j["type"].get<std::string>();
     const std::int64_t step = j["step"].get<std::int64_t>();
     if (type == "scenario") {

@@ -90,12 +90,16 @@ void LiveSession::start_engine(const SystemDef& def) {
   output_every_ = std::max<std::int64_t>(1, std::llround(def_.output_every_s / def_.step_s));
   reported_ = 0;
   announced_ = 0;
+  checkpoint_ = engine_->clone();
+  checkpoint_every_ = std::max<std::int64_t>(1, std::llround(1.0 / def_.step_s));
+  halted_.clear();
   {
     auto scenario_text = std::make_shared<const std::string>(scenario_to_json(def_).dump());
     std::lock_guard lock(history_mutex_);
     columns_ = engine_->series_columns();
     history_every_s_ = def_.output_every_s;
     scenario_json_ = std::move(scenario_text);
+    events_.clear();  // a new run: its log starts empty (the journal keeps the old one)
     scenario_name_ = def_.name;
     nominal_hz_ = def_.nominal_hz;
     started_ = std::chrono::system_clock::now();
@@ -188,6 +192,7 @@ void LiveSession::run() {
       engine_->step();
       ++ran;
       counters_.steps.fetch_add(1);
+      if (!guard_step()) break;
       if (engine_->step_index() % output_every_ == 0) record_history();
       drain_notices();
     }
@@ -220,16 +225,12 @@ void LiveSession::emit_frame(double wall_s) {
   auto text = std::make_shared<const std::string>(state_json(wall_s));
   counters_.frames.fetch_add(1);
   sink_({text, true});
-  // Disturbances still being measured: their metrics so far, twice a second (droppable, not logged).
+  // Disturbances still being measured: their metrics so far, twice a second (droppable; the log
+  // keeps the latest for clients that join later).
   if (++frame_count_ % std::max<std::uint64_t>(1, static_cast<std::uint64_t>(config_.frame_hz / 2)) == 0) {
     const auto& d = engine_->disturbances();
-    for (std::size_t i = reported_; i < d.size(); ++i) {
-      if (!d[i].open) continue;
-      json j = disturbance_to_json(*engine_, d[i]);
-      j["type"] = "disturbance";
-      j["index"] = i;
-      sink_({std::make_shared<const std::string>(j.dump()), true});
-    }
+    for (std::size_t i = reported_; i < d.size(); ++i)
+      if (d[i].open) push_disturbance(i, true);
   }
 }
 
@@ -286,42 +287,68 @@ void LiveSession::record_history() {
   history_.push(sample_row_);
 }
 
-void LiveSession::push_event(const std::string& text) {
+void LiveSession::push_event(json event) {
   std::shared_ptr<const std::string> msg;
   {
     std::lock_guard lock(history_mutex_);
-    const std::uint64_t seq = ++event_seq_;
-    json j = json::parse(text);
-    j["seq"] = seq;
-    msg = std::make_shared<const std::string>(j.dump());
-    events_.emplace_back(seq, *msg);
+    event["seq"] = ++event_seq_;
+    msg = std::make_shared<const std::string>(event.dump(-1, ' ', false, json::error_handler_t::replace));
+    events_.push_back({event_seq_, *msg, -1});
     while (events_.size() > 1000) events_.pop_front();
   }
   sink_({msg, false});
 }
 
+void LiveSession::push_disturbance(std::size_t index, bool droppable) {
+  json j = disturbance_to_json(*engine_, engine_->disturbances()[index]);
+  j["type"] = "disturbance";
+  j["index"] = index;
+  std::shared_ptr<const std::string> msg;
+  {
+    std::lock_guard lock(history_mutex_);
+    j["seq"] = ++event_seq_;
+    msg = std::make_shared<const std::string>(j.dump());
+    // One entry per disturbance, its latest state; it moves to the end with its new seq so that
+    // events(since) hands out what changed.
+    const auto key = static_cast<std::int64_t>(index);
+    auto old = std::find_if(events_.begin(), events_.end(), [&](const LoggedEvent& e) { return e.disturbance == key; });
+    if (old != events_.end()) events_.erase(old);
+    events_.push_back({event_seq_, *msg, key});
+    while (events_.size() > 1000) events_.pop_front();
+  }
+  sink_({msg, droppable});
+}
+
+bool LiveSession::guard_step() {
+  if (engine_->finite()) {
+    if (engine_->step_index() % checkpoint_every_ == 0) checkpoint_ = engine_->clone();
+    return true;
+  }
+  const double bad_t = engine_->time_s();
+  engine_ = checkpoint_->clone();
+  paused_ = true;
+  halted_ = "at t = " + fmt_fixed(bad_t, 2) + " s a value of the simulation stopped being a finite number; the last good state (t = " +
+            fmt_fixed(engine_->time_s(), 2) + " s) is kept and the session is paused: the instructor can reset it or load a scenario";
+  spdlog::error("{}", halted_);
+  for (Pending& p : pending_) {
+    counters_.commands_refused.fetch_add(p.commands.size());
+    p.done({409, error_body("command refused: " + halted_)});
+  }
+  pending_.clear();
+  push_event(json{{"type", "event"}, {"t_s", engine_->time_s()}, {"kind", "halted"}, {"text", halted_}});
+  return false;
+}
+
 void LiveSession::drain_notices() {
   for (const Notice& n : engine_->take_notices()) {
     if (n.kind != "command") spdlog::info("t = {:.2f} s: {}", n.t_s, n.text);
-    push_event(json{{"type", "event"}, {"t_s", n.t_s}, {"kind", n.kind}, {"text", n.text}}.dump());
+    push_event(json{{"type", "event"}, {"t_s", n.t_s}, {"kind", n.kind}, {"text", n.text}});
   }
   // Each disturbance is announced when it begins (metrics still filling in, "open": true) and
   // again, complete, when its window ends.
   const auto& d = engine_->disturbances();
-  while (announced_ < d.size()) {
-    json j = disturbance_to_json(*engine_, d[announced_]);
-    j["type"] = "disturbance";
-    j["index"] = announced_;
-    push_event(j.dump());
-    ++announced_;
-  }
-  while (reported_ < d.size() && !d[reported_].open) {
-    json j = disturbance_to_json(*engine_, d[reported_]);
-    j["type"] = "disturbance";
-    j["index"] = reported_;
-    push_event(j.dump());
-    ++reported_;
-  }
+  for (; announced_ < d.size(); ++announced_) push_disturbance(announced_, false);
+  for (; reported_ < d.size() && !d[reported_].open; ++reported_) push_disturbance(reported_, false);
 }
 
 // ------------------------------------------------------------------ requests
@@ -332,6 +359,11 @@ void LiveSession::apply(std::vector<Command> commands, Done done) {
     // disk, at the step the record names; one refused by either changes nothing. The journal is
     // written on its own thread, so the command is scheduled a little ahead (journal_lead_s of
     // wall time) for the record to get there first.
+    if (!halted_.empty()) {
+      counters_.commands_refused.fetch_add(commands.size());
+      done({409, error_body("command refused: " + halted_)});
+      return;
+    }
     const ApplyResult check = e.check_all(commands);
     if (!check.ok) {
       counters_.commands_refused.fetch_add(commands.size());
@@ -401,6 +433,7 @@ void LiveSession::settle_pending() {
     while (engine_->step_index() < pending_.front().step) {
       engine_->step();
       counters_.steps.fetch_add(1);
+      if (!guard_step()) return;  // the pending commands were refused
       if (engine_->step_index() % output_every_ == 0) record_history();
       drain_notices();
     }
@@ -416,7 +449,7 @@ void LiveSession::load(SystemDef def, Done done) {
       return;
     }
     start_engine(def);
-    push_event(json{{"type", "event"}, {"t_s", 0.0}, {"kind", "scenario"}, {"text", "scenario \"" + def.name + "\" loaded"}}.dump());
+    push_event(json{{"type", "event"}, {"t_s", 0.0}, {"kind", "scenario"}, {"text", "scenario \"" + def.name + "\" loaded"}});
     done({200, json{{"ok", true}, {"scenario", def.name}}.dump()});
   });
 }
@@ -430,7 +463,7 @@ void LiveSession::reset(Done done) {
       return;
     }
     start_engine(def);
-    push_event(json{{"type", "event"}, {"t_s", 0.0}, {"kind", "reset"}, {"text", "session reset to t = 0"}}.dump());
+    push_event(json{{"type", "event"}, {"t_s", 0.0}, {"kind", "reset"}, {"text", "session reset to t = 0"}});
     done({200, json{{"ok", true}, {"t_s", 0.0}}.dump()});
   });
 }
@@ -438,15 +471,16 @@ void LiveSession::reset(Done done) {
 void LiveSession::pause(Done done) {
   post([this, done = std::move(done)](Engine& e) {
     paused_ = true;
-    push_event(json{{"type", "event"}, {"t_s", e.time_s()}, {"kind", "pause"}, {"text", "paused"}}.dump());
+    push_event(json{{"type", "event"}, {"t_s", e.time_s()}, {"kind", "pause"}, {"text", "paused"}});
     done({200, json{{"ok", true}, {"paused", true}, {"t_s", e.time_s()}}.dump()});
   });
 }
 
 void LiveSession::resume(Done done) {
   post([this, done = std::move(done)](Engine& e) {
+    if (!halted_.empty()) return done({409, error_body("cannot resume: " + halted_)});
     if (paused_.exchange(false)) rebase();
-    push_event(json{{"type", "event"}, {"t_s", e.time_s()}, {"kind", "resume"}, {"text", "resumed"}}.dump());
+    push_event(json{{"type", "event"}, {"t_s", e.time_s()}, {"kind", "resume"}, {"text", "resumed"}});
     done({200, json{{"ok", true}, {"paused", false}, {"t_s", e.time_s()}}.dump()});
   });
 }
@@ -455,7 +489,7 @@ void LiveSession::set_speed(double speed, Done done) {
   post([this, speed, done = std::move(done)](Engine& e) {
     speed_ = speed;
     rebase();
-    push_event(json{{"type", "event"}, {"t_s", e.time_s()}, {"kind", "speed"}, {"text", "speed " + fmt_num(speed) + "x"}}.dump());
+    push_event(json{{"type", "event"}, {"t_s", e.time_s()}, {"kind", "speed"}, {"text", "speed " + fmt_num(speed) + "x"}});
     done({200, json{{"ok", true}, {"speed", speed}}.dump()});
   });
 }
@@ -472,7 +506,7 @@ void LiveSession::hello(std::function<void(std::shared_ptr<const HelloSnapshot>)
       snap->every_s = history_every_s_;
       snap->rows = history_.flat();
       snap->events.reserve(events_.size());
-      for (const auto& e : events_) snap->events.push_back(e.second);
+      for (const auto& e : events_) snap->events.push_back(e.text);
     }
     done(std::move(snap));
   });
@@ -606,10 +640,15 @@ study::ComtradeRecord LiveSession::record(double from_s, double to_s) const {
 
 std::string LiveSession::events(std::uint64_t since) const {
   std::lock_guard lock(history_mutex_);
-  json arr = json::array();
-  for (const auto& [seq, text] : events_)
-    if (seq > since) arr.push_back(json::parse(text));
-  return json{{"events", arr}}.dump();
+  std::string out = "{\"events\":[";
+  bool first = true;
+  for (const LoggedEvent& e : events_) {
+    if (e.seq <= since) continue;
+    if (!first) out += ',';
+    first = false;
+    out += e.text;
+  }
+  return out + "]}";
 }
 
 }  // namespace droopline

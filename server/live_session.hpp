@@ -17,6 +17,8 @@
 #include <thread>
 #include <vector>
 
+#include <nlohmann/json_fwd.hpp>
+
 #include "droopline/comtrade.hpp"
 #include "droopline/engine.hpp"
 #include "journal.hpp"
@@ -166,7 +168,14 @@ class LiveSession {
   void drain_notices();
   void record_history();
   std::string state_json(double wall_s) const;
-  void push_event(const std::string& json);
+  /// Logs an event (a JSON object; "seq" is added) and sends it to every client.
+  void push_event(nlohmann::ordered_json event);
+  /// Logs disturbance `index` as it is now, replacing its earlier entry (a late joiner sees the
+  /// present), and sends it; `droppable` for the periodic updates of an open one.
+  void push_disturbance(std::size_t index, bool droppable);
+  /// After each step: keeps a checkpoint of the last good state every simulated second and, should
+  /// anything turn non-finite, goes back to it, pauses and tells every client why.
+  bool guard_step();  ///< false when it had to stop the session
 
   LiveConfig config_;
   Sink sink_;
@@ -188,6 +197,9 @@ class LiveSession {
   std::size_t reported_ = 0;   // disturbances already sent complete
   std::size_t announced_ = 0;  // disturbances already sent as begun
   std::uint64_t frame_count_ = 0;
+  std::unique_ptr<Engine> checkpoint_;  // the last state found finite, about a second back
+  std::int64_t checkpoint_every_ = 100;  // steps
+  std::string halted_;                   // why the session stopped on a non-finite state ("": running)
   std::chrono::steady_clock::time_point base_wall_;
   std::int64_t base_step_ = 0;
   std::chrono::steady_clock::time_point next_frame_;
@@ -212,7 +224,12 @@ class LiveSession {
   std::chrono::system_clock::time_point started_;  // wall time of t = 0
   std::shared_ptr<const std::string> scenario_json_;
   std::vector<double> sample_row_;  // loop thread only
-  std::deque<std::pair<std::uint64_t, std::string>> events_;  // (seq, json)
+  struct LoggedEvent {
+    std::uint64_t seq;
+    std::string text;            // JSON
+    std::int64_t disturbance;    // its index for a disturbance entry (kept once, latest state), else -1
+  };
+  std::deque<LoggedEvent> events_;  // since the last reset or scenario load, oldest first
   std::uint64_t event_seq_ = 0;
 
   std::thread thread_;

@@ -163,6 +163,7 @@ int serve(Options options) {
   Context ctx;
   ctx.options = std::move(options);
   const Options& opt = ctx.options;
+  ctx.files = std::make_unique<StaticFiles>(opt.web_root);
 
   LoadResult r = load_scenario_file(opt.scenario_file);
   for (const Issue& i : r.issues)

@@ -16,6 +16,7 @@
 #include <boost/beast.hpp>
 
 #include "live_session.hpp"
+#include "static_files.hpp"
 #include "sweep_jobs.hpp"
 
 namespace droopline::server {
@@ -94,6 +95,7 @@ struct Context {
   NetCounters counters;
   std::unique_ptr<net::thread_pool> replay_pool;
   SweepJobs sweeps;
+  std::unique_ptr<StaticFiles> files;  ///< the page's files, under the canonical web root
   std::atomic<bool> stopping{false};
 };
 

@@ -3,6 +3,7 @@
 #include <nlohmann/json.hpp>
 #include <spdlog/spdlog.h>
 
+#include "droopline/json_input.hpp"
 #include "droopline/scenario_io.hpp"
 
 namespace droopline::server {
@@ -14,6 +15,7 @@ constexpr std::uint64_t kMaxDropStreak = 200;
 constexpr std::size_t kMaxQueuedEvents = 4096;
 // Messages quote what the client sent; invalid UTF-8 in it is replaced, never thrown on.
 std::string safe_dump(const json& j) { return j.dump(-1, ' ', false, json::error_handler_t::replace); }
+constexpr std::size_t kMaxIdChars = 64;  // longest string id echoed back
 }  // namespace
 
 WebsocketSession::Socket WebsocketSession::adopt(net::io_context& ioc, tcp::socket&& socket) {
@@ -100,13 +102,30 @@ void WebsocketSession::reply(std::string text) {
 }
 
 void WebsocketSession::handle_message(const std::string& text) {
-  auto j = json::parse(text, nullptr, false);
-  if (j.is_discarded() || !j.is_object() || !j.contains("type") || !j["type"].is_string()) {
+  std::string bad;
+  const auto parsed = parse_untrusted_json(text, bad);
+  if (!parsed) {
+    reply(safe_dump(json{{"type", "error"}, {"error", bad}}));
+    return;
+  }
+  const json& j = *parsed;
+  if (!j.is_object() || !j.contains("type") || !j["type"].is_string()) {
     reply(safe_dump(json{{"type", "error"}, {"error", "messages are JSON objects with a \"type\""}}));
     return;
   }
+  // The reply id is echoed back: a number, or a string of at most 64 characters.
+  json id = nullptr;
+  if (j.contains("id")) {
+    const json& given = j["id"];
+    if (!given.is_number() && !(given.is_string() && given.get_ref<const std::string&>().size() <= kMaxIdChars)) {
+      reply(safe_dump(json{{"type", "error"},
+                           {"error", "id: must be a number or a string of at most " + std::to_string(kMaxIdChars) +
+                                         " characters"}}));
+      return;
+    }
+    id = given;
+  }
   const std::string type = j["type"].get<std::string>();
-  const json id = j.contains("id") ? j["id"] : json(nullptr);
   if (type == "auth") {
     const bool ok = j.contains("token") && j["token"].is_string() &&
                     token_matches(j["token"].get<std::string>(), ctx_.token);
@@ -116,7 +135,7 @@ void WebsocketSession::handle_message(const std::string& text) {
     return;
   }
   if (type != "commands" && type != "control") {
-    reply(safe_dump(json{{"type", "error"}, {"id", id}, {"error", "unknown message type \"" + type + "\""}}));
+    reply(safe_dump(json{{"type", "error"}, {"id", id}, {"error", "unknown message type \"" + type.substr(0, 64) + "\""}}));
     return;
   }
   if (!instructor_) {
@@ -125,8 +144,9 @@ void WebsocketSession::handle_message(const std::string& text) {
     return;
   }
   auto self = shared_from_this();
-  auto done = [self, id](LiveSession::Reply r) {
-    self->reply(safe_dump(json{{"type", "reply"}, {"id", id}, {"status", r.status}, {"body", json::parse(r.body)}}));
+  // The reply body is the service's own JSON text, spliced in as it is.
+  auto done = [self, head = "{\"type\":\"reply\",\"id\":" + safe_dump(id) + ",\"status\":"](LiveSession::Reply r) {
+    self->reply(head + std::to_string(r.status) + ",\"body\":" + r.body + "}");
   };
   if (type == "commands") {
     CommandParse cp = parse_commands(j.contains("commands") ? j["commands"].dump() : "null");
@@ -139,7 +159,7 @@ void WebsocketSession::handle_message(const std::string& text) {
     ctx_.live->apply(std::move(cp.commands), done);
     return;
   }
-  const std::string action = j.value("action", "");
+  const std::string action = j.contains("action") && j["action"].is_string() ? j["action"].get<std::string>() : "";
   if (action == "pause") ctx_.live->pause(done);
   else if (action == "resume") ctx_.live->resume(done);
   else if (action == "reset") ctx_.live->reset(done);

@@ -79,7 +79,16 @@ TEST_CASE("the shipped example requirements parse and every figure names its sou
 
 TEST_CASE("bad requirement files say what and where") {
   const std::vector<std::pair<std::string, std::string>> bad{
-      {"[1]", "not a JSON object"},
+      {"[1]", "must be a JSON object"},
+      {R"({"name": 5, "limits": {}})", "name: must be a string"},
+      {R"({"note": [], "limits": {"lowest_hz_min": {"value": 49, "source": "x"}}})", "note: must be a string"},
+      {R"({"name": "a", "name": "b"})", "duplicate key \"name\""},
+      {std::string(100, '[') + std::string(100, ']'), "nested deeper than 64 levels"},
+      {"{\"limits\": ", "json: line 1, column 12"},
+      {R"({"limits": {"lowest_hz_min": {"value": 1e999, "source": "x"}}})", "json: "},
+      {R"({"limits": {"lowest_hz_min": {"value": 49, "source": 7}}})", "limits.lowest_hz_min.source: required"},
+      {R"({"unit_response": 5})", "unit_response: must be a list"},
+      {R"({"unit_response": [7]})", "unit_response[0]: must be an object"},
       {"{}", "nothing to check"},
       {R"({"limits": {"nadir": {"value": 49, "source": "x"}}})", "limits.nadir: unknown limit"},
       {R"({"limits": {"lowest_hz_min": {"value": 49}}})", "limits.lowest_hz_min.source: required"},

@@ -7,6 +7,7 @@
 #include <nlohmann/json.hpp>
 
 #include "cli_run.hpp"
+#include "droopline/json_input.hpp"
 #include "support.hpp"
 
 using namespace droopline;
@@ -85,6 +86,27 @@ const BadCase kBad[] = {
     {"/units/3/turbine/water_s", "-1", "units[3].turbine.water_s: must be > 0, got -1"},
     {"/ties/0/pmax_mw", "-5", "ties[0].pmax_mw: must be > 0, got -5"},
     {"/areas/0/agc", R"({"enabled": "yes"})", "areas[0].agc.enabled: must be true or false, got a string"},
+    // Physical bounds: finite is not yet sensible.
+    {"/events/0/mw", "1e308", "events[0].mw: must lie within +/-8000 MW (ten times the size of area \"west\", 800 MW), got 1e+308"},
+    {"/events/0/mw", "-9000", "events[0].mw: must lie within +/-8000 MW (ten times the size of area \"west\", 800 MW), got -9000"},
+    {"/events/0", R"({"at_s": 1, "kind": "load_ramp", "area": "east", "mw": 20000, "over_s": 5})", "events[0].mw: must lie within +/-6500 MW (ten times the size of area \"east\", 650 MW), got 20000"},
+    {"/events/0", R"({"at_s": 1, "kind": "fluctuation", "area": "east", "sigma_mw": 5000, "tau_s": 5})", "events[0].sigma_mw: must be at most 650 MW (the size of area \"east\", 650 MW), got 5000"},
+    {"/events/1", R"({"at_s": 2, "kind": "governor", "unit": "G1", "droop": 3})", "events[1].droop: must be at most 1 pu (beyond what a real system can have), got 3"},
+    {"/events/1", R"({"at_s": 2, "kind": "setpoint", "unit": "G1", "mw": 410, "ramp_mw_per_s": 1e12})", "events[1].ramp_mw_per_s: must be at most 1e+06 MW/s (beyond what a real system can have), got 1e+12"},
+    {"/units/0/rating_mw", "3e6", "units[0].rating_mw: must be at most 2e+06 MW (beyond what a real system can have), got 3e+06"},
+    {"/units/0/inertia_s", "1000", "units[0].inertia_s: must be at most 100 s (beyond what a real system can have), got 1000"},
+    {"/areas/0/demand_mw", "1e9", "areas[0].demand_mw: must be at most 2e+06 MW (beyond what a real system can have), got 1e+09"},
+    {"/nominal_hz", "1e5", "nominal_hz: must be at most 1000 Hz (beyond what a real system can have), got 100000"},
+    {"/duration_s", "1e8", "duration_s: must be at most 1e+07 s (beyond what a real system can have), got 1e+08"},
+    {"/step_s", "2", "step_s: must be at most 1 s (beyond what a real system can have), got 2"},
+    {"/units/1/turbine/reheat_s", "1e5", "units[1].turbine.reheat_s: must be at most 10000 s (beyond what a real system can have), got 100000"},
+    {"/units/2/turbine/energy_mwh", "1e9", "units[2].turbine.energy_mwh: must be at most 1e+06 MWh (beyond what a real system can have), got 1e+09"},
+    {"/ties/0/pmax_mw", "1e7", "ties[0].pmax_mw: must be at most 2e+06 MW (beyond what a real system can have), got 1e+07"},
+    {"/units/0/governor/droop", "5", "units[0].governor.droop: must be at most 1 pu (beyond what a real system can have), got 5"},
+    {"/units/0/governor/deadband_hz", "10", "units[0].governor.deadband_hz: must be at most 5 Hz (beyond what a real system can have), got 10"},
+    {"/areas/0/agc", R"({"enabled": true, "ki_per_s": 1000})", "areas[0].agc.ki_per_s: must be at most 100 /s (beyond what a real system can have), got 1000"},
+    {"/units/0/ramp_mw_per_s", "1e9", "units[0].ramp_mw_per_s: must be at most 1e+06 MW/s (beyond what a real system can have), got 1e+09"},
+    {"/units/2/min_mw", "-1e7", "units[2].min_mw: must be at least -2e+06 MW (beyond what a real system can have), got -1e+07"},
 };
 
 std::string mutate(const BadCase& c) {
@@ -158,6 +180,40 @@ TEST_CASE("syntax errors and duplicate keys are reported with where they are") {
   LoadResult top = parse_scenario("[]");
   REQUIRE(top.issues.size() == 1);
   CHECK(top.issues[0].text() == "must be an object, got an array");
+}
+
+TEST_CASE("untrusted JSON: nesting and size are bounded before anything walks the value") {
+  std::vector<Issue> issues;
+  // 64 levels pass; the 65th opening bracket is refused, with where it is.
+  CHECK(parse_untrusted_json(std::string(64, '[') + std::string(64, ']'), issues));
+  CHECK(issues.empty());
+  CHECK_FALSE(parse_untrusted_json(std::string(65, '[') + std::string(65, ']'), issues));
+  REQUIRE(issues.size() == 1);
+  CHECK(issues[0].text() == "json: line 1, column 65: nested deeper than 64 levels of objects and arrays");
+  // Brackets inside strings (escaped quotes too) are not nesting.
+  issues.clear();
+  CHECK(parse_untrusted_json(R"({"a": "[[[[\"{{{{", "b": [1]})", issues, {.max_depth = 2}));
+  CHECK(issues.empty());
+  CHECK_FALSE(parse_untrusted_json("{\"a\": \"[[\\\"\",\n \"b\": [[1]]}", issues, {.max_depth = 2}));
+  REQUIRE(issues.size() == 1);
+  CHECK(issues[0].text() == "json: line 2, column 8: nested deeper than 2 levels of objects and arrays");
+  // A scenario nested half a million levels deep is refused without recursion (no stack overflow).
+  issues.clear();
+  const std::string deep = "{\"scenario\": " + std::string(500000, '[') + std::string(500000, ']') + "}";
+  CHECK_FALSE(parse_untrusted_json(deep, issues));
+  std::string objects;
+  for (int i = 0; i < 500000; ++i) objects += "{\"a\":";
+  LoadResult r = parse_scenario(objects);
+  REQUIRE(r.issues.size() == 1);
+  CHECK(r.issues[0].text().find("nested deeper than 64 levels") != std::string::npos);
+  CommandParse c = parse_commands(std::string(300000, '['));
+  REQUIRE(c.issues.size() == 1);
+  CHECK(c.issues[0].text().find("nested deeper than 64 levels") != std::string::npos);
+  // The size limit is checked before parsing.
+  issues.clear();
+  CHECK_FALSE(parse_untrusted_json("[1, 2, 3]", issues, {.max_bytes = 4}));
+  REQUIRE(issues.size() == 1);
+  CHECK(issues[0].text() == "json: text of 9 bytes is longer than the limit of 4 bytes");
 }
 
 TEST_CASE("every problem is reported at once") {

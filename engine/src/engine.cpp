@@ -1228,6 +1228,10 @@ CreateResult Engine::create(const SystemDef& def) {
   return out;
 }
 
+std::unique_ptr<Engine> Engine::clone() const {
+  return std::unique_ptr<Engine>(new Engine(std::make_unique<Impl>(*impl_)));
+}
+
 void Engine::step() { impl_->step(); }
 
 void Engine::set_task_runner(TaskRunner* runner) { impl_->runner = runner; }
@@ -1353,6 +1357,23 @@ std::vector<Notice> Engine::take_notices() {
 
 std::vector<double> Engine::state() const { return impl_->y; }
 std::vector<std::string> Engine::state_names() const { return impl_->state_names(); }
+
+void Engine::set_state(std::span<const double> x) {
+  if (x.size() != impl_->y.size())
+    throw std::invalid_argument("set_state: the state has " + std::to_string(impl_->y.size()) + " values");
+  std::copy(x.begin(), x.end(), impl_->y.begin());
+  impl_->invalidate_outputs();
+}
+
+bool Engine::finite() const {
+  impl_->ensure_outputs();
+  const Impl& m = *impl_;
+  auto all_finite = [](const std::vector<double>& v) {
+    return std::all_of(v.begin(), v.end(), [](double x) { return std::isfinite(x); });
+  };
+  return all_finite(m.y) && all_finite(m.pm) &&
+         std::all_of(m.ties.begin(), m.ties.end(), [](const auto& t) { return std::isfinite(t.flow); });
+}
 void Engine::step_state(std::span<const double> x, std::span<double> next) {
   if (x.size() != impl_->y.size() || next.size() != impl_->y.size())
     throw std::invalid_argument("step_state: the state has " + std::to_string(impl_->y.size()) + " values");

@@ -15,6 +15,24 @@ namespace {
 constexpr double kBalanceToleranceMw = 0.1;
 constexpr double kStepFraction = 5.0;  // step must be at most 1/5 of the fastest time constant
 
+// Physical bounds: what a real power system can have, generously. A finite value beyond them is
+// a typing slip or an attack, and it is refused rather than simulated into garbage.
+namespace bound {
+constexpr double kNominalHz = 1000.0;   // above any supply frequency in use
+constexpr double kStepS = 1.0;          // a fixed step longer than any governor time constant
+constexpr double kDurationS = 1e7;      // about 115 days of simulated time
+constexpr double kPowerMw = 2e6;        // demand, rating, limits: above the largest interconnection
+constexpr double kTimeS = 1e4;          // any lag, reset or delay
+constexpr double kInertiaS = 100.0;     // H on own rating (aggregates included)
+constexpr double kRampMwPerS = 1e6;     // any ramp limit or ramp command
+constexpr double kDroopPu = 1.0;        // 100 % droop
+constexpr double kDeadbandHz = 5.0;     // half-width
+constexpr double kGainPerPu = 100.0;    // secondary-control gains, load damping, temporary droop
+constexpr double kMwPerHz = 1e7;        // bias and tie damping
+constexpr double kEnergyMwh = 1e6;      // battery energy
+constexpr double kAreaStepFactor = 10.0;  // a load step or ramp within ten times the area's size
+}  // namespace bound
+
 // A path made of a prefix and a field, joined only when a message needs it: validating a large
 // fleet checks hundreds of thousands of values and reports few.
 struct Where {
@@ -54,6 +72,20 @@ class Checker {
   }
   void finite(const Where& path, double v) {
     if (!std::isfinite(v)) error(path, "must be a finite number");
+  }
+  /// Refuses a value above what a real system can have (NaN and infinity included).
+  void at_most(const Where& path, double v, double hi, const char* unit) {
+    if (!(v <= hi))
+      error(path, "must be at most " + fmt_num(hi) + unit + " (beyond what a real system can have), got " + fmt_num(v));
+  }
+  /// `positive` and `at_most` together: the usual bound of a physical quantity.
+  void positive_at_most(const Where& path, double v, double hi, const char* unit) {
+    if (!(v > 0.0)) error(path, "must be > 0, got " + fmt_num(v));
+    else at_most(path, v, hi, unit);
+  }
+  void non_negative_at_most(const Where& path, double v, double hi, const char* unit) {
+    if (!(v >= 0.0)) error(path, "must be >= 0, got " + fmt_num(v));
+    else at_most(path, v, hi, unit);
   }
   void within(const Where& path, double v, double lo, double hi) {
     if (!(v >= lo && v <= hi))
@@ -103,22 +135,22 @@ struct TimeConstant {
 };
 
 void check_governor(Checker& ck, const std::string& p, const GovernorDef& g, bool battery) {
-  ck.positive(at(p, ".droop"), g.droop);
+  ck.positive_at_most(at(p, ".droop"), g.droop, bound::kDroopPu, " pu");
   ck.typical(at(p, ".droop"), g.droop, 0.02, 0.12, "droop (pu)");
-  ck.non_negative(at(p, ".deadband_hz"), g.deadband_hz);
+  ck.non_negative_at_most(at(p, ".deadband_hz"), g.deadband_hz, bound::kDeadbandHz, " Hz");
   if (g.deadband_hz > 0.5)
     ck.warn(at(p, ".deadband_hz"),
             fmt_num(g.deadband_hz) + " is outside the typical range 0-0.5 of deadband (Hz)");
-  ck.positive(at(p, ".lag_s"), g.lag_s);
+  ck.positive_at_most(at(p, ".lag_s"), g.lag_s, bound::kTimeS, " s");
   if (!battery) ck.typical(at(p, ".lag_s"), g.lag_s, 0.05, 0.5, "governor lag (s)");
-  ck.positive(at(p, ".integral_s"), g.integral_s);
+  ck.positive_at_most(at(p, ".integral_s"), g.integral_s, bound::kTimeS, " s");
 }
 
 void check_turbine(Checker& ck, const std::string& p, const UnitDef& u,
                    std::vector<TimeConstant>& tcs) {
   const TurbineDef& t = u.turbine;
   auto tc = [&](const char* name, double v) {
-    ck.positive(at(p, name, true), v);
+    ck.positive_at_most(at(p, name, true), v, bound::kTimeS, " s");
     if (v > 0.0) tcs.push_back({v, p + "." + name});
   };
   switch (t.type) {
@@ -139,8 +171,8 @@ void check_turbine(Checker& ck, const std::string& p, const UnitDef& u,
       tc("water_s", t.water_s);
       ck.typical(at(p, ".water_s"), t.water_s, 0.5, 4.0, "water starting time (s)");
       if (t.water_s > 0.0) tcs.push_back({t.water_s / 2.0, p + ".water_s (Tw/2)"});
-      if (t.temporary_droop) ck.positive(at(p, ".temporary_droop"), *t.temporary_droop);
-      if (t.reset_s) ck.positive(at(p, ".reset_s"), *t.reset_s);
+      if (t.temporary_droop) ck.positive_at_most(at(p, ".temporary_droop"), *t.temporary_droop, bound::kGainPerPu, " pu");
+      if (t.reset_s) ck.positive_at_most(at(p, ".reset_s"), *t.reset_s, bound::kTimeS, " s");
       if (!t.temporary_droop && !t.reset_s && !(u.inertia_s > 0.0))
         ck.error(p, "a hydro unit needs inertia_s > 0 or explicit temporary_droop and reset_s");
       const double rt = hydro_temporary_droop(u);
@@ -163,25 +195,35 @@ void check_turbine(Checker& ck, const std::string& p, const UnitDef& u,
     case TurbineType::gas:
       tc("fuel_s", t.fuel_s);
       tc("combustion_s", t.combustion_s);
-      if (t.load_limit_mw) ck.positive(at(p, ".load_limit_mw"), *t.load_limit_mw);
+      if (t.load_limit_mw) ck.positive_at_most(at(p, ".load_limit_mw"), *t.load_limit_mw, bound::kPowerMw, " MW");
       break;
     case TurbineType::battery:
       tc("response_s", t.response_s);
       tc("rocof_filter_s", t.rocof_filter_s);
-      ck.non_negative(at(p, ".synthetic_inertia_s"), t.synthetic_inertia_s);
+      ck.non_negative_at_most(at(p, ".synthetic_inertia_s"), t.synthetic_inertia_s, bound::kInertiaS, " s");
       if (!t.energy_mwh)
         ck.error(at(p, ".energy_mwh"), "required for a battery");
       else
-        ck.positive(at(p, ".energy_mwh"), *t.energy_mwh);
+        ck.positive_at_most(at(p, ".energy_mwh"), *t.energy_mwh, bound::kEnergyMwh, " MWh");
       ck.within(at(p, ".soc"), t.soc, 0.0, 1.0);
       break;
   }
 }
 
+// The size of each area (MW): the larger of its demand and its units' ratings. Load steps, ramps
+// and fluctuations are bounded by a multiple of it.
+std::vector<double> area_sizes(const SystemDef& def, const std::map<std::string, std::size_t>& areas) {
+  std::vector<double> gen(def.areas.size(), 0.0), size(def.areas.size(), 0.0);
+  for (const UnitDef& u : def.units)
+    if (auto it = areas.find(u.area); it != areas.end() && u.rating_mw > 0.0) gen[it->second] += u.rating_mw;
+  for (std::size_t a = 0; a < def.areas.size(); ++a) size[a] = std::max(def.areas[a].demand_mw, gen[a]);
+  return size;
+}
+
 void check_command(Checker& ck, const SystemDef& def, const Command& c, const std::string& p,
                    const std::map<std::string, std::size_t>& areas,
                    const std::map<std::string, std::size_t>& units,
-                   const std::map<std::string, std::size_t>& ties) {
+                   const std::map<std::string, std::size_t>& ties, const std::vector<double>& area_size_mw) {
   auto ref = [&](const std::map<std::string, std::size_t>& ids, const std::string& field,
                  const std::string& value, const char* what) -> const std::size_t* {
     auto it = ids.find(value);
@@ -198,15 +240,25 @@ void check_command(Checker& ck, const SystemDef& def, const Command& c, const st
       ck.error(at(p, field.c_str(), true), "must lie within [min_mw, max_mw] = [" + fmt_num(lo) + ", " +
                                     fmt_num(hi) + "] of unit \"" + u.id + "\", got " + fmt_num(mw));
   };
+  // A change of load within ten times the area's size (either sign); a fluctuation within it.
+  auto area_load = [&](const std::size_t* ai, const char* field, double mw, bool fluctuation) {
+    ck.finite(at(p, field, true), mw);
+    if (!ai || !std::isfinite(mw)) return;
+    const double size = std::max(area_size_mw[*ai], 1.0);
+    const std::string area = "area \"" + def.areas[*ai].id + "\", " + fmt_num(area_size_mw[*ai]) + " MW";
+    if (!fluctuation && std::fabs(mw) > bound::kAreaStepFactor * size)
+      ck.error(at(p, field, true), "must lie within +/-" + fmt_num(bound::kAreaStepFactor * size) +
+                                       " MW (ten times the size of " + area + "), got " + fmt_num(mw));
+    if (fluctuation && mw > size)
+      ck.error(at(p, field, true), "must be at most " + fmt_num(size) + " MW (the size of " + area + "), got " + fmt_num(mw));
+  };
   switch (c.kind) {
     case CommandKind::load_step:
-      ref(areas, "area", c.area, "area");
-      ck.finite(at(p, ".mw"), c.mw);
+      area_load(ref(areas, "area", c.area, "area"), "mw", c.mw, false);
       break;
     case CommandKind::load_ramp:
-      ref(areas, "area", c.area, "area");
-      ck.finite(at(p, ".mw"), c.mw);
-      ck.positive(at(p, ".over_s"), c.over_s);
+      area_load(ref(areas, "area", c.area, "area"), "mw", c.mw, false);
+      ck.positive_at_most(at(p, ".over_s"), c.over_s, bound::kDurationS, " s");
       break;
     case CommandKind::unit_trip:
       ref(units, "unit", c.unit, "unit");
@@ -216,12 +268,12 @@ void check_command(Checker& ck, const SystemDef& def, const Command& c, const st
       break;
     case CommandKind::setpoint:
       if (auto ui = ref(units, "unit", c.unit, "unit")) unit_range(*ui, "mw", c.mw);
-      if (c.ramp_mw_per_s) ck.positive(at(p, ".ramp_mw_per_s"), *c.ramp_mw_per_s);
+      if (c.ramp_mw_per_s) ck.positive_at_most(at(p, ".ramp_mw_per_s"), *c.ramp_mw_per_s, bound::kRampMwPerS, " MW/s");
       break;
     case CommandKind::governor:
       ref(units, "unit", c.unit, "unit");
-      if (c.droop) ck.positive(at(p, ".droop"), *c.droop);
-      if (c.deadband_hz) ck.non_negative(at(p, ".deadband_hz"), *c.deadband_hz);
+      if (c.droop) ck.positive_at_most(at(p, ".droop"), *c.droop, bound::kDroopPu, " pu");
+      if (c.deadband_hz) ck.non_negative_at_most(at(p, ".deadband_hz"), *c.deadband_hz, bound::kDeadbandHz, " Hz");
       if (!c.droop && !c.deadband_hz && !c.deadband && !c.mode)
         ck.error(p, "a governor command needs at least one of droop, deadband_hz, deadband, mode");
       break;
@@ -233,9 +285,10 @@ void check_command(Checker& ck, const SystemDef& def, const Command& c, const st
       ref(areas, "area", c.area, "area");
       break;
     case CommandKind::fluctuation:
-      ref(areas, "area", c.area, "area");
+      if (const std::size_t* ai = ref(areas, "area", c.area, "area"); ai && c.sigma_mw > 0.0)
+        area_load(ai, "sigma_mw", c.sigma_mw, true);
       ck.non_negative(at(p, ".sigma_mw"), c.sigma_mw);
-      ck.positive(at(p, ".tau_s"), c.tau_s);
+      ck.positive_at_most(at(p, ".tau_s"), c.tau_s, bound::kTimeS, " s");
       break;
   }
 }
@@ -481,19 +534,19 @@ std::vector<Issue> validate_command(const SystemDef& def, const Command& command
   for (std::size_t i = 0; i < def.areas.size(); ++i) areas.emplace(def.areas[i].id, i);
   for (std::size_t i = 0; i < def.units.size(); ++i) units.emplace(def.units[i].id, i);
   for (std::size_t i = 0; i < def.ties.size(); ++i) ties.emplace(def.ties[i].id, i);
-  check_command(ck, def, command, path, areas, units, ties);
+  check_command(ck, def, command, path, areas, units, ties, area_sizes(def, areas));
   return out;
 }
 
 std::vector<Issue> validate(const SystemDef& def) {
   std::vector<Issue> out;
   Checker ck(out);
-  ck.positive("nominal_hz", def.nominal_hz);
+  ck.positive_at_most("nominal_hz", def.nominal_hz, bound::kNominalHz, " Hz");
   if (def.nominal_hz > 0.0 && def.nominal_hz != 50.0 && def.nominal_hz != 60.0)
     ck.warn("nominal_hz", "usually 50 or 60, got " + fmt_num(def.nominal_hz));
-  ck.positive("step_s", def.step_s);
-  ck.positive("duration_s", def.duration_s);
-  ck.positive("output_every_s", def.output_every_s);
+  ck.positive_at_most("step_s", def.step_s, bound::kStepS, " s");
+  ck.positive_at_most("duration_s", def.duration_s, bound::kDurationS, " s");
+  ck.positive_at_most("output_every_s", def.output_every_s, bound::kTimeS, " s");
   if (def.step_s > 0.0 && def.duration_s > 0.0 && def.duration_s / def.step_s > 1e10)
     ck.error("duration_s", "needs more than 1e10 steps of " + fmt_num(def.step_s) + " s");
   if (def.step_s > 0.0 && def.output_every_s > 0.0) {
@@ -514,15 +567,15 @@ std::vector<Issue> validate(const SystemDef& def) {
   for (std::size_t i = 0; i < def.areas.size(); ++i) {
     const AreaDef& a = def.areas[i];
     const std::string p = "areas[" + std::to_string(i) + "]";
-    ck.non_negative(at(p, ".demand_mw"), a.demand_mw);
-    ck.non_negative(at(p, ".load_damping"), a.load_damping);
+    ck.non_negative_at_most(at(p, ".demand_mw"), a.demand_mw, bound::kPowerMw, " MW");
+    ck.non_negative_at_most(at(p, ".load_damping"), a.load_damping, bound::kGainPerPu, "");
     if (a.load_damping > 3.0)
       ck.warn(at(p, ".load_damping"),
               fmt_num(a.load_damping) + " is outside the typical range 0-3 of load damping");
-    if (a.agc.bias_mw_per_hz) ck.positive(at(p, ".agc.bias_mw_per_hz"), *a.agc.bias_mw_per_hz);
-    ck.non_negative(at(p, ".agc.kp"), a.agc.kp);
-    ck.non_negative(at(p, ".agc.ki_per_s"), a.agc.ki_per_s);
-    ck.non_negative(at(p, ".agc.period_s"), a.agc.period_s);
+    if (a.agc.bias_mw_per_hz) ck.positive_at_most(at(p, ".agc.bias_mw_per_hz"), *a.agc.bias_mw_per_hz, bound::kMwPerHz, " MW/Hz");
+    ck.non_negative_at_most(at(p, ".agc.kp"), a.agc.kp, bound::kGainPerPu, "");
+    ck.non_negative_at_most(at(p, ".agc.ki_per_s"), a.agc.ki_per_s, bound::kGainPerPu, " /s");
+    ck.non_negative_at_most(at(p, ".agc.period_s"), a.agc.period_s, bound::kTimeS, " s");
     double shed_total = 0.0;
     for (std::size_t s = 0; s < a.shedding.size(); ++s) {
       const SheddingStageDef& st = a.shedding[s];
@@ -530,7 +583,7 @@ std::vector<Issue> validate(const SystemDef& def) {
       if (!(st.below_hz > 0.0 && st.below_hz < def.nominal_hz))
         ck.error(at(sp, ".below_hz"), "must lie between 0 and nominal_hz (" +
                                        fmt_num(def.nominal_hz) + "), got " + fmt_num(st.below_hz));
-      ck.non_negative(at(sp, ".delay_s"), st.delay_s);
+      ck.non_negative_at_most(at(sp, ".delay_s"), st.delay_s, bound::kTimeS, " s");
       if (!(st.shed_pct > 0.0 && st.shed_pct <= 100.0))
         ck.error(at(sp, ".shed_pct"), "must lie within (0, 100], got " + fmt_num(st.shed_pct));
       else
@@ -548,8 +601,8 @@ std::vector<Issue> validate(const SystemDef& def) {
     if (!areas.count(t.to)) ck.error(at(p, ".to"), "unknown area \"" + t.to + "\"");
     if (t.from == t.to && areas.count(t.from))
       ck.error(at(p, ".to"), "must differ from \"from\" (\"" + t.from + "\")");
-    ck.positive(at(p, ".pmax_mw"), t.pmax_mw);
-    ck.non_negative(at(p, ".damping_mw_per_hz"), t.damping_mw_per_hz);
+    ck.positive_at_most(at(p, ".pmax_mw"), t.pmax_mw, bound::kPowerMw, " MW");
+    ck.non_negative_at_most(at(p, ".damping_mw_per_hz"), t.damping_mw_per_hz, bound::kMwPerHz, " MW/Hz");
     if (t.trip_angle_deg && !(*t.trip_angle_deg > 0.0 && *t.trip_angle_deg <= 3600.0))
       ck.error(at(p, ".trip_angle_deg"), "must lie within (0, 3600], got " + fmt_num(*t.trip_angle_deg));
   }
@@ -560,20 +613,23 @@ std::vector<Issue> validate(const SystemDef& def) {
     const bool battery = u.turbine.type == TurbineType::battery;
     auto area = areas.find(u.area);
     if (area == areas.end()) ck.error(at(p, ".area"), "unknown area \"" + u.area + "\"");
-    ck.positive(at(p, ".rating_mw"), u.rating_mw);
+    ck.positive_at_most(at(p, ".rating_mw"), u.rating_mw, bound::kPowerMw, " MW");
     if (battery) {
       if (u.inertia_s != 0.0)
         ck.error(at(p, ".inertia_s"), "a battery has no physical inertia, got " +
                                        fmt_num(u.inertia_s) + " (use turbine.synthetic_inertia_s)");
     } else {
-      ck.non_negative(at(p, ".inertia_s"), u.inertia_s);
+      ck.non_negative_at_most(at(p, ".inertia_s"), u.inertia_s, bound::kInertiaS, " s");
       if (u.inertia_s == 0.0)
         ck.warn(at(p, ".inertia_s"), "0 s: this synchronous unit adds no inertia");
       else
         ck.typical(at(p, ".inertia_s"), u.inertia_s, 2.0, 10.0, "inertia constant H (s)");
     }
     const double lo = unit_min_mw(u), hi = unit_max_mw(u);
-    if (u.max_mw) ck.positive(at(p, ".max_mw"), *u.max_mw);
+    if (u.max_mw) ck.positive_at_most(at(p, ".max_mw"), *u.max_mw, bound::kPowerMw, " MW");
+    if (u.min_mw && !(*u.min_mw >= -bound::kPowerMw))
+      ck.error(at(p, ".min_mw"), "must be at least " + fmt_num(-bound::kPowerMw) +
+                                     " MW (beyond what a real system can have), got " + fmt_num(*u.min_mw));
     if (u.max_mw && u.rating_mw > 0.0 && *u.max_mw > u.rating_mw)
       ck.warn(at(p, ".max_mw"), fmt_num(*u.max_mw) + " MW is above the rating " +
                                  fmt_num(u.rating_mw) + " MW");
@@ -584,8 +640,8 @@ std::vector<Issue> validate(const SystemDef& def) {
     else if (!(u.setpoint_mw >= lo && u.setpoint_mw <= hi))
       ck.error(at(p, ".setpoint_mw"), "must lie within [min_mw, max_mw] = [" + fmt_num(lo) + ", " +
                                        fmt_num(hi) + "], got " + fmt_num(u.setpoint_mw));
-    if (u.ramp_mw_per_s) ck.positive(at(p, ".ramp_mw_per_s"), *u.ramp_mw_per_s);
-    ck.non_negative(at(p, ".agc_share"), u.agc_share);
+    if (u.ramp_mw_per_s) ck.positive_at_most(at(p, ".ramp_mw_per_s"), *u.ramp_mw_per_s, bound::kRampMwPerS, " MW/s");
+    ck.non_negative_at_most(at(p, ".agc_share"), u.agc_share, bound::kPowerMw, "");
     check_governor(ck, p + ".governor", u.governor, battery);
     if (!battery && u.governor.lag_s > 0.0)
       tcs.push_back({u.governor.lag_s, p + ".governor.lag_s"});
@@ -601,13 +657,14 @@ std::vector<Issue> validate(const SystemDef& def) {
                "area \"" + def.areas[i].id +
                    "\" has no inertia: no online synchronous unit with inertia_s > 0");
 
+  const std::vector<double> sizes = area_sizes(def, areas);
   for (std::size_t i = 0; i < def.events.size(); ++i) {
     const EventDef& e = def.events[i];
     const std::string p = "events[" + std::to_string(i) + "]";
     if (!(e.at_s >= 0.0 && e.at_s <= def.duration_s))
       ck.error(at(p, ".at_s"), "must lie within [0, duration_s] = [0, " + fmt_num(def.duration_s) +
                                 "], got " + fmt_num(e.at_s));
-    check_command(ck, def, e.command, p, areas, units, ties);
+    check_command(ck, def, e.command, p, areas, units, ties, sizes);
   }
 
   // The governors act on frequency through the area's inertia: M/beta (s) is how fast that loop

@@ -389,7 +389,7 @@ BAD = [
     ("GET", "/api/v1/history?format=xml", None, None, 400, "format: must be json or csv"),
     ("GET", "/api/v1/nothing", None, None, 404, "no API endpoint /api/v1/nothing"),
     ("DELETE", "/api/v1/state", None, None, 405, "method not allowed; use GET"),
-    ("POST", "/api/v1/replays", '{"duration_s": 5e7, "areas": [{"id": "a", "demand_mw": 10}], "units": [{"id": "g", "area": "a", "rating_mw": 20, "inertia_s": 5, "setpoint_mw": 10, "turbine": {"type": "steam"}}]}', None, 413, "replay too large"),
+    ("POST", "/api/v1/replays", '{"duration_s": 5e6, "step_s": 0.001, "areas": [{"id": "a", "demand_mw": 10}], "units": [{"id": "g", "area": "a", "rating_mw": 20, "inertia_s": 5, "setpoint_mw": 10, "turbine": {"type": "steam"}}]}', None, 413, "replay too large"),
     ("POST", "/api/v1/replays", "[1,2", None, 400, "syntax error"),
     ("GET", "/api/v1/stream", None, None, 426, "is a WebSocket"),
 ]

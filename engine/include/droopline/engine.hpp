@@ -136,6 +136,9 @@ class Engine {
   ~Engine();
   Engine(const Engine&) = delete;
   Engine& operator=(const Engine&) = delete;
+  /// An independent copy at the same step (a checkpoint): stepping either leaves the other as it
+  /// was. The task runner, if any, is shared.
+  std::unique_ptr<Engine> clone() const;
 
   /// Lets large fleets (4096 units and more) spread each stage over `runner` (null: one thread).
   /// Results are bit-identical either way. The runner must outlive its use by this engine.
@@ -189,6 +192,12 @@ class Engine {
   std::vector<double> state() const;
   /// Names of state(), e.g. `oskany.df_hz`, `oskany.angle_rad`, `V1.valve`, `H1.gate`.
   std::vector<std::string> state_names() const;
+  /// Replaces the integrated state (same layout as state()); throws std::invalid_argument on a
+  /// wrong size. Everything discrete (time, loads, trips, metrics) stays as it is.
+  void set_state(std::span<const double> x);
+  /// True when every integrated state and every output (unit powers, tie flows) is a finite
+  /// number: the check a live session makes after each step.
+  bool finite() const;
   /// One integration step from state `x` into `next` with the loads held as they are now and
   /// nothing discrete run (no events, protection, shedding, secondary control, ramps or metrics);
   /// the engine's own state and time are left as they were.

@@ -9,6 +9,7 @@
 #include <nlohmann/json.hpp>
 
 #include "droopline/format.hpp"
+#include "droopline/json_input.hpp"
 
 namespace droopline {
 namespace {
@@ -361,100 +362,6 @@ SystemDef read_system(Reader& r, const ijson& j) {
   return d;
 }
 
-// Builds the document as ijson::parse does, through the SAX interface, and notes every key that
-// repeats within one object (the JSON standard leaves duplicates undefined; a scenario file
-// with one is an error, not a silent last-one-wins).
-class DomBuilder {
- public:
-  ijson root;
-  std::vector<std::string> dups;
-  std::size_t error_byte = 0;
-  std::string error_text;
-
-  bool null() { return put(ijson(nullptr)); }
-  bool boolean(bool v) { return put(ijson(v)); }
-  bool number_integer(ijson::number_integer_t v) { return put(ijson(v)); }
-  bool number_unsigned(ijson::number_unsigned_t v) { return put(ijson(v)); }
-  bool number_float(ijson::number_float_t v, const std::string&) { return put(ijson(v)); }
-  bool string(std::string& v) { return put(ijson(std::move(v))); }
-  bool binary(ijson::binary_t& v) { return put(ijson(std::move(v))); }
-  bool start_object(std::size_t) { return open(ijson::object()); }
-  bool start_array(std::size_t) { return open(ijson::array()); }
-  bool end_object() { return close(); }
-  bool end_array() { return close(); }
-  bool key(std::string& k) {
-    if (stack_.back()->contains(k)) dups.push_back(k);
-    key_ = std::move(k);
-    return true;
-  }
-  bool parse_error(std::size_t byte, const std::string&, const nlohmann::detail::exception& e) {
-    error_byte = byte;
-    error_text = e.what();
-    return false;
-  }
-
- private:
-  ijson* insert(ijson&& v) {
-    if (stack_.empty()) {
-      root = std::move(v);
-      return &root;
-    }
-    ijson& top = *stack_.back();
-    if (top.is_array()) {
-      top.get_ref<ijson::array_t&>().push_back(std::move(v));
-      return &top.get_ref<ijson::array_t&>().back();
-    }
-    auto& obj = top.get_ref<ijson::object_t&>();
-    // A repeated key (reported as an error) takes the new value, so a container opened under it
-    // is the one that receives its members. The element stays put while it is open: its parent
-    // gets no new key until it is closed.
-    auto [it, fresh] = obj.emplace(key_, ijson());
-    it->second = std::move(v);
-    return &it->second;
-  }
-  bool put(ijson&& v) {
-    insert(std::move(v));
-    return true;
-  }
-  bool open(ijson&& v) {
-    stack_.push_back(insert(std::move(v)));  // an open container gets no sibling until closed
-    return true;
-  }
-  bool close() {
-    stack_.pop_back();
-    return true;
-  }
-
-  std::vector<ijson*> stack_;
-  std::string key_;
-};
-
-std::optional<ijson> parse_json(std::string_view text, std::vector<Issue>& issues) {
-  DomBuilder dom;
-  if (!ijson::sax_parse(text.begin(), text.end(), &dom)) {
-    // Convert the byte offset to line and column.
-    std::size_t line = 1, col = 1;
-    const std::size_t end = std::min<std::size_t>(dom.error_byte > 0 ? dom.error_byte - 1 : 0, text.size());
-    for (std::size_t i = 0; i < end; ++i) {
-      if (text[i] == '\n') {
-        ++line;
-        col = 1;
-      } else {
-        ++col;
-      }
-    }
-    std::string what = dom.error_text;
-    if (auto pos = what.find("syntax error"); pos != std::string::npos) what = what.substr(pos);
-    issues.push_back({"json", "line " + std::to_string(line) + ", column " + std::to_string(col) +
-                                  ": " + what,
-                      false});
-    return std::nullopt;
-  }
-  for (const std::string& k : dom.dups) issues.push_back({"json", "duplicate key \"" + k + "\"", false});
-  if (!dom.dups.empty()) return std::nullopt;
-  return std::move(dom.root);
-}
-
 json opt(const std::optional<double>& v) { return v ? json(*v) : json(nullptr); }
 
 // Appends a member whose key is known to be new (validated unique ids): operator[] on an ordered
@@ -467,7 +374,7 @@ void append_member(json& obj, const std::string& key, json value) {
 
 LoadResult parse_scenario(std::string_view json_text) {
   LoadResult out;
-  auto j = parse_json(json_text, out.issues);
+  auto j = parse_untrusted_json(json_text, out.issues);
   if (!j) return out;
   Reader r(out.issues);
   SystemDef def = read_system(r, *j);
@@ -495,7 +402,7 @@ LoadResult load_scenario_file(const std::string& path) {
 
 CommandParse parse_commands(std::string_view json_text) {
   CommandParse out;
-  auto j = parse_json(json_text, out.issues);
+  auto j = parse_untrusted_json(json_text, out.issues);
   if (!j) return out;
   Reader r(out.issues);
   if (j->is_array()) {

@@ -6,6 +6,7 @@
 
 #include "droopline/engine.hpp"
 #include "droopline/format.hpp"
+#include "droopline/json_input.hpp"
 
 namespace droopline::study {
 namespace {
@@ -28,9 +29,11 @@ constexpr LimitKind kLimits[] = {
 }  // namespace
 
 std::optional<Requirements> parse_requirements(std::string_view text, std::vector<Issue>& issues) {
-  const json j = json::parse(text, nullptr, false);
-  if (j.is_discarded() || !j.is_object()) {
-    issues.push_back({"", "not a JSON object", false});
+  const auto parsed = parse_untrusted_json(text, issues);
+  if (!parsed) return std::nullopt;
+  const json& j = *parsed;
+  if (!j.is_object()) {
+    issues.push_back({"", "must be a JSON object with name, limits and unit_response", false});
     return std::nullopt;
   }
   Requirements r;
@@ -38,7 +41,12 @@ std::optional<Requirements> parse_requirements(std::string_view text, std::vecto
   for (auto it = j.begin(); it != j.end(); ++it)
     if (it.key() != "name" && it.key() != "note" && it.key() != "limits" && it.key() != "unit_response")
       err(it.key(), "unknown field (expected name, note, limits, unit_response)");
-  r.name = j.value("name", std::string("requirements"));
+  r.name = "requirements";
+  if (j.contains("name")) {
+    if (j["name"].is_string()) r.name = j["name"].get<std::string>();
+    else err("name", "must be a string");
+  }
+  if (j.contains("note") && !j["note"].is_string()) err("note", "must be a string");
   auto number = [&](const json& o, const std::string& key, const std::string& path, double& out, double lo, double hi) {
     if (!o.contains(key)) return err(path + "." + key, "required");
     if (!o[key].is_number()) return err(path + "." + key, "must be a number");

@@ -1,0 +1,155 @@
+#include "droopline/json_input.hpp"
+
+#include <string>
+
+namespace droopline {
+namespace {
+
+using json = nlohmann::ordered_json;
+
+// Builds the document as json::parse does, through the SAX interface (iterative: no recursion
+// on the input's nesting), refusing to open a container past the depth limit and noting every
+// key that repeats within one object (the JSON standard leaves duplicates undefined).
+class DomBuilder {
+ public:
+  explicit DomBuilder(std::size_t max_depth) : max_depth_(max_depth) {}
+
+  json root;
+  std::vector<std::string> dups;
+  std::size_t error_byte = 0;
+  std::string error_text;
+  bool too_deep = false;
+
+  bool null() { return put(json(nullptr)); }
+  bool boolean(bool v) { return put(json(v)); }
+  bool number_integer(json::number_integer_t v) { return put(json(v)); }
+  bool number_unsigned(json::number_unsigned_t v) { return put(json(v)); }
+  bool number_float(json::number_float_t v, const std::string&) { return put(json(v)); }
+  bool string(std::string& v) { return put(json(std::move(v))); }
+  bool binary(json::binary_t& v) { return put(json(std::move(v))); }
+  bool start_object(std::size_t) { return open(json::object()); }
+  bool start_array(std::size_t) { return open(json::array()); }
+  bool end_object() { return close(); }
+  bool end_array() { return close(); }
+  bool key(std::string& k) {
+    if (stack_.back()->contains(k)) dups.push_back(k);
+    key_ = std::move(k);
+    return true;
+  }
+  bool parse_error(std::size_t byte, const std::string&, const nlohmann::detail::exception& e) {
+    error_byte = byte;
+    error_text = e.what();
+    return false;
+  }
+
+ private:
+  json* insert(json&& v) {
+    if (stack_.empty()) {
+      root = std::move(v);
+      return &root;
+    }
+    json& top = *stack_.back();
+    if (top.is_array()) {
+      top.get_ref<json::array_t&>().push_back(std::move(v));
+      return &top.get_ref<json::array_t&>().back();
+    }
+    auto& obj = top.get_ref<json::object_t&>();
+    // A repeated key (reported as an error) takes the new value, so a container opened under it
+    // is the one that receives its members. The element stays put while it is open: its parent
+    // gets no new key until it is closed.
+    auto [it, fresh] = obj.emplace(key_, json());
+    it->second = std::move(v);
+    return &it->second;
+  }
+  bool put(json&& v) {
+    insert(std::move(v));
+    return true;
+  }
+  bool open(json&& v) {
+    if (stack_.size() >= max_depth_) {
+      too_deep = true;
+      return false;
+    }
+    stack_.push_back(insert(std::move(v)));  // an open container gets no sibling until closed
+    return true;
+  }
+  bool close() {
+    stack_.pop_back();
+    return true;
+  }
+
+  std::size_t max_depth_;
+  std::vector<json*> stack_;
+  std::string key_;
+};
+
+// Byte offset of the bracket that opens level max_depth + 1 (outside strings), or the end.
+std::size_t too_deep_at(std::string_view text, std::size_t max_depth) {
+  std::size_t depth = 0;
+  bool in_string = false, escaped = false;
+  for (std::size_t i = 0; i < text.size(); ++i) {
+    const char c = text[i];
+    if (in_string) {
+      if (escaped) escaped = false;
+      else if (c == '\\') escaped = true;
+      else if (c == '"') in_string = false;
+    } else if (c == '"') {
+      in_string = true;
+    } else if (c == '{' || c == '[') {
+      if (++depth > max_depth) return i;
+    } else if ((c == '}' || c == ']') && depth > 0) {
+      --depth;
+    }
+  }
+  return text.size();
+}
+
+std::string line_column(std::string_view text, std::size_t offset) {
+  std::size_t line = 1, col = 1;
+  for (std::size_t i = 0; i < offset && i < text.size(); ++i) {
+    if (text[i] == '\n') {
+      ++line;
+      col = 1;
+    } else {
+      ++col;
+    }
+  }
+  return "line " + std::to_string(line) + ", column " + std::to_string(col);
+}
+
+}  // namespace
+
+std::optional<json> parse_untrusted_json(std::string_view text, std::vector<Issue>& issues, const JsonLimits& limits) {
+  if (text.size() > limits.max_bytes) {
+    issues.push_back({"json", "text of " + std::to_string(text.size()) + " bytes is longer than the limit of " +
+                                  std::to_string(limits.max_bytes) + " bytes",
+                      false});
+    return std::nullopt;
+  }
+  DomBuilder dom(limits.max_depth);
+  if (!json::sax_parse(text.begin(), text.end(), &dom)) {
+    if (dom.too_deep) {
+      issues.push_back({"json", line_column(text, too_deep_at(text, limits.max_depth)) +
+                                    ": nested deeper than " + std::to_string(limits.max_depth) +
+                                    " levels of objects and arrays",
+                        false});
+      return std::nullopt;
+    }
+    std::string what = dom.error_text;
+    if (auto pos = what.find("syntax error"); pos != std::string::npos) what = what.substr(pos);
+    issues.push_back({"json", line_column(text, dom.error_byte > 0 ? dom.error_byte - 1 : 0) + ": " + what, false});
+    return std::nullopt;
+  }
+  for (const std::string& k : dom.dups) issues.push_back({"json", "duplicate key \"" + k + "\"", false});
+  if (!dom.dups.empty()) return std::nullopt;
+  return std::move(dom.root);
+}
+
+std::optional<json> parse_untrusted_json(std::string_view text, std::string& error, const JsonLimits& limits) {
+  std::vector<Issue> issues;
+  auto j = parse_untrusted_json(text, issues, limits);
+  if (!j) error = issues.front().text();
+  return j;
+}
+
+}  // namespace droopline

@@ -1,0 +1,163 @@
+// The live session's last line of defence: a state that stops being finite is never streamed.
+// The session goes back to its last good checkpoint, pauses, refuses commands and resume, tells
+// every client why, and comes back clean on a reset. Also: the event log keeps one entry per
+// disturbance with its latest state, and a reset empties it.
+#include <chrono>
+#include <cmath>
+#include <condition_variable>
+#include <future>
+#include <limits>
+#include <map>
+#include <mutex>
+#include <thread>
+
+#include <nlohmann/json.hpp>
+
+#include "droopline/scenario_io.hpp"
+#include "live_session.hpp"
+#include "support.hpp"
+
+using namespace droopline;
+using json = nlohmann::json;
+
+namespace {
+
+// Every message the session sends, collected for the test thread.
+struct Inbox {
+  std::mutex m;
+  std::condition_variable cv;
+  std::vector<json> messages;
+  void put(const Outgoing& o) {
+    std::lock_guard lock(m);
+    messages.push_back(json::parse(*o.text));
+    cv.notify_all();
+  }
+  template <class Pred>
+  std::optional<json> wait_for(Pred pred, std::chrono::seconds limit = std::chrono::seconds(10)) {
+    std::unique_lock lock(m);
+    std::optional<json> found;
+    cv.wait_for(lock, limit, [&] {
+      for (const json& j : messages)
+        if (pred(j)) {
+          found = j;
+          return true;
+        }
+      return false;
+    });
+    return found;
+  }
+};
+
+SystemDef demo() {
+  LoadResult r = load_scenario_file(std::string(DROOPLINE_SOURCE_DIR) + "/scenarios/demo_three_areas.json");
+  REQUIRE(r.def);
+  return *r.def;
+}
+
+template <class T>
+T on_loop(LiveSession& s, std::function<T(Engine&)> fn) {
+  std::promise<T> p;
+  s.post([&](Engine& e) { p.set_value(fn(e)); });
+  return p.get_future().get();
+}
+
+LiveSession::Reply call(std::function<void(LiveSession::Done)> fn) {
+  std::promise<LiveSession::Reply> p;
+  fn([&](LiveSession::Reply r) { p.set_value(std::move(r)); });
+  return p.get_future().get();
+}
+
+}  // namespace
+
+TEST_CASE("a non-finite state is never streamed: the session keeps the last good state and pauses") {
+  Inbox inbox;
+  LiveConfig cfg;
+  cfg.speed = 20.0;
+  LiveSession s(demo(), cfg, [&](const Outgoing& o) { inbox.put(o); });
+  // Let it run past a checkpoint (one simulated second), then poison the state between two steps.
+  REQUIRE(inbox.wait_for([](const json& j) { return j["type"] == "frame" && j["t_s"].get<double>() > 2.5; }));
+  const double poisoned_at = on_loop<double>(s, [](Engine& e) {
+    std::vector<double> x = e.state();
+    x[0] = std::numeric_limits<double>::quiet_NaN();
+    e.set_state(x);
+    return e.time_s();
+  });
+  auto halted = inbox.wait_for([](const json& j) { return j.value("kind", "") == "halted"; });
+  REQUIRE(halted);
+  const std::string why = (*halted)["text"];
+  CHECK(why.find("stopped being a finite number") != std::string::npos);
+  CHECK(why.find("the instructor can reset it") != std::string::npos);
+  CHECK(s.paused());
+  // The state kept is a real one from before the poison, at most a second back.
+  const auto [t, finite] = on_loop<std::pair<double, bool>>(s, [](Engine& e) { return std::pair{e.time_s(), e.finite()}; });
+  CHECK(finite);
+  CHECK(t <= poisoned_at);
+  CHECK(t >= poisoned_at - 1.0 - 1e-9);
+  // No frame after the halt carries a non-finite number (JSON has none: it would be null).
+  {
+    std::lock_guard lock(inbox.m);
+    for (const json& j : inbox.messages)
+      if (j["type"] == "frame")
+        for (auto& [id, a] : j["areas"].items()) CHECK(a["f_hz"].is_number());
+  }
+  // Commands and resume are refused with the reason; a reset brings it back.
+  Command step;
+  step.kind = CommandKind::load_step;
+  step.area = "oskany";
+  step.mw = 10;
+  const LiveSession::Reply refused = call([&](auto done) { s.apply({step}, done); });
+  CHECK(refused.status == 409);
+  CHECK(refused.body.find("stopped being a finite number") != std::string::npos);
+  CHECK(call([&](auto done) { s.resume(done); }).status == 409);
+  CHECK(call([&](auto done) { s.reset(done); }).status == 200);
+  CHECK(call([&](auto done) { s.resume(done); }).status == 200);
+  CHECK(call([&](auto done) { s.apply({step}, done); }).status == 200);
+  // The reset started a clean log: the halt is gone from what a new client is greeted with.
+  std::promise<std::shared_ptr<const HelloSnapshot>> hp;
+  s.hello([&](auto snap) { hp.set_value(std::move(snap)); });
+  const auto snap = hp.get_future().get();
+  for (const std::string& e : snap->events) CHECK(e.find("halted") == std::string::npos);
+  s.stop();
+}
+
+TEST_CASE("the event log keeps each disturbance once, in its latest state") {
+  Inbox inbox;
+  LiveConfig cfg;
+  cfg.speed = 10.0;
+  LiveSession s(demo(), cfg, [&](const Outgoing& o) { inbox.put(o); });
+  Command step;
+  step.kind = CommandKind::load_step;
+  step.area = "oskany";
+  step.mw = 60;
+  REQUIRE(call([&](auto done) { s.apply({step}, done); }).status == 200);
+  // Wait until the open disturbance has been updated a few times (its nadir has moved).
+  REQUIRE(inbox.wait_for([](const json& j) { return j["type"] == "disturbance" && j["seq"].get<int>() > 8; }));
+  std::this_thread::sleep_for(std::chrono::milliseconds(1500));
+  const json log = json::parse(s.events(0))["events"];
+  std::map<int, int> entries;  // per disturbance index
+  std::map<int, int> latest_seq_sent;
+  {
+    std::lock_guard lock(inbox.m);
+    for (const json& j : inbox.messages)
+      if (j["type"] == "disturbance") latest_seq_sent[j["index"].get<int>()] = j["seq"].get<int>();
+  }
+  for (const json& e : log)
+    if (e["type"] == "disturbance") {
+      const int index = e["index"];
+      ++entries[index];
+      CHECK(e["seq"].get<int>() >= latest_seq_sent[index]);  // nothing newer was sent
+      CHECK(e["nadir_hz"].is_number());
+      CHECK(e["nadir_hz"].get<double>() != e["pre_hz"].get<double>());  // not the state at its start
+    }
+  REQUIRE_FALSE(entries.empty());
+  for (const auto& [index, n] : entries) CHECK(n == 1);
+  // events(since) hands out only what changed after `since`.
+  const int last = log.back()["seq"];
+  CHECK(json::parse(s.events(static_cast<std::uint64_t>(last)))["events"].size() <= 2);
+  // A reset empties the log, then logs itself.
+  REQUIRE(call([&](auto done) { s.reset(done); }).status == 200);
+  const json after = json::parse(s.events(0))["events"];
+  REQUIRE(after.size() == 1);
+  CHECK(after[0]["kind"] == "reset");
+  s.stop();
+}
