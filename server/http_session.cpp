@@ -22,6 +22,7 @@ using json = nlohmann::ordered_json;
 
 constexpr auto kHeaderTimeout = std::chrono::seconds(10);  // slow-loris guard per request
 constexpr std::size_t kHeaderLimit = 16 * 1024;
+constexpr double kMaxSweepMembers = 100000;  // runs in one sweep job
 // Why a route needs the instructor token, in words a trainee can act on.
 constexpr const char* kChanges = "only the instructor can change the simulation";
 constexpr const char* kSweeps = "sweeps are for the instructor (a sweep job runs on the server's spare cores)";
@@ -425,6 +426,9 @@ void HttpSession::handle(Request&& req) {
       if (!j.is_object()) return reply(400, error_json("body must be a JSON object with \"vary\": [\"PATH=VALUES\", ...]"));
       study::SweepSpec spec;
       std::vector<std::string> problems;
+      for (auto it = j.begin(); it != j.end(); ++it)
+        if (it.key() != "scenario" && it.key() != "vary" && it.key() != "sample" && it.key() != "seed" && it.key() != "metric")
+          problems.push_back(quote_cut(it.key()) + ": unknown field (expected scenario, vary, sample, seed, metric)");
       if (!j.contains("vary") || !j["vary"].is_array() || j["vary"].empty()) problems.push_back("vary: required, a list of \"PATH=VALUES\"");
       else
         for (const auto& v : j["vary"]) {
@@ -441,9 +445,22 @@ void HttpSession::handle(Request&& req) {
         if (!j["seed"].is_number_unsigned()) problems.push_back("seed: must be a whole number >= 0");
         else spec.seed = j["seed"].get<std::uint64_t>();
       }
-      const std::string metric = j.contains("metric") && j["metric"].is_string() ? j["metric"].get<std::string>() : "nadir_hz";
-      const auto& names = study::metric_names();
-      if (std::find(names.begin(), names.end(), metric) == names.end()) problems.push_back("metric: unknown metric \"" + metric + "\"");
+      std::string metric = "nadir_hz";
+      if (j.contains("metric")) {
+        const auto& names = study::metric_names();
+        if (!j["metric"].is_string()) problems.push_back("metric: must be a string, the name of a metric");
+        else if (metric = j["metric"].get<std::string>(); std::find(names.begin(), names.end(), metric) == names.end())
+          problems.push_back("metric: unknown metric " + quote_cut(metric));
+      }
+      if (j.contains("scenario") && !j["scenario"].is_object()) problems.push_back("scenario: must be an object (a scenario)");
+      if (problems.empty()) {  // members bounded: each one is a whole run
+        double members = 1;
+        for (const auto& v : spec.vary) members *= static_cast<double>(v.values.size());
+        if (spec.sample) members = std::min(members, static_cast<double>(*spec.sample));
+        if (members > kMaxSweepMembers)
+          problems.push_back("the sweep has " + fmt_num(members) + " members, at most " + fmt_num(kMaxSweepMembers) +
+                             " over HTTP: use sample, or `droopline sweep` on the command line");
+      }
       if (!problems.empty()) return reply(400, error_json("sweep refused", problems));
       spec.threads = std::max(1u, std::thread::hardware_concurrency() - 1);  // one core left to the loop
       auto done = later(req);
@@ -470,7 +487,7 @@ void HttpSession::handle(Request&& req) {
       const bool result = id.size() > 7 && id.compare(id.size() - 7, 7, "/result") == 0;
       if (result) id.resize(id.size() - 7);
       auto job = ctx_.sweeps.find(id);
-      if (!job) return reply(404, error_json("no sweep job \"" + id + "\" (finished jobs are kept until 16 newer ones)"));
+      if (!job) return reply(404, error_json("no sweep job " + quote_cut(id) + " (finished jobs are kept until 16 newer ones)"));
       if (!result && method == http::verb::delete_) {
         if (!authorized(kSweeps)) return;
         job->cancel = true;

@@ -35,13 +35,18 @@ std::shared_ptr<SweepJobs::Job> SweepJobs::submit(study::SweepSpec spec, std::st
   job->metric = std::move(metric);
   job->thread = std::jthread([j = job.get()] {
     std::string err;
-    const study::SweepResult r = study::run_sweep(
-        j->spec, err,
-        [j](std::uint64_t done, std::uint64_t total) {
-          j->done = done;
-          j->total = total;
-        },
-        &j->cancel);
+    study::SweepResult r;
+    try {
+      r = study::run_sweep(
+          j->spec, err,
+          [j](std::uint64_t done, std::uint64_t total) {
+            j->done = done;
+            j->total = total;
+          },
+          &j->cancel);
+    } catch (const std::exception& e) {  // out of memory, say: the job fails, the server goes on
+      err = std::string("the sweep could not be run: ") + e.what();
+    }
     if (!err.empty()) {
       j->status = "failed";
       j->error = err;
