@@ -1,4 +1,5 @@
 // droopline: command-line entry point.
+#include <algorithm>
 #include <chrono>
 #include <cstdio>
 #include <cstring>
@@ -15,14 +16,21 @@
 
 namespace {
 
-constexpr const char* kUsage = R"(droopline - governor and droop sharing simulator (training and study tool)
+// One usage text per subcommand, kept here only: `droopline --help` prints them all,
+// `droopline SUB --help` (or -h) and a usage error of SUB print SUB's own.
+struct Subcommand {
+  const char* name;
+  const char* usage;  ///< its usage lines, each option with its meaning
+};
 
-usage:
-  droopline check FILE             validate a scenario (exit 0 valid, 2 invalid)
-  droopline run FILE --out DIR     simulate to the end; write DIR/series.csv, DIR/summary.json
+constexpr Subcommand kSubcommands[] = {
+    {"check", R"(  droopline check FILE             validate a scenario (exit 0 valid, 2 invalid)
+)"},
+    {"run", R"(  droopline run FILE --out DIR     simulate to the end; write DIR/series.csv, DIR/summary.json
         [--quiet]                  print nothing but errors
         [--threads N]              worker threads for fleets of 4096+ units (default: one per core)
-  droopline serve --scenario FILE  run the scenario in real time behind HTTP and WebSocket
+)"},
+    {"serve", R"(  droopline serve --scenario FILE  run the scenario in real time behind HTTP and WebSocket
         [--listen HOST:PORT]       default 127.0.0.1:8080; 0.0.0.0:PORT for a LAN
         [--token-file FILE]        instructor token (else $DROOPLINE_TOKEN, else generated)
         [--journal FILE]           append every accepted command to FILE (JSON lines)
@@ -33,36 +41,76 @@ usage:
         [--allow-origin URL]       also accept WebSocket upgrades from this Origin (repeatable)
         [--max-connections N]      default 256
         [--log-level LEVEL]        trace, debug, info (default), warn, error
-  droopline replay JOURNAL --out DIR [--run N]
+)"},
+    {"replay", R"(  droopline replay JOURNAL --out DIR
                                    rebuild a live session's series from its journal
-  droopline sweep FILE --vary PATH=VALUES [--vary ...] --out DIR
+        [--run N]                  the Nth scenario of a journal with loads or resets (default: the last)
+        [--quiet]                  print nothing but errors
+)"},
+    {"sweep", R"(  droopline sweep FILE --vary PATH=VALUES [--vary ...] --out DIR
                                    run every combination; one row of metrics per run
         VALUES                     V1,V2,... or START:STOP:STEP; PATH as units[V1].governor.droop
         [--sample N] [--seed S]    a seeded random sample of N combinations of the grid
         [--shard I/N]              run only slice I of N (join the slices with merge)
         [--threads N]              parallel runs (default: one per core)
         [--metric NAME]            the metric plotted in DIR/sweep.svg (default nadir_hz)
-        [--quiet]
-  droopline merge DIR... --out DIR [--metric NAME]
+        [--quiet]                  print nothing but errors
+)"},
+    {"merge", R"(  droopline merge DIR... --out DIR
                                    join the shards of one sweep
-  droopline modes FILE [--damping-threshold X] [--json]
-                                   small-signal modes at the initial point (default
-                                   threshold 0.05 = 5 % damping ratio)
-  droopline assess FILE --requirements REQ [--json]
+        [--metric NAME]            the metric plotted in DIR/sweep.svg (default nadir_hz)
+        [--quiet]                  print nothing but errors
+)"},
+    {"modes", R"(  droopline modes FILE             small-signal modes at the initial operating point
+        [--damping-threshold X]    flag oscillatory modes damped below X (default 0.05 = 5 %)
+        [--json]                   print the modes as JSON
+)"},
+    {"assess", R"(  droopline assess FILE --requirements REQ
                                    run and check against a requirements file
                                    (exit 0 all met, 3 some not met)
-  droopline record FILE --out DIR [--from S] [--to S] [--start YYYY-MM-DDTHH:MM:SSZ] [--name NAME]
-                                   run and write a COMTRADE (IEEE C37.111-1999 ASCII)
-                                   disturbance record DIR/NAME.cfg + .dat; --start is the
-                                   wall time of t = 0 (default: now, UTC)
-  droopline --version | --help
+        [--json]                   print the table as JSON
+)"},
+    {"record", R"(  droopline record FILE --out DIR  run and write a COMTRADE (IEEE C37.111-1999 ASCII)
+                                   disturbance record DIR/NAME.cfg + .dat
+        [--from S] [--to S]        the time window, simulated seconds (default: the whole run)
+        [--start YYYY-MM-DDTHH:MM:SSZ]
+                                   the wall time of t = 0, UTC (default: now)
+        [--name NAME]              the file name, without folders (default record)
+        [--quiet]                  print nothing but errors
+)"},
+};
 
+constexpr const char* kTitle = "droopline - governor and droop sharing simulator (training and study tool)\n";
+constexpr const char* kExitCodes = R"(
 Exit codes: 0 success, 1 input/output failure, 2 invalid scenario or arguments,
 3 (assess) a requirement not met.
 )";
 
+/// The subcommand whose arguments are being read (its usage goes with an error), or none.
+const Subcommand* current = nullptr;
+
+const Subcommand* find_subcommand(const std::string& name) {
+  for (const auto& c : kSubcommands)
+    if (name == c.name) return &c;
+  return nullptr;
+}
+
+/// The whole usage, or one subcommand's.
+std::string usage_text(const Subcommand* only) {
+  std::string out = std::string(kTitle) + "\nusage:\n";
+  if (only) {
+    out += only->usage;
+    out += "  droopline --help                 every command\n";
+  } else {
+    for (const auto& c : kSubcommands) out += c.usage;
+    out += "  droopline --version | --help\n";
+    out += "  droopline COMMAND --help         one command's usage\n";
+  }
+  return out + kExitCodes;
+}
+
 int usage_error(const std::string& what) {
-  std::cerr << "droopline: " << what << "\n\n" << kUsage;
+  std::cerr << "droopline: " << what << "\n\n" << usage_text(current);
   return 2;
 }
 
@@ -196,7 +244,13 @@ int main(int argc, char** argv) {
   if (args.empty()) return usage_error("a command is required");
   const std::string cmd = args[0];
   if (cmd == "--help" || cmd == "-h" || cmd == "help") {
-    std::cout << kUsage;
+    std::cout << usage_text(nullptr);
+    return 0;
+  }
+  current = find_subcommand(cmd);
+  // `SUB --help` or `SUB -h` anywhere among SUB's arguments: its usage, nothing else runs.
+  if (current && std::find_if(args.begin() + 1, args.end(), [](const std::string& a) { return a == "--help" || a == "-h"; }) != args.end()) {
+    std::cout << usage_text(current);
     return 0;
   }
   if (cmd == "--version") {

@@ -16,7 +16,8 @@ const app = {
   data: {},            // chart data arrays
   token: sessionStorage.getItem('droopline.token') || '',
   instructor: false,
-  disturbances: new Map(),
+  disturbances: new Map(), // key -> { d: latest message, el: its box }
+  logged: new Map(),       // event log entries updated in place: key -> <li>
   retries: 0,
   connected: false,
 };
@@ -33,31 +34,57 @@ function chartOptions(el, series, refLines, yRange) {
     legend: { live: true },
     cursor: { drag: { x: true, y: false } },
     series: [{ label: 't s' }, ...series],
-    hooks: refLines ? { draw: [(u) => drawRefs(u, refLines())] } : {},
+    // Drawn with the axes, before the series: the reference lines and labels never hide the data.
+    hooks: refLines ? { drawAxes: [(u) => drawRefs(u, refLines())] } : {},
   };
 }
 
 // Horizontal reference lines (nominal, deadband band, shedding thresholds) on the frequency chart.
+// Each label sits inside the plot area just above its line (below it at the top edge), on a white
+// ground, clear of the axis; a label that would cover another moves right along its line. The boxes
+// drawn (canvas pixels) are kept as u.refLabels.
+// The labels' size follows the page's; a label with its gap from the line, in canvas pixels.
+const refFontPx = () => 0.8 * parseFloat(getComputedStyle(document.documentElement).fontSize);
+const refLabelHeight = () => (refFontPx() + 6) * devicePixelRatio;
+
 function drawRefs(u, lines) {
   const ctx = u.ctx;
+  const px = devicePixelRatio;
+  const { left, top, width, height } = u.bbox;
+  const shown = lines.map((l) => ({ ...l, y: u.valToPos(l.value, 'y', true) }))
+    .filter((l) => Number.isFinite(l.y) && l.y >= top && l.y <= top + height);
   ctx.save();
-  for (const { value, color, dash, label } of lines) {
-    const yy = u.valToPos(value, 'y', true);
-    if (!Number.isFinite(yy) || yy < u.bbox.top || yy > u.bbox.top + u.bbox.height) continue;
+  ctx.lineWidth = 1 * px;
+  for (const { y, color, dash } of shown) { // every line first: no line crosses a label
     ctx.strokeStyle = color;
     ctx.setLineDash(dash);
-    ctx.lineWidth = 1 * devicePixelRatio;
     ctx.beginPath();
-    ctx.moveTo(u.bbox.left, yy);
-    ctx.lineTo(u.bbox.left + u.bbox.width, yy);
+    ctx.moveTo(left, y);
+    ctx.lineTo(left + width, y);
     ctx.stroke();
-    if (label) {
-      ctx.fillStyle = color;
-      ctx.font = `${11 * devicePixelRatio}px system-ui`;
-      ctx.fillText(label, u.bbox.left + 4 * devicePixelRatio, yy - 3 * devicePixelRatio);
-    }
+  }
+  const fontPx = refFontPx();
+  ctx.font = `${fontPx * px}px system-ui, sans-serif`;
+  ctx.textAlign = 'left';      // uPlot leaves its own axis alignment on the context
+  ctx.textBaseline = 'middle';
+  const boxes = [];
+  for (const { y, color, text, label } of shown) {
+    if (!label) continue;
+    const w = ctx.measureText(label).width + 8 * px, h = refLabelHeight() - 2 * px;
+    const b = { label, left: left + 6 * px, top: y - h - 1 * px };
+    if (b.top < top) b.top = Math.min(y + 1 * px, top + height - h);
+    const clash = () => boxes.find((o) => b.left < o.right && o.left < b.left + w && b.top < o.bottom && o.top < b.top + h);
+    for (let o = clash(); o; o = clash()) b.left = o.right + 6 * px;
+    if (b.left + w > left + width) continue; // no room on this line: the line stays, unlabelled
+    Object.assign(b, { right: b.left + w, bottom: b.top + h });
+    boxes.push(b);
+    ctx.fillStyle = 'rgba(255, 255, 255, 0.88)';
+    ctx.fillRect(b.left, b.top, w, h);
+    ctx.fillStyle = text ?? color;
+    ctx.fillText(label, b.left + 4 * px, b.top + h / 2);
   }
   ctx.restore();
+  u.refLabels = boxes;
 }
 
 function buildCharts() {
@@ -77,7 +104,7 @@ function buildCharts() {
   const refs = () => {
     const lines = [{ value: f0, color: '#495057', dash: [], label: `${f0} Hz` }];
     if (Number.isFinite(minDb)) {
-      lines.push({ value: f0 + minDb, color: '#868e96', dash: [2, 3], label: `deadband ±${(minDb * 1000).toFixed(0)} mHz` });
+      lines.push({ value: f0 + minDb, color: '#868e96', text: '#495057', dash: [2, 3], label: `deadband ±${(minDb * 1000).toFixed(0)} mHz` });
       lines.push({ value: f0 - minDb, color: '#868e96', dash: [2, 3] });
     }
     const seen = new Set();
@@ -95,7 +122,12 @@ function buildCharts() {
       // Around nominal, at least +/-50 mHz, widening to show what happens.
       const a = Math.min(lo ?? f0, f0 - 0.05), b = Math.max(hi ?? f0, f0 + 0.05);
       const pad = 0.08 * (b - a);
-      return [a - pad, b + pad];
+      const bottom = a - pad;
+      // Room above the highest labelled line for its label: the share k of the plot's height a
+      // label takes must lie between that line and the top.
+      const k = u.bbox?.height > 0 ? refLabelHeight() / u.bbox.height : 0;
+      const highest = Math.max(...refs().filter((l) => l.label).map((l) => l.value));
+      return [bottom, k < 0.5 ? Math.max(b + pad, (highest - k * bottom) / (1 - k)) : b + pad];
     }), app.data.freq, freqEl);
   const unitEl = $('chart-units');
   app.charts.units = new uPlot(chartOptions(unitEl, units.flatMap((id, i) => [
@@ -171,7 +203,11 @@ window.addEventListener('resize', () => {
 
 // ------------------------------------------------------------------ tables and views
 
-const fmt = (v, d = 1) => (v == null || Number.isNaN(v) ? '-' : Number(v).toFixed(d));
+const fmt = (v, d = 1) => {
+  if (v == null || Number.isNaN(v)) return '-';
+  const text = Number(v).toFixed(d);
+  return /^-0\.?0*$/.test(text) ? text.slice(1) : text; // no "-0.0"
+};
 
 function renderStatic() {
   const sc = app.scenario;
@@ -236,38 +272,97 @@ function renderLive(f) {
   }
 }
 
-function addEvent(e) {
-  const li = document.createElement('li');
-  li.innerHTML = `<span class="t">${fmt(e.t_s ?? e.at_s, 2)} s</span>`;
-  li.append(document.createTextNode(e.type === 'disturbance' ? `disturbance: ${e.cause}` : e.text));
+// The event log: newest first, one entry per event. A disturbance is announced when it begins and
+// again when its window ends (and a joining page gets both from the history): its entry is keyed by
+// the disturbance's index and updated in place, so it shows once, at the time it began.
+function logEvent(e) {
   const log = $('event-log');
-  log.prepend(li);
-  while (log.children.length > 300) log.lastChild.remove();
+  const key = e.type === 'disturbance' ? `disturbance ${e.index ?? e.at_s}` : '';
+  const t = e.t_s ?? e.at_s;
+  let li = key ? app.logged.get(key) : null;
+  if (!li) {
+    li = document.createElement('li');
+    li.dataset.t = t;
+    li.dataset.key = key;
+    if (key) app.logged.set(key, li);
+    // Entries arrive nearly in order: the place is found from the top (later arrivals first on ties).
+    const after = [...log.children].find((x) => Number(x.dataset.t) <= t);
+    log.insertBefore(li, after ?? null);
+    while (log.children.length > 300) {
+      app.logged.delete(log.lastChild.dataset.key);
+      log.lastChild.remove();
+    }
+  }
+  const time = Object.assign(document.createElement('span'), { className: 't', textContent: `${fmt(t, 2)} s` });
+  const text = e.type === 'disturbance' ? `disturbance: ${e.cause}${e.open ? ' (being measured)' : ''}` : e.text;
+  li.replaceChildren(time, document.createTextNode(text));
 }
 
-function renderDisturbance(d) {
-  app.disturbances.set(d.index ?? `${d.at_s}|${d.cause}`, d);
-  const box = $('disturbances');
-  const items = [...app.disturbances.values()].sort((a, b) => b.at_s - a.at_s);
-  box.replaceChildren(...items.map((x) => {
-    const div = document.createElement('div');
-    div.className = 'disturbance';
-    const units = x.units.map((u) => `<tr><td>${u.unit}</td><td>${fmt(u.predicted_mw)}</td><td>${fmt(u.response_10s_mw)}</td><td>${fmt(u.response_30s_mw)}</td></tr>`).join('');
-    div.innerHTML = `<div class="head">t = ${fmt(x.at_s, 2)} s: ${x.cause} ${x.open ? '<span class="open">(still being measured)</span>' : ''}</div>
-      <dl>
-        <dt>imbalance</dt><dd>${fmt(x.delta_mw)} MW (${x.delta_mw >= 0 ? 'deficit' : 'surplus'})</dd>
-        <dt>RoCoF (500 ms)</dt><dd>${fmt(x.rocof_hz_per_s, 3)} Hz/s</dd>
-        <dt>${x.extreme}</dt><dd>${fmt(x.nadir_hz, 3)} Hz at +${fmt(x.nadir_after_s, 2)} s</dd>
-        <dt>settling (t0+20..52 s)</dt><dd>${fmt(x.settling_hz, 3)} Hz</dd>
-        <dt>droop formula</dt><dd>${fmt(x.predicted_settling_hz, 3)} Hz</dd>
-        <dt>frequency response</dt><dd>${fmt(x.response_mw_per_0p1hz, 1)} MW/0.1 Hz</dd>
-      </dl>
-      <details><summary>each unit's share</summary>
-        <table class="grid"><thead><tr><th>unit</th><th>droop share MW</th><th>at +10 s</th><th>at +30 s</th></tr></thead><tbody>${units}</tbody></table>
-      </details>`;
-    return div;
-  }));
+// Each disturbance's label and value pairs: one <div> per pair, so a value always stands under
+// its own label however many columns fit. A value not there is "not yet" while the disturbance is
+// measured, and "not measured" once its window closed without it (a later disturbance in the same
+// island ends the window).
+const measured = (x, v, digits, unit) => (v == null ? (x.open ? 'not yet' : 'not measured') : `${fmt(v, digits)} ${unit}`);
+const DISTURBANCE_PAIRS = [
+  [() => 'imbalance', (x) => `${fmt(x.delta_mw)} MW (${x.delta_mw >= 0 ? 'deficit' : 'surplus'})`],
+  [() => 'RoCoF (500 ms)', (x) => measured(x, x.rocof_hz_per_s, 3, 'Hz/s')],
+  [(x) => x.extreme, (x) => (x.nadir_hz == null ? measured(x, null) : `${fmt(x.nadir_hz, 3)} Hz at +${fmt(x.nadir_after_s, 2)} s`)],
+  [() => 'settling (t0+20..52 s)', (x) => measured(x, x.settling_hz, 3, 'Hz')],
+  [() => 'droop formula', (x) => `${fmt(x.predicted_settling_hz, 3)} Hz`],
+  [() => 'frequency response', (x) => measured(x, x.response_mw_per_0p1hz, 1, 'MW/0.1 Hz')],
+];
+
+function disturbanceBox() {
+  const div = document.createElement('div');
+  div.className = 'disturbance';
+  div.innerHTML = `<div class="head"></div>
+    <dl>${DISTURBANCE_PAIRS.map(() => '<div class="pair"><dt></dt><dd></dd></div>').join('')}</dl>
+    <details><summary>each unit's share</summary>
+      <table class="grid"><thead><tr><th>unit</th><th>droop share MW</th><th>at +10 s</th><th>at +30 s</th></tr></thead><tbody></tbody></table>
+    </details>`;
+  return div;
 }
+
+// Updated in place on every message: the box (and whether its unit shares are open) stays.
+function renderDisturbance(d) {
+  const key = d.index ?? `${d.at_s}|${d.cause}`;
+  let entry = app.disturbances.get(key);
+  if (!entry) {
+    entry = { el: disturbanceBox() };
+    app.disturbances.set(key, entry);
+  }
+  entry.d = d;
+  const { el } = entry;
+  const head = el.querySelector('.head');
+  head.textContent = `t = ${fmt(d.at_s, 2)} s: ${d.cause} `;
+  if (d.open) head.append(Object.assign(document.createElement('span'), { className: 'open', textContent: '(still being measured)' }));
+  el.querySelectorAll('.pair').forEach((pair, i) => {
+    pair.children[0].textContent = DISTURBANCE_PAIRS[i][0](d);
+    pair.children[1].textContent = DISTURBANCE_PAIRS[i][1](d);
+  });
+  el.querySelector('tbody').replaceChildren(...d.units.map((u) => {
+    const tr = document.createElement('tr');
+    for (const v of [u.unit, fmt(u.predicted_mw), fmt(u.response_10s_mw), fmt(u.response_30s_mw)])
+      tr.append(Object.assign(document.createElement('td'), { textContent: v }));
+    return tr;
+  }));
+  // Newest first; nodes are moved only when out of place.
+  const box = $('disturbances');
+  box.querySelector('.empty')?.remove();
+  [...app.disturbances.values()].sort((a, b) => b.d.at_s - a.d.at_s).forEach((x, i) => {
+    if (box.children[i] !== x.el) box.insertBefore(x.el, box.children[i] ?? null);
+  });
+}
+
+// A new run (a reset or another scenario): an empty disturbance panel and event log.
+function clearRun() {
+  app.disturbances.clear();
+  app.logged.clear();
+  $('disturbances').replaceChildren(Object.assign(document.createElement('p'), { className: 'empty', textContent: 'none yet' }));
+  $('event-log').replaceChildren();
+}
+
+const startsRun = (e) => e.type === 'event' && (e.kind === 'reset' || e.kind === 'scenario');
 
 // ------------------------------------------------------------------ connection
 
@@ -286,15 +381,15 @@ function connect() {
       case 'hello':
         app.scenario = msg.scenario;
         app.columns = msg.columns;
-        app.disturbances.clear();
-        $('disturbances').innerHTML = '<p class="empty">none yet</p>';
-        $('event-log').replaceChildren();
+        clearRun();
         buildCharts();
         renderStatic();
         loadHistory(msg.history);
-        for (const e of msg.events) {
+        // The server keeps its event list across resets: only this run's events, from the last
+        // reset or scenario load on.
+        for (const e of msg.events.slice(Math.max(0, msg.events.findLastIndex(startsRun)))) {
           if (e.type === 'disturbance') renderDisturbance(e);
-          addEvent(e);
+          logEvent(e);
         }
         app.connected = true;
         app.retries = 0;
@@ -315,12 +410,16 @@ function connect() {
         app.droppedTimer = setTimeout(() => { $('dropped-note').hidden = true; }, 5000);
         break;
       case 'event':
-        addEvent(msg);
-        if (msg.kind === 'scenario' || msg.kind === 'reset') { ws.close(); } // reconnect: fresh hello
+        if (startsRun(msg)) {
+          clearRun();
+          app.rejoin = true;
+          ws.close(); // reconnect at once: a fresh hello with the new run's charts
+        }
+        logEvent(msg);
         break;
       case 'disturbance':
         renderDisturbance(msg);
-        if (!msg.open) addEvent(msg);
+        logEvent(msg);
         break;
       default:
         break;
@@ -328,6 +427,12 @@ function connect() {
   };
   ws.onclose = () => {
     app.connected = false;
+    if (app.rejoin) {
+      app.rejoin = false;
+      setLink('wait', 'new run: rejoining');
+      connect();
+      return;
+    }
     const delay = Math.min(8000, 500 * 2 ** Math.min(app.retries, 4));
     app.retries += 1;
     setLink('down', `disconnected, retrying in ${(delay / 1000).toFixed(1)} s`);
@@ -360,7 +465,52 @@ async function send(path, body, group, method = 'POST') {
 }
 
 const command = (group, c) => send('/api/v1/commands', c, group);
-const num = (id) => Number($(id).value);
+
+// Numeric fields are checked here, before anything is sent: a blank or non-numeric field would
+// otherwise reach the server as 0. The problem shows beside the field itself.
+function numberProblem(input) {
+  if (input.validity.badInput) return 'not a number';
+  if (input.value.trim() === '') return 'optional' in input.dataset ? '' : 'enter a number';
+  const v = Number(input.value);
+  if (!Number.isFinite(v)) return 'not a number';
+  if (input.min !== '' && v < Number(input.min)) return `at least ${input.min}`;
+  return '';
+}
+
+function showFieldProblem(input, problem) {
+  let note = input.parentElement.querySelector('.field-error');
+  if (!note && problem) {
+    note = Object.assign(document.createElement('span'), { className: 'field-error', id: `${input.id}-error` });
+    note.setAttribute('role', 'alert');
+    input.after(note);
+    input.setAttribute('aria-describedby', note.id);
+  }
+  if (note) note.textContent = problem;
+  if (problem) input.setAttribute('aria-invalid', 'true');
+  else input.removeAttribute('aria-invalid');
+}
+
+// The values of the fields (null for a blank optional one), or null when any is refused; every
+// refused field shows its problem.
+function readNumbers(...ids) {
+  const values = {};
+  let ok = true;
+  for (const id of ids) {
+    const input = $(id);
+    const problem = numberProblem(input);
+    showFieldProblem(input, problem);
+    if (problem) ok = false;
+    else values[id] = input.value.trim() === '' ? null : Number(input.value);
+  }
+  return ok ? values : null;
+}
+
+function numeric(ids, build) {
+  return () => {
+    const v = readNumbers(...ids);
+    if (v) build(v);
+  };
+}
 const unitId = () => $('unit-select').value;
 const areaId = () => $('area-select').value;
 
@@ -392,6 +542,8 @@ function wireControls() {
     app.ws?.readyState === 1 && app.ws.send(JSON.stringify({ type: 'auth', token }));
     $('controls').hidden = false;
     $('auth-form').querySelector('button').textContent = 'Unlocked';
+    const sweepNote = document.querySelector('[data-error-for="sweep"]');
+    if (sweepNote.textContent === SWEEP_FOR_INSTRUCTOR) sweepNote.textContent = '';
   });
   for (const b of document.querySelectorAll('[data-control]'))
     b.addEventListener('click', () => send('/api/v1/control', { action: b.dataset.control }, 'session'));
@@ -403,22 +555,27 @@ function wireControls() {
     await send('/api/v1/scenario', text, 'session', 'PUT');
     $('scenario-file').value = '';
   });
-  $('do-step').addEventListener('click', () => command('area', { kind: 'load_step', area: areaId(), mw: num('step-mw') }));
-  $('do-ramp').addEventListener('click', () => command('area', { kind: 'load_ramp', area: areaId(), mw: num('ramp-mw'), over_s: num('ramp-s') }));
+  $('do-step').addEventListener('click', numeric(['step-mw'], (v) => command('area', { kind: 'load_step', area: areaId(), mw: v['step-mw'] })));
+  $('do-ramp').addEventListener('click', numeric(['ramp-mw', 'ramp-s'], (v) => command('area', {
+    kind: 'load_ramp', area: areaId(), mw: v['ramp-mw'], over_s: v['ramp-s'],
+  })));
   $('agc-on').addEventListener('click', () => command('area', { kind: 'agc', area: areaId(), enabled: true }));
   $('agc-off').addEventListener('click', () => command('area', { kind: 'agc', area: areaId(), enabled: false }));
   $('unit-select').addEventListener('change', syncUnitForm);
-  $('do-setpoint').addEventListener('click', () => {
-    const c = { kind: 'setpoint', unit: unitId(), mw: num('set-mw') };
-    if ($('set-ramp').value !== '' && num('set-ramp') > 0) c.ramp_mw_per_s = num('set-ramp');
+  $('do-setpoint').addEventListener('click', numeric(['set-mw', 'set-ramp'], (v) => {
+    const c = { kind: 'setpoint', unit: unitId(), mw: v['set-mw'] };
+    if (v['set-ramp'] > 0) c.ramp_mw_per_s = v['set-ramp']; // blank or 0: at once
     command('unit', c);
-  });
-  $('do-governor').addEventListener('click', () => command('unit', {
-    kind: 'governor', unit: unitId(), droop: num('gov-droop'), deadband_hz: num('gov-db'),
-    deadband: $('gov-kind').value, mode: $('gov-mode').value,
   }));
+  $('do-governor').addEventListener('click', numeric(['gov-droop', 'gov-db'], (v) => command('unit', {
+    kind: 'governor', unit: unitId(), droop: v['gov-droop'], deadband_hz: v['gov-db'],
+    deadband: $('gov-kind').value, mode: $('gov-mode').value,
+  })));
   $('do-trip').addEventListener('click', () => command('unit', { kind: 'unit_trip', unit: unitId() }));
-  $('do-start').addEventListener('click', () => command('unit', { kind: 'unit_start', unit: unitId(), mw: num('start-mw') }));
+  $('do-start').addEventListener('click', numeric(['start-mw'], (v) => command('unit', { kind: 'unit_start', unit: unitId(), mw: v['start-mw'] })));
+  // A field's problem goes as soon as it is edited.
+  for (const input of document.querySelectorAll('input[type=number]'))
+    input.addEventListener('input', () => { if (input.hasAttribute('aria-invalid')) showFieldProblem(input, ''); });
   $('do-tie-trip').addEventListener('click', () => command('tie', { kind: 'tie_trip', tie: $('tie-select').value }));
   $('do-tie-close').addEventListener('click', () => command('tie', { kind: 'tie_close', tie: $('tie-select').value }));
   if (app.token) $('token').value = app.token;
@@ -456,10 +613,17 @@ async function analyseModes() {
   $('modes-notes').replaceChildren(...body.notes.map((n) => Object.assign(document.createElement('li'), { textContent: n })));
 }
 
+// The record links carry the window while both fields hold numbers; otherwise they have no
+// address, and a click shows what is wrong beside the field.
 function syncRecordLinks() {
-  const q = `from_s=${encodeURIComponent($('rec-from').value || 0)}&to_s=${encodeURIComponent($('rec-to').value || 0)}`;
-  $('rec-cfg').href = `/api/v1/record?${q}&part=cfg`;
-  $('rec-dat').href = `/api/v1/record?${q}&part=dat`;
+  const valid = !numberProblem($('rec-from')) && !numberProblem($('rec-to'));
+  const q = `from_s=${encodeURIComponent($('rec-from').value)}&to_s=${encodeURIComponent($('rec-to').value)}`;
+  for (const part of ['cfg', 'dat']) {
+    const a = $(`rec-${part}`);
+    if (valid) a.href = `/api/v1/record?${q}&part=${part}`;
+    else a.removeAttribute('href');
+    a.setAttribute('aria-disabled', String(!valid));
+  }
 }
 
 function fillTable(table, head, rows, rowClass = () => '') {
@@ -499,17 +663,23 @@ async function assessFile() {
   $('assess-verdict').textContent = body.passed ? 'All requirements met.' : 'Requirements NOT met.';
 }
 
+const SWEEP_FOR_INSTRUCTOR = 'Sweeps are for the instructor: unlock with the instructor token to run one.';
+
 async function runSweep() {
   const out = document.querySelector('[data-error-for="sweep"]');
   out.textContent = '';
+  if (!app.instructor) {
+    out.textContent = SWEEP_FOR_INSTRUCTOR;
+    return;
+  }
   const vary = $('sweep-vary').value.split('\n').map((l) => l.trim()).filter(Boolean);
   const metric = $('sweep-metric').value;
   const res = await fetch('/api/v1/sweeps', {
     method: 'POST', headers: app.token ? { Authorization: `Bearer ${app.token}` } : {}, body: JSON.stringify({ vary, metric }),
   });
-  let job = await res.json();
+  let job = await res.json().catch(() => ({}));
   if (!res.ok) {
-    out.textContent = [job.error, ...(job.issues || [])].join('; ');
+    out.textContent = res.status === 401 ? SWEEP_FOR_INSTRUCTOR : [job.error || `HTTP ${res.status}`, ...(job.issues || [])].join('; ');
     return;
   }
   app.sweepJob = job.id;
@@ -544,6 +714,8 @@ function wireStudies() {
     method: 'DELETE', headers: { Authorization: `Bearer ${app.token}` },
   }));
   for (const id of ['rec-from', 'rec-to']) $(id).addEventListener('input', syncRecordLinks);
+  for (const id of ['rec-cfg', 'rec-dat'])
+    $(id).addEventListener('click', (ev) => { if (!readNumbers('rec-from', 'rec-to')) ev.preventDefault(); });
   syncRecordLinks();
 }
 
