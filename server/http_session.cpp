@@ -468,11 +468,16 @@ void HttpSession::handle(Request&& req) {
         LoadResult r = parse_scenario(scenario_text);
         if (!r.def) return done(400, error_json("invalid scenario", issue_texts(r.issues)));
         spec.scenario = scenario_to_json(*r.def);
-        for (const auto& v : spec.vary) {
-          json probe = spec.scenario;
-          std::string err;
-          if (!study::set_path(probe, v.path, v.values.front(), err)) return done(400, error_json("vary " + err));
-        }
+        // Each axis at its smallest and largest value must give a valid scenario: an absurd
+        // value is refused now, not found in every row later.
+        for (const auto& v : spec.vary)
+          for (double x : {*std::min_element(v.values.begin(), v.values.end()), *std::max_element(v.values.begin(), v.values.end())}) {
+            json probe = spec.scenario;
+            std::string err;
+            if (!study::set_path(probe, v.path, x, err)) return done(400, error_json("vary " + err));
+            LoadResult pr = parse_scenario(probe.dump());
+            if (!pr.def) return done(400, error_json("vary " + v.path + "=" + fmt_num(x) + " gives an invalid scenario", issue_texts(pr.issues)));
+          }
         std::string err;
         auto job = ctx_.sweeps.submit(std::move(spec), metric, err);
         if (!job) return done(429, error_json(err));

@@ -1,0 +1,405 @@
+#!/usr/bin/python3
+"""What a stranger on the training LAN controls, tried against the real `droopline serve` on a
+loopback port: request paths (the static route must serve the page's own files and nothing
+else), JSON bodies and WebSocket messages nested or sized to hurt, absurd but finite numbers,
+wrong types in study inputs, a client that sends a whole oversized body before reading, and a
+client that joins in the middle of a disturbance. Every test is bounded in time and count.
+
+    /usr/bin/python3 test_hostile.py DROOPLINE_BINARY SOURCE_DIR
+"""
+import asyncio
+import http.client
+import json
+import os
+import shutil
+import socket
+import sys
+import tempfile
+import time
+import unittest
+
+import websockets
+
+import test_server
+from test_server import TOKEN, Server, run, next_of
+
+SECRET = "SECRET-MARKER-5e1d09c3"
+
+
+def raw_request(port, target, method="GET", extra=b"", timeout=10):
+    """Sends the request line exactly as given (bytes or text) and returns (status, body bytes)."""
+    if isinstance(target, str):
+        target = target.encode("latin-1")
+    with socket.create_connection(("127.0.0.1", port), timeout=timeout) as s:
+        s.sendall(method.encode() + b" " + target + b" HTTP/1.1\r\nHost: x\r\nConnection: close\r\n" + extra + b"\r\n")
+        data = b""
+        while True:
+            chunk = s.recv(65536)
+            if not chunk:
+                break
+            data += chunk
+    head, _, body = data.partition(b"\r\n\r\n")
+    status = int(head.split(b" ", 2)[1]) if head.startswith(b"HTTP/1.1 ") else 0
+    return status, body, head
+
+
+def make_web_root(base):
+    """A copy of the page (its files and uPlot's dist) with traps: a secret beside the root, links
+    inside it that point out, an npm manifest, a hidden file, a second package."""
+    src = os.path.join(test_server.SRC, "web")
+    web = os.path.join(base, "web")
+    os.makedirs(os.path.join(web, "node_modules", "uplot", "dist"))
+    os.makedirs(os.path.join(web, "node_modules", "other"))
+    os.makedirs(os.path.join(web, "sub"))
+    for name in os.listdir(src):
+        p = os.path.join(src, name)
+        if os.path.isfile(p):
+            shutil.copy(p, web)
+    dist = os.path.join(src, "node_modules", "uplot", "dist")
+    for name in os.listdir(dist):
+        shutil.copy(os.path.join(dist, name), os.path.join(web, "node_modules", "uplot", "dist"))
+    with open(os.path.join(base, "secret.txt"), "w") as fh:
+        fh.write(SECRET + "\n")
+    for rel in ("node_modules/uplot/package.json", "node_modules/other/index.js", "sub/inner.js", ".hidden.js", ".env"):
+        with open(os.path.join(web, rel), "w") as fh:
+            fh.write(SECRET + " in " + rel + "\n")
+    os.symlink(os.path.join(base, "secret.txt"), os.path.join(web, "leak.js"))
+    os.symlink("../../../../secret.txt", os.path.join(web, "node_modules", "uplot", "dist", "leak.js"))
+    os.symlink("/etc/passwd", os.path.join(web, "node_modules", "uplot", "dist", "passwd.js"))
+    os.symlink(base, os.path.join(web, "node_modules", "uplot", "dist", "up"))
+    os.symlink("/", os.path.join(web, "root.js"))
+    os.symlink("/proc/self/cmdline", os.path.join(web, "cmdline.html"))
+    return web
+
+
+# Each refused; none may answer with a byte of a file outside the page's own.
+HOSTILE_PATHS = [
+    "//etc/passwd", "///etc/passwd", "////etc/passwd", "/%2fetc/passwd", "/%2Fetc/passwd",
+    "/%2f%2fetc%2fpasswd", "//proc/self/cmdline", "/%2fproc%2fself%2fcmdline", "/proc/self/cmdline",
+    "/../secret.txt", "/%2e%2e/secret.txt", "/%2E%2E/secret.txt", "/%2e%2E/secret.txt", "/..%2fsecret.txt",
+    "/..%2Fsecret.txt", "/%2e%2e%2fsecret.txt", "/.%2e/secret.txt", "/%2e./secret.txt", "/./../secret.txt",
+    "/index.html/../../secret.txt", "/a/../../secret.txt", "/node_modules/uplot/dist/../../../../secret.txt",
+    "/..\\secret.txt", "/%5c..%5csecret.txt", "/%5C..%5Csecret.txt", "/..%5csecret.txt", "/\\etc\\passwd",
+    "/%c0%ae%c0%ae/secret.txt", "/%c0%af..%c0%afsecret.txt", "/%e0%80%ae%e0%80%ae/secret.txt",
+    "/%c1%9c..%c1%9csecret.txt", "/%252e%252e/secret.txt", "/%252fetc%252fpasswd", "/..%u2215secret.txt",
+    "/%u002e%u002e/secret.txt", "/..;/secret.txt", "/%20../secret.txt", "/...//secret.txt",
+    "/index.html%00.js", "/%00", "/index.html%00", "/%00/etc/passwd",
+    "/leak.js", "/node_modules/uplot/dist/leak.js", "/node_modules/uplot/dist/passwd.js",
+    "/node_modules/uplot/dist/up/secret.txt", "/root.js/etc/passwd", "/root.js", "/cmdline.html",
+    "/node_modules/uplot/package.json", "/node_modules/other/index.js", "/node_modules/playwright-core/package.json",
+    "/node_modules/.package-lock.json", "/package.json", "/package-lock.json", "/sub/inner.js",
+    "/.hidden.js", "/.env", "/.git/config", "/node_modules", "/node_modules/", "/node_modules/uplot/dist/",
+    "/node_modules/uplot/dist//uPlot.esm.js", "/index.html/", "/index.html/..", "/%2e", "/.", "/..",
+    "/secret.txt", "/token", "/web/index.html",
+    "/" + "a" * 600, "/" + "a/" * 300 + "index.html", "/" + "%2e%2e/" * 100 + "etc/passwd",
+    "http://evil.example/etc/passwd", "*", "etc/passwd",
+]
+
+# The page's own files are still served.
+SERVED = ["/", "/index.html", "/app.js", "/openapi.json", "/node_modules/uplot/dist/uPlot.esm.js",
+          "/node_modules/uplot/dist/uPlot.min.css"]
+
+
+class StaticFileTests(unittest.TestCase):
+    @classmethod
+    def setUpClass(cls):
+        cls.base = tempfile.mkdtemp(prefix="droopline-web-")
+        cls.web = make_web_root(cls.base)
+        cls.srv = Server(os.path.join(test_server.SRC, "scenarios", "demo_three_areas.json"), extra=["--web", cls.web])
+        with open("/etc/passwd", "rb") as fh:
+            cls.passwd = fh.read()
+
+    @classmethod
+    def tearDownClass(cls):
+        cls.srv.stop()
+        shutil.rmtree(cls.base, ignore_errors=True)
+
+    def assert_no_leak(self, body, what):
+        self.assertNotIn(SECRET.encode(), body, what)
+        self.assertNotIn(b"root:x:0:0", body, what)
+        self.assertNotIn(TOKEN.encode(), body, what)
+        self.assertNotIn(b"--token-file", body, what)
+        if self.passwd.strip():
+            self.assertNotIn(self.passwd.split(b"\n")[0], body, what)
+
+    def test_every_hostile_path_is_refused_and_leaks_nothing(self):
+        self.assertGreaterEqual(len(HOSTILE_PATHS), 40)
+        for path in HOSTILE_PATHS:
+            for method in ("GET", "HEAD"):
+                with self.subTest(path=path[:80], method=method):
+                    status, body, head = raw_request(self.srv.port, path, method)
+                    self.assertIn(status, (400, 404, 414), (path, body[:200]))
+                    self.assert_no_leak(head + body, path)
+        # The same through a real client library, which normalises nothing it is given.
+        for path in HOSTILE_PATHS[:20]:
+            conn = http.client.HTTPConnection("127.0.0.1", self.srv.port, timeout=10)
+            conn.putrequest("GET", path, skip_host=True, skip_accept_encoding=True)
+            conn.putheader("Host", "x")
+            conn.endheaders()
+            r = conn.getresponse()
+            body = r.read()
+            conn.close()
+            self.assertNotEqual(r.status, 200, path)
+            self.assert_no_leak(body, path)
+        s, _, _ = self.srv.request("GET", "/healthz")
+        self.assertEqual(s, 200)
+
+    def test_the_page_files_are_served(self):
+        for path in SERVED:
+            with self.subTest(path=path):
+                status, body, head = raw_request(self.srv.port, path)
+                self.assertEqual(status, 200, path)
+                expected = "index.html" if path == "/" else path.lstrip("/")
+                with open(os.path.join(self.web, expected), "rb") as fh:
+                    self.assertEqual(body, fh.read())
+                self.assertIn(b"X-Content-Type-Options: nosniff", head)
+        status, body, head = raw_request(self.srv.port, "/app.js", "HEAD")
+        self.assertEqual(status, 200)
+        self.assertEqual(body, b"")
+        self.assertIn(f"Content-Length: {os.path.getsize(os.path.join(self.web, 'app.js'))}".encode(), head)
+
+    def test_errors_quote_the_path_briefly_and_safely(self):
+        status, body, _ = raw_request(self.srv.port, "/" + "b" * 400 + ".js")
+        self.assertEqual(status, 404)
+        msg = json.loads(body)["error"]
+        self.assertLess(len(msg), 220)
+        status, body, _ = raw_request(self.srv.port, "/%ff%fe%01.js")
+        self.assertEqual(status, 404)
+        self.assertIn("not served", json.loads(body)["error"])
+
+
+class DemoServerCase(unittest.TestCase):
+    """One server on the demo scenario for the tests of the class."""
+
+    @classmethod
+    def setUpClass(cls):
+        cls.srv = Server(os.path.join(test_server.SRC, "scenarios", "demo_three_areas.json"))
+
+    @classmethod
+    def tearDownClass(cls):
+        cls.srv.stop()
+
+
+def nested(depth, inner="1"):
+    return "[" * depth + inner + "]" * depth
+
+
+class BoundedJsonTests(DemoServerCase):
+    def alive(self):
+        s, _, _ = self.srv.request("GET", "/healthz")
+        self.assertEqual(s, 200)
+        self.assertIsNone(self.srv.proc.poll())
+
+    def test_deep_nesting_is_refused_by_every_endpoint(self):
+        deep = nested(200000)  # 400 KB, under the body limit
+        deep_obj = '{"a":' * 100000 + "1" + "}" * 100000
+        bodies = {
+            ("POST", "/api/v1/commands"): deep,
+            ("PUT", "/api/v1/scenario"): deep_obj,
+            ("POST", "/api/v1/control"): deep,
+            ("POST", "/api/v1/sweeps"): '{"vary": ["nominal_hz=50"], "scenario": ' + deep + "}",
+            ("POST", "/api/v1/replays"): deep,
+            ("POST", "/api/v1/assess"): deep_obj,
+            ("POST", "/api/v1/modes"): deep,
+        }
+        for (method, path), body in bodies.items():
+            with self.subTest(path=path):
+                s, reply, _ = self.srv.request(method, path, body, TOKEN, timeout=30)
+                self.assertEqual(s, 400, reply)
+                self.assertIn("nested deeper than 64 levels", json.dumps(reply))
+                self.alive()
+        # 64 levels are fine as far as the gate goes (the endpoint then says what is wrong).
+        s, reply, _ = self.srv.request("POST", "/api/v1/commands", nested(63, "{}"), TOKEN)
+        self.assertEqual(s, 400)
+        self.assertNotIn("nested deeper", json.dumps(reply))
+
+    def test_websocket_messages_are_bounded_and_ids_are_scalars(self):
+        async def go():
+            async with websockets.connect(self.srv.ws_url(), max_size=2**24) as ws:
+                out = {}
+                await ws.send('{"type": "commands", "commands": ' + nested(30000) + "}")
+                out["deep"] = await next_of(ws, "error")
+                await ws.send(json.dumps({"type": "auth", "token": "x", "id": "i" * 65}))
+                out["long_id"] = await next_of(ws, "error")
+                await ws.send(json.dumps({"type": "auth", "token": "x", "id": {"a": [1, 2]}}))
+                out["object_id"] = await next_of(ws, "error")
+                await ws.send(json.dumps({"type": "auth", "token": TOKEN, "id": "i" * 64}))
+                out["ok_id"] = await next_of(ws, "auth")
+                await ws.send(json.dumps({"type": "control", "action": ["pause"], "id": 7}))
+                out["bad_action"] = await next_of(ws, "reply")
+                await ws.send(json.dumps({"type": "commands", "id": 8,
+                                          "commands": {"kind": "load_step", "area": "oskany", "mw": 1e308}}))
+                out["absurd"] = await next_of(ws, "reply")
+                return out
+        out = run(go())
+        self.assertIn("nested deeper than 64 levels", out["deep"]["error"])
+        self.assertIn("id: must be a number or a string of at most 64 characters", out["long_id"]["error"])
+        self.assertIn("id: must be a number", out["object_id"]["error"])
+        self.assertEqual(out["ok_id"]["id"], "i" * 64)
+        self.assertEqual(out["bad_action"]["id"], 7)
+        self.assertEqual(out["bad_action"]["status"], 400)
+        self.assertEqual(out["absurd"]["status"], 400)
+        self.assertIn("ten times the size of area", json.dumps(out["absurd"]))
+        self.alive()
+
+
+# Absurd but finite values, and wrong types in study inputs: 400 with the path, never 500.
+BAD_STUDY = [
+    # (method, path, body, status, fragment)
+    ("POST", "/api/v1/commands", {"kind": "load_step", "area": "oskany", "mw": 1e308}, 400,
+     "command.mw: must lie within +/-"),
+    ("POST", "/api/v1/commands", {"kind": "load_ramp", "area": "oskany", "mw": -1e12, "over_s": 5}, 400,
+     "ten times the size of area"),
+    ("POST", "/api/v1/commands", {"kind": "governor", "unit": "V1", "droop": 1e9}, 400, "command.droop: must be at most 1 pu"),
+    ("POST", "/api/v1/commands", {"kind": "governor", "unit": "V1", "deadband_hz": 1e300}, 400,
+     "command.deadband_hz: must be at most 5 Hz"),
+    ("POST", "/api/v1/commands", {"kind": "setpoint", "unit": "V1", "mw": 100, "ramp_mw_per_s": 1e200}, 400,
+     "command.ramp_mw_per_s: must be at most"),
+    ("POST", "/api/v1/commands", {"kind": "fluctuation", "area": "oskany", "sigma_mw": 1e9, "tau_s": 2}, 400,
+     "command.sigma_mw: must be at most"),
+    ("POST", "/api/v1/commands", '{"kind": "load_step", "area": "oskany", "mw": 5, "mw": 6}', 400, "duplicate key"),
+    ("POST", "/api/v1/assess", {"name": 5, "limits": {}}, 400, "name: must be a string"),
+    ("POST", "/api/v1/assess", {"limits": {"lowest_hz_min": {"value": "49", "source": "x"}}}, 400,
+     "limits.lowest_hz_min.value: must be a number"),
+    ("POST", "/api/v1/assess", {"limits": [1]}, 400, "limits: must be an object"),
+    ("POST", "/api/v1/assess", {"unit_response": [{"units": [1], "deviation_mhz": 200, "within_s": 30,
+                                                    "share_min": 1, "source": "x"}]}, 400,
+     "unit_response[0].units: must be a list of unit ids"),
+    ("POST", "/api/v1/assess", [], 400, "must be a JSON object"),
+    ("POST", "/api/v1/assess", "null", 400, "must be a JSON object"),
+    ("POST", "/api/v1/sweeps", {"vary": "droop"}, 400, "vary: required, a list"),
+    ("POST", "/api/v1/sweeps", {"vary": [5]}, 400, "vary: each entry must be a string"),
+    ("POST", "/api/v1/sweeps", {"vary": ["units[0].governor.droop=0.04"], "metric": 5}, 400, "metric: must be a string"),
+    ("POST", "/api/v1/sweeps", {"vary": ["units[0].governor.droop=0.04"], "metric": "speed"}, 400, "metric: unknown metric"),
+    ("POST", "/api/v1/sweeps", {"vary": ["units[0].governor.droop=0.04"], "sample": -1}, 400, "sample: must be a whole number"),
+    ("POST", "/api/v1/sweeps", {"vary": ["units[0].governor.droop=0.04"], "sample": 1.5}, 400, "sample: must be a whole number"),
+    ("POST", "/api/v1/sweeps", {"vary": ["units[0].governor.droop=0.04"], "seed": "x"}, 400, "seed: must be a whole number"),
+    ("POST", "/api/v1/sweeps", {"vary": ["units[0].governor.droop=0.04"], "scenario": 5}, 400, "scenario: must be an object"),
+    ("POST", "/api/v1/sweeps", {"vary": ["units[0].governor.droop=0.04"], "extra": 1}, 400, "\\\"extra\\\": unknown field"),
+    ("POST", "/api/v1/sweeps", {"vary": ["units[0].governor.droop=0:0.999:0.000001", "units[1].governor.droop=0:0.999:0.000001"]},
+     400, "members, at most 100000 over HTTP"),
+    ("POST", "/api/v1/sweeps", {"vary": ["units[0].governor.droop=0.04,1e300"]}, 400, "must be at most 1 pu"),
+    ("POST", "/api/v1/modes", {"name": 5}, 400, "name: must be a string"),
+    ("POST", "/api/v1/modes", [1, 2], 400, "must be an object"),
+    ("GET", "/api/v1/modes?damping_threshold=x", None, 400, "damping_threshold: must be a number"),
+    ("GET", "/api/v1/modes?damping_threshold=5", None, 400, "damping_threshold: must lie within [0, 1]"),
+    ("GET", "/api/v1/record?from_s=abc", None, 400, "from_s: must be a number"),
+    ("GET", "/api/v1/record?from_s=5&to_s=1", None, 400, "from_s must lie before to_s"),
+    ("GET", "/api/v1/record?part=exe", None, 400, "part: must be cfg or dat"),
+    ("GET", "/api/v1/record?from_s=1e308&to_s=1e309", None, 400, "to_s: must be a number"),
+    ("GET", "/api/v1/events?since=-1", None, 400, "since: must be >= 0"),
+    ("GET", "/api/v1/events?since=nan", None, 400, "since"),
+    ("GET", "/api/v1/history?from_s=nan", None, 400, "from_s"),
+    ("GET", "/api/v1/sweeps/" + "9" * 300, None, 404, "no sweep job"),
+    ("POST", "/api/v1/control", {"action": "speed", "speed": 1e308}, 400, "speed: must lie within [0.1, 100]"),
+    ("POST", "/api/v1/control", {"action": 5}, 400, "action"),
+]
+
+
+class StudyInputTests(DemoServerCase):
+    def test_table_of_bad_study_inputs(self):
+        applied_before = self.srv.metric("droopline_commands_total")
+        for method, path, body, status, fragment in BAD_STUDY:
+            with self.subTest(method=method, path=path[:60], body=str(body)[:80]):
+                s, reply, _ = self.srv.request(method, path, body, TOKEN, timeout=30)
+                self.assertEqual(s, status, reply)
+                self.assertIn(fragment, json.dumps(reply))
+        self.assertEqual(self.srv.metric("droopline_commands_total"), applied_before)  # nothing applied
+
+    def test_a_viewer_is_told_sweeps_are_for_the_instructor(self):
+        s, reply, _ = self.srv.request("POST", "/api/v1/sweeps", {"vary": ["units[0].governor.droop=0.04"]})
+        self.assertEqual(s, 401)
+        self.assertIn("sweeps are for the instructor", reply["error"])
+        self.assertNotIn("changes the simulation", reply["error"])
+
+
+class LingeringCloseTests(DemoServerCase):
+    def test_http_client_sending_the_whole_body_first_gets_the_413(self):
+        # http.client writes the whole body before it reads anything (so does `requests`): the
+        # server answers 413 early, then keeps reading and discarding so the answer arrives.
+        for size in (2 << 20, 6 << 20):
+            conn = http.client.HTTPConnection("127.0.0.1", self.srv.port, timeout=20)
+            conn.request("POST", "/api/v1/commands", body=b"[" + b" " * size + b"]",
+                         headers={"Authorization": "Bearer " + TOKEN, "Content-Type": "application/json"})
+            r = conn.getresponse()
+            body = r.read()
+            conn.close()
+            self.assertEqual(r.status, 413)
+            self.assertIn("larger than 1048576 bytes", json.loads(body)["error"])
+        self.assertIsNone(self.srv.proc.poll())
+
+    def test_the_linger_is_bounded(self):
+        # A client that keeps sending after the 413 is cut off after a few seconds and MiB.
+        with socket.create_connection(("127.0.0.1", self.srv.port), timeout=20) as s:
+            s.sendall(f"POST /api/v1/commands HTTP/1.1\r\nHost: x\r\nContent-Length: {1 << 30}\r\n\r\n".encode())
+            t0, sent = time.time(), 0
+            chunk = b" " * 65536
+            try:
+                while time.time() - t0 < 15:
+                    s.sendall(chunk)
+                    sent += len(chunk)
+            except (BrokenPipeError, ConnectionResetError, socket.timeout):
+                pass
+            elapsed = time.time() - t0
+        self.assertLess(elapsed, 14)
+        self.assertLess(sent, 64 << 20)
+
+
+def ours(m):
+    """The disturbance of the 80 MW load step the late-joiner test makes."""
+    return m["type"] == "disturbance" and m["kind"] == "load_step" and abs(abs(m["delta_mw"]) - 80) < 1e-9
+
+
+class LateJoinerTests(unittest.TestCase):
+    def test_a_client_joining_mid_disturbance_sees_its_present_state(self):
+        srv = Server(os.path.join(test_server.SRC, "scenarios", "demo_three_areas.json"))
+        try:
+            async def go():
+                async with websockets.connect(srv.ws_url(), max_size=2**24) as early:
+                    await next_of(early, "hello")
+                    s, body, _ = srv.request("POST", "/api/v1/commands",
+                                             {"kind": "load_step", "area": "oskany", "mw": 80}, TOKEN)
+                    assert s == 200, body
+                    latest = None
+                    t0 = time.time()
+                    while time.time() - t0 < 5:  # the early client watches the disturbance for 5 s
+                        m = json.loads(await asyncio.wait_for(early.recv(), 5))
+                        if ours(m):
+                            latest = m
+                    s, body, _ = srv.request("POST", "/api/v1/control", {"action": "pause"}, TOKEN)
+                    assert s == 200
+                    await asyncio.sleep(0.3)
+                    while True:  # drain what was sent up to the pause
+                        try:
+                            m = json.loads(await asyncio.wait_for(early.recv(), 0.5))
+                        except asyncio.TimeoutError:
+                            break
+                        if ours(m):
+                            latest = m
+                    async with websockets.connect(srv.ws_url(), max_size=2**24) as late:
+                        hello = await next_of(late, "hello")
+                    return latest, hello
+            latest, hello = run(go(), timeout=40)
+            s, events, _ = srv.request("GET", "/api/v1/events")
+        finally:
+            srv.stop()
+        self.assertIsNotNone(latest)
+        mine = [e for e in hello["events"] if ours(e)]
+        self.assertEqual(len(mine), 1, "one entry per disturbance")
+        # What the late joiner gets is what the early client saw last: not the state at the start.
+        for key in ("nadir_hz", "nadir_at_s", "rocof_hz_per_s", "settling_hz", "open"):
+            self.assertEqual(mine[0][key], latest[key], key)
+        self.assertLess(mine[0]["nadir_hz"], mine[0]["pre_hz"] - 0.01)
+        self.assertIsNotNone(mine[0]["rocof_hz_per_s"])
+        polled = [e for e in events["events"] if ours(e)]
+        self.assertEqual(len(polled), 1)
+        self.assertEqual(polled[0]["nadir_hz"], latest["nadir_hz"])
+
+
+def main():
+    test_server.BIN, test_server.SRC = sys.argv[1], sys.argv[2]
+    unittest.main(argv=[sys.argv[0], "-v", *sys.argv[3:]], exit=True)
+
+
+if __name__ == "__main__":
+    main()
