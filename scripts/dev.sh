@@ -54,7 +54,7 @@ case "${1:-}" in
     build asan
     ASAN_OPTIONS=detect_leaks=1:abort_on_error=1 UBSAN_OPTIONS=print_stacktrace=1 ctest --preset asan -j "$(nproc)"
     build tsan
-    TSAN_OPTIONS=halt_on_error=1 ctest --preset tsan -j "$(nproc)" -R "server_integration|server_faults|web_page|test_models"
+    TSAN_OPTIONS=halt_on_error=1 ctest --preset tsan -j "$(nproc)" -R "server_integration|server_faults|server_hostile|test_live_session|web_page|test_models"
     ;;
   fuzz)
     # Each libFuzzer target for a bounded time from the committed seed corpus (copied, so the
