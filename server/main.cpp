@@ -1,5 +1,6 @@
 // droopline: command-line entry point.
 #include <algorithm>
+#include <cstdlib>
 #include <chrono>
 #include <cstdio>
 #include <cstring>
@@ -11,6 +12,7 @@
 #include <spdlog/spdlog.h>
 
 #include "cli_run.hpp"
+#include "droopline/kernel_choice.hpp"
 #include "cli_sweep.hpp"
 #include "server.hpp"
 
@@ -253,8 +255,17 @@ int main(int argc, char** argv) {
     std::cout << usage_text(current);
     return 0;
   }
+  // DROOPLINE_KERNELS=avx512|avx2|baseline picks the integration kernels (all give the same bits;
+  // the determinism test runs each).
+  if (const char* k = std::getenv("DROOPLINE_KERNELS"); k && *k) {
+    std::string err;
+    if (!droopline::use_kernels(k, err)) {
+      std::cerr << "droopline: DROOPLINE_KERNELS: " << err << "\n";
+      return 2;
+    }
+  }
   if (cmd == "--version") {
-    std::cout << "droopline " << DROOPLINE_VERSION << "\n";
+    std::cout << "droopline " << DROOPLINE_VERSION << " (" << droopline::kernels_in_use() << " kernels)\n";
     return 0;
   }
   if (cmd == "check") {

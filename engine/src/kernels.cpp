@@ -3,10 +3,17 @@
 #include <algorithm>
 #include <cmath>
 
+#include <atomic>
+#include <string>
+
+#include "droopline/kernel_choice.hpp"
+
+// GCC on x86-64 builds three variants of the entry points and picks one at run time; other
+// compilers (the sanitizer builds use clang) build the portable one only.
 #if defined(__GNUC__) && defined(__x86_64__) && !defined(__clang__) && !defined(DROOPLINE_NO_CLONES)
-#define DROOPLINE_CLONES __attribute__((target_clones("arch=x86-64-v4", "avx2", "default")))
+#define DL_VARIANTS 1
 #else
-#define DROOPLINE_CLONES
+#define DL_VARIANTS 0
 #endif
 
 namespace droopline::detail {
@@ -263,43 +270,34 @@ inline void battery_loop(std::size_t n, double df_hz, const GovernorParams& g, c
 
 }  // namespace
 
-DROOPLINE_CLONES
-void steam_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,
-                 const SegmentArrays& a, const StageInfo& s, double* out) {
-  DL_DISPATCH(steam_loop)
-}
-
-DROOPLINE_CLONES
-void reheat_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,
-                  const SegmentArrays& a, const StageInfo& s, double* out) {
-  DL_DISPATCH(reheat_loop)
-}
-
-DROOPLINE_CLONES
-void hydro_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,
-                 const SegmentArrays& a, const StageInfo& s, double* out) {
-  DL_DISPATCH(hydro_loop)
-}
-
-DROOPLINE_CLONES
-void gas_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,
-               const SegmentArrays& a, const StageInfo& s, double* out) {
-  DL_DISPATCH(gas_loop)
-}
-
-DROOPLINE_CLONES
-void battery_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,
-                   const SegmentArrays& a, const StageInfo& s, double* out) {
-  DL_DISPATCH(battery_loop)
-}
-
-#undef DL_DISPATCH
-#undef DL_DISPATCH_ISO
+// The entry points of every instruction-set variant: the same source compiled for AVX-512
+// (x86-64-v4), AVX2 and baseline x86-64. Every variant gives the same bits.
+#define DL_ENTRY_POINTS(ATTR)                                                                      \
+  ATTR void steam_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,  \
+                        const SegmentArrays& a, const StageInfo& s, double* out) {                  \
+    DL_DISPATCH(steam_loop)                                                                         \
+  }                                                                                                 \
+  ATTR void reheat_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t, \
+                         const SegmentArrays& a, const StageInfo& s, double* out) {                 \
+    DL_DISPATCH(reheat_loop)                                                                        \
+  }                                                                                                 \
+  ATTR void hydro_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,  \
+                        const SegmentArrays& a, const StageInfo& s, double* out) {                  \
+    DL_DISPATCH(hydro_loop)                                                                         \
+  }                                                                                                 \
+  ATTR void gas_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,    \
+                      const SegmentArrays& a, const StageInfo& s, double* out) {                    \
+    DL_DISPATCH(gas_loop)                                                                           \
+  }                                                                                                 \
+  ATTR void battery_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,\
+                          const SegmentArrays& a, const StageInfo& s, double* out) {                \
+    DL_DISPATCH(battery_loop)                                                                       \
+  }                                                                                                 \
+  ATTR double ordered_sum(std::size_t n, const double* v) { return ordered_sum_body(n, v); }
 
 // Eight interleaved partial sums combined pairwise: a fixed order the compiler can map onto vector
 // lanes without reassociating anything, so every ISA variant gives the same bits.
-DROOPLINE_CLONES
-double ordered_sum(std::size_t n, const double* v) {
+inline double ordered_sum_body(std::size_t n, const double* v) {
   double s[8] = {0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0};
   std::size_t i = 0;
   for (; i + 8 <= n; i += 8)
@@ -308,4 +306,114 @@ double ordered_sum(std::size_t n, const double* v) {
   return ((s[0] + s[1]) + (s[2] + s[3])) + ((s[4] + s[5]) + (s[6] + s[7]));
 }
 
+namespace baseline {
+DL_ENTRY_POINTS()
+}
+#if DL_VARIANTS
+namespace avx2 {
+DL_ENTRY_POINTS(__attribute__((target("avx2"))))
+}
+namespace avx512 {
+DL_ENTRY_POINTS(__attribute__((target("arch=x86-64-v4"))))
+}
+#endif
+
+#undef DL_ENTRY_POINTS
+#undef DL_DISPATCH
+#undef DL_DISPATCH_ISO
+
+namespace {
+
+struct KernelSet {
+  const char* name;
+  decltype(&baseline::steam_stage) steam, reheat, hydro, gas, battery;
+  decltype(&baseline::ordered_sum) sum;
+};
+
+#define DL_SET(ns) {#ns, &ns::steam_stage, &ns::reheat_stage, &ns::hydro_stage, &ns::gas_stage, &ns::battery_stage, &ns::ordered_sum}
+constexpr KernelSet kBaseline = DL_SET(baseline);
+#if DL_VARIANTS
+constexpr KernelSet kAvx2 = DL_SET(avx2);
+constexpr KernelSet kAvx512 = DL_SET(avx512);
+#endif
+#undef DL_SET
+
+// What this processor runs: the widest variant it supports.
+const KernelSet* widest() {
+#if DL_VARIANTS
+  __builtin_cpu_init();
+  if (__builtin_cpu_supports("avx512f") && __builtin_cpu_supports("avx512bw") && __builtin_cpu_supports("avx512cd") &&
+      __builtin_cpu_supports("avx512dq") && __builtin_cpu_supports("avx512vl"))
+    return &kAvx512;
+  if (__builtin_cpu_supports("avx2")) return &kAvx2;
+#endif
+  return &kBaseline;
+}
+
+std::atomic<const KernelSet*> g_active{nullptr};
+
+const KernelSet& active() {
+  const KernelSet* k = g_active.load(std::memory_order_relaxed);
+  if (!k) {
+    k = widest();
+    g_active.store(k, std::memory_order_relaxed);
+  }
+  return *k;
+}
+
+}  // namespace
+
+void steam_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t, const SegmentArrays& a,
+                 const StageInfo& s, double* out) {
+  active().steam(n, df_hz, g, t, a, s, out);
+}
+void reheat_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t, const SegmentArrays& a,
+                  const StageInfo& s, double* out) {
+  active().reheat(n, df_hz, g, t, a, s, out);
+}
+void hydro_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t, const SegmentArrays& a,
+                 const StageInfo& s, double* out) {
+  active().hydro(n, df_hz, g, t, a, s, out);
+}
+void gas_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t, const SegmentArrays& a,
+               const StageInfo& s, double* out) {
+  active().gas(n, df_hz, g, t, a, s, out);
+}
+void battery_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t, const SegmentArrays& a,
+                   const StageInfo& s, double* out) {
+  active().battery(n, df_hz, g, t, a, s, out);
+}
+double ordered_sum(std::size_t n, const double* v) { return active().sum(n, v); }
+
 }  // namespace droopline::detail
+
+namespace droopline {
+
+bool use_kernels(std::string_view variant, std::string& error) {
+  using namespace detail;
+  const KernelSet* best = widest();
+  const KernelSet* want = nullptr;
+  if (variant == "baseline") want = &kBaseline;
+#if DL_VARIANTS
+  else if (variant == "avx2") want = &kAvx2;
+  else if (variant == "avx512") want = &kAvx512;
+#else
+  else if (variant == "avx2" || variant == "avx512") want = &kBaseline;  // this build has one portable variant
+#endif
+  else {
+    error = "unknown kernel variant \"" + std::string(variant.substr(0, 32)) + "\" (expected avx512, avx2 or baseline)";
+    return false;
+  }
+  // A variant is usable when it is not wider than what the processor runs.
+  auto rank = [](const KernelSet* k) { return std::string_view(k->name) == "avx512" ? 2 : std::string_view(k->name) == "avx2" ? 1 : 0; };
+  if (rank(want) > rank(best)) {
+    error = "this processor cannot run the " + std::string(variant) + " kernels (its widest are " + best->name + ")";
+    return false;
+  }
+  g_active.store(want, std::memory_order_relaxed);
+  return true;
+}
+
+const char* kernels_in_use() { return detail::active().name; }
+
+}  // namespace droopline
