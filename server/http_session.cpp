@@ -1,6 +1,7 @@
 #include "http_session.hpp"
 
 #include <sstream>
+#include <type_traits>
 
 #include <nlohmann/json.hpp>
 #include <spdlog/spdlog.h>
@@ -38,10 +39,42 @@ std::string quote_cut(std::string_view text) {
   return out + (text.size() > kMax ? "...\"" : "\"");
 }
 
+// An error reply. Messages may quote what the client sent: each is clipped, and at most 200
+// issues are listed.
 std::string error_json(const std::string& message, const std::vector<std::string>& issues = {}) {
-  json j{{"error", message}};
-  if (!issues.empty()) j["issues"] = issues;
+  constexpr std::size_t kMaxIssues = 200;
+  json j{{"error", clip_text(message)}};
+  if (!issues.empty()) {
+    json list = json::array();
+    for (std::size_t i = 0; i < issues.size() && i < kMaxIssues; ++i) list.push_back(clip_text(issues[i]));
+    if (issues.size() > kMaxIssues) list.push_back("... and " + std::to_string(issues.size() - kMaxIssues) + " more");
+    j["issues"] = std::move(list);
+  }
   return j.dump(-1, ' ', false, json::error_handler_t::replace);
+}
+
+// Reads `Authorization: Bearer TOKEN` (the scheme in any case, RFC 9110); 0 when it carries the
+// instructor token, else the status (401 not a bearer token, 403 the wrong one) and why.
+int check_bearer(std::string_view header, const std::string& token, std::string& why) {
+  std::size_t sp = header.find(' ');
+  std::string scheme(header.substr(0, sp));
+  for (char& c : scheme) c = static_cast<char>(std::tolower(static_cast<unsigned char>(c)));
+  if (scheme != "bearer") {
+    why = "the instructor token goes in 'Authorization: Bearer TOKEN' (got the scheme " + quote_cut(scheme) + ")";
+    return 401;
+  }
+  std::string_view given = sp == std::string_view::npos ? std::string_view() : header.substr(sp + 1);
+  while (!given.empty() && given.front() == ' ') given.remove_prefix(1);
+  while (!given.empty() && given.back() == ' ') given.remove_suffix(1);
+  if (given.empty()) {
+    why = "the Authorization header holds no token after 'Bearer'";
+    return 401;
+  }
+  if (!token_matches(std::string(given), token)) {
+    why = "wrong instructor token";
+    return 403;
+  }
+  return 0;
 }
 
 std::vector<std::string> issue_texts(const std::vector<Issue>& issues) {
@@ -60,9 +93,11 @@ bool query_number(const Target& t, const std::string& key, double fallback, doub
   }
   const std::string v = t.get(key);
   char* end = nullptr;
-  out = std::strtod(v.c_str(), &end);
-  if (v.empty() || end != v.c_str() + v.size() || !std::isfinite(out)) {
-    error = "query parameter " + key + ": must be a number, got \"" + v + "\"";
+  // Decimal only: strtod would also take hexadecimal, "inf" and "nan".
+  const bool decimal = !v.empty() && v.find_first_not_of("0123456789+-.eE") == std::string::npos;
+  out = decimal ? std::strtod(v.c_str(), &end) : 0.0;
+  if (!decimal || end != v.c_str() + v.size() || !std::isfinite(out)) {
+    error = "query parameter " + key + ": must be a decimal number, got " + quote_cut(v);
     return false;
   }
   return true;
@@ -149,6 +184,7 @@ void HttpSession::do_read() {
 }
 
 void HttpSession::on_read(beast::error_code ec, std::size_t) {
+  head_ = false;
   if (ec == http::error::end_of_stream || ec == beast::error::timeout || ec == net::error::operation_aborted ||
       ec == net::error::connection_reset) {
     beast::error_code ignored;
@@ -166,6 +202,7 @@ void HttpSession::on_read(beast::error_code ec, std::size_t) {
     return send_then_linger(json_response(11, false, 400, error_json("malformed HTTP request: " + ec.message())));
   }
   Request req = parser_->release();
+  head_ = req.method() == http::verb::head;
   ctx_.counters.requests.fetch_add(1);
   spdlog::debug("{} {}", std::string(req.method_string()), std::string(req.target()));
   if (websocket::is_upgrade(req)) return upgrade(std::move(req));
@@ -181,6 +218,8 @@ void HttpSession::on_read(beast::error_code ec, std::size_t) {
 template <class Body>
 void HttpSession::send(http::response<Body> res) {
   const bool keep_alive = res.keep_alive();
+  if constexpr (std::is_same_v<Body, http::string_body>)
+    if (head_) res.body().clear();  // a HEAD answer has the headers only (Content-Length kept)
   auto msg = std::make_shared<http::response<Body>>(std::move(res));
   writing_ = msg;
   stream_.expires_after(std::chrono::seconds(30));
@@ -241,9 +280,8 @@ void HttpSession::upgrade(Request&& req) {
   }
   bool instructor = false;
   if (req.count(http::field::authorization)) {
-    const std::string auth(req[http::field::authorization]);
-    if (auth.rfind("Bearer ", 0) != 0 || !token_matches(auth.substr(7), ctx_.token))
-      return refuse(403, "wrong instructor token");
+    std::string why;
+    if (const int status = check_bearer(req[http::field::authorization], ctx_.token, why)) return refuse(status, why);
     instructor = true;
   }
   stream_.expires_never();
@@ -271,9 +309,9 @@ void HttpSession::handle(Request&& req) {
       reply(401, error_json(std::string(why) + ": send the instructor token as 'Authorization: Bearer TOKEN'"));
       return false;
     }
-    const std::string auth(req[http::field::authorization]);
-    if (auth.rfind("Bearer ", 0) != 0 || !token_matches(auth.substr(7), ctx_.token)) {
-      reply(403, error_json("wrong instructor token"));
+    std::string refused;
+    if (const int status = check_bearer(req[http::field::authorization], ctx_.token, refused)) {
+      reply(status, error_json(refused));
       return false;
     }
     return true;
@@ -363,8 +401,9 @@ void HttpSession::handle(Request&& req) {
         return reply(400, error_json(err));
       const std::string format = t.get("format", "json");
       if (format != "json" && format != "csv")
-        return reply(400, error_json("query parameter format: must be json or csv, got \"" + format + "\""));
+        return reply(400, error_json("query parameter format: must be json or csv, got " + quote_cut(format)));
       if (every < 0) return reply(400, error_json("query parameter every_s: must be >= 0"));
+      if (from > to) return reply(400, error_json("query parameters: from_s must not lie after to_s"));
       const bool csv = format == "csv";
       Response res{http::status::ok, version};
       res.set(http::field::content_type, csv ? "text/csv; charset=utf-8" : "application/json");
@@ -378,7 +417,9 @@ void HttpSession::handle(Request&& req) {
       if (method != http::verb::get) return method_not_allowed("GET");
       double since = 0;
       std::string err;
-      if (!query_number(t, "since", 0, since, err) || since < 0) return reply(400, error_json(err.empty() ? "since: must be >= 0" : err));
+      if (!query_number(t, "since", 0, since, err)) return reply(400, error_json(err));
+      if (!(since >= 0 && since <= 9007199254740992.0 && since == std::floor(since)))
+        return reply(400, error_json("query parameter since: must be a whole number from 0 to 2^53, got " + fmt_num(since)));
       return reply(200, ctx_.live->events(static_cast<std::uint64_t>(since)));
     }
     if (path == "/api/v1/replays") {
@@ -585,7 +626,7 @@ void HttpSession::handle(Request&& req) {
       return serve_file(req, "/openapi.json");
     }
     if (path == "/api/v1/stream") return reply(426, error_json("/api/v1/stream is a WebSocket: send an upgrade request"));
-    return reply(404, error_json("no API endpoint " + path));
+    return reply(404, error_json("no API endpoint " + quote_cut(path)));
   }
 
   // Everything else is one of the page's files, or nothing.

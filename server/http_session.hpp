@@ -42,6 +42,7 @@ class HttpSession : public std::enable_shared_from_this<HttpSession> {
   beast::flat_buffer buffer_;
   std::optional<http::request_parser<http::string_body>> parser_;
   std::shared_ptr<void> writing_;  // the response being written (any body type)
+  bool head_ = false;               // the request being answered is a HEAD
   bool linger_ = false;             // after this write: discard what the client still sends
   std::size_t discarded_ = 0;       // bytes discarded while lingering
   std::array<char, 16 * 1024> discard_buffer_{};

@@ -23,8 +23,12 @@ double wall_now_s() {
 }
 
 std::string error_body(const std::string& message, const std::vector<std::string>& issues = {}) {
-  json j{{"error", message}};
-  if (!issues.empty()) j["issues"] = issues;
+  json j{{"error", clip_text(message)}};
+  if (!issues.empty()) {
+    json list = json::array();
+    for (const std::string& i : issues) list.push_back(clip_text(i));
+    j["issues"] = std::move(list);
+  }
   return j.dump(-1, ' ', false, json::error_handler_t::replace);
 }
 
@@ -192,7 +196,10 @@ void LiveSession::run() {
       engine_->step();
       ++ran;
       counters_.steps.fetch_add(1);
-      if (!guard_step()) break;
+      if (!guard_step()) {
+        rebase();  // the schedule starts again from the state kept: not a slip
+        break;
+      }
       if (engine_->step_index() % output_every_ == 0) record_history();
       drain_notices();
     }
@@ -328,7 +335,7 @@ bool LiveSession::guard_step() {
   engine_ = checkpoint_->clone();
   paused_ = true;
   halted_ = "at t = " + fmt_fixed(bad_t, 2) + " s a value of the simulation stopped being a finite number; the last good state (t = " +
-            fmt_fixed(engine_->time_s(), 2) + " s) is kept and the session is paused: the instructor can reset it or load a scenario";
+            fmt_fixed(engine_->time_s(), 2) + " s) is kept and the session is paused: the instructor can reset it (then resume) or load a scenario";
   spdlog::error("{}", halted_);
   for (Pending& p : pending_) {
     counters_.commands_refused.fetch_add(p.commands.size());

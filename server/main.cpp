@@ -265,7 +265,8 @@ int main(int argc, char** argv) {
     }
   }
   if (cmd == "--version") {
-    std::cout << "droopline " << DROOPLINE_VERSION << " (" << droopline::kernels_in_use() << " kernels)\n";
+    std::cout << "droopline " << DROOPLINE_VERSION << " (" << droopline::kernels_in_use() << " kernels"
+              << (droopline::kernel_variants_built() ? "" : ", the only ones in this build") << ")\n";
     return 0;
   }
   if (cmd == "check") {

@@ -3,6 +3,7 @@
 #include <nlohmann/json.hpp>
 #include <spdlog/spdlog.h>
 
+#include "droopline/format.hpp"
 #include "droopline/json_input.hpp"
 #include "droopline/scenario_io.hpp"
 
@@ -88,6 +89,10 @@ void WebsocketSession::on_read(beast::error_code ec, std::size_t) {
   if (ec) return fail(ec, "read");
   const std::string text = beast::buffers_to_string(buffer_.data());
   buffer_.consume(buffer_.size());
+  if (ws_.got_binary()) {
+    reply(safe_dump(json{{"type", "error"}, {"error", "messages are text frames holding JSON, not binary frames"}}));
+    return do_read();
+  }
   try {
     handle_message(text);
   } catch (const std::exception& e) {  // input never takes the server down
@@ -130,12 +135,14 @@ void WebsocketSession::handle_message(const std::string& text) {
     const bool ok = j.contains("token") && j["token"].is_string() &&
                     token_matches(j["token"].get<std::string>(), ctx_.token);
     if (ok) instructor_ = true;
-    reply(safe_dump(json{{"type", "auth"}, {"id", id}, {"ok", ok}, {"role", instructor_ ? "instructor" : "viewer"}}));
+    json answer{{"type", "auth"}, {"id", id}, {"ok", ok}, {"role", instructor_ ? "instructor" : "viewer"}};
+    if (!ok) answer["error"] = j.contains("token") && j["token"].is_string() ? "wrong instructor token" : "token: required, a string";
+    reply(safe_dump(answer));
     if (ok) spdlog::info("client {} authenticated as instructor", peer_);
     return;
   }
   if (type != "commands" && type != "control") {
-    reply(safe_dump(json{{"type", "error"}, {"id", id}, {"error", "unknown message type \"" + type.substr(0, 64) + "\""}}));
+    reply(safe_dump(json{{"type", "error"}, {"id", id}, {"error", "unknown message type \"" + clip_text(type, 64) + "\" (expected auth, commands, control)"}}));
     return;
   }
   if (!instructor_) {
@@ -149,10 +156,14 @@ void WebsocketSession::handle_message(const std::string& text) {
     self->reply(head + std::to_string(r.status) + ",\"body\":" + r.body + "}");
   };
   if (type == "commands") {
-    CommandParse cp = parse_commands(j.contains("commands") ? j["commands"].dump() : "null");
+    if (!j.contains("commands")) {
+      done({400, safe_dump(json{{"error", "commands: required, one command object or a list of them"}})});
+      return;
+    }
+    CommandParse cp = parse_commands(j["commands"].dump());
     if (!cp.issues.empty()) {
       std::vector<std::string> msgs;
-      for (const Issue& i : cp.issues) msgs.push_back(i.text());
+      for (const Issue& i : cp.issues) msgs.push_back(clip_text(i.text()));
       done({400, safe_dump(json{{"error", "invalid command"}, {"issues", msgs}})});
       return;
     }
@@ -160,14 +171,19 @@ void WebsocketSession::handle_message(const std::string& text) {
     return;
   }
   const std::string action = j.contains("action") && j["action"].is_string() ? j["action"].get<std::string>() : "";
+  auto refuse = [&](const std::string& why) { done({400, safe_dump(json{{"error", why}})}); };
   if (action == "pause") ctx_.live->pause(done);
   else if (action == "resume") ctx_.live->resume(done);
   else if (action == "reset") ctx_.live->reset(done);
-  else if (action == "speed" && j.contains("speed") && j["speed"].is_number() &&
-           j["speed"].get<double>() >= 0.1 && j["speed"].get<double>() <= 100.0)
-    ctx_.live->set_speed(j["speed"].get<double>(), done);
+  else if (action != "speed")
+    refuse("action: must be one of \"pause\", \"resume\", \"reset\", \"speed\", got " +
+           (j.contains("action") ? clip_text(j["action"].dump(-1, ' ', false, json::error_handler_t::replace), 64) : std::string("nothing")));
+  else if (!j.contains("speed") || !j["speed"].is_number())
+    refuse("speed: required, a number from 0.1 to 100");
+  else if (const double speed = j["speed"].get<double>(); !(speed >= 0.1 && speed <= 100.0))
+    refuse("speed: must lie within [0.1, 100], got " + fmt_num(speed));
   else
-    done({400, json{{"error", "control needs action pause, resume, reset or speed (with speed 0.1-100)"}}.dump()});
+    ctx_.live->set_speed(speed, done);
 }
 
 void WebsocketSession::deliver(const Outgoing& msg) {

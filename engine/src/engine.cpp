@@ -845,6 +845,7 @@ struct Engine::Impl {
   // ---------------------------------------------------------------- commands
   struct Shadow {
     std::vector<bool> unit_online, tie_in;
+    std::vector<double> droop;  // as the commands checked so far would leave them
   };
 
   // Dense index of a scenario id (the count when absent); commands are validated first.
@@ -874,10 +875,29 @@ struct Engine::Impl {
         sh.unit_online[u] = true;
         break;
       }
-      case CommandKind::setpoint:
+      case CommandKind::setpoint: {
+        const std::size_t u = unit_idx(c.unit);
+        if (!sh.unit_online[u]) return path + ".unit: unit \"" + c.unit + "\" is not online";
+        break;
+      }
       case CommandKind::governor: {
         const std::size_t u = unit_idx(c.unit);
         if (!sh.unit_online[u]) return path + ".unit: unit \"" + c.unit + "\" is not online";
+        if (c.droop) {
+          // With the droops as they are now (earlier commands included), the area's frequency
+          // loop must stay slow enough for the fixed step: M/beta at least five steps.
+          sh.droop[u] = *c.droop;
+          const std::size_t a = units[u].area;
+          double beta = areas[a].dmp;
+          for (std::size_t v = 0; v < nu; ++v)
+            if (units[v].area == a && sh.unit_online[v] && sh.droop[v] > 0.0)
+              beta += def.units[v].rating_mw / (sh.droop[v] * f0);
+          const double tc = areas[a].m / beta;
+          if (areas[a].m > 0.0 && beta > 0.0 && h > tc / 5.0)
+            return path + ".droop: " + fmt_num(*c.droop) + " would make area \"" + def.areas[a].id +
+                   "\" respond faster (inertia over natural response, M/beta = " + fmt_num(tc) +
+                   " s) than the fixed step can follow: step_s (" + fmt_num(h) + " s) must be at most a fifth of it";
+        }
         break;
       }
       case CommandKind::tie_trip: {
@@ -908,7 +928,10 @@ struct Engine::Impl {
 
   Shadow shadow() const {
     Shadow sh;
-    for (const UnitRt& u : units) sh.unit_online.push_back(u.online);
+    for (const UnitRt& u : units) {
+      sh.unit_online.push_back(u.online);
+      sh.droop.push_back(u.droop);
+    }
     for (const TieRt& t : ties) sh.tie_in.push_back(t.in_service);
     return sh;
   }

@@ -37,4 +37,9 @@ std::string fmt_exact(double v) {
   return s;
 }
 
+std::string clip_text(std::string_view text, std::size_t max) {
+  if (text.size() <= max) return std::string(text);
+  return std::string(text.substr(0, max)) + "... (" + std::to_string(text.size() - max) + " more characters)";
+}
+
 }  // namespace droopline

@@ -416,4 +416,6 @@ bool use_kernels(std::string_view variant, std::string& error) {
 
 const char* kernels_in_use() { return detail::active().name; }
 
+bool kernel_variants_built() { return DL_VARIANTS != 0; }
+
 }  // namespace droopline

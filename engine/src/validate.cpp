@@ -18,7 +18,9 @@ constexpr double kStepFraction = 5.0;  // step must be at most 1/5 of the fastes
 // Physical bounds: what a real power system can have, generously. A finite value beyond them is
 // a typing slip or an attack, and it is refused rather than simulated into garbage.
 namespace bound {
+constexpr double kNominalHzMin = 10.0;  // below any supply frequency in use (16.7 Hz rail supplies)
 constexpr double kNominalHz = 1000.0;   // above any supply frequency in use
+constexpr double kDroopMinPu = 0.001;   // 0.1 %: below it a unit is isochronous in all but name
 constexpr double kStepS = 1.0;          // a fixed step longer than any governor time constant
 constexpr double kDurationS = 1e7;      // about 115 days of simulated time
 constexpr double kPowerMw = 2e6;        // demand, rating, limits: above the largest interconnection
@@ -53,6 +55,13 @@ struct Where {
 };
 
 Where at(const std::string& base, const char* suffix, bool dot = false) { return {base, suffix, dot}; }
+
+// A refused value as a message shows it: in full when the short form would read like the bound it
+// broke (900.0000001 is not "900").
+std::string shown(double v, double lo, double hi) {
+  const std::string s = fmt_num(v);
+  return (s == fmt_num(lo) || s == fmt_num(hi)) ? fmt_exact(v) : s;
+}
 
 class Checker {
  public:
@@ -89,7 +98,7 @@ class Checker {
   }
   void within(const Where& path, double v, double lo, double hi) {
     if (!(v >= lo && v <= hi))
-      error(path, "must lie within [" + fmt_num(lo) + ", " + fmt_num(hi) + "], got " + fmt_num(v));
+      error(path, "must lie within [" + fmt_num(lo) + ", " + fmt_num(hi) + "], got " + shown(v, lo, hi));
   }
   /// Warns when a valid value lies outside its typical range (section 9 of the model notes).
   void typical(const Where& path, double v, double lo, double hi, const char* what) {
@@ -135,7 +144,7 @@ struct TimeConstant {
 };
 
 void check_governor(Checker& ck, const std::string& p, const GovernorDef& g, bool battery) {
-  ck.positive_at_most(at(p, ".droop"), g.droop, bound::kDroopPu, " pu");
+  ck.within(at(p, ".droop"), g.droop, bound::kDroopMinPu, bound::kDroopPu);
   ck.typical(at(p, ".droop"), g.droop, 0.02, 0.12, "droop (pu)");
   ck.non_negative_at_most(at(p, ".deadband_hz"), g.deadband_hz, bound::kDeadbandHz, " Hz");
   if (g.deadband_hz > 0.5)
@@ -220,6 +229,31 @@ std::vector<double> area_sizes(const SystemDef& def, const std::map<std::string,
   return size;
 }
 
+// A governor command that lowers a droop makes its area's frequency loop faster (M/beta, the
+// inertia over the natural response, shrinks): the fixed step must still resolve it, as the loader
+// requires of the initial settings.
+void check_new_droop(Checker& ck, const SystemDef& def, std::size_t unit, double droop, const Where& path) {
+  const UnitDef& u = def.units[unit];
+  if (!(droop >= bound::kDroopMinPu) || !(def.nominal_hz > 0.0) || !(def.step_s > 0.0)) return;
+  std::size_t area = def.areas.size();
+  for (std::size_t a = 0; a < def.areas.size(); ++a)
+    if (def.areas[a].id == u.area) area = a;
+  if (area == def.areas.size()) return;
+  double inertia = 0.0;
+  for (const UnitDef& v : def.units)
+    if (v.area == u.area && v.online && is_synchronous(v) && v.inertia_s > 0.0) inertia += v.inertia_s * v.rating_mw;
+  double beta = natural_response_mw_per_hz(def, area);
+  if (u.online && u.governor.droop > 0.0) beta -= u.rating_mw / (u.governor.droop * def.nominal_hz);
+  beta += u.rating_mw / (droop * def.nominal_hz);
+  const double m = 2.0 * inertia / def.nominal_hz;
+  if (!(m > 0.0 && beta > 0.0)) return;
+  const double tc = m / beta;
+  if (def.step_s > tc / kStepFraction)
+    ck.error(path, fmt_num(droop) + " would make area \"" + u.area + "\" respond faster (inertia over natural response, M/beta = " +
+                       fmt_num(tc) + " s) than the fixed step can follow: step_s (" + fmt_num(def.step_s) +
+                       " s) must be at most a fifth of it");
+}
+
 void check_command(Checker& ck, const SystemDef& def, const Command& c, const std::string& p,
                    const std::map<std::string, std::size_t>& areas,
                    const std::map<std::string, std::size_t>& units,
@@ -238,7 +272,7 @@ void check_command(Checker& ck, const SystemDef& def, const Command& c, const st
     const double lo = unit_min_mw(u), hi = unit_max_mw(u);
     if (!(mw >= lo && mw <= hi))
       ck.error(at(p, field.c_str(), true), "must lie within [min_mw, max_mw] = [" + fmt_num(lo) + ", " +
-                                    fmt_num(hi) + "] of unit \"" + u.id + "\", got " + fmt_num(mw));
+                                    fmt_num(hi) + "] of unit \"" + u.id + "\", got " + shown(mw, lo, hi));
   };
   // A change of load within ten times the area's size (either sign); a fluctuation within it.
   auto area_load = [&](const std::size_t* ai, const char* field, double mw, bool fluctuation) {
@@ -272,7 +306,11 @@ void check_command(Checker& ck, const SystemDef& def, const Command& c, const st
       break;
     case CommandKind::governor:
       ref(units, "unit", c.unit, "unit");
-      if (c.droop) ck.positive_at_most(at(p, ".droop"), *c.droop, bound::kDroopPu, " pu");
+      if (c.droop) {
+        ck.within(at(p, ".droop"), *c.droop, bound::kDroopMinPu, bound::kDroopPu);
+        if (const std::size_t* ui = units.count(c.unit) ? &units.at(c.unit) : nullptr)
+          check_new_droop(ck, def, *ui, *c.droop, at(p, ".droop"));
+      }
       if (c.deadband_hz) ck.non_negative_at_most(at(p, ".deadband_hz"), *c.deadband_hz, bound::kDeadbandHz, " Hz");
       if (!c.droop && !c.deadband_hz && !c.deadband && !c.mode)
         ck.error(p, "a governor command needs at least one of droop, deadband_hz, deadband, mode");
@@ -541,7 +579,7 @@ std::vector<Issue> validate_command(const SystemDef& def, const Command& command
 std::vector<Issue> validate(const SystemDef& def) {
   std::vector<Issue> out;
   Checker ck(out);
-  ck.positive_at_most("nominal_hz", def.nominal_hz, bound::kNominalHz, " Hz");
+  ck.within("nominal_hz", def.nominal_hz, bound::kNominalHzMin, bound::kNominalHz);
   if (def.nominal_hz > 0.0 && def.nominal_hz != 50.0 && def.nominal_hz != 60.0)
     ck.warn("nominal_hz", "usually 50 or 60, got " + fmt_num(def.nominal_hz));
   ck.positive_at_most("step_s", def.step_s, bound::kStepS, " s");
@@ -676,6 +714,23 @@ std::vector<Issue> validate(const SystemDef& def) {
       if (m > 0.0 && beta > 0.0 && def.nominal_hz > 0.0)
         tcs.push_back({m / beta, "areas[" + std::to_string(i) + "] (inertia over natural response, M/beta)"});
     }
+
+  // Tie damping pulls the two areas' speeds together with the time constant
+  // tau = 1 / (Dt (1/M1 + 1/M2)); a step past 2 tau leaves the real-axis stability interval of RK4
+  // (|h lambda| < 2.78) and the run diverges.
+  for (std::size_t i = 0; i < def.ties.size() && def.step_s > 0.0; ++i) {
+    const TieDef& t = def.ties[i];
+    auto a = areas.find(t.from), b = areas.find(t.to);
+    if (!(t.damping_mw_per_hz > 0.0) || !t.in_service || a == areas.end() || b == areas.end() || a->second == b->second) continue;
+    const double m1 = 2.0 * inertia[a->second] / def.nominal_hz, m2 = 2.0 * inertia[b->second] / def.nominal_hz;
+    if (!(m1 > 0.0 && m2 > 0.0)) continue;
+    const double tau = 1.0 / (t.damping_mw_per_hz * (1.0 / m1 + 1.0 / m2));
+    if (def.step_s > 2.0 * tau)
+      ck.error(at("ties[" + std::to_string(i) + "]", ".damping_mw_per_hz"),
+               fmt_num(t.damping_mw_per_hz) + " MW/Hz couples the areas' speeds with a time constant of " + fmt_num(tau) +
+                   " s (1 / (Dt (1/M1 + 1/M2))): the fixed step (" + fmt_num(def.step_s) +
+                   " s) must be at most twice it for the integration to stay stable");
+  }
 
   if (def.step_s > 0.0 && !tcs.empty()) {
     auto fastest = std::min_element(tcs.begin(), tcs.end(), [](auto& a, auto& b) {

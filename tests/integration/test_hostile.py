@@ -250,7 +250,7 @@ BAD_STUDY = [
      "command.mw: must lie within +/-"),
     ("POST", "/api/v1/commands", {"kind": "load_ramp", "area": "oskany", "mw": -1e12, "over_s": 5}, 400,
      "ten times the size of area"),
-    ("POST", "/api/v1/commands", {"kind": "governor", "unit": "V1", "droop": 1e9}, 400, "command.droop: must be at most 1 pu"),
+    ("POST", "/api/v1/commands", {"kind": "governor", "unit": "V1", "droop": 1e9}, 400, "command.droop: must lie within [0.001, 1], got 1e+09"),
     ("POST", "/api/v1/commands", {"kind": "governor", "unit": "V1", "deadband_hz": 1e300}, 400,
      "command.deadband_hz: must be at most 5 Hz"),
     ("POST", "/api/v1/commands", {"kind": "setpoint", "unit": "V1", "mw": 100, "ramp_mw_per_s": 1e200}, 400,
@@ -278,19 +278,32 @@ BAD_STUDY = [
     ("POST", "/api/v1/sweeps", {"vary": ["units[0].governor.droop=0.04"], "extra": 1}, 400, "\\\"extra\\\": unknown field"),
     ("POST", "/api/v1/sweeps", {"vary": ["units[0].governor.droop=0:0.999:0.000001", "units[1].governor.droop=0:0.999:0.000001"]},
      400, "members, at most 100000 over HTTP"),
-    ("POST", "/api/v1/sweeps", {"vary": ["units[0].governor.droop=0.04,1e300"]}, 400, "must be at most 1 pu"),
+    ("POST", "/api/v1/sweeps", {"vary": ["units[0].governor.droop=0.04,1e300"]}, 400, "must lie within [0.001, 1], got 1e+300"),
     ("POST", "/api/v1/modes", {"name": 5}, 400, "name: must be a string"),
     ("POST", "/api/v1/modes", [1, 2], 400, "must be an object"),
-    ("GET", "/api/v1/modes?damping_threshold=x", None, 400, "damping_threshold: must be a number"),
+    ("GET", "/api/v1/modes?damping_threshold=x", None, 400, "damping_threshold: must be a decimal number"),
     ("GET", "/api/v1/modes?damping_threshold=5", None, 400, "damping_threshold: must lie within [0, 1]"),
-    ("GET", "/api/v1/record?from_s=abc", None, 400, "from_s: must be a number"),
+    ("GET", "/api/v1/record?from_s=abc", None, 400, "from_s: must be a decimal number"),
     ("GET", "/api/v1/record?from_s=5&to_s=1", None, 400, "from_s must lie before to_s"),
     ("GET", "/api/v1/record?part=exe", None, 400, "part: must be cfg or dat"),
-    ("GET", "/api/v1/record?from_s=1e308&to_s=1e309", None, 400, "to_s: must be a number"),
-    ("GET", "/api/v1/events?since=-1", None, 400, "since: must be >= 0"),
+    ("GET", "/api/v1/record?from_s=1e308&to_s=1e309", None, 400, "to_s: must be a decimal number"),
+    ("GET", "/api/v1/events?since=-1", None, 400, "since: must be a whole number from 0 to 2^53, got -1"),
     ("GET", "/api/v1/events?since=nan", None, 400, "since"),
     ("GET", "/api/v1/history?from_s=nan", None, 400, "from_s"),
     ("GET", "/api/v1/sweeps/" + "9" * 300, None, 404, "no sweep job"),
+    ("POST", "/api/v1/commands", {"kind": "setpoint", "unit": "V1", "mw": 900.0000001}, 400,
+     "= [0, 900] of unit \\\"V1\\\", got 900.0000001"),
+    ("POST", "/api/v1/commands", {"kind": "governor", "unit": "V1", "droop": 1e-300}, 400,
+     "command.droop: must lie within [0.001, 1], got 1e-300"),
+    ("POST", "/api/v1/commands", {"kind": "governor", "unit": "V1", "droop": 0.001}, 400,
+     "command.droop: 0.001 would make area \\\"vellmark\\\" respond faster"),
+    ("POST", "/api/v1/commands", '{"kind": "load_step", "area": "oskany", "mw": 5}\u0000{"kind": "unit_trip"}', 400,
+     "a NUL byte, which JSON text cannot hold"),
+    ("GET", "/api/v1/events?since=1e20", None, 400, "since: must be a whole number from 0 to 2^53"),
+    ("GET", "/api/v1/events?since=1.5", None, 400, "since: must be a whole number from 0 to 2^53"),
+    ("GET", "/api/v1/history?from_s=0x10", None, 400, "from_s: must be a decimal number"),
+    ("GET", "/api/v1/history?from_s=inf", None, 400, "from_s: must be a decimal number"),
+    ("GET", "/api/v1/history?from_s=30&to_s=10", None, 400, "from_s must not lie after to_s"),
     ("POST", "/api/v1/control", {"action": "speed", "speed": 1e308}, 400, "speed: must lie within [0.1, 100]"),
     ("POST", "/api/v1/control", {"action": 5}, 400, "action"),
 ]
@@ -343,6 +356,104 @@ class LingeringCloseTests(DemoServerCase):
             elapsed = time.time() - t0
         self.assertLess(elapsed, 14)
         self.assertLess(sent, 64 << 20)
+
+
+def demo_with(change):
+    """The demo scenario as a dict, changed by `change(dict)`."""
+    with open(os.path.join(test_server.SRC, "scenarios", "demo_three_areas.json")) as fh:
+        j = json.load(fh)
+    change(j)
+    return j
+
+
+class AttackFindingsTests(DemoServerCase):
+    """What a fresh-eyes attack found after the first round of fixes."""
+
+    def test_scenarios_that_cannot_be_integrated_are_refused_everywhere(self):
+        def stiff_tie(j):
+            j["ties"][0]["damping_mw_per_hz"] = 1e7
+        def tiny_nominal(j):
+            j["nominal_hz"] = 1e-300
+        for change, fragment in ((stiff_tie, "couples the areas' speeds with a time constant"),
+                                 (tiny_nominal, "nominal_hz: must lie within [10, 1000]")):
+            body = demo_with(change)
+            for method, path, token in (("PUT", "/api/v1/scenario", TOKEN), ("POST", "/api/v1/replays", None),
+                                        ("POST", "/api/v1/modes", None)):
+                with self.subTest(path=path, fragment=fragment):
+                    s, reply, _ = self.srv.request(method, path, body, token, timeout=30)
+                    self.assertEqual(s, 400, reply)
+                    self.assertIn(fragment, json.dumps(reply))
+
+    def test_several_droop_commands_cannot_add_up_to_an_unstable_area(self):
+        # Each of these alone keeps M/beta above five steps; together they would not.
+        cmds = [{"kind": "governor", "unit": u, "droop": 0.004} for u in ("V1", "V2", "V3")]
+        s, reply, _ = self.srv.request("POST", "/api/v1/commands", cmds, TOKEN)
+        self.assertEqual(s, 400, reply)
+        self.assertIn("respond faster", json.dumps(reply))
+        _, state, _ = self.srv.request("GET", "/api/v1/state")
+        for area in state["areas"].values():
+            self.assertLess(abs(area["f_hz"] - 50.0), 1.0)
+
+    def test_echoed_input_is_clipped(self):
+        huge = "U" * 200000
+        for method, path, body, token in (
+                ("POST", "/api/v1/commands", {"kind": "unit_trip", "unit": huge}, TOKEN),
+                ("POST", "/api/v1/commands", {"kind": huge}, TOKEN),
+                ("POST", "/api/v1/assess", {huge: 1}, None),
+                ("POST", "/api/v1/modes", demo_with(lambda j: j["units"][0].update(id=huge)), None),
+                ("GET", "/api/v1/" + "n" * 6000, None, None)):
+            with self.subTest(path=path[:40]):
+                s, reply, r = self.srv.request(method, path, body, token, timeout=30)
+                self.assertIn(s, (400, 404))
+                self.assertLess(len(json.dumps(reply)), 4000)
+                if s == 400:
+                    self.assertIn("more characters", json.dumps(reply))
+
+    def test_authorization_schemes(self):
+        for header, status, fragment in (("bearer " + TOKEN, 200, None), ("BEARER  " + TOKEN + " ", 200, None),
+                                         ("Basic dXNlcjpwYXNz", 401, "goes in 'Authorization: Bearer TOKEN'"),
+                                         ("Bearer", 401, "holds no token"),
+                                         ("Bearer  ", 401, "holds no token"),
+                                         ("Bearer wrong", 403, "wrong instructor token")):
+            with self.subTest(header=header[:20]):
+                s, reply, _ = self.srv.request("GET", "/api/v1/role", headers={"Authorization": header})
+                self.assertEqual(s, status, reply)
+                if fragment:
+                    self.assertIn(fragment, reply["error"])
+                else:
+                    self.assertEqual(reply["role"], "instructor")
+
+    def test_head_answers_carry_no_body(self):
+        for path in ("/api/v1/nothing", "/api/v1/state", "/healthz", "/nothing.js"):
+            with self.subTest(path=path):
+                status, body, head = raw_request(self.srv.port, path, "HEAD")
+                self.assertEqual(body, b"", path)
+                self.assertIn(b"Content-Length:", head)
+
+    def test_websocket_wording(self):
+        async def go():
+            async with websockets.connect(self.srv.ws_url(), max_size=2**24) as ws:
+                out = {}
+                await ws.send(b'{"type": "auth"}')
+                out["binary"] = await next_of(ws, "error")
+                await ws.send(json.dumps({"type": "auth", "token": "nope"}))
+                out["auth"] = await next_of(ws, "auth")
+                await ws.send(json.dumps({"type": "auth", "token": TOKEN}))
+                await next_of(ws, "auth")
+                await ws.send(json.dumps({"type": "control", "id": 1, "action": "speed", "speed": 500}))
+                out["speed"] = await next_of(ws, "reply")
+                await ws.send(json.dumps({"type": "control", "id": 2, "action": "fly"}))
+                out["action"] = await next_of(ws, "reply")
+                await ws.send(json.dumps({"type": "commands", "id": 3}))
+                out["commands"] = await next_of(ws, "reply")
+                return out
+        out = run(go())
+        self.assertIn("text frames holding JSON", out["binary"]["error"])
+        self.assertFalse(out["auth"]["ok"])
+        self.assertEqual(out["auth"]["error"], "wrong instructor token")
+        self.assertEqual(out["speed"]["body"]["error"], "speed: must lie within [0.1, 100], got 500")
+        self.assertIn('action: must be one of "pause", "resume", "reset", "speed", got "fly"', out["action"]["body"]["error"])
+        self.assertIn("commands: required", out["commands"]["body"]["error"])
 
 
 def ours(m):

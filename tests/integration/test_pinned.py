@@ -110,10 +110,13 @@ class PinnedTests(unittest.TestCase):
                     self.assertEqual(digests(path, threads, variant), PINNED[name])
 
     def test_the_variant_asked_for_is_the_one_used(self):
+        # A build with the portable kernels only (clang, the sanitizer builds) runs them for any name.
+        portable = "only ones in this build" in subprocess.run([BIN, "--version"], capture_output=True, text=True,
+                                                               timeout=60, check=True).stdout
         for variant in variants():
             r = subprocess.run([BIN, "--version"], env=dict(os.environ, DROOPLINE_KERNELS=variant),
                                capture_output=True, text=True, timeout=60, check=True)
-            self.assertIn(f"({variant} kernels)", r.stdout)
+            self.assertIn("(baseline kernels" if portable else f"({variant} kernels)", r.stdout)
 
     def test_an_unknown_kernel_variant_is_refused_with_a_message(self):
         r = subprocess.run([BIN, "run", os.path.join(SRC, "scenarios", "textbook_droop_sharing.json"), "--out",

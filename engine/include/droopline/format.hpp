@@ -1,6 +1,7 @@
 #pragma once
 /// Number formatting shared by messages and files.
 #include <string>
+#include <string_view>
 
 namespace droopline {
 
@@ -10,6 +11,9 @@ std::string fmt_num(double v);
 std::string fmt_fixed(double v, int decimals);
 /// Shortest text that reads back to the same double: for series and summaries (`nan` never occurs).
 std::string fmt_exact(double v);
+/// `text` cut to at most `max` characters, with how much was left out; for messages that quote
+/// what a client sent.
+std::string clip_text(std::string_view text, std::size_t max = 300);
 /// Appends fmt_exact(v) to out without a temporary string.
 void append_exact(std::string& out, double v);
 /// As append_exact, but `null` for a value JSON cannot hold (infinity, NaN).

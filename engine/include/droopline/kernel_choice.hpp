@@ -14,5 +14,7 @@ namespace droopline {
 bool use_kernels(std::string_view variant, std::string& error);
 /// The variant in use ("avx512", "avx2" or "baseline").
 const char* kernels_in_use();
+/// False for a build with the portable variant only (every name then selects it).
+bool kernel_variants_built();
 
 }  // namespace droopline

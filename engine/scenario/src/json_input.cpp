@@ -126,6 +126,11 @@ std::optional<json> parse_untrusted_json(std::string_view text, std::vector<Issu
                       false});
     return std::nullopt;
   }
+  // The parser stops at a NUL byte as if the text ended there: what follows would be ignored.
+  if (const std::size_t nul = text.find('\0'); nul != std::string_view::npos) {
+    issues.push_back({"json", line_column(text, nul) + ": a NUL byte, which JSON text cannot hold", false});
+    return std::nullopt;
+  }
   DomBuilder dom(limits.max_depth);
   if (!json::sax_parse(text.begin(), text.end(), &dom)) {
     if (dom.too_deep) {
