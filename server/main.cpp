@@ -1,389 +1,336 @@
-// droopline: command-line entry point.
+// droopline: command-line entry point. Each subcommand is a CLI11 App set up by one function
+// below; CLI11 parses, checks (ranges, required options, files that must exist), prints help and
+// reports errors, then the subcommand's action calls the droopline::cli or server function.
 #include <algorithm>
-#include <cstdlib>
 #include <chrono>
+#include <cstdint>
 #include <cstdio>
-#include <cstring>
+#include <cstdlib>
 #include <ctime>
+#include <functional>
 #include <iostream>
+#include <memory>
 #include <string>
 #include <vector>
 
+#include <CLI/CLI.hpp>
 #include <spdlog/spdlog.h>
 
 #include "cli_run.hpp"
-#include "droopline/kernel_choice.hpp"
 #include "cli_sweep.hpp"
+#include "droopline/kernel_choice.hpp"
 #include "server.hpp"
 
 namespace {
 
-// One usage text per subcommand, kept here only: `droopline --help` prints them all,
-// `droopline SUB --help` (or -h) and a usage error of SUB print SUB's own.
-struct Subcommand {
-  const char* name;
-  const char* usage;  ///< its usage lines, each option with its meaning
+/// A subcommand and what it does once the whole command line parsed and checked.
+struct Command {
+  CLI::App* app;
+  std::function<int()> action;
 };
 
-constexpr Subcommand kSubcommands[] = {
-    {"check", R"(  droopline check FILE             validate a scenario (exit 0 valid, 2 invalid)
-)"},
-    {"run", R"(  droopline run FILE --out DIR     simulate to the end; write DIR/series.csv, DIR/summary.json
-        [--quiet]                  print nothing but errors
-        [--threads N]              worker threads for fleets of 4096+ units (default: one per core)
-)"},
-    {"serve", R"(  droopline serve --scenario FILE  run the scenario in real time behind HTTP and WebSocket
-        [--listen HOST:PORT]       default 127.0.0.1:8080; 0.0.0.0:PORT for a LAN
-        [--token-file FILE]        instructor token (else $DROOPLINE_TOKEN, else generated)
-        [--journal FILE]           append every accepted command to FILE (JSON lines)
-        [--web DIR]                static files to serve (default: the web/ folder)
-        [--speed X]                simulated seconds per wall second, 0.1-100 (default 1)
-        [--frame-rate HZ]          telemetry frames per second (default 20)
-        [--history S]              seconds of history kept for late joiners (default 600)
-        [--allow-origin URL]       also accept WebSocket upgrades from this Origin (repeatable)
-        [--max-connections N]      default 256
-        [--log-level LEVEL]        trace, debug, info (default), warn, error
-)"},
-    {"replay", R"(  droopline replay JOURNAL --out DIR
-                                   rebuild a live session's series from its journal
-        [--run N]                  the Nth scenario of a journal with loads or resets (default: the last)
-        [--quiet]                  print nothing but errors
-)"},
-    {"sweep", R"(  droopline sweep FILE --vary PATH=VALUES [--vary ...] --out DIR
-                                   run every combination; one row of metrics per run
-        VALUES                     V1,V2,... or START:STOP:STEP; PATH as units[V1].governor.droop
-        [--sample N] [--seed S]    a seeded random sample of N combinations of the grid
-        [--shard I/N]              run only slice I of N (join the slices with merge)
-        [--threads N]              parallel runs (default: one per core)
-        [--metric NAME]            the metric plotted in DIR/sweep.svg (default nadir_hz)
-        [--quiet]                  print nothing but errors
-)"},
-    {"merge", R"(  droopline merge DIR... --out DIR
-                                   join the shards of one sweep
-        [--metric NAME]            the metric plotted in DIR/sweep.svg (default nadir_hz)
-        [--quiet]                  print nothing but errors
-)"},
-    {"modes", R"(  droopline modes FILE             small-signal modes at the initial operating point
-        [--damping-threshold X]    flag oscillatory modes damped below X (default 0.05 = 5 %)
-        [--json]                   print the modes as JSON
-)"},
-    {"assess", R"(  droopline assess FILE --requirements REQ
-                                   run and check against a requirements file
-                                   (exit 0 all met, 3 some not met)
-        [--json]                   print the table as JSON
-)"},
-    {"record", R"(  droopline record FILE --out DIR  run and write a COMTRADE (IEEE C37.111-1999 ASCII)
-                                   disturbance record DIR/NAME.cfg + .dat
-        [--from S] [--to S]        the time window, simulated seconds (default: the whole run)
-        [--start YYYY-MM-DDTHH:MM:SSZ]
-                                   the wall time of t = 0, UTC (default: now)
-        [--name NAME]              the file name, without folders (default record)
-        [--quiet]                  print nothing but errors
-)"},
-};
+// --- Checks shared by the subcommands (all CLI11 validators) ---
 
-constexpr const char* kTitle = "droopline - governor and droop sharing simulator (training and study tool)\n";
-constexpr const char* kExitCodes = R"(
-Exit codes: 0 success, 1 input/output failure, 2 invalid scenario or arguments,
-3 (assess) a requirement not met.
-)";
+/// Whole numbers in decimal only: refuses signs, spaces, hex; strips leading zeros so that
+/// CLI11's conversion (strtoull base 0) does not read "010" as octal.
+const CLI::Validator kDecimal(
+    [](std::string& v) {
+      if (v.empty() || v.find_first_not_of("0123456789") != std::string::npos) return "not a whole number: " + v;
+      v.erase(0, std::min(v.find_first_not_of('0'), v.size() - 1));
+      return std::string{};
+    },
+    "");
 
-/// The subcommand whose arguments are being read (its usage goes with an error), or none.
-const Subcommand* current = nullptr;
+/// CLI::Range lets NaN through (both comparisons are false); this refuses it.
+const CLI::Validator kNotNan(
+    [](std::string& v) {
+      double x = 0;
+      return CLI::detail::lexical_cast(v, x) && x == x ? std::string{} : "not a number: " + v;
+    },
+    "");
 
-const Subcommand* find_subcommand(const std::string& name) {
-  for (const auto& c : kSubcommands)
-    if (name == c.name) return &c;
-  return nullptr;
+/// Files and folders that must exist (their check named by the option's type, not again).
+const CLI::Validator kFileExists = CLI::Validator(CLI::ExistingFile).description("");
+const CLI::Validator kDirExists = CLI::Validator(CLI::ExistingDirectory).description("");
+
+/// A whole-number option in [lo, hi], decimal.
+template <typename T, typename N>
+CLI::Option* add_count(CLI::App& app, const std::string& name, T& value, N lo, N hi, const std::string& help) {
+  return app.add_option(name, value, help)->type_name("N")->transform(kDecimal)->check(CLI::Range(lo, hi));
 }
 
-/// The whole usage, or one subcommand's.
-std::string usage_text(const Subcommand* only) {
-  std::string out = std::string(kTitle) + "\nusage:\n";
-  if (only) {
-    out += only->usage;
-    out += "  droopline --help                 every command\n";
-  } else {
-    for (const auto& c : kSubcommands) out += c.usage;
-    out += "  droopline --version | --help\n";
-    out += "  droopline COMMAND --help         one command's usage\n";
-  }
-  return out + kExitCodes;
+/// A decimal whole number in [lo, hi], checked as add_count checks one; an empty message when valid.
+template <typename N>
+std::string read_count(std::string digits, N lo, N hi, N& out) {
+  for (const std::string& error : {kDecimal(digits), CLI::Range(lo, hi)(digits)})
+    if (!error.empty()) return error;
+  CLI::detail::lexical_cast(digits, out);
+  return {};
 }
 
-int usage_error(const std::string& what) {
-  std::cerr << "droopline: " << what << "\n\n" << usage_text(current);
-  return 2;
+/// A real-valued option in [lo, hi].
+CLI::Option* add_real(CLI::App& app, const std::string& name, double& value, double lo, double hi, const std::string& unit,
+                      const std::string& help) {
+  return app.add_option(name, value, help)->type_name(unit)->check(kNotNan)->check(CLI::Range(lo, hi));
 }
 
-bool parse_number(const std::string& text, double lo, double hi, double& out) {
-  char* end = nullptr;
-  out = std::strtod(text.c_str(), &end);
-  return !text.empty() && end == text.c_str() + text.size() && out >= lo && out <= hi;
+/// The scenario FILE every study and run reads; it must exist.
+void add_scenario(CLI::App& app, std::string& file) {
+  app.add_option("FILE", file, "the scenario (JSON)")->type_name("")->required()->check(kFileExists);
 }
 
-int serve_command(const std::vector<std::string>& args) {
-  droopline::server::Options o;
+/// `--out DIR`, required.
+void add_out(CLI::App& app, std::string& dir, const std::string& help) {
+  app.add_option("--out", dir, help)->type_name("DIR")->required();
+}
+
+void add_quiet(CLI::App& app, bool& quiet) { app.add_flag("--quiet", quiet, "print nothing but errors"); }
+
+void add_metric(CLI::App& app, std::string& metric) {
+  app.add_option("--metric", metric, "the metric plotted in DIR/sweep.svg")->type_name("NAME")->capture_default_str();
+}
+
+// --- The subcommands ---
+
+Command check_command(CLI::App& root) {
+  auto* sub = root.add_subcommand("check", "validate a scenario (exit 0 valid, 2 invalid)");
+  auto file = std::make_shared<std::string>();
+  add_scenario(*sub, *file);
+  return {sub, [file] { return droopline::cli::check(*file); }};
+}
+
+Command run_command(CLI::App& root) {
+  struct Args {
+    std::string file, out;
+    bool quiet = false;
+    unsigned threads = 0;  // 0: one per core
+  };
+  auto* sub = root.add_subcommand("run", "simulate to the end; write DIR/series.csv, DIR/summary.json");
+  auto a = std::make_shared<Args>();
+  add_scenario(*sub, a->file);
+  add_out(*sub, a->out, "the output folder");
+  add_quiet(*sub, a->quiet);
+  add_count(*sub, "--threads", a->threads, 1u, 999u, "worker threads for fleets of 4096+ units (default: one per core)");
+  return {sub, [a] { return droopline::cli::run(a->file, a->out, a->quiet, a->threads); }};
+}
+
+Command replay_command(CLI::App& root) {
+  struct Args {
+    std::string journal, out;
+    int run = 0;  // 0: the last
+    bool quiet = false;
+  };
+  auto* sub = root.add_subcommand("replay", "rebuild a live session's series from its journal");
+  auto a = std::make_shared<Args>();
+  sub->add_option("JOURNAL", a->journal, "the journal serve --journal wrote")->type_name("")->required()->check(kFileExists);
+  add_out(*sub, a->out, "the output folder");
+  add_count(*sub, "--run", a->run, 0, 999999, "the Nth scenario of a journal with loads or resets (default: the last)");
+  add_quiet(*sub, a->quiet);
+  return {sub, [a] { return droopline::cli::replay(a->journal, a->out, a->run, a->quiet); }};
+}
+
+/// `--listen HOST:PORT` (an IPv6 host in brackets); an empty message when valid. The host is
+/// checked as an IP address when the server starts.
+std::string split_listen(const std::string& v, std::string& host, unsigned short& port) {
+  const auto colon = v.rfind(':');
+  if (colon == std::string::npos) return "takes HOST:PORT, got \"" + v + "\"";
+  if (std::string error = read_count<unsigned short>(v.substr(colon + 1), 0, 65535, port); !error.empty()) return "the port: " + error;
+  host = v.substr(0, colon);
+  if (host.size() > 2 && host.front() == '[' && host.back() == ']') host = host.substr(1, host.size() - 2);
+  return {};
+}
+
+Command serve_command(CLI::App& root) {
+  struct Args {
+    droopline::server::Options o;
+    std::string listen, level = "info";
+  };
+  auto* sub = root.add_subcommand("serve", "run the scenario in real time behind HTTP and WebSocket");
+  auto a = std::make_shared<Args>();
+  auto& o = a->o;
   o.web_root = DROOPLINE_WEB_ROOT;
-  std::string level = "info";
-  for (std::size_t i = 1; i < args.size(); ++i) {
-    const std::string& a = args[i];
-    auto value = [&](std::string& out) {
-      if (i + 1 >= args.size()) return false;
-      out = args[++i];
-      return true;
-    };
-    std::string v;
-    double x = 0;
-    if (a == "--scenario" && value(o.scenario_file)) continue;
-    if (a == "--token-file" && value(o.token_file)) continue;
-    if (a == "--journal" && value(o.journal)) continue;
-    if (a == "--web" && value(o.web_root)) continue;
-    if (a == "--log-level" && value(level)) continue;
-    if (a == "--allow-origin" && value(v)) {
-      o.allow_origins.push_back(v);
-      continue;
-    }
-    if (a == "--listen" && value(v)) {
-      const auto colon = v.rfind(':');
-      if (colon == std::string::npos || !parse_number(v.substr(colon + 1), 0, 65535, x))
-        return usage_error("--listen takes HOST:PORT, got \"" + v + "\"");
-      o.host = v.substr(0, colon);
-      if (o.host.size() > 2 && o.host.front() == '[' && o.host.back() == ']') o.host = o.host.substr(1, o.host.size() - 2);
-      o.port = static_cast<unsigned short>(x);
-      continue;
-    }
-    if (a == "--speed" && value(v)) {
-      if (!parse_number(v, 0.1, 100, o.speed)) return usage_error("--speed takes 0.1 to 100, got \"" + v + "\"");
-      continue;
-    }
-    if (a == "--frame-rate" && value(v)) {
-      if (!parse_number(v, 0.1, 100, o.frame_hz)) return usage_error("--frame-rate takes 0.1 to 100, got \"" + v + "\"");
-      continue;
-    }
-    if (a == "--history" && value(v)) {
-      if (!parse_number(v, 1, 86400, o.history_s)) return usage_error("--history takes 1 to 86400 seconds, got \"" + v + "\"");
-      continue;
-    }
-    if (a == "--max-connections" && value(v)) {
-      if (!parse_number(v, 1, 100000, x)) return usage_error("--max-connections takes 1 to 100000, got \"" + v + "\"");
-      o.max_connections = static_cast<std::size_t>(x);
-      continue;
-    }
-    return usage_error("unknown or incomplete option \"" + a + "\" for serve");
-  }
-  if (o.scenario_file.empty()) return usage_error("serve needs --scenario FILE");
-  const auto lvl = spdlog::level::from_str(level);
-  if (lvl == spdlog::level::off && level != "off") return usage_error("--log-level: unknown level \"" + level + "\"");
-  spdlog::set_level(lvl);
-  return droopline::server::serve(o);
+  sub->add_option("--scenario", o.scenario_file, "the scenario (JSON)")->type_name("FILE")->required()->check(kFileExists);
+  sub->add_option("--listen", a->listen, "0.0.0.0:PORT for a LAN (default 127.0.0.1:8080)")
+      ->type_name("HOST:PORT")
+      ->check([&o](const std::string& v) { return split_listen(v, o.host, o.port); });
+  sub->add_option("--token-file", o.token_file, "instructor token (else $DROOPLINE_TOKEN, else generated)")
+      ->type_name("FILE")
+      ->check(kFileExists);
+  sub->add_option("--journal", o.journal, "append every accepted command to FILE (JSON lines)")->type_name("FILE");
+  sub->add_option("--web", o.web_root, "static files to serve")->type_name("DIR")->capture_default_str();
+  add_real(*sub, "--speed", o.speed, 0.1, 100, "X", "simulated seconds per wall second")->capture_default_str();
+  add_real(*sub, "--frame-rate", o.frame_hz, 0.1, 100, "HZ", "telemetry frames per second")->capture_default_str();
+  add_real(*sub, "--history", o.history_s, 1, 86400, "S", "seconds of history kept for late joiners")->capture_default_str();
+  sub->add_option("--allow-origin", o.allow_origins, "also accept WebSocket upgrades from this Origin (repeatable)")
+      ->type_name("URL")
+      ->expected(1)
+      ->multi_option_policy(CLI::MultiOptionPolicy::TakeAll);
+  add_count(*sub, "--max-connections", o.max_connections, std::size_t{1}, std::size_t{100000}, "open connections at most")
+      ->capture_default_str();
+  sub->add_option("--log-level", a->level, "trace, debug, info, warn, error, critical or off")
+      ->type_name("LEVEL")
+      ->capture_default_str()
+      ->check([](const std::string& v) {
+        return spdlog::level::from_str(v) == spdlog::level::off && v != "off" ? "unknown level \"" + v + "\"" : std::string{};
+      });
+  return {sub, [a] {
+            spdlog::set_level(spdlog::level::from_str(a->level));
+            return droopline::server::serve(a->o);
+          }};
 }
 
-bool whole_number(const std::string& v, std::uint64_t lo, std::uint64_t hi, std::uint64_t& out) {
-  if (v.empty() || v.size() > 12 || v.find_first_not_of("0123456789") != std::string::npos) return false;
-  out = std::stoull(v);
-  return out >= lo && out <= hi;
+Command sweep_command(CLI::App& root) {
+  auto* sub = root.add_subcommand("sweep", "run every combination of the varied fields; one row of metrics per run");
+  sub->footer("VALUES is V1,V2,... or START:STOP:STEP; PATH as units[V1].governor.droop");
+  auto a = std::make_shared<droopline::cli::SweepArgs>();
+  add_scenario(*sub, a->scenario_file);
+  sub->add_option("--vary", a->vary, "a field and its values (repeatable)")
+      ->type_name("PATH=VALUES")
+      ->required()
+      ->expected(1)
+      ->multi_option_policy(CLI::MultiOptionPolicy::TakeAll);
+  add_out(*sub, a->out_dir, "the output folder");
+  add_count(*sub, "--sample", a->sample, std::uint64_t{1}, std::uint64_t{1} << 40,
+            "a seeded random sample of N combinations of the grid");
+  add_count(*sub, "--seed", a->seed, std::uint64_t{0}, ~std::uint64_t{0} >> 1, "the sample's seed")->capture_default_str();
+  sub->add_option("--shard", "run only slice I of N (join the slices with merge)")
+      ->type_name("I/N")
+      ->check([a](const std::string& v) {
+        const auto slash = v.find('/');
+        if (slash == std::string::npos) return "takes I/N, got \"" + v + "\"";
+        std::string error = read_count(v.substr(0, slash), 1u, 100000u, a->shard);
+        if (error.empty()) error = read_count(v.substr(slash + 1), 1u, 100000u, a->shards);
+        return error.empty() && a->shard > a->shards ? "takes I/N with 1 <= I <= N, got \"" + v + "\"" : error;
+      });
+  add_count(*sub, "--threads", a->threads, 1u, 999u, "parallel runs (default: one per core)");
+  add_metric(*sub, a->metric);
+  add_quiet(*sub, a->quiet);
+  return {sub, [a] { return droopline::cli::sweep(*a); }};
 }
 
-int sweep_command(const std::vector<std::string>& args) {
-  const bool merging = args[0] == "merge";
-  droopline::cli::SweepArgs a;
-  std::vector<std::string> dirs;
-  for (std::size_t i = 1; i < args.size(); ++i) {
-    const std::string& o = args[i];
-    const bool has = i + 1 < args.size();
-    std::uint64_t n = 0;
-    if (o == "--out" && has) {
-      a.out_dir = args[++i];
-    } else if (o == "--metric" && has) {
-      a.metric = args[++i];
-    } else if (o == "--quiet") {
-      a.quiet = true;
-    } else if (!merging && o == "--vary" && has) {
-      a.vary.push_back(args[++i]);
-    } else if (!merging && o == "--sample" && has) {
-      if (!whole_number(args[++i], 1, 1ULL << 40, n)) return usage_error("--sample takes a count of runs, got \"" + args[i] + "\"");
-      a.sample = n;
-    } else if (!merging && o == "--seed" && has) {
-      if (!whole_number(args[++i], 0, ~0ULL >> 1, n)) return usage_error("--seed takes a whole number, got \"" + args[i] + "\"");
-      a.seed = n;
-    } else if (!merging && o == "--threads" && has) {
-      if (!whole_number(args[++i], 1, 999, n)) return usage_error("--threads takes 1 to 999, got \"" + args[i] + "\"");
-      a.threads = static_cast<unsigned>(n);
-    } else if (!merging && o == "--shard" && has) {
-      const std::string& v = args[++i];
-      const auto slash = v.find('/');
-      std::uint64_t s = 0;
-      if (slash == std::string::npos || !whole_number(v.substr(0, slash), 1, 100000, s) ||
-          !whole_number(v.substr(slash + 1), 1, 100000, n) || s > n)
-        return usage_error("--shard takes I/N with 1 <= I <= N, got \"" + v + "\"");
-      a.shard = static_cast<std::uint32_t>(s);
-      a.shards = static_cast<std::uint32_t>(n);
-    } else if (!o.empty() && o[0] == '-') {
-      return usage_error("unknown option \"" + o + "\" for " + args[0]);
-    } else if (merging) {
-      dirs.push_back(o);
-    } else if (a.scenario_file.empty()) {
-      a.scenario_file = o;
-    } else {
-      return usage_error("sweep takes one scenario FILE, got \"" + o + "\" too");
-    }
-  }
-  if (a.out_dir.empty()) return usage_error(args[0] + " needs --out DIR");
-  if (merging) {
-    if (dirs.empty()) return usage_error("merge needs the shard directories");
-    return droopline::cli::merge(dirs, a.out_dir, a.metric, a.quiet);
-  }
-  if (a.scenario_file.empty()) return usage_error("sweep needs a scenario FILE");
-  if (a.vary.empty()) return usage_error("sweep needs at least one --vary PATH=VALUES");
-  return droopline::cli::sweep(a);
+Command merge_command(CLI::App& root) {
+  struct Args {
+    std::vector<std::string> dirs;
+    std::string out, metric = "nadir_hz";
+    bool quiet = false;
+  };
+  auto* sub = root.add_subcommand("merge", "join the shards of one sweep");
+  auto a = std::make_shared<Args>();
+  sub->add_option("DIR", a->dirs, "the shard folders")->type_name("")->required()->check(kDirExists);
+  add_out(*sub, a->out, "the output folder");
+  add_metric(*sub, a->metric);
+  add_quiet(*sub, a->quiet);
+  return {sub, [a] { return droopline::cli::merge(a->dirs, a->out, a->metric, a->quiet); }};
+}
+
+Command modes_command(CLI::App& root) {
+  struct Args {
+    std::string file;
+    double threshold = 0.05;
+    bool json = false;
+  };
+  auto* sub = root.add_subcommand("modes", "small-signal modes at the initial operating point");
+  auto a = std::make_shared<Args>();
+  add_scenario(*sub, a->file);
+  add_real(*sub, "--damping-threshold", a->threshold, 0, 1, "X", "flag oscillatory modes damped below X (0.05 = 5 %)")->capture_default_str();
+  sub->add_flag("--json", a->json, "print the modes as JSON");
+  return {sub, [a] { return droopline::cli::modes(a->file, a->threshold, a->json); }};
+}
+
+Command assess_command(CLI::App& root) {
+  struct Args {
+    std::string file, requirements;
+    bool json = false;
+  };
+  auto* sub = root.add_subcommand("assess", "run and check against a requirements file (exit 0 all met, 3 some not met)");
+  auto a = std::make_shared<Args>();
+  add_scenario(*sub, a->file);
+  sub->add_option("--requirements", a->requirements, "the requirements (JSON)")->type_name("REQ")->required()->check(kFileExists);
+  sub->add_flag("--json", a->json, "print the table as JSON");
+  return {sub, [a] { return droopline::cli::assess(a->file, a->requirements, a->json); }};
+}
+
+/// "YYYY-MM-DDTHH:MM:SSZ" (the Z optional), UTC; false when it is not one.
+bool parse_utc(const std::string& v, std::chrono::system_clock::time_point& out) {
+  std::tm tm{};
+  char z = 0;
+  if (std::sscanf(v.c_str(), "%4d-%2d-%2dT%2d:%2d:%2d%c", &tm.tm_year, &tm.tm_mon, &tm.tm_mday, &tm.tm_hour, &tm.tm_min,
+                  &tm.tm_sec, &z) < 6 || (z != 0 && z != 'Z') || tm.tm_mon < 1 || tm.tm_mon > 12 || tm.tm_mday < 1 ||
+      tm.tm_mday > 31 || tm.tm_hour > 23 || tm.tm_min > 59 || tm.tm_sec > 60)
+    return false;
+  tm.tm_year -= 1900;
+  tm.tm_mon -= 1;
+  out = std::chrono::system_clock::from_time_t(timegm(&tm));
+  return true;
+}
+
+Command record_command(CLI::App& root) {
+  auto* sub = root.add_subcommand("record", "run and write a COMTRADE (IEEE C37.111-1999 ASCII) record DIR/NAME.cfg + .dat");
+  auto a = std::make_shared<droopline::cli::RecordArgs>();
+  a->start = std::chrono::floor<std::chrono::seconds>(std::chrono::system_clock::now());
+  add_scenario(*sub, a->scenario_file);
+  add_out(*sub, a->out_dir, "the output folder");
+  add_real(*sub, "--from", a->from_s, 0, 1e9, "S", "the start of the window, simulated seconds (default 0)");
+  add_real(*sub, "--to", a->to_s, 0, 1e9, "S", "the end of the window (default: the end of the run)");
+  sub->add_option("--start", "the wall time of t = 0, UTC (default: now)")
+      ->type_name("YYYY-MM-DDTHH:MM:SSZ")
+      ->check([a](const std::string& v) { return parse_utc(v, a->start) ? std::string{} : "takes UTC as YYYY-MM-DDTHH:MM:SSZ"; });
+  sub->add_option("--name", a->name, "the file name, without folders")
+      ->type_name("NAME")
+      ->capture_default_str()
+      ->check([](const std::string& v) {
+        return v.empty() || v.find_first_of("/\\") != std::string::npos ? "takes a file name without folders" : std::string{};
+      });
+  add_quiet(*sub, a->quiet);
+  return {sub, [a] { return droopline::cli::record(*a); }};
 }
 
 }  // namespace
 
 int main(int argc, char** argv) {
-  std::vector<std::string> args(argv + 1, argv + argc);
-  if (args.empty()) return usage_error("a command is required");
-  const std::string cmd = args[0];
-  if (cmd == "--help" || cmd == "-h" || cmd == "help") {
-    std::cout << usage_text(nullptr);
-    return 0;
-  }
-  current = find_subcommand(cmd);
-  // `SUB --help` or `SUB -h` anywhere among SUB's arguments: its usage, nothing else runs.
-  if (current && std::find_if(args.begin() + 1, args.end(), [](const std::string& a) { return a == "--help" || a == "-h"; }) != args.end()) {
-    std::cout << usage_text(current);
-    return 0;
-  }
+  CLI::App app{"droopline - governor and droop sharing simulator (training and study tool)", "droopline"};
+  app.footer("Exit codes: 0 success, 1 input/output failure, 2 invalid scenario or arguments,\n"
+             "3 (assess) a requirement not met. `droopline COMMAND --help` shows one command's options.");
+  app.option_defaults()->multi_option_policy(CLI::MultiOptionPolicy::TakeLast);  // a repeated option: the last wins
+  app.require_subcommand(1);
   // DROOPLINE_KERNELS=avx512|avx2|baseline picks the integration kernels (all give the same bits;
-  // the determinism test runs each).
-  if (const char* k = std::getenv("DROOPLINE_KERNELS"); k && *k) {
+  // the determinism test runs each); --version names the variant in use.
+  const auto use_env_kernels = [] {
+    const char* k = std::getenv("DROOPLINE_KERNELS");
     std::string err;
-    if (!droopline::use_kernels(k, err)) {
-      std::cerr << "droopline: DROOPLINE_KERNELS: " << err << "\n";
-      return 2;
-    }
+    if (!k || !*k || droopline::use_kernels(k, err)) return true;
+    std::cerr << "droopline: DROOPLINE_KERNELS: " << err << "\n";
+    return false;
+  };
+  app.set_version_flag("--version", [&] {
+    if (!use_env_kernels()) throw CLI::RuntimeError(2);
+    return std::string("droopline ") + DROOPLINE_VERSION + " (" + droopline::kernels_in_use() + " kernels" +
+           (droopline::kernel_variants_built() ? "" : ", the only ones in this build") + ")";
+  });
+  const std::vector<Command> commands{check_command(app),  run_command(app),    serve_command(app),
+                                      replay_command(app), sweep_command(app),  merge_command(app),
+                                      modes_command(app),  assess_command(app), record_command(app)};
+  app.set_help_all_flag("--help-all", "every command's options");  // after the subcommands: theirs have none
+  static char help_flag[] = "--help";
+  if (argc > 1 && std::string(argv[1]) == "help") argv[1] = help_flag;  // `droopline help` is `droopline --help`
+  try {
+    app.parse(argc, argv);
+  } catch (const CLI::ParseError& e) {
+    // --help anywhere wins over a bad value beside it, as before CLI11 (which checks values first).
+    const std::function<bool(const CLI::App&)> asked = [&](const CLI::App& a) {
+      if (a.get_help_ptr()->count() > 0) return true;
+      for (const CLI::App* s : a.get_subcommands())
+        if (asked(*s)) return true;
+      return false;
+    };
+    if (asked(app)) return app.exit(CLI::CallForHelp());
+    // No subcommand matched: name what was given rather than only "a subcommand is required".
+    const bool unknown = app.get_subcommands().empty() && !app.remaining().empty();
+    // Help and --version exit 0; CLI11's error codes (105, 106, ...) all mean invalid arguments: 2.
+    return app.exit(unknown ? CLI::ExtrasError(app.remaining()) : e) == 0 ? 0 : 2;
   }
-  if (cmd == "--version") {
-    std::cout << "droopline " << DROOPLINE_VERSION << " (" << droopline::kernels_in_use() << " kernels"
-              << (droopline::kernel_variants_built() ? "" : ", the only ones in this build") << ")\n";
-    return 0;
-  }
-  if (cmd == "check") {
-    if (args.size() != 2) return usage_error("check takes exactly one FILE");
-    return droopline::cli::check(args[1]);
-  }
-  if (cmd == "serve") return serve_command(args);
-  if (cmd == "sweep" || cmd == "merge") return sweep_command(args);
-  if (cmd == "record") {
-    droopline::cli::RecordArgs a;
-    a.start = std::chrono::floor<std::chrono::seconds>(std::chrono::system_clock::now());
-    for (std::size_t i = 1; i < args.size(); ++i) {
-      const bool has = i + 1 < args.size();
-      if (args[i] == "--out" && has) {
-        a.out_dir = args[++i];
-      } else if (args[i] == "--name" && has) {
-        a.name = args[++i];
-        if (a.name.empty() || a.name.find_first_of("/\\") != std::string::npos)
-          return usage_error("--name takes a file name without folders, got \"" + a.name + "\"");
-      } else if ((args[i] == "--from" || args[i] == "--to") && has) {
-        double v = 0;
-        if (!parse_number(args[i + 1], 0.0, 1e9, v)) return usage_error(args[i] + " takes seconds, got \"" + args[i + 1] + "\"");
-        (args[i] == "--from" ? a.from_s : a.to_s) = v;
-        ++i;
-      } else if (args[i] == "--start" && has) {
-        std::tm tm{};
-        const std::string& v = args[++i];
-        char z = 0;
-        if (std::sscanf(v.c_str(), "%4d-%2d-%2dT%2d:%2d:%2d%c", &tm.tm_year, &tm.tm_mon, &tm.tm_mday, &tm.tm_hour, &tm.tm_min,
-                        &tm.tm_sec, &z) < 6 || (z != 0 && z != 'Z') || tm.tm_mon < 1 || tm.tm_mon > 12 || tm.tm_mday < 1 ||
-            tm.tm_mday > 31 || tm.tm_hour > 23 || tm.tm_min > 59 || tm.tm_sec > 60)
-          return usage_error("--start takes UTC as YYYY-MM-DDTHH:MM:SSZ, got \"" + v + "\"");
-        tm.tm_year -= 1900;
-        tm.tm_mon -= 1;
-        a.start = std::chrono::system_clock::from_time_t(timegm(&tm));
-      } else if (args[i] == "--quiet") {
-        a.quiet = true;
-      } else if (!args[i].empty() && args[i][0] == '-') {
-        return usage_error("unknown option \"" + args[i] + "\" for record");
-      } else if (a.scenario_file.empty()) {
-        a.scenario_file = args[i];
-      } else {
-        return usage_error("record takes one scenario FILE");
-      }
-    }
-    if (a.scenario_file.empty()) return usage_error("record needs a scenario FILE");
-    if (a.out_dir.empty()) return usage_error("record needs --out DIR");
-    return droopline::cli::record(a);
-  }
-  if (cmd == "assess") {
-    std::string file, req;
-    bool as_json = false;
-    for (std::size_t i = 1; i < args.size(); ++i) {
-      if (args[i] == "--requirements" && i + 1 < args.size()) req = args[++i];
-      else if (args[i] == "--json") as_json = true;
-      else if (!args[i].empty() && args[i][0] == '-') return usage_error("unknown option \"" + args[i] + "\" for assess");
-      else if (file.empty()) file = args[i];
-      else return usage_error("assess takes one scenario FILE");
-    }
-    if (file.empty()) return usage_error("assess needs a scenario FILE");
-    if (req.empty()) return usage_error("assess needs --requirements FILE");
-    return droopline::cli::assess(file, req, as_json);
-  }
-  if (cmd == "modes") {
-    std::string file;
-    double threshold = 0.05;
-    bool as_json = false;
-    for (std::size_t i = 1; i < args.size(); ++i) {
-      if (args[i] == "--damping-threshold" && i + 1 < args.size()) {
-        if (!parse_number(args[++i], 0.0, 1.0, threshold))
-          return usage_error("--damping-threshold takes a ratio from 0 to 1, got \"" + args[i] + "\"");
-      } else if (args[i] == "--json") {
-        as_json = true;
-      } else if (!args[i].empty() && args[i][0] == '-') {
-        return usage_error("unknown option \"" + args[i] + "\" for modes");
-      } else if (file.empty()) {
-        file = args[i];
-      } else {
-        return usage_error("modes takes one FILE");
-      }
-    }
-    if (file.empty()) return usage_error("modes needs a scenario FILE");
-    return droopline::cli::modes(file, threshold, as_json);
-  }
-  if (cmd == "run" || cmd == "replay") {
-    std::string file, out;
-    bool quiet = false;
-    unsigned threads = 0;
-    int run_number = 0;
-    for (std::size_t i = 1; i < args.size(); ++i) {
-      if (args[i] == "--out" && i + 1 < args.size()) {
-        out = args[++i];
-      } else if (cmd == "run" && args[i] == "--threads" && i + 1 < args.size()) {
-        const std::string& v = args[++i];
-        if (v.empty() || v.size() > 3 || v.find_first_not_of("0123456789") != std::string::npos ||
-            std::stoi(v) < 1)
-          return usage_error("--threads takes a whole number from 1 to 999, got \"" + v + "\"");
-        threads = static_cast<unsigned>(std::stoi(v));
-      } else if (cmd == "replay" && args[i] == "--run" && i + 1 < args.size()) {
-        const std::string& v = args[++i];
-        if (v.empty() || v.size() > 6 || v.find_first_not_of("0123456789") != std::string::npos)
-          return usage_error("--run takes a run number, got \"" + v + "\"");
-        run_number = std::stoi(v);
-      } else if (args[i] == "--quiet") {
-        quiet = true;
-      } else if (!args[i].empty() && args[i][0] == '-') {
-        return usage_error("unknown option \"" + args[i] + "\" for " + cmd);
-      } else if (file.empty()) {
-        file = args[i];
-      } else {
-        return usage_error(cmd + " takes one FILE, got \"" + args[i] + "\" too");
-      }
-    }
-    if (file.empty()) return usage_error(cmd + " needs a " + (cmd == "run" ? "scenario FILE" : "JOURNAL"));
-    if (out.empty()) return usage_error(cmd + " needs --out DIR");
-    if (cmd == "replay") return droopline::cli::replay(file, out, run_number, quiet);
-    return droopline::cli::run(file, out, quiet, threads);
-  }
-  return usage_error("unknown command \"" + cmd + "\"");
+  if (!use_env_kernels()) return 2;
+  for (const Command& c : commands)
+    if (c.app->parsed()) return c.action();
+  return 2;  // unreachable: one subcommand is required
 }

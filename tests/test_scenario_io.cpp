@@ -216,6 +216,15 @@ TEST_CASE("untrusted JSON: nesting and size are bounded before anything walks th
   CHECK(issues[0].text() == "json: text of 9 bytes is longer than the limit of 4 bytes");
 }
 
+TEST_CASE("a folder or a missing file given as the scenario is one clear error") {
+  for (const std::string& path : {fs::temp_directory_path().string(), std::string("/nonexistent/scenario.json")}) {
+    LoadResult r = load_scenario_file(path);
+    REQUIRE(r.issues.size() == 1);
+    CHECK(r.issues[0].text() == "file: \"" + path + "\" is not a readable file");
+    CHECK_FALSE(r.def);
+  }
+}
+
 TEST_CASE("every problem is reported at once") {
   json j = json::parse(kBase);
   j["units"][0]["governor"]["droop"] = -1;

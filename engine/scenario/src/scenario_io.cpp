@@ -1,6 +1,7 @@
 #include "droopline/scenario_io.hpp"
 
 #include <algorithm>
+#include <filesystem>
 #include <fstream>
 #include <set>
 #include <string_view>
@@ -385,6 +386,12 @@ LoadResult parse_scenario(std::string_view json_text) {
 }
 
 LoadResult load_scenario_file(const std::string& path) {
+  std::error_code ec;
+  if (!std::filesystem::is_regular_file(path, ec)) {  // a folder would "open" and report a huge size
+    LoadResult out;
+    out.issues.push_back({"file", "\"" + path + "\" is not a readable file", false});
+    return out;
+  }
   std::ifstream in(path, std::ios::binary | std::ios::ate);
   std::string text;
   if (in) {
