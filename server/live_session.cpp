@@ -242,49 +242,7 @@ void LiveSession::emit_frame(double wall_s) {
 }
 
 std::string LiveSession::state_json(double wall_s) const {
-  const Engine& e = *engine_;
-  json j;
-  j["type"] = "frame";
-  j["t_s"] = e.time_s();
-  j["wall_s"] = wall_s;
-  j["step"] = e.step_index();
-  j["paused"] = paused_.load();
-  j["speed"] = speed_.load();
-  json areas = json::object(), units = json::object(), ties = json::object();
-  for (std::size_t a = 0; a < def_.areas.size(); ++a) {
-    const AreaState s = e.area(AreaId{static_cast<std::uint32_t>(a)});
-    areas[def_.areas[a].id] = {{"f_hz", s.f_hz},           {"rocof_hz_per_s", s.rocof_hz_per_s},
-                               {"demand_mw", s.demand_mw}, {"generation_mw", s.generation_mw},
-                               {"export_mw", s.export_mw}, {"scheduled_export_mw", s.scheduled_export_mw},
-                               {"ace_mw", s.ace_mw},       {"agc_mw", s.agc_mw},
-                               {"agc_enabled", s.agc_enabled}, {"shed_mw", s.shed_mw},
-                               {"collapsed", s.collapsed}, {"island", s.island}};
-  }
-  for (std::size_t u = 0; u < def_.units.size(); ++u) {
-    const UnitState s = e.unit(UnitId{static_cast<std::uint32_t>(u)});
-    json ju{{"p_mw", s.p_mw},
-            {"setpoint_mw", s.setpoint_mw},
-            {"agc_mw", s.agc_mw},
-            {"headroom_up_mw", s.headroom_up_mw},
-            {"headroom_down_mw", s.headroom_down_mw},
-            {"droop", s.droop},
-            {"deadband_hz", s.deadband_hz},
-            {"mode", to_string(s.mode)},
-            {"status", to_string(s.status)}};
-    if (def_.units[u].turbine.type == TurbineType::battery) ju["energy_mwh"] = s.energy_mwh;
-    units[def_.units[u].id] = std::move(ju);
-  }
-  for (std::size_t t = 0; t < def_.ties.size(); ++t) {
-    const TieState s = e.tie(TieId{static_cast<std::uint32_t>(t)});
-    ties[def_.ties[t].id] = {{"flow_mw", s.flow_mw},
-                             {"angle_deg", s.angle_deg},
-                             {"scheduled_mw", s.scheduled_mw},
-                             {"in_service", s.in_service}};
-  }
-  j["areas"] = std::move(areas);
-  j["units"] = std::move(units);
-  j["ties"] = std::move(ties);
-  return j.dump();
+  return frame_json(*engine_, wall_s, paused_.load(), speed_.load());
 }
 
 void LiveSession::record_history() {
@@ -294,36 +252,13 @@ void LiveSession::record_history() {
   history_.push(sample_row_);
 }
 
-void LiveSession::push_event(json event) {
-  std::shared_ptr<const std::string> msg;
-  {
-    std::lock_guard lock(history_mutex_);
-    event["seq"] = ++event_seq_;
-    msg = std::make_shared<const std::string>(event.dump(-1, ' ', false, json::error_handler_t::replace));
-    events_.push_back({event_seq_, *msg, -1});
-    while (events_.size() > 1000) events_.pop_front();
-  }
-  sink_({msg, false});
-}
+void LiveSession::push_event(json event) { sink_({events_.add(std::move(event)), false}); }
 
 void LiveSession::push_disturbance(std::size_t index, bool droppable) {
   json j = disturbance_to_json(*engine_, engine_->disturbances()[index]);
   j["type"] = "disturbance";
   j["index"] = index;
-  std::shared_ptr<const std::string> msg;
-  {
-    std::lock_guard lock(history_mutex_);
-    j["seq"] = ++event_seq_;
-    msg = std::make_shared<const std::string>(j.dump());
-    // One entry per disturbance, its latest state; it moves to the end with its new seq so that
-    // events(since) hands out what changed.
-    const auto key = static_cast<std::int64_t>(index);
-    auto old = std::find_if(events_.begin(), events_.end(), [&](const LoggedEvent& e) { return e.disturbance == key; });
-    if (old != events_.end()) events_.erase(old);
-    events_.push_back({event_seq_, *msg, key});
-    while (events_.size() > 1000) events_.pop_front();
-  }
-  sink_({msg, droppable});
+  sink_({events_.add(std::move(j), static_cast<std::int64_t>(index)), droppable});
 }
 
 bool LiveSession::guard_step() {
@@ -512,66 +447,10 @@ void LiveSession::hello(std::function<void(std::shared_ptr<const HelloSnapshot>)
       snap->columns = columns_;
       snap->every_s = history_every_s_;
       snap->rows = history_.flat();
-      snap->events.reserve(events_.size());
-      for (const auto& e : events_) snap->events.push_back(e.text);
+      snap->events = events_.all();
     }
     done(std::move(snap));
   });
-}
-
-std::string HelloSnapshot::to_json() const {
-  // Built as text around the pieces that already are JSON (scenario, events).
-  std::string out = "{\"type\":\"hello\",\"scenario\":";
-  out += *scenario_json;
-  out += ",\"speed\":";
-  append_exact(out, speed);
-  out += paused ? ",\"paused\":true" : ",\"paused\":false";
-  out += ",\"columns\":" + json(columns).dump();
-  out += ",\"history_every_s\":";
-  append_exact(out, every_s);
-  out += ",\"history\":[";
-  const std::size_t w = std::max<std::size_t>(1, columns.size());
-  for (std::size_t i = 0; i < rows.size(); i += w) {
-    out += i ? ",[" : "[";
-    for (std::size_t c = 0; c < w && i + c < rows.size(); ++c) {
-      if (c) out += ',';
-      append_json_number(out, rows[i + c]);
-    }
-    out += ']';
-  }
-  out += "],\"events\":[";
-  for (std::size_t i = 0; i < events.size(); ++i) {
-    if (i) out += ',';
-    out += events[i];
-  }
-  out += "]}";
-  return out;
-}
-
-void HistoryRing::reset(std::size_t width, std::size_t capacity) {
-  width_ = width;
-  cap_ = std::max<std::size_t>(1, capacity);
-  start_ = count_ = 0;
-  data_.assign(width_ * cap_, 0.0);
-}
-
-void HistoryRing::push(const std::vector<double>& row) {
-  const std::size_t slot = (start_ + count_) % cap_;
-  if (count_ == cap_)
-    start_ = (start_ + 1) % cap_;
-  else
-    ++count_;
-  std::copy_n(row.begin(), std::min(row.size(), width_), data_.begin() + static_cast<std::ptrdiff_t>(slot * width_));
-}
-
-std::vector<double> HistoryRing::flat() const {
-  std::vector<double> out;
-  out.reserve(count_ * width_);
-  const std::size_t first = std::min(count_, cap_ - start_);  // rows before the wrap
-  const auto begin = data_.begin() + static_cast<std::ptrdiff_t>(start_ * width_);
-  out.insert(out.end(), begin, begin + static_cast<std::ptrdiff_t>(first * width_));
-  out.insert(out.end(), data_.begin(), data_.begin() + static_cast<std::ptrdiff_t>((count_ - first) * width_));
-  return out;
 }
 
 void LiveSession::state(std::function<void(std::string)> done) {
@@ -595,34 +474,7 @@ std::string LiveSession::history(double from_s, double to_s, double every_s, boo
     rows = history_.flat();
     out_dt = history_every_s_;
   }
-  const std::int64_t stride =
-      every_s > 0.0 ? std::max<std::int64_t>(1, std::llround(every_s / out_dt)) : 1;
-  const std::size_t w = std::max<std::size_t>(1, columns.size());
-  std::string out;
-  if (csv) {
-    for (std::size_t i = 0; i < columns.size(); ++i) out += (i ? "," : "") + columns[i];
-    out += '\n';
-  } else {
-    out = "{\"columns\":" + json(columns).dump() + ",\"rows\":[";
-  }
-  bool first = true;
-  for (std::size_t i = 0; i + w <= rows.size(); i += w) {
-    const double t = rows[i];
-    if (t < from_s - 1e-9 || t > to_s + 1e-9) continue;
-    if (std::llround(t / out_dt) % stride != 0) continue;
-    if (!csv) out += first ? "[" : ",[";
-    first = false;
-    for (std::size_t c = 0; c < w; ++c) {
-      if (c) out += ',';
-      if (csv)
-        append_exact(out, rows[i + c]);
-      else
-        append_json_number(out, rows[i + c]);
-    }
-    out += csv ? "\n" : "]";
-  }
-  if (!csv) out += "]}";
-  return out;
+  return rows_text(columns, rows, out_dt, from_s, to_s, every_s, csv);
 }
 
 study::ComtradeRecord LiveSession::record(double from_s, double to_s) const {
@@ -637,25 +489,11 @@ study::ComtradeRecord LiveSession::record(double from_s, double to_s) const {
     in.start = started_;
     rows = history_.flat();
   }
-  const std::size_t w = std::max<std::size_t>(1, in.columns.size());
-  for (std::size_t i = 0; i + w <= rows.size(); i += w)
-    if (rows[i] >= from_s - 1e-9 && rows[i] <= to_s + 1e-9) in.rows.insert(in.rows.end(), rows.begin() + static_cast<std::ptrdiff_t>(i),
-                                                                          rows.begin() + static_cast<std::ptrdiff_t>(i + w));
+  in.rows = rows_within(in.columns.size(), rows, from_s, to_s);
   in.trigger_s = from_s;
   return study::make_comtrade(in);
 }
 
-std::string LiveSession::events(std::uint64_t since) const {
-  std::lock_guard lock(history_mutex_);
-  std::string out = "{\"events\":[";
-  bool first = true;
-  for (const LoggedEvent& e : events_) {
-    if (e.seq <= since) continue;
-    if (!first) out += ',';
-    first = false;
-    out += e.text;
-  }
-  return out + "]}";
-}
+std::string LiveSession::events(std::uint64_t since) const { return events_.since(since); }
 
 }  // namespace droopline

@@ -22,6 +22,7 @@
 #include "droopline/comtrade.hpp"
 #include "droopline/engine.hpp"
 #include "journal.hpp"
+#include "telemetry.hpp"
 
 namespace droopline {
 
@@ -64,35 +65,6 @@ struct LiveCounters {
 struct Outgoing {
   std::shared_ptr<const std::string> text;
   bool droppable = false;
-};
-
-/// Fixed-capacity ring of equal-width rows in one flat array: the loop appends without
-/// allocating, and a reader copies it out in two block copies.
-class HistoryRing {
- public:
-  void reset(std::size_t width, std::size_t capacity);
-  void push(const std::vector<double>& row);  ///< row.size() == width(); the oldest row gives way
-  std::size_t width() const { return width_; }
-  std::size_t size() const { return count_; }
-  /// All rows, oldest first, concatenated.
-  std::vector<double> flat() const;
-
- private:
-  std::size_t width_ = 0, cap_ = 0, start_ = 0, count_ = 0;
-  std::vector<double> data_;
-};
-
-/// What a joining client is greeted with, copied on the loop thread between two steps (cheap) and
-/// turned into JSON elsewhere (not cheap: up to `history_s` of rows).
-struct HelloSnapshot {
-  std::shared_ptr<const std::string> scenario_json;
-  std::vector<std::string> columns;
-  double every_s = 0.1;
-  std::vector<double> rows;  ///< flat, columns.size() per row
-  std::vector<std::string> events;
-  double speed = 1.0;
-  bool paused = false;
-  std::string to_json() const;
 };
 
 class LiveSession {
@@ -224,13 +196,7 @@ class LiveSession {
   std::chrono::system_clock::time_point started_;  // wall time of t = 0
   std::shared_ptr<const std::string> scenario_json_;
   std::vector<double> sample_row_;  // loop thread only
-  struct LoggedEvent {
-    std::uint64_t seq;
-    std::string text;            // JSON
-    std::int64_t disturbance;    // its index for a disturbance entry (kept once, latest state), else -1
-  };
-  std::deque<LoggedEvent> events_;  // since the last reset or scenario load, oldest first
-  std::uint64_t event_seq_ = 0;
+  EventLog events_;  // since the last reset or scenario load
 
   std::thread thread_;
 };

@@ -1,0 +1,85 @@
+#pragma once
+// What the live session sends and keeps, as data and as text: the ring of history rows, the
+// greeting of a joining client, the telemetry frame, and history rows as CSV or JSON. Pure
+// functions of their inputs; the live session decides when and under which lock they run.
+#include <cstddef>
+#include <cstdint>
+#include <deque>
+#include <mutex>
+#include <memory>
+#include <string>
+#include <vector>
+
+#include <nlohmann/json.hpp>
+
+#include "droopline/engine.hpp"
+
+namespace droopline {
+
+/// Fixed-capacity ring of equal-width rows in one flat array: the loop appends without
+/// allocating, and a reader copies it out in two block copies.
+class HistoryRing {
+ public:
+  void reset(std::size_t width, std::size_t capacity);
+  void push(const std::vector<double>& row);  ///< row.size() == width(); the oldest row gives way
+  std::size_t width() const { return width_; }
+  std::size_t size() const { return count_; }
+  /// All rows, oldest first, concatenated.
+  std::vector<double> flat() const;
+
+ private:
+  std::size_t width_ = 0, cap_ = 0, start_ = 0, count_ = 0;
+  std::vector<double> data_;
+};
+
+/// What a joining client is greeted with, copied on the loop thread between two steps (cheap) and
+/// turned into JSON elsewhere (not cheap: up to `history_s` of rows).
+struct HelloSnapshot {
+  std::shared_ptr<const std::string> scenario_json;
+  std::vector<std::string> columns;
+  double every_s = 0.1;
+  std::vector<double> rows;  ///< flat, columns.size() per row
+  std::vector<std::string> events;
+  double speed = 1.0;
+  bool paused = false;
+  std::string to_json() const;
+};
+
+/// The event log of one run (thread-safe): each entry numbered (`seq`, rising), at most 1,000
+/// kept; a disturbance is kept once, in its latest state, moved to the end with a new `seq` at
+/// each update so that since() hands out what changed.
+class EventLog {
+ public:
+  /// Numbers `event` (adds "seq"), logs it, and returns its text for the clients. `disturbance`:
+  /// its index when the event is a disturbance (replaces the entry of that index), else -1.
+  std::shared_ptr<const std::string> add(nlohmann::ordered_json event, std::int64_t disturbance = -1);
+  /// {"events": [...]} of the entries with seq > `since`.
+  std::string since(std::uint64_t since) const;
+  /// Every entry's text, oldest first.
+  std::vector<std::string> all() const;
+  /// Empties the log (the numbering goes on).
+  void clear();
+
+ private:
+  struct Entry {
+    std::uint64_t seq;
+    std::string text;
+    std::int64_t disturbance;
+  };
+  mutable std::mutex mutex_;
+  std::deque<Entry> entries_;
+  std::uint64_t seq_ = 0;
+};
+
+/// The telemetry frame: the state of every area, unit and tie now, as JSON text.
+std::string frame_json(const Engine& engine, double wall_s, bool paused, double speed);
+
+/// History rows within [from_s, to_s], every `every_s` (0 = all; rows are `out_dt` apart), as CSV
+/// (header line first) or JSON ({"columns": [...], "rows": [[...], ...]}).
+std::string rows_text(const std::vector<std::string>& columns, const std::vector<double>& rows, double out_dt,
+                      double from_s, double to_s, double every_s, bool csv);
+
+/// The rows (flat, `width` values each) whose time lies within [from_s, to_s].
+std::vector<double> rows_within(std::size_t width, const std::vector<double>& rows, double from_s, double to_s);
+
+}  // namespace droopline
