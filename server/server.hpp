@@ -15,6 +15,7 @@
 #include <boost/asio.hpp>
 #include <boost/beast.hpp>
 
+#include "hub.hpp"
 #include "live_session.hpp"
 #include "static_files.hpp"
 #include "sweep_jobs.hpp"
@@ -65,24 +66,6 @@ struct NetCounters {
   std::atomic<std::uint64_t> replays{0};
   std::atomic<std::uint64_t> replays_refused{0};
   std::atomic<std::uint64_t> replays_active{0};
-};
-
-class WebsocketSession;
-
-/// The set of streaming clients.
-class Hub {
- public:
-  void join(const std::shared_ptr<WebsocketSession>& s);
-  void leave(const WebsocketSession* s);
-  /// Hands the message to every client (each queues it on its own strand). Never blocks.
-  void broadcast(const Outgoing& msg);
-  /// Sends every client a close frame with `reason`.
-  void close_all(const std::string& reason);
-  std::size_t size() const;
-
- private:
-  mutable std::mutex mutex_;
-  std::vector<std::weak_ptr<WebsocketSession>> sessions_;
 };
 
 /// Shared by every session of one server.
