@@ -1,0 +1,52 @@
+// The one way to call the HTTP API: adds the instructor token once it was accepted, sends objects
+// as JSON, parses the JSON answer and turns any failure into an ApiError with a readable message
+// (the server's `error` and its `issues`, or why the server did not answer).
+import { app, errorOutput } from '/state.js';
+
+export class ApiError extends Error {
+  constructor(message, status) {
+    super(message);
+    this.status = status; // the HTTP status; 0 when the server did not answer
+  }
+}
+
+/**
+ * Calls `path` and resolves to the parsed JSON answer; throws an ApiError on failure.
+ * `body`: an object (sent as JSON) or a string (sent as it is); `token` replaces the session's.
+ */
+export async function api(path, { method = 'GET', body, token } = {}) {
+  const bearer = token ?? (app.instructor ? app.token : '');
+  const headers = {};
+  if (bearer) headers.Authorization = `Bearer ${bearer}`;
+  if (body !== undefined) headers['Content-Type'] = 'application/json';
+  let res;
+  try {
+    res = await fetch(path, {
+      method, headers, body: body === undefined || typeof body === 'string' ? body : JSON.stringify(body),
+    });
+  } catch (e) {
+    throw new ApiError(`the server did not answer (${e.message})`, 0);
+  }
+  const answer = await res.json().catch(() => ({}));
+  if (!res.ok) {
+    const issues = answer.issues?.length ? `: ${answer.issues.join('; ')}` : '';
+    throw new ApiError(`${answer.error || `HTTP ${res.status}`}${issues}`, res.status);
+  }
+  return answer;
+}
+
+/**
+ * The same, for a control or study with a `data-error-for` output: the output is cleared first and
+ * shows the message of a failure, which resolves to null.
+ */
+export async function apiFor(group, path, options) {
+  const out = errorOutput(group);
+  if (out) out.textContent = '';
+  try {
+    return await api(path, options);
+  } catch (e) {
+    if (!(e instanceof ApiError)) throw e;
+    if (out) out.textContent = e.message;
+    return null;
+  }
+}
