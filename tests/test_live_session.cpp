@@ -133,19 +133,20 @@ TEST_CASE("the event log keeps each disturbance once, in its latest state") {
   // Wait until the open disturbance has been updated a few times (its nadir has moved).
   REQUIRE(inbox.wait_for([](const json& j) { return j["type"] == "disturbance" && j["seq"].get<int>() > 8; }));
   std::this_thread::sleep_for(std::chrono::milliseconds(1500));
-  const json log = json::parse(s.events(0))["events"];
-  std::map<int, int> entries;  // per disturbance index
   std::map<int, int> latest_seq_sent;
   {
     std::lock_guard lock(inbox.m);
     for (const json& j : inbox.messages)
       if (j["type"] == "disturbance") latest_seq_sent[j["index"].get<int>()] = j["seq"].get<int>();
   }
+  // Read after the snapshot: everything sent was logged first, so the log can only be newer.
+  const json log = json::parse(s.events(0))["events"];
+  std::map<int, int> entries;  // per disturbance index
   for (const json& e : log)
     if (e["type"] == "disturbance") {
       const int index = e["index"];
       ++entries[index];
-      CHECK(e["seq"].get<int>() >= latest_seq_sent[index]);  // nothing newer was sent
+      CHECK(e["seq"].get<int>() >= latest_seq_sent[index]);  // the log holds the latest state sent
       CHECK(e["nadir_hz"].is_number());
       CHECK(e["nadir_hz"].get<double>() != e["pre_hz"].get<double>());  // not the state at its start
     }
