@@ -128,7 +128,7 @@ class BadCommandLines(unittest.TestCase):
         self.assertRegex(p.stdout, r"^droopline \S+ \((avx512|avx2|baseline) kernels(, the only ones in this build)?\)\n$")
         p = droopline(["--version"], env={**os.environ, "DROOPLINE_KERNELS": "baseline"})
         self.assertEqual(p.returncode, 0)
-        self.assertIn("(baseline kernels)", p.stdout)
+        self.assertIn("(baseline kernels", p.stdout)
 
     def test_unknown_kernel_variant_exits_2(self):
         env = {**os.environ, "DROOPLINE_KERNELS": "sse9"}
