@@ -39,20 +39,6 @@ std::string quote_cut(std::string_view text) {
   return out + (text.size() > kMax ? "...\"" : "\"");
 }
 
-// An error reply. Messages may quote what the client sent: each is clipped, and at most 200
-// issues are listed.
-std::string error_json(const std::string& message, const std::vector<std::string>& issues = {}) {
-  constexpr std::size_t kMaxIssues = 200;
-  json j{{"error", clip_text(message)}};
-  if (!issues.empty()) {
-    json list = json::array();
-    for (std::size_t i = 0; i < issues.size() && i < kMaxIssues; ++i) list.push_back(clip_text(issues[i]));
-    if (issues.size() > kMaxIssues) list.push_back("... and " + std::to_string(issues.size() - kMaxIssues) + " more");
-    j["issues"] = std::move(list);
-  }
-  return j.dump(-1, ' ', false, json::error_handler_t::replace);
-}
-
 // Reads `Authorization: Bearer TOKEN` (the scheme in any case, RFC 9110); 0 when it carries the
 // instructor token, else the status (401 not a bearer token, 403 the wrong one) and why.
 int check_bearer(std::string_view header, const std::string& token, std::string& why) {

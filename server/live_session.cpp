@@ -22,16 +22,6 @@ double wall_now_s() {
   return std::chrono::duration<double>(std::chrono::system_clock::now().time_since_epoch()).count();
 }
 
-std::string error_body(const std::string& message, const std::vector<std::string>& issues = {}) {
-  json j{{"error", clip_text(message)}};
-  if (!issues.empty()) {
-    json list = json::array();
-    for (const std::string& i : issues) list.push_back(clip_text(i));
-    j["issues"] = std::move(list);
-  }
-  return j.dump(-1, ' ', false, json::error_handler_t::replace);
-}
-
 std::vector<std::string> split_errors(const std::string& joined) {
   std::vector<std::string> out;
   std::size_t start = 0;
@@ -274,7 +264,7 @@ bool LiveSession::guard_step() {
   spdlog::error("{}", halted_);
   for (Pending& p : pending_) {
     counters_.commands_refused.fetch_add(p.commands.size());
-    p.done({409, error_body("command refused: " + halted_)});
+    p.done({409, error_json("command refused: " + halted_)});
   }
   pending_.clear();
   push_event(json{{"type", "event"}, {"t_s", engine_->time_s()}, {"kind", "halted"}, {"text", halted_}});
@@ -303,13 +293,13 @@ void LiveSession::apply(std::vector<Command> commands, Done done) {
     // wall time) for the record to get there first.
     if (!halted_.empty()) {
       counters_.commands_refused.fetch_add(commands.size());
-      done({409, error_body("command refused: " + halted_)});
+      done({409, error_json("command refused: " + halted_)});
       return;
     }
     const ApplyResult check = e.check_all(commands);
     if (!check.ok) {
       counters_.commands_refused.fetch_add(commands.size());
-      done({400, error_body("command refused", split_errors(check.error))});
+      done({400, error_json("command refused", split_errors(check.error))});
       return;
     }
     std::int64_t step = e.step_index();
@@ -346,7 +336,7 @@ void LiveSession::apply_due() {
     }
     spdlog::error("{}", it->outcome->error);
     counters_.commands_refused.fetch_add(it->commands.size());
-    it->done({it->outcome->status, error_body("command refused, nothing applied: " + it->outcome->error)});
+    it->done({it->outcome->status, error_json("command refused, nothing applied: " + it->outcome->error)});
     it = pending_.erase(it);
   }
   Engine& e = *engine_;
@@ -357,7 +347,7 @@ void LiveSession::apply_due() {
     const ApplyResult r = e.apply_all(p.commands);
     if (!r.ok) {  // replay refuses it the same way
       counters_.commands_refused.fetch_add(p.commands.size());
-      p.done({400, error_body("command refused", split_errors(r.error))});
+      p.done({400, error_json("command refused", split_errors(r.error))});
       continue;
     }
     counters_.commands.fetch_add(p.commands.size());
@@ -387,7 +377,7 @@ void LiveSession::load(SystemDef def, Done done) {
   post([this, def = std::move(def), done = std::move(done)](Engine&) {
     settle_pending();
     if (!journal_scenario(def)) {
-      done({journal_.http_status(), error_body("scenario refused, the session goes on unchanged: " + journal_.error())});
+      done({journal_.http_status(), error_json("scenario refused, the session goes on unchanged: " + journal_.error())});
       return;
     }
     start_engine(def);
@@ -401,7 +391,7 @@ void LiveSession::reset(Done done) {
     settle_pending();
     const SystemDef def = def_;
     if (!journal_scenario(def)) {
-      done({journal_.http_status(), error_body("reset refused, the session goes on unchanged: " + journal_.error())});
+      done({journal_.http_status(), error_json("reset refused, the session goes on unchanged: " + journal_.error())});
       return;
     }
     start_engine(def);
@@ -420,7 +410,7 @@ void LiveSession::pause(Done done) {
 
 void LiveSession::resume(Done done) {
   post([this, done = std::move(done)](Engine& e) {
-    if (!halted_.empty()) return done({409, error_body("cannot resume: " + halted_)});
+    if (!halted_.empty()) return done({409, error_json("cannot resume: " + halted_)});
     if (paused_.exchange(false)) rebase();
     push_event(json{{"type", "event"}, {"t_s", e.time_s()}, {"kind", "resume"}, {"text", "resumed"}});
     done({200, json{{"ok", true}, {"paused", false}, {"t_s", e.time_s()}}.dump()});

@@ -153,6 +153,18 @@ void EventLog::clear() {
   entries_.clear();
 }
 
+std::string error_json(const std::string& message, const std::vector<std::string>& issues) {
+  constexpr std::size_t kMaxIssues = 200;
+  json j{{"error", clip_text(message)}};
+  if (!issues.empty()) {
+    json list = json::array();
+    for (std::size_t i = 0; i < issues.size() && i < kMaxIssues; ++i) list.push_back(clip_text(issues[i]));
+    if (issues.size() > kMaxIssues) list.push_back("... and " + std::to_string(issues.size() - kMaxIssues) + " more");
+    j["issues"] = std::move(list);
+  }
+  return j.dump(-1, ' ', false, json::error_handler_t::replace);
+}
+
 std::string rows_text(const std::vector<std::string>& columns, const std::vector<double>& rows, double out_dt,
                       double from_s, double to_s, double every_s, bool csv) {
   const std::int64_t stride =

@@ -71,6 +71,10 @@ class EventLog {
   std::uint64_t seq_ = 0;
 };
 
+/// An error reply of the service, {"error": ..., "issues": [...]}. Messages may quote what a
+/// client sent: each is clipped (clip_text), and at most 200 issues are listed.
+std::string error_json(const std::string& message, const std::vector<std::string>& issues = {});
+
 /// The telemetry frame: the state of every area, unit and tie now, as JSON text.
 std::string frame_json(const Engine& engine, double wall_s, bool paused, double speed);
 

@@ -245,13 +245,8 @@ void check_new_droop(Checker& ck, const SystemDef& def, std::size_t unit, double
   double beta = natural_response_mw_per_hz(def, area);
   if (u.online && u.governor.droop > 0.0) beta -= u.rating_mw / (u.governor.droop * def.nominal_hz);
   beta += u.rating_mw / (droop * def.nominal_hz);
-  const double m = 2.0 * inertia / def.nominal_hz;
-  if (!(m > 0.0 && beta > 0.0)) return;
-  const double tc = m / beta;
-  if (def.step_s > tc / kStepFraction)
-    ck.error(path, fmt_num(droop) + " would make area \"" + u.area + "\" respond faster (inertia over natural response, M/beta = " +
-                       fmt_num(tc) + " s) than the fixed step can follow: step_s (" + fmt_num(def.step_s) +
-                       " s) must be at most a fifth of it");
+  if (std::string why = droop_step_problem(droop, u.area, 2.0 * inertia / def.nominal_hz, beta, def.step_s); !why.empty())
+    ck.error(path, why);
 }
 
 void check_command(Checker& ck, const SystemDef& def, const Command& c, const std::string& p,
@@ -390,6 +385,14 @@ bool solve_dense(std::vector<double>& a, std::vector<double>& b, std::size_t n) 
 
 bool has_errors(const std::vector<Issue>& issues) {
   return std::any_of(issues.begin(), issues.end(), [](const Issue& i) { return !i.warning; });
+}
+
+std::string droop_step_problem(double droop, const std::string& area, double m, double beta, double step_s) {
+  if (!(m > 0.0 && beta > 0.0)) return {};
+  const double tc = m / beta;
+  if (!(step_s > tc / kStepFraction)) return {};
+  return fmt_num(droop) + " would make area \"" + area + "\" respond faster (inertia over natural response, M/beta = " +
+         fmt_num(tc) + " s) than the fixed step can follow: step_s (" + fmt_num(step_s) + " s) must be at most a fifth of it";
 }
 
 bool is_synchronous(const UnitDef& unit) { return unit.turbine.type != TurbineType::battery; }

@@ -195,8 +195,8 @@ class Engine {
   /// Replaces the integrated state (same layout as state()); throws std::invalid_argument on a
   /// wrong size. Everything discrete (time, loads, trips, metrics) stays as it is.
   void set_state(std::span<const double> x);
-  /// True when every integrated state and every output (unit powers, tie flows) is a finite
-  /// number: the check a live session makes after each step.
+  /// True when every integrated state is a finite number (the outputs derive from it): the check
+  /// a live session makes after each step.
   bool finite() const;
   /// One integration step from state `x` into `next` with the loads held as they are now and
   /// nothing discrete run (no events, protection, shedding, secondary control, ramps or metrics);

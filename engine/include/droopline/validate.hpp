@@ -39,6 +39,10 @@ double hydro_temporary_droop(const UnitDef& unit);
 double hydro_reset_s(const UnitDef& unit);
 /// Natural frequency response beta of an area (MW/Hz) from its online units and load damping.
 double natural_response_mw_per_hz(const SystemDef& def, std::size_t area_index);
+/// Why a new `droop` is refused when it leaves `area` (inertia m = 2 sum(H S)/f0, natural
+/// response beta, both with the new droop) faster than the fixed step can follow (M/beta under
+/// five steps); empty when it is fine. Shared by the loader's and the live check.
+std::string droop_step_problem(double droop, const std::string& area, double m, double beta, double step_s);
 /// True for units that add rotating inertia to their area.
 bool is_synchronous(const UnitDef& unit);
 
