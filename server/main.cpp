@@ -17,9 +17,10 @@
 #include <spdlog/spdlog.h>
 
 #include "cli_run.hpp"
+#include "cli_modes.hpp"
 #include "cli_sweep.hpp"
 #include "droopline/kernel_choice.hpp"
-#include "server.hpp"
+#include "serve.hpp"
 
 namespace {
 

@@ -61,9 +61,9 @@ T on_loop(LiveSession& s, std::function<T(Engine&)> fn) {
   return p.get_future().get();
 }
 
-LiveSession::Reply call(std::function<void(LiveSession::Done)> fn) {
-  std::promise<LiveSession::Reply> p;
-  fn([&](LiveSession::Reply r) { p.set_value(std::move(r)); });
+LiveSession::Result call(std::function<void(LiveSession::Done)> fn) {
+  std::promise<LiveSession::Result> p;
+  fn([&](LiveSession::Result r) { p.set_value(std::move(r)); });
   return p.get_future().get();
 }
 
@@ -105,9 +105,9 @@ TEST_CASE("a non-finite state is never streamed: the session keeps the last good
   step.kind = CommandKind::load_step;
   step.area = "oskany";
   step.mw = 10;
-  const LiveSession::Reply refused = call([&](auto done) { s.apply({step}, done); });
+  const LiveSession::Result refused = call([&](auto done) { s.apply({step}, done); });
   CHECK(refused.status == 409);
-  CHECK(refused.body.find("stopped being a finite number") != std::string::npos);
+  CHECK(refused.error.find("stopped being a finite number") != std::string::npos);
   CHECK(call([&](auto done) { s.resume(done); }).status == 409);
   CHECK(call([&](auto done) { s.reset(done); }).status == 200);
   CHECK(call([&](auto done) { s.resume(done); }).status == 200);

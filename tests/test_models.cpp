@@ -4,7 +4,7 @@
 #include <numbers>
 
 #include "support.hpp"
-#include "task_pool.hpp"
+#include "droopline/task_pool.hpp"
 
 using namespace droopline;
 

@@ -1,5 +1,5 @@
-// Parameter sweeps: value lists, paths, sampling, sharding and merging, and the swept results
-// against the static droop formula.
+// Parameter sweeps: value lists, paths, sampling and sharding, and the swept results against the
+// static droop formula. Merging shard folders (`droopline merge`) is tested in test_cli.cpp.
 #include <filesystem>
 #include <fstream>
 #include <set>
@@ -7,7 +7,6 @@
 
 #include <nlohmann/json.hpp>
 
-#include "cli_sweep.hpp"
 #include "droopline/sweep.hpp"
 #include "support.hpp"
 
@@ -19,19 +18,6 @@ namespace fs = std::filesystem;
 namespace {
 
 json scenario_json(const std::string& rel) { return scenario_to_json(test::load(rel)); }
-
-std::string slurp(const fs::path& p) {
-  std::ifstream in(p, std::ios::binary);
-  std::stringstream ss;
-  ss << in.rdbuf();
-  return ss.str();
-}
-
-fs::path fresh_dir(const std::string& name) {
-  const fs::path d = fs::temp_directory_path() / ("droopline-test-sweep-" + std::to_string(::getpid())) / name;
-  fs::remove_all(d);
-  return d;
-}
 
 std::size_t metric_index(const std::string& name) {
   const auto& n = metric_names();
@@ -163,43 +149,4 @@ TEST_CASE("invalid combinations become rows saying why; the rest run") {
   err.clear();
   run_sweep(spec, err);
   CHECK_THAT(err, Catch::Contains("--vary units[nope].governor.droop: no element \"nope\""));
-}
-
-TEST_CASE("three shards merged equal the whole sweep, and merge refuses what does not fit") {
-  cli::SweepArgs a;
-  a.scenario_file = test::source_path("scenarios/textbook_isolated_station.json");
-  a.vary = {"units[unit1].governor.droop=0.04,0.05,0.06", "events[0].mw=20:50:10"};
-  a.quiet = true;
-  a.sample = 9;
-  a.seed = 3;
-  const fs::path whole = fresh_dir("whole");
-  a.out_dir = whole.string();
-  REQUIRE(cli::sweep(a) == 0);
-  std::vector<std::string> shards;
-  for (std::uint32_t i = 1; i <= 3; ++i) {
-    a.shard = i;
-    a.shards = 3;
-    a.threads = i;  // thread counts differ between shards: results must not
-    a.out_dir = fresh_dir("shard" + std::to_string(i)).string();
-    REQUIRE(cli::sweep(a) == 0);
-    shards.push_back(a.out_dir);
-  }
-  const std::string merged = fresh_dir("merged").string();
-  REQUIRE(cli::merge(shards, merged, "nadir_hz", true) == 0);
-  CHECK(slurp(fs::path(merged) / "sweep.csv") == slurp((whole / "sweep.csv")));
-  CHECK(slurp(fs::path(merged) / "sweep.svg") == slurp((whole / "sweep.svg")));
-  const auto whole_doc = json::parse(slurp((whole / "sweep.json")));
-  const auto merged_doc = json::parse(slurp(fs::path(merged) / "sweep.json"));
-  CHECK(whole_doc["rows"] == merged_doc["rows"]);
-  CHECK(whole_doc["rows"].size() == 9);
-
-  const std::string out = fresh_dir("refused").string();
-  CHECK(cli::merge({shards[0], shards[1]}, out, "nadir_hz", true) == 2);             // shard 3 missing
-  CHECK(cli::merge({shards[0], shards[0], shards[1]}, out, "nadir_hz", true) == 2);  // shard 1 twice
-  a.seed = 4;  // another sample: another sweep
-  a.shard = 3;
-  a.out_dir = fresh_dir("other").string();
-  REQUIRE(cli::sweep(a) == 0);
-  CHECK(cli::merge({shards[0], shards[1], a.out_dir}, out, "nadir_hz", true) == 2);
-  CHECK_FALSE(fs::exists(fs::path(out) / "sweep.csv"));  // nothing half-written
 }

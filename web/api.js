@@ -35,6 +35,9 @@ export async function api(path, { method = 'GET', body, token } = {}) {
   return answer;
 }
 
+/** What a viewer is told where a route is the instructor's (the server answered 401). */
+export const FOR_INSTRUCTOR = 'This is for the instructor: unlock with the instructor token to run it.';
+
 /**
  * The same, for a control or study with a `data-error-for` output: the output is cleared first and
  * shows the message of a failure, which resolves to null.
@@ -46,7 +49,7 @@ export async function apiFor(group, path, options) {
     return await api(path, options);
   } catch (e) {
     if (!(e instanceof ApiError)) throw e;
-    if (out) out.textContent = e.message;
+    if (out) out.textContent = e.status === 401 ? FOR_INSTRUCTOR : e.message;
     return null;
   }
 }

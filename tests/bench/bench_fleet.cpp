@@ -24,7 +24,7 @@
 #include "droopline/engine.hpp"
 #include "droopline/scenario_io.hpp"
 #include "child_process.hpp"
-#include "task_pool.hpp"
+#include "droopline/task_pool.hpp"
 
 namespace fs = std::filesystem;
 using namespace droopline;

@@ -377,8 +377,8 @@ class AttackFindingsTests(DemoServerCase):
         for change, fragment in ((stiff_tie, "couples the areas' speeds with a time constant"),
                                  (tiny_nominal, "nominal_hz: must lie within [10, 1000]")):
             body = demo_with(change)
-            for method, path, token in (("PUT", "/api/v1/scenario", TOKEN), ("POST", "/api/v1/replays", None),
-                                        ("POST", "/api/v1/modes", None)):
+            for method, path, token in (("PUT", "/api/v1/scenario", TOKEN), ("POST", "/api/v1/replays", TOKEN),
+                                        ("POST", "/api/v1/modes", TOKEN)):
                 with self.subTest(path=path, fragment=fragment):
                     s, reply, _ = self.srv.request(method, path, body, token, timeout=30)
                     self.assertEqual(s, 400, reply)
@@ -399,8 +399,8 @@ class AttackFindingsTests(DemoServerCase):
         for method, path, body, token in (
                 ("POST", "/api/v1/commands", {"kind": "unit_trip", "unit": huge}, TOKEN),
                 ("POST", "/api/v1/commands", {"kind": huge}, TOKEN),
-                ("POST", "/api/v1/assess", {huge: 1}, None),
-                ("POST", "/api/v1/modes", demo_with(lambda j: j["units"][0].update(id=huge)), None),
+                ("POST", "/api/v1/assess", {huge: 1}, TOKEN),
+                ("POST", "/api/v1/modes", demo_with(lambda j: j["units"][0].update(id=huge)), TOKEN),
                 ("GET", "/api/v1/" + "n" * 6000, None, None)):
             with self.subTest(path=path[:40]):
                 s, reply, r = self.srv.request(method, path, body, token, timeout=30)

@@ -109,7 +109,9 @@ async def next_of(ws, kind, timeout=5):
     raise TimeoutError(kind)
 
 
-class StreamTests(unittest.TestCase):
+class ThreeAreaServerCase(unittest.TestCase):
+    """Tests that share one server of the three-area demo."""
+
     @classmethod
     def setUpClass(cls):
         cls.srv = Server(os.path.join(SRC, "scenarios", "demo_three_areas.json"))
@@ -117,6 +119,9 @@ class StreamTests(unittest.TestCase):
     @classmethod
     def tearDownClass(cls):
         cls.srv.stop()
+
+
+class StreamTests(ThreeAreaServerCase):
 
     def test_hello_then_frames_at_the_configured_rate(self):
         async def go():
@@ -188,7 +193,8 @@ class StreamTests(unittest.TestCase):
                 r2 = await next_of(ws, "reply")
                 return r1, a, r2
         r1, a, r2 = run(go())
-        self.assertEqual(r1["status"], 403)
+        self.assertEqual(r1["status"], 401)
+        self.assertIn("only the instructor can change the simulation", r1["body"]["error"])
         self.assertTrue(a["ok"])
         self.assertEqual(r2["status"], 200, r2)
 
@@ -263,18 +269,18 @@ class StreamTests(unittest.TestCase):
         self.assertIn("events", ev)
 
     def test_modes_of_the_live_and_of_a_posted_scenario(self):
-        s, body, _ = self.srv.request("GET", "/api/v1/modes")
+        s, body, _ = self.srv.request("GET", "/api/v1/modes", token=TOKEN)
         self.assertEqual(s, 200, body)
         self.assertEqual(body["modes"][0]["kind"], "oscillatory")
         self.assertIn("oskany.df_hz", body["states"])
         with open(os.path.join(SRC, "scenarios", "textbook_isolated_station.json")) as fh:
             station = json.load(fh)
         station["units"][0]["governor"]["droop"] = 1 / 75.0  # past the Routh limit of 73.965
-        s, body, _ = self.srv.request("POST", "/api/v1/modes?damping_threshold=0.1", station)
+        s, body, _ = self.srv.request("POST", "/api/v1/modes?damping_threshold=0.1", station, TOKEN)
         self.assertEqual(s, 200, body)
         self.assertTrue(body["modes"][0]["flagged"])
         self.assertGreater(body["modes"][0]["real_per_s"], 0)
-        s, body, _ = self.srv.request("GET", "/api/v1/modes?damping_threshold=2")
+        s, body, _ = self.srv.request("GET", "/api/v1/modes?damping_threshold=2", token=TOKEN)
         self.assertEqual(s, 400)
         self.assertIn("damping_threshold: must lie within [0, 1]", body["error"])
 
@@ -389,10 +395,75 @@ BAD = [
     ("GET", "/api/v1/history?format=xml", None, None, 400, "format: must be json or csv"),
     ("GET", "/api/v1/nothing", None, None, 404, "no API endpoint \\\"/api/v1/nothing\\\""),
     ("DELETE", "/api/v1/state", None, None, 405, "method not allowed; use GET"),
-    ("POST", "/api/v1/replays", '{"duration_s": 5e6, "step_s": 0.001, "areas": [{"id": "a", "demand_mw": 10}], "units": [{"id": "g", "area": "a", "rating_mw": 20, "inertia_s": 5, "setpoint_mw": 10, "turbine": {"type": "steam"}}]}', None, 413, "replay too large"),
-    ("POST", "/api/v1/replays", "[1,2", None, 400, "syntax error"),
+    ("POST", "/api/v1/replays", '{"duration_s": 5e6, "step_s": 0.001, "areas": [{"id": "a", "demand_mw": 10}], "units": [{"id": "g", "area": "a", "rating_mw": 20, "inertia_s": 5, "setpoint_mw": 10, "turbine": {"type": "steam"}}]}', TOKEN, 413, "replay too large"),
+    ("POST", "/api/v1/replays", "[1,2", TOKEN, 400, "syntax error"),
     ("GET", "/api/v1/stream", None, None, 426, "is a WebSocket"),
 ]
+
+
+# The role policy (README "API"): every route that changes the live session or runs simulations
+# on the server's workers answers a viewer 401 and says why; reads stay open to viewers.
+PROTECTED = [
+    # (method, path, body, fragment of the reason)
+    ("PUT", "/api/v1/scenario", "{}", "only the instructor can change the simulation"),
+    ("POST", "/api/v1/commands", '{"kind": "load_step", "area": "oskany", "mw": 1}', "only the instructor can change"),
+    ("POST", "/api/v1/control", '{"action": "pause"}', "only the instructor can change"),
+    ("POST", "/api/v1/replays", "{}", "run on the server's worker pool"),
+    ("POST", "/api/v1/sweeps", '{"vary": ["units[0].governor.droop=0.04"]}', "sweeps are for the instructor"),
+    ("DELETE", "/api/v1/sweeps/1", None, "sweeps are for the instructor"),
+    ("GET", "/api/v1/modes", None, "run on the server's worker pool"),
+    ("POST", "/api/v1/modes", "{}", "run on the server's worker pool"),
+    ("POST", "/api/v1/assess", "{}", "run on the server's worker pool"),
+]
+OPEN_TO_VIEWERS = ["/healthz", "/metrics", "/api/v1/state", "/api/v1/role", "/api/v1/scenario", "/api/v1/history",
+                   "/api/v1/events", "/api/v1/record?from_s=0&to_s=1", "/api/v1/openapi.json"]
+
+
+class RolePolicyTests(ThreeAreaServerCase):
+
+    def test_a_viewer_gets_401_on_every_protected_route(self):
+        for method, path, body, fragment in PROTECTED:
+            with self.subTest(method=method, path=path):
+                s, reply, _ = self.srv.request(method, path, body)
+                self.assertEqual(s, 401, reply)
+                self.assertIn(fragment, reply["error"])
+                self.assertIn("Authorization: Bearer TOKEN", reply["error"])
+        self.assertEqual(self.srv.metric("droopline_commands_total"), 0)
+
+    def test_a_viewer_reads_without_a_token(self):
+        for path in OPEN_TO_VIEWERS:
+            with self.subTest(path=path):
+                s, _, _ = self.srv.request("GET", path)
+                self.assertIn(s, (200, 404), path)  # 404: a record of history not kept yet
+
+    def test_a_viewer_gets_401_on_websocket_control_messages(self):
+        async def go():
+            async with websockets.connect(self.srv.ws_url(), max_size=2**24) as ws:
+                out = []
+                for i, msg in enumerate(({"type": "commands", "commands": {"kind": "load_step", "area": "oskany", "mw": 1}},
+                                         {"type": "control", "action": "pause"},
+                                         {"type": "control", "action": "speed", "speed": 2})):
+                    await ws.send(json.dumps({**msg, "id": i}))
+                    out.append(await next_of(ws, "reply"))
+                return out
+        for r in run(go()):
+            self.assertEqual(r["status"], 401, r)
+            self.assertIn("only the instructor can change the simulation", r["body"]["error"])
+            self.assertIn('"type":"auth"', r["body"]["error"])
+
+    def test_http_and_websocket_give_the_same_messages(self):
+        s, http_reply, _ = self.srv.request("POST", "/api/v1/control", {"action": "fly"}, TOKEN)
+        self.assertEqual(s, 400)
+
+        async def go():
+            async with websockets.connect(self.srv.ws_url(), max_size=2**24) as ws:
+                await ws.send(json.dumps({"type": "auth", "token": TOKEN}))
+                await next_of(ws, "auth")
+                await ws.send(json.dumps({"type": "control", "action": "fly", "id": 1}))
+                return await next_of(ws, "reply")
+        ws_reply = run(go())
+        self.assertEqual(ws_reply["status"], 400)
+        self.assertEqual(ws_reply["body"], http_reply)
 
 
 class BadInputTests(unittest.TestCase):
@@ -514,7 +585,7 @@ class LifecycleTests(unittest.TestCase):
             for name in ("textbook_two_areas.json", "demo_unit_trip_shedding.json"):
                 path = os.path.join(SRC, "scenarios", name)
                 with open(path, "rb") as fh:
-                    s, reply, _ = srv.request("POST", "/api/v1/replays", fh.read(), timeout=60)
+                    s, reply, _ = srv.request("POST", "/api/v1/replays", fh.read(), TOKEN, timeout=60)
                 self.assertEqual(s, 200)
                 out = tempfile.mkdtemp()
                 subprocess.run([BIN, "run", path, "--out", out, "--quiet"], check=True)

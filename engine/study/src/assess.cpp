@@ -4,6 +4,7 @@
 #include <cmath>
 #include <map>
 
+#include "droopline/batch.hpp"
 #include "droopline/engine.hpp"
 #include "droopline/format.hpp"
 #include "droopline/json_input.hpp"
@@ -130,27 +131,25 @@ std::optional<Trace> simulate(const SystemDef& def) {
   if (!created.engine) return std::nullopt;
   Engine& e = *created.engine;
   Trace tr;
-  auto record = [&] {
-    tr.t.push_back(e.time_s());
+  BatchObservers obs;
+  obs.row = [&](const Engine& at) {
+    tr.t.push_back(at.time_s());
     for (std::uint32_t a = 0; a < def.areas.size(); ++a) {
-      const double f = e.area(AreaId{a}).f_hz;
+      const double f = at.area(AreaId{a}).f_hz;
       tr.f.push_back(f);
       tr.lowest = std::min(tr.lowest, f);
       tr.highest = std::max(tr.highest, f);
     }
     for (std::uint32_t u = 0; u < def.units.size(); ++u) {
-      const UnitState s = e.unit(UnitId{u});
+      const UnitState s = at.unit(UnitId{u});
       tr.p.push_back(s.p_mw - s.setpoint_mw);
       tr.raw.push_back(s.p_mw);
       tr.online.push_back(s.status != UnitStatus::tripped);
     }
   };
-  record();
-  while (!e.finished()) {
-    e.step();
-    record();
-  }
-  e.close_disturbances();
+  BatchOptions every_step;
+  every_step.every = 1;  // the checks look at every step, not only at output rows
+  run_batch(e, every_step, obs);
   tr.disturbances = e.disturbances();
   return tr;
 }

@@ -9,6 +9,7 @@
 #include <set>
 #include <thread>
 
+#include "droopline/batch.hpp"
 #include "droopline/engine.hpp"
 #include "droopline/format.hpp"
 #include "droopline/scenario_io.hpp"
@@ -74,22 +75,19 @@ SweepRow run_one(const SweepSpec& spec, std::uint64_t index, const std::vector<s
   }
   Engine& e = *created.engine;
   const SystemDef& def = e.def();
-  const std::int64_t every = std::max<std::int64_t>(1, std::llround(def.output_every_s / def.step_s));
   double lowest = INFINITY, highest = -INFINITY;
-  auto sample = [&] {
+  BatchObservers obs;
+  obs.row = [&](const Engine& at) {
     for (std::uint32_t a = 0; a < def.areas.size(); ++a) {
-      const AreaState s = e.area(AreaId{a});
+      const AreaState s = at.area(AreaId{a});
       if (s.collapsed) continue;
       lowest = std::min(lowest, s.f_hz);
       highest = std::max(highest, s.f_hz);
     }
   };
-  sample();
-  while (!e.finished()) {
-    e.run(every);
-    sample();
-  }
-  e.close_disturbances();
+  BatchOptions to_end;
+  to_end.row_at_end = true;
+  run_batch(e, to_end, obs);
   row.status = "ok";
   row.metrics.assign(m_count, std::nullopt);
   const auto& ds = e.disturbances();

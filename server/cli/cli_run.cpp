@@ -12,11 +12,12 @@
 
 #include <nlohmann/json.hpp>
 
+#include "droopline/batch.hpp"
 #include "droopline/format.hpp"
 #include "droopline/scenario_io.hpp"
 #include "cli_files.hpp"
 #include "journal.hpp"
-#include "task_pool.hpp"
+#include "droopline/task_pool.hpp"
 
 namespace droopline::cli {
 namespace {
@@ -45,31 +46,6 @@ int check(const std::string& file) {
             << " event(s), " << fmt_num(d.duration_s) << " s at a " << fmt_num(d.step_s)
             << " s step\n";
   return 0;
-}
-
-RunOutcome run_to_strings(const SystemDef& def, const std::vector<Issue>& warnings) {
-  RunOutcome out;
-  CreateResult created = Engine::create(def);
-  if (!created.engine) {
-    out.issues = created.issues;
-    return out;
-  }
-  Engine& engine = *created.engine;
-  const std::int64_t every = std::max<std::int64_t>(1, std::llround(def.output_every_s / def.step_s));
-  SeriesCsv csv;
-  out.series = SeriesCsv::header(engine);
-  std::vector<Notice> notices;
-  csv.append_row(engine, out.series);
-  while (!engine.finished()) {
-    engine.step();
-    if (engine.step_index() % every == 0) csv.append_row(engine, out.series);
-    auto n = engine.take_notices();
-    notices.insert(notices.end(), n.begin(), n.end());
-  }
-  engine.close_disturbances();
-  out.summary = to_text(summary_to_json(engine, notices, warnings));
-  out.ok = true;
-  return out;
 }
 
 int run(const std::string& file, const std::string& out_dir, bool quiet, unsigned threads) {
@@ -110,26 +86,25 @@ int run(const std::string& file, const std::string& out_dir, bool quiet, unsigne
     std::cerr << "droopline: cannot write in \"" << out_dir << "\"\n";
     return 1;
   }
-  const std::int64_t every = std::max<std::int64_t>(1, std::llround(def.output_every_s / def.step_s));
   SeriesCsv csv;
   std::string buf = SeriesCsv::header(engine);
-  csv.append_row(engine, buf);
   std::vector<Notice> notices;
   Progress progress(!quiet && ::isatty(STDERR_FILENO) && def.duration_s / def.step_s > 2e5);
-  while (!engine.finished()) {
-    engine.step();
-    if (engine.step_index() % every == 0) {
-      csv.append_row(engine, buf);
-      if (buf.size() > (1u << 20)) {  // stream long runs to disk in 1 MiB pieces
-        series.stream().write(buf.data(), static_cast<std::streamsize>(buf.size()));
-        buf.clear();
-        if (!series.stream()) break;
-      }
+  study::BatchObservers obs;
+  obs.row = [&](const Engine& e) {
+    csv.append_row(e, buf);
+    if (buf.size() > (1u << 20)) {  // stream long runs to disk in 1 MiB pieces
+      series.stream().write(buf.data(), static_cast<std::streamsize>(buf.size()));
+      buf.clear();
     }
-    auto n = engine.take_notices();
-    notices.insert(notices.end(), n.begin(), n.end());
-    if ((engine.step_index() & 1023) == 0) progress.update(engine.time_s(), def.duration_s);
-  }
+  };
+  obs.notice = [&](const Notice& n) { notices.push_back(n); };
+  obs.after_step = [&](const Engine& e) {
+    if ((e.step_index() & 1023) == 0) progress.update(e.time_s(), def.duration_s);
+  };
+  study::BatchOptions until_written;
+  until_written.close_disturbances = false;  // after the last rows are written, as before
+  run_batch(engine, until_written, obs);
   lap("simulate");
   series.stream().write(buf.data(), static_cast<std::streamsize>(buf.size()));
   engine.close_disturbances();
@@ -189,10 +164,8 @@ int replay(const std::string& journal, const std::string& out_dir, int run_numbe
     std::cerr << "droopline: cannot write in \"" << out_dir << "\"\n";
     return 1;
   }
-  const std::int64_t every = std::max<std::int64_t>(1, std::llround(run.def.output_every_s / run.def.step_s));
   SeriesCsv csv;
   std::string buf = SeriesCsv::header(engine);
-  csv.append_row(engine, buf);
   std::vector<Notice> notices;
   std::size_t next = 0;
   auto apply_due = [&] {
@@ -209,13 +182,14 @@ int replay(const std::string& journal, const std::string& out_dir, int run_numbe
       ++next;
     }
   };
-  while (engine.step_index() < run.last_step) {
-    apply_due();
-    engine.step();
-    if (engine.step_index() % every == 0) csv.append_row(engine, buf);
-    auto n = engine.take_notices();
-    notices.insert(notices.end(), n.begin(), n.end());
-  }
+  study::BatchObservers obs;
+  obs.before_step = [&](Engine&) { apply_due(); };
+  obs.row = [&](const Engine& e) { csv.append_row(e, buf); };
+  obs.notice = [&](const Notice& n) { notices.push_back(n); };
+  study::BatchOptions to_last;
+  to_last.end_step = run.last_step;
+  to_last.close_disturbances = false;  // the commands of the last step first
+  run_batch(engine, to_last, obs);
   apply_due();
   auto n = engine.take_notices();
   notices.insert(notices.end(), n.begin(), n.end());

@@ -16,14 +16,6 @@
 
 namespace droopline::server {
 
-bool token_matches(const std::string& given, const std::string& token) {
-  if (given.size() != token.size() || token.empty()) return false;
-  unsigned char diff = 0;
-  for (std::size_t i = 0; i < token.size(); ++i)
-    diff |= static_cast<unsigned char>(given[i] ^ token[i]);
-  return diff == 0;
-}
-
 namespace {
 
 // Every connection is a descriptor, and a refused one is one too until its 503 is written: ask
@@ -103,6 +95,8 @@ int serve(Options options) {
     return 1;
   }
   ctx.replay_pool = std::make_unique<net::thread_pool>(std::max<std::size_t>(1, opt.replay_workers));
+  ctx.run_on_workers = [pool = ctx.replay_pool.get()](std::function<void()> job) { net::post(*pool, std::move(job)); };
+  ctx.api = std::make_unique<Api>(ctx);
 
   auto listener = std::make_shared<Listener>(ioc, tcp::endpoint{address, opt.port}, ctx, ec);
   if (ec) {

@@ -1,4 +1,4 @@
-#include "task_pool.hpp"
+#include "droopline/task_pool.hpp"
 
 namespace droopline {
 namespace {

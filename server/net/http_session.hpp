@@ -1,6 +1,7 @@
 #pragma once
-// One HTTP connection: reads requests under size and time limits, answers the API and static
-// files, and hands WebSocket upgrades of /api/v1/stream to a WebsocketSession.
+// One HTTP connection: reads requests under size and time limits, hands them to the API (the
+// route table in api/), serves the page's files, and hands WebSocket upgrades of /api/v1/stream
+// to a WebsocketSession. Only I/O, limits and the static files live here.
 #include <array>
 #include <memory>
 #include <optional>
@@ -11,7 +12,7 @@ namespace droopline::server {
 
 class HttpSession : public std::enable_shared_from_this<HttpSession> {
  public:
-  using Request = http::request<http::string_body>;
+  using HttpRequest = http::request<http::string_body>;
   using Response = http::response<http::string_body>;
 
   HttpSession(tcp::socket&& socket, Context& ctx, std::shared_ptr<void> slot);
@@ -30,11 +31,13 @@ class HttpSession : public std::enable_shared_from_this<HttpSession> {
   void send_then_linger(Response res);
   void do_discard();
   void on_discard(beast::error_code ec, std::size_t bytes);
-  void serve_file(const Request& req, const std::string& path);
-  void upgrade(Request&& req);
-  void handle(Request&& req);
-  /// Answers later, from any thread: the reply is carried back to this connection's strand.
-  std::function<void(int, std::string)> later(const Request& req);
+  /// One of the page's files, as StaticFiles::resolve decides (the only way to the disk).
+  void serve_file(unsigned version, bool keep_alive, const std::string& path);
+  void upgrade(HttpRequest&& req);
+  /// Hands the request to the API's route table; what is not the API's is a page file.
+  void handle(HttpRequest&& req);
+  /// Writes the API's reply (on this connection's strand).
+  void answer(unsigned version, bool keep_alive, Reply reply);
 
   beast::tcp_stream stream_;
   Context& ctx_;

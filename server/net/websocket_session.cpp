@@ -141,49 +141,33 @@ void WebsocketSession::handle_message(const std::string& text) {
     if (ok) spdlog::info("client {} authenticated as instructor", peer_);
     return;
   }
-  if (type != "commands" && type != "control") {
+  // A control message is a request to the API's route table: the same route, role rule and
+  // messages as over HTTP; the reply carries the route's status and JSON body.
+  Request call;
+  call.verb = Verb::post;
+  call.role = instructor_ ? Role::instructor : Role::viewer;
+  call.token_hint = "send {\"type\":\"auth\",\"token\":...} first";
+  auto self = shared_from_this();
+  auto respond = [self, head = "{\"type\":\"reply\",\"id\":" + safe_dump(id) + ",\"status\":"](Reply r) {
+    // The body is the route's own JSON text, spliced in as it is.
+    const std::string body = r.type == "application/json" ? r.body : safe_dump(json(r.body));
+    self->reply(head + std::to_string(r.status) + ",\"body\":" + body + "}");
+  };
+  if (type == "commands") {
+    call.target = "/api/v1/commands";
+    if (!j.contains("commands")) {
+      respond(Reply{400, "application/json", error_json("commands: required, one command object or a list of them"), {}, {}});
+      return;
+    }
+    call.body = j["commands"].dump();
+  } else if (type == "control") {
+    call.target = "/api/v1/control";
+    call.body = text;  // {"type": "control", "action": ..., "speed": ...}: the route reads action and speed
+  } else {
     reply(safe_dump(json{{"type", "error"}, {"id", id}, {"error", "unknown message type \"" + clip_text(type, 64) + "\" (expected auth, commands, control)"}}));
     return;
   }
-  if (!instructor_) {
-    reply(safe_dump(json{{"type", "reply"}, {"id", id}, {"status", 403},
-                         {"body", {{"error", "changing the simulation needs the instructor token (send {\"type\":\"auth\",\"token\":...})"}}}}));
-    return;
-  }
-  auto self = shared_from_this();
-  // The reply body is the service's own JSON text, spliced in as it is.
-  auto done = [self, head = "{\"type\":\"reply\",\"id\":" + safe_dump(id) + ",\"status\":"](LiveSession::Reply r) {
-    self->reply(head + std::to_string(r.status) + ",\"body\":" + r.body + "}");
-  };
-  if (type == "commands") {
-    if (!j.contains("commands")) {
-      done({400, safe_dump(json{{"error", "commands: required, one command object or a list of them"}})});
-      return;
-    }
-    CommandParse cp = parse_commands(j["commands"].dump());
-    if (!cp.issues.empty()) {
-      std::vector<std::string> msgs;
-      for (const Issue& i : cp.issues) msgs.push_back(clip_text(i.text()));
-      done({400, safe_dump(json{{"error", "invalid command"}, {"issues", msgs}})});
-      return;
-    }
-    ctx_.live->apply(std::move(cp.commands), done);
-    return;
-  }
-  const std::string action = j.contains("action") && j["action"].is_string() ? j["action"].get<std::string>() : "";
-  auto refuse = [&](const std::string& why) { done({400, safe_dump(json{{"error", why}})}); };
-  if (action == "pause") ctx_.live->pause(done);
-  else if (action == "resume") ctx_.live->resume(done);
-  else if (action == "reset") ctx_.live->reset(done);
-  else if (action != "speed")
-    refuse("action: must be one of \"pause\", \"resume\", \"reset\", \"speed\", got " +
-           (j.contains("action") ? clip_text(j["action"].dump(-1, ' ', false, json::error_handler_t::replace), 64) : std::string("nothing")));
-  else if (!j.contains("speed") || !j["speed"].is_number())
-    refuse("speed: required, a number from 0.1 to 100");
-  else if (const double speed = j["speed"].get<double>(); !(speed >= 0.1 && speed <= 100.0))
-    refuse("speed: must lie within [0.1, 100], got " + fmt_num(speed));
-  else
-    ctx_.live->set_speed(speed, done);
+  ctx_.api->handle(call, std::move(respond));
 }
 
 void WebsocketSession::deliver(const Outgoing& msg) {

@@ -153,16 +153,16 @@ void EventLog::clear() {
   entries_.clear();
 }
 
-std::string error_json(const std::string& message, const std::vector<std::string>& issues) {
-  constexpr std::size_t kMaxIssues = 200;
-  json j{{"error", clip_text(message)}};
-  if (!issues.empty()) {
-    json list = json::array();
-    for (std::size_t i = 0; i < issues.size() && i < kMaxIssues; ++i) list.push_back(clip_text(issues[i]));
-    if (issues.size() > kMaxIssues) list.push_back("... and " + std::to_string(issues.size() - kMaxIssues) + " more");
-    j["issues"] = std::move(list);
+std::vector<std::string> split_on(std::string_view text, std::string_view separator) {
+  std::vector<std::string> out;
+  std::size_t start = 0;
+  while (start <= text.size()) {
+    const std::size_t end = text.find(separator, start);
+    out.emplace_back(text.substr(start, end == std::string_view::npos ? std::string_view::npos : end - start));
+    if (end == std::string_view::npos) break;
+    start = end + separator.size();
   }
-  return j.dump(-1, ' ', false, json::error_handler_t::replace);
+  return out;
 }
 
 std::string rows_text(const std::vector<std::string>& columns, const std::vector<double>& rows, double out_dt,

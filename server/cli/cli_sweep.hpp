@@ -1,7 +1,6 @@
 #pragma once
-// The study commands: `droopline sweep`, `droopline merge`, `droopline modes`
-// and `droopline assess`.
-#include <chrono>
+// The sweep commands: `droopline sweep` and `droopline merge`.
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -28,20 +27,5 @@ int sweep(const SweepArgs& args);
 /// Joins shard directories of one sweep into `out_dir` (same files as a whole sweep). Refuses
 /// shards of different sweeps, a shard given twice or missing.
 int merge(const std::vector<std::string>& shard_dirs, const std::string& out_dir, const std::string& metric, bool quiet);
-
-/// `droopline modes FILE`: prints the small-signal modes (table, or JSON with `as_json`).
-int modes(const std::string& file, double damping_threshold, bool as_json);
-
-/// `droopline assess FILE --requirements REQ`: runs and checks; 0 all met, 3 some failed, 2 bad input.
-int assess(const std::string& file, const std::string& requirements_file, bool as_json);
-
-struct RecordArgs {
-  std::string scenario_file, out_dir, name = "record";
-  double from_s = 0.0, to_s = 1e300;
-  std::chrono::system_clock::time_point start;  ///< wall time of t = 0
-  bool quiet = false;
-};
-/// `droopline record FILE --out DIR`: runs the scenario and writes DIR/NAME.cfg and .dat (COMTRADE).
-int record(const RecordArgs& args);
 
 }  // namespace droopline::cli

@@ -4,10 +4,11 @@
 #include <iostream>
 #include <sstream>
 
-#include "cli_sweep.hpp"
+#include "cli_modes.hpp"
 #include "droopline/format.hpp"
 #include "cli_files.hpp"
 #include "droopline/assess.hpp"
+#include "droopline/batch.hpp"
 #include "droopline/comtrade.hpp"
 #include "droopline/engine.hpp"
 #include "droopline/modes.hpp"
@@ -115,19 +116,19 @@ int record(const RecordArgs& args) {
   in.sample_hz = 1.0 / r.def->output_every_s;
   in.nominal_hz = r.def->nominal_hz;
   in.start = args.start;
-  const std::int64_t every = std::max<std::int64_t>(1, std::llround(r.def->output_every_s / r.def->step_s));
   std::vector<double> row(e.series_width());
-  auto keep = [&] {
-    const double t = e.time_s();
+  study::BatchObservers obs;
+  obs.row = [&](const Engine& at) {
+    const double t = at.time_s();
     if (t < args.from_s - 1e-9 || t > to + 1e-9) return;
-    e.sample(row);
+    at.sample(row);
     in.rows.insert(in.rows.end(), row.begin(), row.end());
   };
-  keep();
-  while (!e.finished() && e.time_s() < to + 1e-9) {
-    e.run(every);
-    keep();
-  }
+  study::BatchOptions until_to;
+  until_to.end_time_s = to;
+  until_to.row_at_end = true;
+  until_to.close_disturbances = false;
+  study::run_batch(e, until_to, obs);
   in.trigger_s = args.from_s;
   for (const Disturbance& d : e.disturbances())
     if (d.at_s >= args.from_s) {

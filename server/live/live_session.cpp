@@ -22,29 +22,20 @@ double wall_now_s() {
   return std::chrono::duration<double>(std::chrono::system_clock::now().time_since_epoch()).count();
 }
 
-std::vector<std::string> split_errors(const std::string& joined) {
-  std::vector<std::string> out;
-  std::size_t start = 0;
-  while (start <= joined.size()) {
-    const std::size_t end = joined.find("; ", start);
-    out.push_back(joined.substr(start, end == std::string::npos ? std::string::npos : end - start));
-    if (end == std::string::npos) break;
-    start = end + 2;
-  }
-  return out;
-}
-
 }  // namespace
 
 LiveSession::LiveSession(const SystemDef& def, LiveConfig config, Sink sink)
     : config_(std::move(config)),
       sink_(std::move(sink)),
-      journal_(config_.journal_path, [this] {
-        { std::lock_guard lock(tasks_mutex_); }  // no wake-up lost between a check and a wait
-        tasks_cv_.notify_all();
-      }) {
+      pipeline_(
+          config_.journal_path,
+          [this] {
+            { std::lock_guard lock(tasks_mutex_); }  // no wake-up lost between a check and a wait
+            tasks_cv_.notify_all();
+          },
+          counters_.commands, counters_.commands_refused) {
   speed_ = std::clamp(config_.speed, 0.1, 100.0);
-  if (journal_.ok() && !journal_scenario(def)) journal_failed_ = true;
+  if (pipeline_.journal().ok() && !journal_scenario(def)) journal_failed_ = true;
   start_engine(def);
   thread_ = std::thread([this] { run(); });
 }
@@ -57,8 +48,8 @@ void LiveSession::stop() {
   if (thread_.joinable()) thread_.join();
   if (!engine_) return;
   settle_pending();
-  if (!journal_failed_ && !journal_.append_now(json{{"type", "stop"}, {"step", engine_->step_index()}}.dump()))
-    spdlog::error("{}", journal_.error());  // replay then runs to the last command
+  if (!journal_failed_ && !pipeline_.journal().append_now(json{{"type", "stop"}, {"step", engine_->step_index()}}.dump()))
+    spdlog::error("{}", pipeline_.journal().error());  // replay then runs to the last command
 }
 
 void LiveSession::post(Task task) {
@@ -72,8 +63,8 @@ void LiveSession::post(Task task) {
 // ------------------------------------------------------------------ loop thread
 
 bool LiveSession::journal_scenario(const SystemDef& def) {
-  if (journal_.append_now(json{{"type", "scenario"}, {"step", 0}, {"scenario", scenario_to_json(def)}}.dump())) return true;
-  spdlog::error("{}", journal_.error());
+  if (pipeline_.journal().append_now(json{{"type", "scenario"}, {"step", 0}, {"scenario", scenario_to_json(def)}}.dump())) return true;
+  spdlog::error("{}", pipeline_.journal().error());
   return false;
 }
 
@@ -87,19 +78,7 @@ void LiveSession::start_engine(const SystemDef& def) {
   checkpoint_ = engine_->clone();
   checkpoint_every_ = std::max<std::int64_t>(1, std::llround(1.0 / def_.step_s));
   halted_.clear();
-  {
-    auto scenario_text = std::make_shared<const std::string>(scenario_to_json(def_).dump());
-    std::lock_guard lock(history_mutex_);
-    columns_ = engine_->series_columns();
-    history_every_s_ = def_.output_every_s;
-    scenario_json_ = std::move(scenario_text);
-    events_.clear();  // a new run: its log starts empty (the journal keeps the old one)
-    scenario_name_ = def_.name;
-    nominal_hz_ = def_.nominal_hz;
-    started_ = std::chrono::system_clock::now();
-    history_.reset(columns_.size(),
-                   static_cast<std::size_t>(std::max(1.0, config_.history_s / def_.output_every_s)) + 1);
-  }
+  store_.start(*engine_, def_, config_.history_s);
   record_history();
   rebase();
 }
@@ -238,17 +217,16 @@ std::string LiveSession::state_json(double wall_s) const {
 void LiveSession::record_history() {
   sample_row_.resize(engine_->series_width());
   engine_->sample(sample_row_);
-  std::lock_guard lock(history_mutex_);
-  history_.push(sample_row_);
+  store_.push(sample_row_);
 }
 
-void LiveSession::push_event(json event) { sink_({events_.add(std::move(event)), false}); }
+void LiveSession::push_event(json event) { sink_({store_.events().add(std::move(event)), false}); }
 
 void LiveSession::push_disturbance(std::size_t index, bool droppable) {
   json j = disturbance_to_json(*engine_, engine_->disturbances()[index]);
   j["type"] = "disturbance";
   j["index"] = index;
-  sink_({events_.add(std::move(j), static_cast<std::int64_t>(index)), droppable});
+  sink_({store_.events().add(std::move(j), static_cast<std::int64_t>(index)), droppable});
 }
 
 bool LiveSession::guard_step() {
@@ -262,11 +240,7 @@ bool LiveSession::guard_step() {
   halted_ = "at t = " + fmt_fixed(bad_t, 2) + " s a value of the simulation stopped being a finite number; the last good state (t = " +
             fmt_fixed(engine_->time_s(), 2) + " s) is kept and the session is paused: the instructor can reset it (then resume) or load a scenario";
   spdlog::error("{}", halted_);
-  for (Pending& p : pending_) {
-    counters_.commands_refused.fetch_add(p.commands.size());
-    p.done({409, error_json("command refused: " + halted_)});
-  }
-  pending_.clear();
+  pipeline_.refuse_all(409, "command refused: " + halted_);
   push_event(json{{"type", "event"}, {"t_s", engine_->time_s()}, {"kind", "halted"}, {"text", halted_}});
   return false;
 }
@@ -291,78 +265,27 @@ void LiveSession::apply(std::vector<Command> commands, Done done) {
     // disk, at the step the record names; one refused by either changes nothing. The journal is
     // written on its own thread, so the command is scheduled a little ahead (journal_lead_s of
     // wall time) for the record to get there first.
-    if (!halted_.empty()) {
-      counters_.commands_refused.fetch_add(commands.size());
-      done({409, error_json("command refused: " + halted_)});
-      return;
-    }
-    const ApplyResult check = e.check_all(commands);
-    if (!check.ok) {
-      counters_.commands_refused.fetch_add(commands.size());
-      done({400, error_json("command refused", split_errors(check.error))});
-      return;
-    }
+    if (!halted_.empty()) return pipeline_.refuse(commands, done, 409, "command refused: " + halted_);
     std::int64_t step = e.step_index();
     if (!paused_.load())
       step += static_cast<std::int64_t>(std::ceil(config_.journal_lead_s * speed_.load() / def_.step_s));
-    if (!pending_.empty()) step = std::max(step, pending_.back().step);
-    json cmds = json::array();
-    for (const Command& c : commands) cmds.push_back(command_to_json(c));
-    auto outcome = journal_.submit(json{{"type", "commands"}, {"step", step}, {"commands", cmds}}.dump());
-    pending_.push_back({step, std::move(commands), std::move(done), std::move(outcome)});
+    pipeline_.submit(e, std::move(commands), step, std::move(done));
   });
 }
 
-bool LiveSession::due_unwritten() const {
-  return !pending_.empty() && pending_.front().step <= engine_->step_index() &&
-         pending_.front().outcome->state.load(std::memory_order_acquire) == JournalWriter::writing;
-}
+bool LiveSession::due_unwritten() const { return pipeline_.due_unwritten(engine_->step_index()); }
 
-bool LiveSession::pending_ready() const {
-  for (const Pending& p : pending_) {
-    const int state = p.outcome->state.load(std::memory_order_acquire);
-    if (state == JournalWriter::failed) return true;
-    if (&p == &pending_.front() && state == JournalWriter::durable && p.step <= engine_->step_index()) return true;
-  }
-  return false;
-}
+bool LiveSession::pending_ready() const { return pipeline_.ready(engine_->step_index()); }
 
-void LiveSession::apply_due() {
-  if (pending_.empty()) return;
-  for (auto it = pending_.begin(); it != pending_.end();) {
-    if (it->outcome->state.load(std::memory_order_acquire) != JournalWriter::failed) {
-      ++it;
-      continue;
-    }
-    spdlog::error("{}", it->outcome->error);
-    counters_.commands_refused.fetch_add(it->commands.size());
-    it->done({it->outcome->status, error_json("command refused, nothing applied: " + it->outcome->error)});
-    it = pending_.erase(it);
-  }
-  Engine& e = *engine_;
-  while (!pending_.empty() && pending_.front().step <= e.step_index() &&
-         pending_.front().outcome->state.load(std::memory_order_acquire) == JournalWriter::durable) {
-    Pending p = std::move(pending_.front());
-    pending_.pop_front();
-    const ApplyResult r = e.apply_all(p.commands);
-    if (!r.ok) {  // replay refuses it the same way
-      counters_.commands_refused.fetch_add(p.commands.size());
-      p.done({400, error_json("command refused", split_errors(r.error))});
-      continue;
-    }
-    counters_.commands.fetch_add(p.commands.size());
-    drain_notices();
-    p.done({200, json{{"ok", true}, {"applied", p.commands.size()}, {"t_s", r.at_s}, {"step", e.step_index()}}.dump()});
-  }
-}
+void LiveSession::apply_due() { pipeline_.apply_due(*engine_, [this] { drain_notices(); }); }
 
 void LiveSession::settle_pending() {
   // Before a new scenario, a reset or the stop record: every durable command is applied at its
   // step, exactly as replay will (the few steps run here are catch-up, like a late wake).
-  journal_.wait_idle();
+  pipeline_.journal().wait_idle();
   apply_due();
-  while (!pending_.empty()) {
-    while (engine_->step_index() < pending_.front().step) {
+  while (pipeline_.next_step() >= 0) {
+    while (engine_->step_index() < pipeline_.next_step()) {
       engine_->step();
       counters_.steps.fetch_add(1);
       if (!guard_step()) return;  // the pending commands were refused
@@ -377,12 +300,12 @@ void LiveSession::load(SystemDef def, Done done) {
   post([this, def = std::move(def), done = std::move(done)](Engine&) {
     settle_pending();
     if (!journal_scenario(def)) {
-      done({journal_.http_status(), error_json("scenario refused, the session goes on unchanged: " + journal_.error())});
+      done(refused(pipeline_.journal().http_status(), "scenario refused, the session goes on unchanged: " + pipeline_.journal().error()));
       return;
     }
     start_engine(def);
     push_event(json{{"type", "event"}, {"t_s", 0.0}, {"kind", "scenario"}, {"text", "scenario \"" + def.name + "\" loaded"}});
-    done({200, json{{"ok", true}, {"scenario", def.name}}.dump()});
+    done(accepted(json{{"ok", true}, {"scenario", def.name}}));
   });
 }
 
@@ -391,12 +314,12 @@ void LiveSession::reset(Done done) {
     settle_pending();
     const SystemDef def = def_;
     if (!journal_scenario(def)) {
-      done({journal_.http_status(), error_json("reset refused, the session goes on unchanged: " + journal_.error())});
+      done(refused(pipeline_.journal().http_status(), "reset refused, the session goes on unchanged: " + pipeline_.journal().error()));
       return;
     }
     start_engine(def);
     push_event(json{{"type", "event"}, {"t_s", 0.0}, {"kind", "reset"}, {"text", "session reset to t = 0"}});
-    done({200, json{{"ok", true}, {"t_s", 0.0}}.dump()});
+    done(accepted(json{{"ok", true}, {"t_s", 0.0}}));
   });
 }
 
@@ -404,16 +327,16 @@ void LiveSession::pause(Done done) {
   post([this, done = std::move(done)](Engine& e) {
     paused_ = true;
     push_event(json{{"type", "event"}, {"t_s", e.time_s()}, {"kind", "pause"}, {"text", "paused"}});
-    done({200, json{{"ok", true}, {"paused", true}, {"t_s", e.time_s()}}.dump()});
+    done(accepted(json{{"ok", true}, {"paused", true}, {"t_s", e.time_s()}}));
   });
 }
 
 void LiveSession::resume(Done done) {
   post([this, done = std::move(done)](Engine& e) {
-    if (!halted_.empty()) return done({409, error_json("cannot resume: " + halted_)});
+    if (!halted_.empty()) return done(refused(409, "cannot resume: " + halted_));
     if (paused_.exchange(false)) rebase();
     push_event(json{{"type", "event"}, {"t_s", e.time_s()}, {"kind", "resume"}, {"text", "resumed"}});
-    done({200, json{{"ok", true}, {"paused", false}, {"t_s", e.time_s()}}.dump()});
+    done(accepted(json{{"ok", true}, {"paused", false}, {"t_s", e.time_s()}}));
   });
 }
 
@@ -422,7 +345,7 @@ void LiveSession::set_speed(double speed, Done done) {
     speed_ = speed;
     rebase();
     push_event(json{{"type", "event"}, {"t_s", e.time_s()}, {"kind", "speed"}, {"text", "speed " + fmt_num(speed) + "x"}});
-    done({200, json{{"ok", true}, {"speed", speed}}.dump()});
+    done(accepted(json{{"ok", true}, {"speed", speed}}));
   });
 }
 
@@ -431,14 +354,7 @@ void LiveSession::hello(std::function<void(std::shared_ptr<const HelloSnapshot>)
     auto snap = std::make_shared<HelloSnapshot>();
     snap->speed = speed_.load();
     snap->paused = paused_.load();
-    {
-      std::lock_guard lock(history_mutex_);
-      snap->scenario_json = scenario_json_;
-      snap->columns = columns_;
-      snap->every_s = history_every_s_;
-      snap->rows = history_.flat();
-      snap->events = events_.all();
-    }
+    store_.fill(*snap);
     done(std::move(snap));
   });
 }
@@ -455,35 +371,11 @@ void LiveSession::scenario(std::function<void(std::string)> done) {
 }
 
 std::string LiveSession::history(double from_s, double to_s, double every_s, bool csv) const {
-  std::vector<std::string> columns;
-  std::vector<double> rows;
-  double out_dt = 0.1;
-  {
-    std::lock_guard lock(history_mutex_);  // copy out; format without holding the loop up
-    columns = columns_;
-    rows = history_.flat();
-    out_dt = history_every_s_;
-  }
-  return rows_text(columns, rows, out_dt, from_s, to_s, every_s, csv);
+  return store_.history(from_s, to_s, every_s, csv);
 }
 
-study::ComtradeRecord LiveSession::record(double from_s, double to_s) const {
-  study::ComtradeInput in;
-  std::vector<double> rows;
-  {
-    std::lock_guard lock(history_mutex_);
-    in.columns = columns_;
-    in.sample_hz = 1.0 / history_every_s_;
-    in.station = scenario_name_;
-    in.nominal_hz = nominal_hz_;
-    in.start = started_;
-    rows = history_.flat();
-  }
-  in.rows = rows_within(in.columns.size(), rows, from_s, to_s);
-  in.trigger_s = from_s;
-  return study::make_comtrade(in);
-}
+study::ComtradeRecord LiveSession::record(double from_s, double to_s) const { return store_.record(from_s, to_s); }
 
-std::string LiveSession::events(std::uint64_t since) const { return events_.since(since); }
+std::string LiveSession::events(std::uint64_t since) const { return store_.events().since(since); }
 
 }  // namespace droopline

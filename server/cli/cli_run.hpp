@@ -18,14 +18,4 @@ int run(const std::string& file, const std::string& out_dir, bool quiet, unsigne
 /// `run_number` 0 = the last scenario of the journal, else 1-based.
 int replay(const std::string& journal, const std::string& out_dir, int run_number, bool quiet);
 
-/// A whole run held in memory (for replays over HTTP): the same text `run` writes.
-struct RunOutcome {
-  bool ok = false;
-  std::vector<Issue> issues;
-  std::string series;   ///< series.csv content
-  std::string summary;  ///< summary.json content
-};
-/// Runs a validated definition to its end and returns both outputs as text.
-RunOutcome run_to_strings(const SystemDef& def, const std::vector<Issue>& warnings);
-
 }  // namespace droopline::cli

@@ -8,6 +8,7 @@
 #include <mutex>
 #include <memory>
 #include <string>
+#include <string_view>
 #include <vector>
 
 #include <nlohmann/json.hpp>
@@ -71,9 +72,8 @@ class EventLog {
   std::uint64_t seq_ = 0;
 };
 
-/// An error reply of the service, {"error": ..., "issues": [...]}. Messages may quote what a
-/// client sent: each is clipped (clip_text), and at most 200 issues are listed.
-std::string error_json(const std::string& message, const std::vector<std::string>& issues = {});
+/// The pieces of `text` between occurrences of `separator` (one piece when there is none).
+std::vector<std::string> split_on(std::string_view text, std::string_view separator);
 
 /// The telemetry frame: the state of every area, unit and tie now, as JSON text.
 std::string frame_json(const Engine& engine, double wall_s, bool paused, double speed);

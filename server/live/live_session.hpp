@@ -21,6 +21,8 @@
 
 #include "droopline/comtrade.hpp"
 #include "droopline/engine.hpp"
+#include "command_pipeline.hpp"
+#include "history_store.hpp"
 #include "journal.hpp"
 #include "telemetry.hpp"
 
@@ -79,18 +81,16 @@ class LiveSession {
   LiveSession& operator=(const LiveSession&) = delete;
 
   /// False when the journal could not be opened (the reason in journal_error()).
-  bool journal_ok() const { return journal_.ok() && !journal_failed_; }
-  const std::string& journal_error() const { return journal_.error(); }
+  bool journal_ok() const { return pipeline_.journal().ok() && !journal_failed_; }
+  /// Why the journal could not be opened or written.
+  const std::string& journal_error() const { return pipeline_.journal().error(); }
 
   /// Runs `task` on the loop thread between two steps.
   void post(Task task);
 
-  /// Result of a change: `status` is an HTTP status (200, 400, 409, 507...), `body` JSON.
-  struct Reply {
-    int status = 200;
-    std::string body;
-  };
-  using Done = std::function<void(Reply)>;
+  /// What a change came to (data, never a reply: the API words it).
+  using Result = LiveResult;
+  using Done = std::function<void(Result)>;
 
   /// Applies commands atomically (all or none), journals them, then answers.
   void apply(std::vector<Command> commands, Done done);
@@ -151,16 +151,9 @@ class LiveSession {
 
   LiveConfig config_;
   Sink sink_;
-  JournalWriter journal_;
-  bool journal_failed_ = false;  ///< the first scenario record could not be written
-  struct Pending {
-    std::int64_t step;
-    std::vector<Command> commands;
-    Done done;
-    std::shared_ptr<const JournalWriter::Outcome> outcome;
-  };
-  std::deque<Pending> pending_;  // loop thread only
   LiveCounters counters_;
+  CommandPipeline pipeline_;     // journal before apply; loop thread only
+  bool journal_failed_ = false;  ///< the first scenario record could not be written
 
   // Loop-thread state
   std::unique_ptr<Engine> engine_;
@@ -187,16 +180,8 @@ class LiveSession {
   std::condition_variable tasks_cv_;
   std::vector<Task> tasks_;
 
-  mutable std::mutex history_mutex_;
-  std::vector<std::string> columns_;
-  HistoryRing history_;
-  double history_every_s_ = 0.1;
-  std::string scenario_name_;
-  double nominal_hz_ = 50.0;
-  std::chrono::system_clock::time_point started_;  // wall time of t = 0
-  std::shared_ptr<const std::string> scenario_json_;
+  HistoryStore store_;              // rows, columns, scenario and event log for other threads
   std::vector<double> sample_row_;  // loop thread only
-  EventLog events_;  // since the last reset or scenario load
 
   std::thread thread_;
 };

@@ -1,0 +1,187 @@
+#include "api.hpp"
+
+#include <algorithm>
+#include <cctype>
+#include <nlohmann/json.hpp>
+
+#include "droopline/format.hpp"
+#include "droopline/json_input.hpp"
+
+namespace droopline::server {
+namespace {
+
+using json = nlohmann::ordered_json;
+
+// True when `path` fits `pattern`; the `{...}` segments (one non-empty segment each) go to `params`.
+bool matches(const std::string& pattern, const std::string& path, std::vector<std::string>& params) {
+  const auto want = split_on(pattern, "/");
+  const auto got = split_on(path, "/");
+  params.clear();
+  if (got.size() != want.size()) return false;
+  for (std::size_t i = 0; i < want.size(); ++i) {
+    const bool param = want[i].size() > 2 && want[i].front() == '{' && want[i].back() == '}';
+    if (param && !got[i].empty())
+      params.emplace_back(got[i]);
+    else if (param || got[i] != want[i])
+      return false;
+  }
+  return true;
+}
+
+}  // namespace
+
+const char* verb_name(Verb verb) {
+  switch (verb) {
+    case Verb::get:
+      return "GET";
+    case Verb::head:
+      return "HEAD";
+    case Verb::post:
+      return "POST";
+    case Verb::put:
+      return "PUT";
+    case Verb::delete_:
+      return "DELETE";
+    case Verb::other:
+      break;
+  }
+  return "OTHER";
+}
+
+bool token_matches(const std::string& given, const std::string& token) {
+  if (given.size() != token.size() || token.empty()) return false;
+  unsigned char diff = 0;
+  for (std::size_t i = 0; i < token.size(); ++i) diff |= static_cast<unsigned char>(given[i] ^ token[i]);
+  return diff == 0;
+}
+
+std::string quote_cut(std::string_view text) {
+  constexpr std::size_t kMax = 120;
+  std::string out = "\"";
+  for (char c : text.substr(0, kMax)) out += (c >= 0x20 && c < 0x7f) ? c : '?';  // printable ASCII only
+  return out + (text.size() > kMax ? "...\"" : "\"");
+}
+
+std::string error_json(const std::string& message, const std::vector<std::string>& issues) {
+  constexpr std::size_t kMaxIssues = 200;
+  json j{{"error", clip_text(message)}};
+  if (!issues.empty()) {
+    json list = json::array();
+    for (std::size_t i = 0; i < issues.size() && i < kMaxIssues; ++i) list.push_back(clip_text(issues[i]));
+    if (issues.size() > kMaxIssues) list.push_back("... and " + std::to_string(issues.size() - kMaxIssues) + " more");
+    j["issues"] = std::move(list);
+  }
+  return j.dump(-1, ' ', false, json::error_handler_t::replace);
+}
+
+std::vector<std::string> issue_texts(const std::vector<Issue>& issues) {
+  std::vector<std::string> out;
+  for (const Issue& i : issues)
+    if (!i.warning) out.push_back(i.text());
+  return out;
+}
+
+int check_bearer(std::string_view header, const std::string& token, std::string& why) {
+  std::size_t sp = header.find(' ');
+  std::string scheme(header.substr(0, sp));
+  for (char& c : scheme) c = static_cast<char>(std::tolower(static_cast<unsigned char>(c)));
+  if (scheme != "bearer") {
+    why = "the instructor token goes in 'Authorization: Bearer TOKEN' (got the scheme " + quote_cut(scheme) + ")";
+    return 401;
+  }
+  std::string_view given = sp == std::string_view::npos ? std::string_view() : header.substr(sp + 1);
+  while (!given.empty() && given.front() == ' ') given.remove_prefix(1);
+  while (!given.empty() && given.back() == ' ') given.remove_suffix(1);
+  if (given.empty()) {
+    why = "the Authorization header holds no token after 'Bearer'";
+    return 401;
+  }
+  if (!token_matches(std::string(given), token)) {
+    why = "wrong instructor token";
+    return 403;
+  }
+  return 0;
+}
+
+void Call::reply(int status, std::string json_body) const {
+  Reply r;
+  r.status = status;
+  r.body = std::move(json_body);
+  respond(std::move(r));
+}
+
+void Call::error(int status, const std::string& message, const std::vector<std::string>& issues) const {
+  reply(status, error_json(message, issues));
+}
+
+Api::Api(Services& services) : services_(services), routes_(route_table()) {}
+
+std::vector<Route> route_table() {
+  std::vector<Route> routes;
+  add_live_routes(routes);
+  add_study_routes(routes);
+  return routes;
+}
+
+Role role_of(const Request& req, const std::string& token, int& refused_status, std::string& refused) {
+  refused_status = 0;
+  if (!req.authorization) return req.role;
+  refused_status = check_bearer(*req.authorization, token, refused);
+  return refused_status ? req.role : Role::instructor;
+}
+
+bool Api::handle(const Request& req, Respond respond) {
+  Call call{req, parse_target(req.target), {}, Role::viewer, 0, {}, std::move(respond)};
+  if (!call.target.ok) {
+    call.error(400, "malformed percent-encoding in the request target");
+    return true;
+  }
+  const std::string& path = call.target.path;
+  const Route* route = nullptr;
+  std::string allow;
+  std::vector<std::string> params;
+  for (const Route& r : routes_) {
+    if (!matches(r.pattern, path, params)) continue;
+    allow += (allow.empty() ? "" : ", ") + std::string(verb_name(r.verb));
+    if (r.verb == req.verb && !route) {
+      route = &r;
+      call.params = params;
+    }
+  }
+  if (!route) {
+    if (!allow.empty()) {
+      Reply r;
+      r.status = 405;
+      r.body = error_json("method not allowed; use " + allow);
+      r.headers.emplace_back("Allow", allow);
+      call.respond(std::move(r));
+      return true;
+    }
+    if (path.rfind("/api/", 0) != 0) return false;  // one of the page's files, or nothing
+    call.error(404, "no API endpoint " + quote_cut(path));
+    return true;
+  }
+  // The role policy, in one place: an instructor route refuses a viewer with 401 (or the
+  // refused token's own 401/403 and reason).
+  call.role = role_of(req, services_.token, call.refused_status, call.refused);
+  if (route->role == Role::instructor && call.role != Role::instructor) {
+    if (call.refused_status)
+      call.error(call.refused_status, call.refused);
+    else
+      call.error(401, std::string(route->why) + ": " + req.token_hint);
+    return true;
+  }
+  route->handler(services_, call);
+  return true;
+}
+
+std::string Api::table_json() const {
+  json out = json::array();
+  for (const Route& r : routes_)
+    out.push_back({{"verb", verb_name(r.verb)},
+                   {"path", r.pattern},
+                   {"role", r.role == Role::instructor ? "instructor" : "viewer"}});
+  return out.dump();
+}
+
+}  // namespace droopline::server

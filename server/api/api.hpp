@@ -1,0 +1,118 @@
+#pragma once
+// The service's API without the network: a Request (verb, target, body, role) goes through one
+// route table to a handler that answers with a Reply (status, type, body, extra headers). HTTP
+// requests and WebSocket control messages both come through here, so one route, one role rule
+// and one set of messages serve both. Handlers answer later, from any thread, through `Respond`.
+#include <functional>
+#include <optional>
+#include <string>
+#include <utility>
+#include <vector>
+
+#include "http_target.hpp"
+#include "services.hpp"
+
+namespace droopline::server {
+
+/// Who is asking: `viewer` needs no token, `instructor` proved the instructor token.
+enum class Role { viewer, instructor };
+
+/// The request methods the API routes.
+enum class Verb { get, head, post, put, delete_, other };
+
+/// "GET", "POST", ... (the route table's and openapi.json's spelling, upper case).
+const char* verb_name(Verb verb);
+
+/// One request to the API, whichever transport carried it.
+struct Request {
+  Verb verb = Verb::get;
+  std::string target;  ///< path and query, as sent
+  std::string body;
+  Role role = Role::viewer;  ///< the role already proven (a WebSocket that sent its token)
+  /// The HTTP Authorization header, if any: checked in the dispatch (a refused one answers 401/403).
+  std::optional<std::string> authorization;
+  /// How a viewer proves the instructor token on this transport (quoted in a 401).
+  std::string token_hint = "send the instructor token as 'Authorization: Bearer TOKEN'";
+};
+
+/// The answer: an HTTP status, a content type and the body, or a page file to serve.
+struct Reply {
+  int status = 200;
+  std::string type = "application/json";
+  std::string body;
+  std::vector<std::pair<std::string, std::string>> headers;  ///< extra headers (Retry-After, ...)
+  std::string file;  ///< non-empty: serve this page file instead (the network layer's StaticFiles decides)
+};
+
+/// Receives the reply (from any thread, exactly once).
+using Respond = std::function<void(Reply)>;
+
+/// One request being answered: what the handler reads and how it answers.
+struct Call {
+  const Request& request;           ///< valid during the handler's synchronous part only
+  Target target;                    ///< the decoded path and query
+  std::vector<std::string> params;  ///< the `{...}` segments of the route's pattern, in order
+  Role role = Role::viewer;         ///< the caller's role after the token check
+  int refused_status = 0;           ///< a token was offered and refused: 401 or 403 (else 0)
+  std::string refused;              ///< why it was refused
+  Respond respond;                  ///< answers (copy it into work that finishes later)
+  /// Answers with a JSON body.
+  void reply(int status, std::string json_body) const;
+  /// Answers with an error body ({"error": ..., "issues": [...]}).
+  void error(int status, const std::string& message, const std::vector<std::string>& issues = {}) const;
+};
+
+/// One entry of the route table.
+struct Route {
+  Verb verb;
+  std::string pattern;  ///< the path; `{name}` matches one segment
+  Role role;            ///< the least role allowed
+  const char* why;      ///< for instructor routes: why, in words a trainee can act on
+  std::function<void(Services&, Call&)> handler;
+};
+
+/// The whole route table, in order (handlers take the services they work on).
+std::vector<Route> route_table();
+
+/// The caller's role: `req.role`, raised to instructor by a valid Authorization header; a header
+/// that is offered and refused sets `refused_status` (401 or 403) and `refused` (why).
+Role role_of(const Request& req, const std::string& token, int& refused_status, std::string& refused);
+
+/// Reads `Authorization: Bearer TOKEN` (the scheme in any case, RFC 9110): 0 when it carries the
+/// instructor token, else the status (401 not a bearer token, 403 the wrong one) with `why`.
+int check_bearer(std::string_view header, const std::string& token, std::string& why);
+
+/// The route table and its dispatch (role check included): the API of `droopline serve`.
+class Api {
+ public:
+  explicit Api(Services& services);
+  /// Answers `req` through `respond`; false (nothing answered) when the path is not the API's
+  /// (then it is one of the page's files).
+  bool handle(const Request& req, Respond respond);
+  /// The route table, in order.
+  const std::vector<Route>& routes() const { return routes_; }
+  /// The table as JSON text, `[{"verb", "path", "role"}, ...]` (for the test against openapi.json).
+  std::string table_json() const;
+
+ private:
+  Services& services_;
+  std::vector<Route> routes_;
+};
+
+/// An error reply body, {"error": ..., "issues": [...]}. Messages may quote what a client sent:
+/// each is clipped (clip_text), and at most 200 issues are listed.
+std::string error_json(const std::string& message, const std::vector<std::string>& issues = {});
+
+/// A client-supplied text quoted in a message: printable ASCII, cut to 120 characters, in quotes.
+std::string quote_cut(std::string_view text);
+
+/// The error texts of `issues` (warnings left out).
+std::vector<std::string> issue_texts(const std::vector<Issue>& issues);
+
+/// The routes of the live session (state, scenario, commands, control, history, events, record,
+/// role, healthz, metrics, stream, openapi).
+void add_live_routes(std::vector<Route>& routes);
+/// The routes that run studies on the worker pool (replays, sweeps, modes, assess).
+void add_study_routes(std::vector<Route>& routes);
+
+}  // namespace droopline::server

@@ -1,0 +1,235 @@
+// The routes of the live session: reads for everyone, changes for the instructor.
+#include <cmath>
+#include <nlohmann/json.hpp>
+#include <sstream>
+
+#include "api.hpp"
+#include "droopline/format.hpp"
+#include "droopline/json_input.hpp"
+#include "droopline/scenario_io.hpp"
+
+namespace droopline::server {
+namespace {
+
+using json = nlohmann::ordered_json;
+
+// Why a route needs the instructor token, in words a trainee can act on.
+constexpr const char* kChanges = "only the instructor can change the simulation";
+
+// A number from the query, or an error message naming the parameter.
+bool query_number(const Target& t, const std::string& key, double fallback, double& out, std::string& error) {
+  if (!t.has(key)) {
+    out = fallback;
+    return true;
+  }
+  const std::string v = t.get(key);
+  char* end = nullptr;
+  // Decimal only: strtod would also take hexadecimal, "inf" and "nan".
+  const bool decimal = !v.empty() && v.find_first_not_of("0123456789+-.eE") == std::string::npos;
+  out = decimal ? std::strtod(v.c_str(), &end) : 0.0;
+  if (!decimal || end != v.c_str() + v.size() || !std::isfinite(out)) {
+    error = "query parameter " + key + ": must be a decimal number, got " + quote_cut(v);
+    return false;
+  }
+  return true;
+}
+
+// What the live session's change came to, as a reply (any thread).
+LiveSession::Done answer(const Call& call) {
+  return [respond = call.respond](LiveSession::Result r) {
+    Reply out;
+    out.status = r.status;
+    out.body = r.status == 200 ? r.data.dump() : error_json(r.error, r.issues);
+    respond(std::move(out));
+  };
+}
+
+// A text reply with its own content type.
+Reply text_reply(std::string type, std::string body) {
+  Reply r;
+  r.type = std::move(type);
+  r.body = std::move(body);
+  return r;
+}
+
+std::string metrics_text(const Services& s) {
+  const LiveCounters& l = s.live->counters();
+  const NetCounters& n = s.counters;
+  std::ostringstream o;
+  auto metric = [&](const char* name, const char* type, const char* help, double value) {
+    o << "# HELP " << name << ' ' << help << "\n# TYPE " << name << ' ' << type << '\n'
+      << name << ' ' << fmt_exact(value) << '\n';
+  };
+  auto count = [](const std::atomic<std::uint64_t>& c) { return static_cast<double>(c.load()); };
+  metric("droopline_steps_total", "counter", "Engine steps taken.", count(l.steps));
+  metric("droopline_step_overruns_total", "counter", "Loop wakes more than one step behind the deadline.",
+         count(l.overruns));
+  metric("droopline_step_slips_total", "counter", "Times the schedule was rebased after a bounded catch-up.",
+         count(l.slips));
+  metric("droopline_loop_lag_seconds", "gauge", "Lateness of the last step against its deadline.", l.lag_s.load());
+  metric("droopline_loop_lag_max_seconds", "gauge", "Worst lateness since start.", l.jitter_max_s.load());
+  o << "# HELP droopline_loop_lateness_seconds Lateness of each loop wake against its step deadline.\n"
+       "# TYPE droopline_loop_lateness_seconds histogram\n";
+  std::uint64_t cumulative = 0;
+  for (std::size_t b = 0; b < LiveCounters::kLagBuckets; ++b) {
+    cumulative += l.lag_counts[b].load();
+    o << "droopline_loop_lateness_seconds_bucket{le=\""
+      << (b < std::size(LiveCounters::kLagBounds) ? fmt_exact(LiveCounters::kLagBounds[b]) : std::string("+Inf"))
+      << "\"} " << cumulative << '\n';
+  }
+  o << "droopline_loop_lateness_seconds_sum " << fmt_exact(l.lag_sum_s.load()) << '\n'
+    << "droopline_loop_lateness_seconds_count " << cumulative << '\n';
+  metric("droopline_realtime_factor", "gauge", "Simulated seconds per wall second over the last second.",
+         l.realtime_factor.load());
+  metric("droopline_speed", "gauge", "Requested speed factor.", s.live->speed());
+  metric("droopline_paused", "gauge", "1 while paused.", s.live->paused() ? 1.0 : 0.0);
+  metric("droopline_clients", "gauge", "Open streaming clients.", count(n.clients));
+  metric("droopline_connections", "gauge", "Open TCP connections.", count(n.connections));
+  metric("droopline_connections_refused_total", "counter", "Connections refused at the limit.", count(n.refused));
+  metric("droopline_frames_encoded_total", "counter", "Telemetry frames encoded.", count(l.frames));
+  metric("droopline_frames_sent_total", "counter", "Telemetry frames delivered to clients.", count(n.frames_sent));
+  metric("droopline_frames_dropped_total", "counter", "Telemetry frames dropped for slow clients.",
+         count(n.frames_dropped));
+  metric("droopline_slow_clients_closed_total", "counter", "Clients closed for staying behind.", count(n.slow_closed));
+  metric("droopline_commands_total", "counter", "Commands applied.", count(l.commands));
+  metric("droopline_commands_refused_total", "counter", "Commands refused.", count(l.commands_refused));
+  metric("droopline_http_requests_total", "counter", "HTTP requests answered.", count(n.requests));
+  metric("droopline_replays_total", "counter", "Replays run.", count(n.replays));
+  metric("droopline_replays_refused_total", "counter", "Replays refused (busy or too large).",
+         count(n.replays_refused));
+  metric("droopline_replays_active", "gauge", "Replays running or queued.", count(n.replays_active));
+  return o.str();
+}
+
+void healthz(Services& s, Call& c) {
+  c.reply(200, json{{"status", "ok"}, {"paused", s.live->paused()}, {"clients", s.counters.clients.load()}}.dump());
+}
+
+void metrics(Services& s, Call& c) {
+  c.respond(text_reply("text/plain; version=0.0.4; charset=utf-8", metrics_text(s)));
+}
+
+void state(Services& s, Call& c) {
+  s.live->state([respond = c.respond](std::string text) {
+    respond(Reply{200, "application/json", std::move(text), {}, {}});
+  });
+}
+
+void role(Services&, Call& c) {
+  if (c.refused_status) return c.error(c.refused_status, c.refused);
+  c.reply(200, json{{"role", c.role == Role::instructor ? "instructor" : "viewer"}}.dump());
+}
+
+void get_scenario(Services& s, Call& c) {
+  s.live->scenario([respond = c.respond](std::string text) {
+    respond(Reply{200, "application/json", std::move(text), {}, {}});
+  });
+}
+
+void put_scenario(Services& s, Call& c) {
+  LoadResult r = parse_scenario(c.request.body);
+  if (!r.def) return c.error(400, "invalid scenario; nothing changed", issue_texts(r.issues));
+  s.live->load(std::move(*r.def), answer(c));
+}
+
+void commands(Services& s, Call& c) {
+  CommandParse cp = parse_commands(c.request.body);
+  if (!cp.issues.empty()) return c.error(400, "invalid command; nothing applied", issue_texts(cp.issues));
+  s.live->apply(std::move(cp.commands), answer(c));
+}
+
+void control(Services& s, Call& c) {
+  std::string bad;
+  const auto parsed = parse_untrusted_json(c.request.body, bad);
+  if (!parsed) return c.error(400, bad);
+  const json& j = *parsed;
+  if (!j.is_object())
+    return c.error(400, "body must be {\"action\": \"pause\" | \"resume\" | \"reset\" | \"speed\", \"speed\": x}");
+  const std::string action = j.contains("action") && j["action"].is_string() ? j["action"].get<std::string>() : "";
+  if (action == "pause") return s.live->pause(answer(c));
+  if (action == "resume") return s.live->resume(answer(c));
+  if (action == "reset") return s.live->reset(answer(c));
+  if (action != "speed")
+    return c.error(
+        400, "action: must be one of \"pause\", \"resume\", \"reset\", \"speed\", got " +
+                 (j.contains("action") ? clip_text(j["action"].dump(-1, ' ', false, json::error_handler_t::replace), 64)
+                                       : std::string("nothing")));
+  if (!j.contains("speed") || !j["speed"].is_number()) return c.error(400, "speed: required, a number from 0.1 to 100");
+  const double speed = j["speed"].get<double>();
+  if (!(speed >= 0.1 && speed <= 100.0))
+    return c.error(400, "speed: must lie within [0.1, 100], got " + fmt_num(speed));
+  s.live->set_speed(speed, answer(c));
+}
+
+void history(Services& s, Call& c) {
+  const Target& t = c.target;
+  double from = 0, to = 0, every = 0;
+  std::string err;
+  if (!query_number(t, "from_s", -1e300, from, err) || !query_number(t, "to_s", 1e300, to, err) ||
+      !query_number(t, "every_s", 0.0, every, err))
+    return c.error(400, err);
+  const std::string format = t.get("format", "json");
+  if (format != "json" && format != "csv")
+    return c.error(400, "query parameter format: must be json or csv, got " + quote_cut(format));
+  if (every < 0) return c.error(400, "query parameter every_s: must be >= 0");
+  if (from > to) return c.error(400, "query parameters: from_s must not lie after to_s");
+  const bool csv = format == "csv";
+  c.respond(text_reply(csv ? "text/csv; charset=utf-8" : "application/json", s.live->history(from, to, every, csv)));
+}
+
+void events(Services& s, Call& c) {
+  double since = 0;
+  std::string err;
+  if (!query_number(c.target, "since", 0, since, err)) return c.error(400, err);
+  if (!(since >= 0 && since <= 9007199254740992.0 && since == std::floor(since)))
+    return c.error(400, "query parameter since: must be a whole number from 0 to 2^53, got " + fmt_num(since));
+  c.reply(200, s.live->events(static_cast<std::uint64_t>(since)));
+}
+
+void record(Services& s, Call& c) {
+  double from = 0, to = 0;
+  std::string err;
+  if (!query_number(c.target, "from_s", 0.0, from, err) || !query_number(c.target, "to_s", 1e300, to, err))
+    return c.error(400, err);
+  const std::string part = c.target.get("part", "cfg");
+  if (part != "cfg" && part != "dat")
+    return c.error(400, "query parameter part: must be cfg or dat, got \"" + part + "\"");
+  if (!(from < to)) return c.error(400, "query parameters: from_s must lie before to_s");
+  study::ComtradeRecord rec = s.live->record(from, to);
+  if (!rec.error.empty())
+    return c.error(404, rec.error + " (the history holds the last " + fmt_num(s.options.history_s) + " s)");
+  Reply r = text_reply("text/plain; charset=us-ascii", part == "cfg" ? std::move(rec.cfg) : std::move(rec.dat));
+  r.headers.emplace_back("Content-Disposition", "attachment; filename=\"droopline-record." + part + "\"");
+  c.respond(std::move(r));
+}
+
+void stream(Services&, Call& c) { c.error(426, "/api/v1/stream is a WebSocket: send an upgrade request"); }
+
+void openapi(Services&, Call& c) {
+  Reply r;
+  r.file = "/openapi.json";
+  c.respond(std::move(r));
+}
+
+}  // namespace
+
+void add_live_routes(std::vector<Route>& routes) {
+  const Role viewer = Role::viewer, instructor = Role::instructor;
+  routes.insert(routes.end(), {
+                                  {Verb::get, "/healthz", viewer, "", healthz},
+                                  {Verb::get, "/metrics", viewer, "", metrics},
+                                  {Verb::get, "/api/v1/state", viewer, "", state},
+                                  {Verb::get, "/api/v1/role", viewer, "", role},
+                                  {Verb::get, "/api/v1/scenario", viewer, "", get_scenario},
+                                  {Verb::put, "/api/v1/scenario", instructor, kChanges, put_scenario},
+                                  {Verb::post, "/api/v1/commands", instructor, kChanges, commands},
+                                  {Verb::post, "/api/v1/control", instructor, kChanges, control},
+                                  {Verb::get, "/api/v1/history", viewer, "", history},
+                                  {Verb::get, "/api/v1/events", viewer, "", events},
+                                  {Verb::get, "/api/v1/record", viewer, "", record},
+                                  {Verb::get, "/api/v1/stream", viewer, "", stream},
+                                  {Verb::get, "/api/v1/openapi.json", viewer, "", openapi},
+                              });
+}
+
+}  // namespace droopline::server

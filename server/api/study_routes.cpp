@@ -1,0 +1,257 @@
+// The routes that run simulations on the server's worker pool or sweep threads: replays, sweeps,
+// small-signal modes and requirement checks. All of them are the instructor's: a stranger on the
+// LAN must not be able to occupy the cores the live session leaves spare.
+#include <algorithm>
+#include <cmath>
+#include <nlohmann/json.hpp>
+#include <thread>
+
+#include "api.hpp"
+#include "droopline/assess.hpp"
+#include "droopline/batch.hpp"
+#include "droopline/format.hpp"
+#include "droopline/json_input.hpp"
+#include "droopline/modes.hpp"
+#include "droopline/scenario_io.hpp"
+#include "droopline/sweep.hpp"
+
+namespace droopline::server {
+namespace {
+
+using json = nlohmann::ordered_json;
+
+constexpr double kMaxSweepMembers = 100000;  // runs in one sweep job
+// Why a route needs the instructor token, in words a trainee can act on.
+constexpr const char* kSweeps = "sweeps are for the instructor (a sweep job runs on the server's spare cores)";
+constexpr const char* kWorkers =
+    "replays, mode analyses and requirement checks are for the instructor (they run on the server's worker pool)";
+
+// A JSON answer handed from a worker.
+void answer(const Respond& respond, int status, std::string body) {
+  respond(Reply{status, "application/json", std::move(body), {}, {}});
+}
+
+void replays(Services& s, Call& c) {
+  LoadResult r = parse_scenario(c.request.body);
+  if (!r.def) return c.error(400, "invalid scenario", issue_texts(r.issues));
+  const double unit_steps =
+      r.def->duration_s / r.def->step_s * static_cast<double>(std::max<std::size_t>(1, r.def->units.size()));
+  if (unit_steps > s.options.max_replay_unit_steps) {
+    s.counters.replays_refused.fetch_add(1);
+    return c.error(413, "replay too large: " + fmt_num(unit_steps) +
+                            " unit-steps (duration_s / step_s * units), at most " +
+                            fmt_num(s.options.max_replay_unit_steps));
+  }
+  if (s.counters.replays_active.fetch_add(1) >= s.options.max_replays) {
+    s.counters.replays_active.fetch_sub(1);
+    s.counters.replays_refused.fetch_add(1);
+    Reply busy{
+        429,
+        "application/json",
+        error_json("too many replays at once (at most " + std::to_string(s.options.max_replays) + "); retry later"),
+        {{"Retry-After", "2"}},
+        {}};
+    return c.respond(std::move(busy));
+  }
+  std::vector<Issue> warnings;
+  for (const Issue& i : r.issues)
+    if (i.warning) warnings.push_back(i);
+  s.run_on_workers([&s, def = std::move(*r.def), warnings, respond = c.respond] {
+    study::RunOutcome out = study::run_to_strings(def, warnings);
+    s.counters.replays_active.fetch_sub(1);
+    s.counters.replays.fetch_add(1);
+    if (!out.ok) return answer(respond, 400, error_json("invalid scenario", issue_texts(out.issues)));
+    // The summary goes in as it is written to summary.json, the series as one CSV string.
+    answer(respond, 200, "{\"summary\":" + out.summary + ",\"series\":" + json(out.series).dump() + "}");
+  });
+}
+
+// The sweep asked for in `j`, or the problems with it.
+std::vector<std::string> read_sweep(const json& j, study::SweepSpec& spec, std::string& metric) {
+  std::vector<std::string> problems;
+  for (auto it = j.begin(); it != j.end(); ++it)
+    if (it.key() != "scenario" && it.key() != "vary" && it.key() != "sample" && it.key() != "seed" &&
+        it.key() != "metric")
+      problems.push_back(quote_cut(it.key()) + ": unknown field (expected scenario, vary, sample, seed, metric)");
+  if (!j.contains("vary") || !j["vary"].is_array() || j["vary"].empty())
+    problems.push_back("vary: required, a list of \"PATH=VALUES\"");
+  else
+    for (const auto& v : j["vary"]) {
+      std::string err;
+      auto parsed = v.is_string() ? study::parse_vary(v.get<std::string>(), err) : std::nullopt;
+      if (!parsed)
+        problems.push_back(v.is_string() ? err : "vary: each entry must be a string PATH=VALUES");
+      else
+        spec.vary.push_back(std::move(*parsed));
+    }
+  if (j.contains("sample")) {
+    if (!j["sample"].is_number_unsigned() || j["sample"].get<std::uint64_t>() == 0)
+      problems.push_back("sample: must be a whole number >= 1");
+    else
+      spec.sample = j["sample"].get<std::uint64_t>();
+  }
+  if (j.contains("seed")) {
+    if (!j["seed"].is_number_unsigned())
+      problems.push_back("seed: must be a whole number >= 0");
+    else
+      spec.seed = j["seed"].get<std::uint64_t>();
+  }
+  if (j.contains("metric")) {
+    const auto& names = study::metric_names();
+    if (!j["metric"].is_string())
+      problems.push_back("metric: must be a string, the name of a metric");
+    else if (metric = j["metric"].get<std::string>(); std::find(names.begin(), names.end(), metric) == names.end())
+      problems.push_back("metric: unknown metric " + quote_cut(metric));
+  }
+  if (j.contains("scenario") && !j["scenario"].is_object())
+    problems.push_back("scenario: must be an object (a scenario)");
+  if (problems.empty()) {  // members bounded: each one is a whole run
+    double members = 1;
+    for (const auto& v : spec.vary) members *= static_cast<double>(v.values.size());
+    if (spec.sample) members = std::min(members, static_cast<double>(*spec.sample));
+    if (members > kMaxSweepMembers)
+      problems.push_back("the sweep has " + fmt_num(members) + " members, at most " + fmt_num(kMaxSweepMembers) +
+                         " over HTTP: use sample, or `droopline sweep` on the command line");
+  }
+  return problems;
+}
+
+// {"scenario": {...} (default: the loaded one), "vary": ["PATH=VALUES", ...], "sample": N,
+//  "seed": S, "metric": "nadir_hz"}: a job; answers 202 with its id.
+void post_sweep(Services& s, Call& c) {
+  std::string bad;
+  const auto body_json = parse_untrusted_json(c.request.body, bad);
+  if (!body_json) return c.error(400, bad);
+  const json& j = *body_json;
+  if (!j.is_object()) return c.error(400, "body must be a JSON object with \"vary\": [\"PATH=VALUES\", ...]");
+  study::SweepSpec spec;
+  std::string metric = "nadir_hz";
+  const std::vector<std::string> problems = read_sweep(j, spec, metric);
+  if (!problems.empty()) return c.error(400, "sweep refused", problems);
+  spec.threads = std::max(1u, std::thread::hardware_concurrency() - 1);  // one core left to the loop
+  auto start = [&s, spec = std::move(spec), metric, respond = c.respond](std::string scenario_text) mutable {
+    LoadResult r = parse_scenario(scenario_text);
+    if (!r.def) return answer(respond, 400, error_json("invalid scenario", issue_texts(r.issues)));
+    spec.scenario = scenario_to_json(*r.def);
+    // Each axis at its smallest and largest value must give a valid scenario: an absurd value is
+    // refused now, not found in every row later.
+    for (const auto& v : spec.vary)
+      for (double x :
+           {*std::min_element(v.values.begin(), v.values.end()), *std::max_element(v.values.begin(), v.values.end())}) {
+        json probe = spec.scenario;
+        std::string err;
+        if (!study::set_path(probe, v.path, x, err)) return answer(respond, 400, error_json("vary " + err));
+        LoadResult pr = parse_scenario(probe.dump());
+        if (!pr.def)
+          return answer(
+              respond, 400,
+              error_json("vary " + v.path + "=" + fmt_num(x) + " gives an invalid scenario", issue_texts(pr.issues)));
+      }
+    std::string err;
+    auto job = s.sweeps.submit(std::move(spec), metric, err);
+    if (!job) return answer(respond, 429, error_json(err));
+    answer(respond, 202, SweepJobs::status_json(*job).dump());
+  };
+  if (j.contains("scenario")) return start(j["scenario"].dump());
+  s.live->scenario(std::move(start));
+}
+
+// The job named by the route's {id}, or a 404 answered.
+std::shared_ptr<SweepJobs::Job> find_job(Services& s, Call& c) {
+  auto job = s.sweeps.find(c.params.at(0));
+  if (!job) c.error(404, "no sweep job " + quote_cut(c.params.at(0)) + " (finished jobs are kept until 16 newer ones)");
+  return job;
+}
+
+void get_sweep(Services& s, Call& c) {
+  if (auto job = find_job(s, c)) c.reply(200, SweepJobs::status_json(*job).dump());
+}
+
+void delete_sweep(Services& s, Call& c) {
+  auto job = find_job(s, c);
+  if (!job) return;
+  job->cancel = true;
+  c.reply(200, SweepJobs::status_json(*job).dump());
+}
+
+void sweep_result(Services& s, Call& c) {
+  auto job = find_job(s, c);
+  if (!job) return;
+  const std::string& id = c.params.at(0);
+  if (!job->finished.load(std::memory_order_acquire)) return c.error(409, "sweep " + id + " is still running");
+  if (job->status == "failed") return c.error(409, "sweep " + id + " failed: " + job->error);
+  const std::string format = c.target.get("format", "json");
+  if (format != "json" && format != "csv" && format != "svg")
+    return c.error(400, "query parameter format: must be json, csv or svg, got \"" + format + "\"");
+  if (format == "svg" && job->svg.empty()) return c.error(404, "no plot: it needs one or two varied fields");
+  Reply r;
+  r.type = format == "json" ? "application/json" : format == "csv" ? "text/csv; charset=utf-8" : "image/svg+xml";
+  r.body = format == "json" ? job->result.dump() : format == "csv" ? job->csv : job->svg;
+  c.respond(std::move(r));
+}
+
+// A requirements file (the body) checked against a run of the loaded scenario, on the workers.
+void assess(Services& s, Call& c) {
+  std::vector<Issue> issues;
+  auto req_def = study::parse_requirements(c.request.body, issues);
+  if (!req_def) return c.error(400, "invalid requirements", issue_texts(issues));
+  if (s.counters.replays_active.fetch_add(1) >= s.options.max_replays) {
+    s.counters.replays_active.fetch_sub(1);
+    return c.error(429, "too many runs at once; retry later");
+  }
+  s.live->scenario([&s, respond = c.respond, requirements = std::move(*req_def)](std::string text) {
+    s.run_on_workers([&s, respond, requirements, text = std::move(text)] {
+      LoadResult r = parse_scenario(text);
+      std::string body;
+      if (r.def) body = study::assessment_to_json(study::assess(*r.def, requirements), requirements).dump();
+      s.counters.replays_active.fetch_sub(1);
+      if (!r.def) return answer(respond, 400, error_json("invalid scenario", issue_texts(r.issues)));
+      answer(respond, 200, std::move(body));
+    });
+  });
+}
+
+// The small-signal modes of the live scenario (GET) or of a posted one (POST), computed on the
+// workers so neither the loop nor the network thread waits for the solver.
+void modes(Services& s, Call& c) {
+  double threshold = 0.05;
+  const std::string given = c.target.get("damping_threshold", "0.05");
+  char* end = nullptr;
+  const bool decimal = !given.empty() && given.find_first_not_of("0123456789+-.eE") == std::string::npos;
+  threshold = decimal ? std::strtod(given.c_str(), &end) : 0.0;
+  if (!decimal || end != given.c_str() + given.size() || !std::isfinite(threshold))
+    return c.error(400, "query parameter damping_threshold: must be a decimal number, got " + quote_cut(given));
+  if (!(threshold >= 0.0 && threshold <= 1.0))
+    return c.error(400, "query parameter damping_threshold: must lie within [0, 1], got " + fmt_num(threshold));
+  auto analyse = [&s, threshold, respond = c.respond](std::string scenario_text) {
+    s.run_on_workers([threshold, respond, text = std::move(scenario_text)] {
+      LoadResult r = parse_scenario(text);
+      if (!r.def) return answer(respond, 400, error_json("invalid scenario", issue_texts(r.issues)));
+      study::ModesOptions opt;
+      opt.damping_threshold = threshold;
+      const study::ModesResult m = study::small_signal(*r.def, opt);
+      if (!m.error.empty()) return answer(respond, 422, error_json(m.error));
+      answer(respond, 200, study::modes_to_json(m, opt).dump());
+    });
+  };
+  if (c.request.verb == Verb::post) return analyse(c.request.body);
+  s.live->scenario(analyse);
+}
+
+}  // namespace
+
+void add_study_routes(std::vector<Route>& routes) {
+  const Role instructor = Role::instructor;
+  routes.insert(routes.end(), {
+                                  {Verb::post, "/api/v1/replays", instructor, kWorkers, replays},
+                                  {Verb::post, "/api/v1/sweeps", instructor, kSweeps, post_sweep},
+                                  {Verb::get, "/api/v1/sweeps/{id}", Role::viewer, "", get_sweep},
+                                  {Verb::delete_, "/api/v1/sweeps/{id}", instructor, kSweeps, delete_sweep},
+                                  {Verb::get, "/api/v1/sweeps/{id}/result", Role::viewer, "", sweep_result},
+                                  {Verb::get, "/api/v1/modes", instructor, kWorkers, modes},
+                                  {Verb::post, "/api/v1/modes", instructor, kWorkers, modes},
+                                  {Verb::post, "/api/v1/assess", instructor, kWorkers, assess},
+                              });
+}
+
+}  // namespace droopline::server

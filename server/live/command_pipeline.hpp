@@ -1,0 +1,78 @@
+#pragma once
+// The live session's command pipeline, journal before apply: a command is checked against the
+// state, scheduled for a step a little ahead, its record handed to the journal's writer thread,
+// and applied at that step only once the record is durable. One refused by the check or the
+// journal changes nothing. Used on the loop thread only (the journal writes on its own).
+#include <atomic>
+#include <cstdint>
+#include <deque>
+#include <functional>
+#include <memory>
+#include <nlohmann/json.hpp>
+#include <string>
+#include <vector>
+
+#include "droopline/engine.hpp"
+#include "journal.hpp"
+
+namespace droopline {
+
+/// What a change of the live session came to: `status` 200 with `data`, or a refusal (400, 409,
+/// 500, 507: the HTTP status the API answers with) with `error` and `issues`. Data, not a reply.
+struct LiveResult {
+  int status = 200;
+  nlohmann::ordered_json data;
+  std::string error;
+  std::vector<std::string> issues;
+};
+
+/// A 200 result carrying `data`.
+LiveResult accepted(nlohmann::ordered_json data);
+/// A refusal with its status, reason and the problems one by one.
+LiveResult refused(int status, std::string error, std::vector<std::string> issues = {});
+
+/// Commands between the API and the engine (loop thread only).
+class CommandPipeline {
+ public:
+  using Done = std::function<void(LiveResult)>;
+  /// Journals to `journal_path` (empty: no journal); `wake` is called when a record is written;
+  /// `applied` and `refused` count commands (for /metrics).
+  CommandPipeline(std::string journal_path, std::function<void()> wake, std::atomic<std::uint64_t>& applied,
+                  std::atomic<std::uint64_t>& refused);
+
+  /// The journal's writer, for the scenario and stop records written in line.
+  JournalWriter& journal() { return journal_; }
+  const JournalWriter& journal() const { return journal_; }
+
+  /// Checks `commands` against `engine`, schedules them for `earliest_step` or later (never before
+  /// one already waiting) and submits their record; false (nothing kept) with `done` answered
+  /// when the check refuses them.
+  bool submit(const Engine& engine, std::vector<Command> commands, std::int64_t earliest_step, Done done);
+  /// The next command is due at `step` but its record is not on disk yet (the loop waits).
+  bool due_unwritten(std::int64_t step) const;
+  /// apply_due() has something to do at `step`.
+  bool ready(std::int64_t step) const;
+  /// Answers the commands whose record failed; applies the durable ones whose step has come,
+  /// calling `applied` after each (for the notices), and answers them.
+  void apply_due(Engine& engine, const std::function<void()>& applied);
+  /// The step of the next waiting command, or -1.
+  std::int64_t next_step() const { return pending_.empty() ? -1 : pending_.front().step; }
+  /// Refuses every waiting command with `status` and `why`.
+  void refuse_all(int status, const std::string& why);
+  /// Refuses `commands` before they reach the pipeline (a halted session), counted like the rest.
+  void refuse(const std::vector<Command>& commands, const Done& done, int status, const std::string& why);
+
+ private:
+  struct Pending {
+    std::int64_t step;
+    std::vector<Command> commands;
+    Done done;
+    std::shared_ptr<const JournalWriter::Outcome> outcome;
+  };
+  JournalWriter journal_;
+  std::deque<Pending> pending_;
+  std::atomic<std::uint64_t>& applied_;
+  std::atomic<std::uint64_t>& refused_;
+};
+
+}  // namespace droopline

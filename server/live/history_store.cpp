@@ -1,0 +1,66 @@
+#include "history_store.hpp"
+
+#include <algorithm>
+
+#include "droopline/scenario_io.hpp"
+
+namespace droopline {
+
+void HistoryStore::start(const Engine& engine, const SystemDef& def, double history_s) {
+  auto scenario_text = std::make_shared<const std::string>(scenario_to_json(def).dump());
+  std::lock_guard lock(mutex_);
+  columns_ = engine.series_columns();
+  every_s_ = def.output_every_s;
+  scenario_json_ = std::move(scenario_text);
+  events_.clear();  // a new run: its log starts empty (the journal keeps the old one)
+  scenario_name_ = def.name;
+  nominal_hz_ = def.nominal_hz;
+  started_ = std::chrono::system_clock::now();
+  rows_.reset(columns_.size(), static_cast<std::size_t>(std::max(1.0, history_s / def.output_every_s)) + 1);
+}
+
+void HistoryStore::push(const std::vector<double>& row) {
+  std::lock_guard lock(mutex_);
+  rows_.push(row);
+}
+
+void HistoryStore::fill(HelloSnapshot& snap) const {
+  std::lock_guard lock(mutex_);
+  snap.scenario_json = scenario_json_;
+  snap.columns = columns_;
+  snap.every_s = every_s_;
+  snap.rows = rows_.flat();
+  snap.events = events_.all();
+}
+
+std::string HistoryStore::history(double from_s, double to_s, double every_s, bool csv) const {
+  std::vector<std::string> columns;
+  std::vector<double> rows;
+  double out_dt = 0.1;
+  {
+    std::lock_guard lock(mutex_);  // copy out; format without holding the loop up
+    columns = columns_;
+    rows = rows_.flat();
+    out_dt = every_s_;
+  }
+  return rows_text(columns, rows, out_dt, from_s, to_s, every_s, csv);
+}
+
+study::ComtradeRecord HistoryStore::record(double from_s, double to_s) const {
+  study::ComtradeInput in;
+  std::vector<double> rows;
+  {
+    std::lock_guard lock(mutex_);
+    in.columns = columns_;
+    in.sample_hz = 1.0 / every_s_;
+    in.station = scenario_name_;
+    in.nominal_hz = nominal_hz_;
+    in.start = started_;
+    rows = rows_.flat();
+  }
+  in.rows = rows_within(in.columns.size(), rows, from_s, to_s);
+  in.trigger_s = from_s;
+  return study::make_comtrade(in);
+}
+
+}  // namespace droopline

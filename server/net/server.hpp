@@ -1,0 +1,42 @@
+#pragma once
+// `droopline serve`: the HTTP/WebSocket service around one LiveSession.
+//   listener (accepts, enforces the connection limit)
+//   http_session (requests: limits, static files, upgrade; the API through api::Api)
+//   websocket_session (one client; its control messages through api::Api)
+//   hub (the set of clients; fans one encoded frame out to all)
+#include <atomic>
+#include <cstdint>
+#include <memory>
+#include <mutex>
+#include <string>
+#include <vector>
+
+#include <utility>  // before Boost 1.74's asio, whose awaitable.hpp uses std::exchange unincluded
+
+#include <boost/asio.hpp>
+#include <boost/beast.hpp>
+
+#include "api.hpp"
+#include "hub.hpp"
+#include "serve.hpp"
+#include "static_files.hpp"
+
+namespace droopline::server {
+
+namespace net = boost::asio;
+namespace beast = boost::beast;
+namespace http = beast::http;
+namespace websocket = beast::websocket;
+using tcp = net::ip::tcp;
+
+/// Shared by every session of one server: the API's services plus what only the network needs.
+struct Context : Services {
+  net::io_context* ioc = nullptr;
+  Hub hub;                                     ///< the streaming clients
+  std::unique_ptr<net::thread_pool> replay_pool;  ///< the worker pool behind `run_on_workers`
+  std::unique_ptr<StaticFiles> files;  ///< the page's files, under the canonical web root
+  std::unique_ptr<Api> api;            ///< the route table every request and control message goes through
+  std::atomic<bool> stopping{false};
+};
+
+}  // namespace droopline::server
