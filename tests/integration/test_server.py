@@ -401,7 +401,7 @@ BAD = [
 ]
 
 
-# The role policy (README "API"): every route that changes the live session or runs simulations
+# The role policy (README, Live service, "Roles"): every route that changes the live session or runs simulations
 # on the server's workers answers a viewer 401 and says why; reads stay open to viewers.
 PROTECTED = [
     # (method, path, body, fragment of the reason)
