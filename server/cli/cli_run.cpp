@@ -14,10 +14,10 @@
 
 #include "droopline/batch.hpp"
 #include "droopline/format.hpp"
+#include "droopline/journal_read.hpp"
 #include "droopline/scenario_io.hpp"
-#include "cli_files.hpp"
-#include "journal.hpp"
 #include "droopline/task_pool.hpp"
+#include "cli_files.hpp"
 
 namespace droopline::cli {
 namespace {

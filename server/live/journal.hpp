@@ -4,7 +4,7 @@
 // The file is opened for each record (commands are rare next to the cost of fdatasync), so the
 // journal survives log rotation and a disk that is remounted or freed while the service runs; a
 // record that cannot be written whole is cut off again, so the file never holds half a line
-// ahead of later records.
+// ahead of later records. The reader (`droopline replay`) is droopline/journal_read.hpp.
 //
 //   {"type":"scenario","step":0,"scenario":{...}}     a scenario was loaded (or the session reset)
 //   {"type":"commands","step":N,"commands":[...]}     commands applied before step N
@@ -19,9 +19,6 @@
 #include <thread>
 #include <string>
 #include <vector>
-
-#include "droopline/defs.hpp"
-#include "droopline/validate.hpp"
 
 namespace droopline {
 
@@ -92,19 +89,5 @@ class JournalWriter {
   bool stop_ = false;
   std::thread thread_;
 };
-
-/// One scenario-long stretch of a journal: the scenario and the commands applied to it.
-struct JournalRun {
-  SystemDef def;
-  std::vector<std::pair<std::int64_t, std::vector<Command>>> commands;  ///< (step, commands)
-  std::int64_t last_step = 0;  ///< the stop record's step, else the last command's step
-};
-
-/// Reads a journal back. Errors name the line: `journal line 7: ...`.
-struct JournalRead {
-  std::vector<JournalRun> runs;
-  std::vector<Issue> issues;
-};
-JournalRead read_journal(const std::string& path);
 
 }  // namespace droopline
