@@ -98,6 +98,7 @@ int run(const std::string& file, const std::string& out_dir, bool quiet, unsigne
       buf.clear();
     }
   };
+  obs.stop = [&] { return !series.stream(); };  // a failed write ends the run: the files are not kept
   obs.notice = [&](const Notice& n) { notices.push_back(n); };
   obs.after_step = [&](const Engine& e) {
     if ((e.step_index() & 1023) == 0) progress.update(e.time_s(), def.duration_s);

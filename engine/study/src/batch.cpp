@@ -1,7 +1,6 @@
 #include "droopline/batch.hpp"
 
 #include <algorithm>
-
 #include <nlohmann/json.hpp>
 
 #include "droopline/scenario_io.hpp"
@@ -25,6 +24,7 @@ void run_batch(Engine& engine, const BatchOptions& options, const BatchObservers
       engine.step();
       last_was_row = engine.step_index() % every == 0;
       if (last_was_row && observers.row) observers.row(engine);
+      if (last_was_row && observers.stop && observers.stop()) break;
       if (observers.notice)
         for (const Notice& n : engine.take_notices()) observers.notice(n);
       if (observers.after_step) observers.after_step(engine);

@@ -33,6 +33,7 @@ struct BatchObservers {
   std::function<void(const Notice&)> notice;            ///< each notice, after the step that raised it
   std::function<void(const Engine&)> after_step;        ///< after each step and its notices (progress)
   std::function<void(const Disturbance&)> disturbance;  ///< each disturbance, at the end
+  std::function<bool()> stop;  ///< asked after each row: true ends the run there (an output failed)
 };
 
 /// Runs `engine` as `options` says, calling `observers`.
