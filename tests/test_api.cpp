@@ -64,7 +64,8 @@ TEST_CASE("nothing is documented in openapi.json that is not routed") {
   std::set<std::pair<std::string, std::string>> routed;
   for (const Route& r : route_table()) routed.emplace(lower(verb_name(r.verb)), r.pattern);
   CHECK(routed.size() == route_table().size());  // no route twice
-  for (const auto& [path, ops] : openapi()["paths"].items())
+  const json doc = openapi();  // held: a range over a temporary's member would outlive it
+  for (const auto& [path, ops] : doc["paths"].items())
     for (const auto& [verb, op] : ops.items()) {
       INFO(verb << " " << path);
       CHECK(routed.count({verb, path}) == 1);

@@ -25,9 +25,9 @@ const char* verb_name(Verb verb);
 
 /// One request to the API, whichever transport carried it.
 struct Request {
-  Verb verb = Verb::get;
-  std::string target;  ///< path and query, as sent
-  std::string body;
+  Verb verb = Verb::get;     ///< the method
+  std::string target;        ///< path and query, as sent
+  std::string body;          ///< the request body (JSON for every route that reads one)
   Role role = Role::viewer;  ///< the role already proven (a WebSocket that sent its token)
   /// The HTTP Authorization header, if any: checked in the dispatch (a refused one answers 401/403).
   std::optional<std::string> authorization;
@@ -37,9 +37,9 @@ struct Request {
 
 /// The answer: an HTTP status, a content type and the body, or a page file to serve.
 struct Reply {
-  int status = 200;
-  std::string type = "application/json";
-  std::string body;
+  int status = 200;                                          ///< the HTTP status
+  std::string type = "application/json";                     ///< the content type
+  std::string body;                                          ///< the body (JSON unless `type` says otherwise)
   std::vector<std::pair<std::string, std::string>> headers;  ///< extra headers (Retry-After, ...)
   std::string file;  ///< non-empty: serve this page file instead (the network layer's StaticFiles decides)
 };
@@ -64,11 +64,11 @@ struct Call {
 
 /// One entry of the route table.
 struct Route {
-  Verb verb;
-  std::string pattern;  ///< the path; `{name}` matches one segment
-  Role role;            ///< the least role allowed
-  const char* why;      ///< for instructor routes: why, in words a trainee can act on
-  std::function<void(Services&, Call&)> handler;
+  Verb verb;                                      ///< the method it answers
+  std::string pattern;                            ///< the path; `{name}` matches one segment
+  Role role;                                      ///< the least role allowed
+  const char* why;                                ///< for instructor routes: why, in words a trainee can act on
+  std::function<void(Services&, Call&)> handler;  ///< answers through `Call::respond`, now or later
 };
 
 /// The whole route table, in order (handlers take the services they work on).

@@ -20,10 +20,10 @@ namespace droopline {
 /// What a change of the live session came to: `status` 200 with `data`, or a refusal (400, 409,
 /// 500, 507: the HTTP status the API answers with) with `error` and `issues`. Data, not a reply.
 struct LiveResult {
-  int status = 200;
-  nlohmann::ordered_json data;
-  std::string error;
-  std::vector<std::string> issues;
+  int status = 200;                 ///< 200, or the refusal's status
+  nlohmann::ordered_json data;      ///< what a 200 carries
+  std::string error;                ///< why it was refused
+  std::vector<std::string> issues;  ///< the problems one by one (`path: message`)
 };
 
 /// A 200 result carrying `data`.
@@ -34,6 +34,7 @@ LiveResult refused(int status, std::string error, std::vector<std::string> issue
 /// Commands between the API and the engine (loop thread only).
 class CommandPipeline {
  public:
+  /// Receives the result (on the loop thread).
   using Done = std::function<void(LiveResult)>;
   /// Journals to `journal_path` (empty: no journal); `wake` is called when a record is written;
   /// `applied` and `refused` count commands (for /metrics).
@@ -42,6 +43,7 @@ class CommandPipeline {
 
   /// The journal's writer, for the scenario and stop records written in line.
   JournalWriter& journal() { return journal_; }
+  /// The journal's writer, to ask whether it is open and why not.
   const JournalWriter& journal() const { return journal_; }
 
   /// Checks `commands` against `engine`, schedules them for `earliest_step` or later (never before
