@@ -26,6 +26,6 @@ struct RunOutcome {
   std::string summary;  ///< summary.json content
 };
 /// Runs a validated definition to its end and returns both outputs as text.
-RunOutcome run_to_strings(const SystemDef& def, const std::vector<Issue>& warnings);
+RunOutcome run_to_strings(const CheckedSystem& system, const std::vector<Issue>& warnings);
 
 }  // namespace droopline::cli

@@ -339,9 +339,9 @@ void HttpSession::handle(Request&& req) {
       if (method != http::verb::put) return method_not_allowed("GET, PUT");
       if (!authorized()) return;
       LoadResult r = parse_scenario(req.body());
-      if (!r.def) return reply(400, error_json("invalid scenario; nothing changed", issue_texts(r.issues)));
+      if (!r.system) return reply(400, error_json("invalid scenario; nothing changed", issue_texts(r.issues)));
       auto done = later(req);
-      ctx_.live->load(std::move(*r.def), [done](LiveSession::Reply rep) { done(rep.status, std::move(rep.body)); });
+      ctx_.live->load(std::move(*r.system), [done](LiveSession::Reply rep) { done(rep.status, std::move(rep.body)); });
       return;
     }
     if (path == "/api/v1/commands") {
@@ -411,8 +411,9 @@ void HttpSession::handle(Request&& req) {
     if (path == "/api/v1/replays") {
       if (method != http::verb::post) return method_not_allowed("POST");
       LoadResult r = parse_scenario(req.body());
-      if (!r.def) return reply(400, error_json("invalid scenario", issue_texts(r.issues)));
-      const double unit_steps = r.def->duration_s / r.def->step_s * static_cast<double>(std::max<std::size_t>(1, r.def->units.size()));
+      if (!r.system) return reply(400, error_json("invalid scenario", issue_texts(r.issues)));
+      const SystemDef& sd = r.system->def();
+      const double unit_steps = sd.duration_s / sd.step_s * static_cast<double>(std::max<std::size_t>(1, sd.units.size()));
       if (unit_steps > ctx_.options.max_replay_unit_steps) {
         ctx_.counters.replays_refused.fetch_add(1);
         return reply(413, error_json("replay too large: " + fmt_num(unit_steps) + " unit-steps (duration_s / step_s * units), at most " +
@@ -430,8 +431,8 @@ void HttpSession::handle(Request&& req) {
       for (const Issue& i : r.issues)
         if (i.warning) warnings.push_back(i);
       auto done = later(req);
-      net::post(*ctx_.replay_pool, [this, def = std::move(*r.def), warnings, done, self = shared_from_this()] {
-        cli::RunOutcome out = cli::run_to_strings(def, warnings);
+      net::post(*ctx_.replay_pool, [this, system = std::move(*r.system), warnings, done, self = shared_from_this()] {
+        cli::RunOutcome out = cli::run_to_strings(system, warnings);
         ctx_.counters.replays_active.fetch_sub(1);
         ctx_.counters.replays.fetch_add(1);
         if (!out.ok) return done(400, error_json("invalid scenario", issue_texts(out.issues)));
@@ -493,8 +494,8 @@ void HttpSession::handle(Request&& req) {
       auto done = later(req);
       auto start = [this, spec = std::move(spec), metric, done, self = shared_from_this()](std::string scenario_text) mutable {
         LoadResult r = parse_scenario(scenario_text);
-        if (!r.def) return done(400, error_json("invalid scenario", issue_texts(r.issues)));
-        spec.scenario = scenario_to_json(*r.def);
+        if (!r.system) return done(400, error_json("invalid scenario", issue_texts(r.issues)));
+        spec.scenario = scenario_to_json(r.system->def());
         // Each axis at its smallest and largest value must give a valid scenario: an absurd
         // value is refused now, not found in every row later.
         for (const auto& v : spec.vary)
@@ -503,7 +504,7 @@ void HttpSession::handle(Request&& req) {
             std::string err;
             if (!study::set_path(probe, v.path, x, err)) return done(400, error_json("vary " + err));
             LoadResult pr = parse_scenario(probe.dump());
-            if (!pr.def) return done(400, error_json("vary " + v.path + "=" + fmt_num(x) + " gives an invalid scenario", issue_texts(pr.issues)));
+            if (!pr.system) return done(400, error_json("vary " + v.path + "=" + fmt_num(x) + " gives an invalid scenario", issue_texts(pr.issues)));
           }
         std::string err;
         auto job = ctx_.sweeps.submit(std::move(spec), metric, err);
@@ -574,9 +575,9 @@ void HttpSession::handle(Request&& req) {
         net::post(*ctx_.replay_pool, [this, done, requirements, text = std::move(text), self] {
           LoadResult r = parse_scenario(text);
           std::string body;
-          if (r.def) body = study::assessment_to_json(study::assess(*r.def, requirements), requirements).dump();
+          if (r.system) body = study::assessment_to_json(study::assess(r.system->def(), requirements), requirements).dump();
           ctx_.counters.replays_active.fetch_sub(1);
-          if (!r.def) return done(400, error_json("invalid scenario", issue_texts(r.issues)));
+          if (!r.system) return done(400, error_json("invalid scenario", issue_texts(r.issues)));
           done(200, std::move(body));
         });
       });
@@ -595,10 +596,10 @@ void HttpSession::handle(Request&& req) {
       auto analyse = [this, threshold, done, self = shared_from_this()](std::string scenario_text) {
         net::post(*ctx_.replay_pool, [threshold, done, text = std::move(scenario_text)] {
           LoadResult r = parse_scenario(text);
-          if (!r.def) return done(400, error_json("invalid scenario", issue_texts(r.issues)));
+          if (!r.system) return done(400, error_json("invalid scenario", issue_texts(r.issues)));
           study::ModesOptions opt;
           opt.damping_threshold = threshold;
-          const study::ModesResult m = study::small_signal(*r.def, opt);
+          const study::ModesResult m = study::small_signal(r.system->def(), opt);
           if (!m.error.empty()) return done(422, error_json(m.error));
           done(200, study::modes_to_json(m, opt).dump());
         });

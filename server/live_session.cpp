@@ -36,7 +36,7 @@ std::vector<std::string> split_errors(const std::string& joined) {
 
 }  // namespace
 
-LiveSession::LiveSession(const SystemDef& def, LiveConfig config, Sink sink)
+LiveSession::LiveSession(const CheckedSystem& system, LiveConfig config, Sink sink)
     : config_(std::move(config)),
       sink_(std::move(sink)),
       journal_(config_.journal_path, [this] {
@@ -44,8 +44,8 @@ LiveSession::LiveSession(const SystemDef& def, LiveConfig config, Sink sink)
         tasks_cv_.notify_all();
       }) {
   speed_ = std::clamp(config_.speed, 0.1, 100.0);
-  if (journal_.ok() && !journal_scenario(def)) journal_failed_ = true;
-  start_engine(def);
+  if (journal_.ok() && !journal_scenario(system.def())) journal_failed_ = true;
+  start_engine(system);
   thread_ = std::thread([this] { run(); });
 }
 
@@ -77,10 +77,10 @@ bool LiveSession::journal_scenario(const SystemDef& def) {
   return false;
 }
 
-void LiveSession::start_engine(const SystemDef& def) {
-  def_ = def;
-  auto created = Engine::create(def_);
-  engine_ = std::move(created.engine);  // def was validated by the caller
+void LiveSession::start_engine(const CheckedSystem& system) {
+  system_ = system;
+  def_ = system.def();
+  engine_ = Engine::create(system);
   output_every_ = std::max<std::int64_t>(1, std::llround(def_.output_every_s / def_.step_s));
   reported_ = 0;
   announced_ = 0;
@@ -373,14 +373,15 @@ void LiveSession::settle_pending() {
   }
 }
 
-void LiveSession::load(SystemDef def, Done done) {
-  post([this, def = std::move(def), done = std::move(done)](Engine&) {
+void LiveSession::load(CheckedSystem system, Done done) {
+  post([this, system = std::move(system), done = std::move(done)](Engine&) {
     settle_pending();
+    const SystemDef& def = system.def();
     if (!journal_scenario(def)) {
       done({journal_.http_status(), error_json("scenario refused, the session goes on unchanged: " + journal_.error())});
       return;
     }
-    start_engine(def);
+    start_engine(system);
     push_event(json{{"type", "event"}, {"t_s", 0.0}, {"kind", "scenario"}, {"text", "scenario \"" + def.name + "\" loaded"}});
     done({200, json{{"ok", true}, {"scenario", def.name}}.dump()});
   });
@@ -389,12 +390,12 @@ void LiveSession::load(SystemDef def, Done done) {
 void LiveSession::reset(Done done) {
   post([this, done = std::move(done)](Engine&) {
     settle_pending();
-    const SystemDef def = def_;
-    if (!journal_scenario(def)) {
+    const CheckedSystem system = *system_;
+    if (!journal_scenario(system.def())) {
       done({journal_.http_status(), error_json("reset refused, the session goes on unchanged: " + journal_.error())});
       return;
     }
-    start_engine(def);
+    start_engine(system);
     push_event(json{{"type", "event"}, {"t_s", 0.0}, {"kind", "reset"}, {"text", "session reset to t = 0"}});
     done({200, json{{"ok", true}, {"t_s", 0.0}}.dump()});
   });

@@ -144,7 +144,7 @@ std::vector<std::string> error_texts(const LoadResult& r) {
 TEST_CASE("the base scenario of the bad-input table is valid") {
   LoadResult r = parse_scenario(kBase);
   INFO(Catch::Detail::stringify(error_texts(r)));
-  CHECK(r.def.has_value());
+  CHECK(r.system.has_value());
 }
 
 TEST_CASE("bad inputs give their exact message and no output") {
@@ -157,7 +157,7 @@ TEST_CASE("bad inputs give their exact message and no output") {
     LoadResult r = parse_scenario(text);
     const auto errors = error_texts(r);
     INFO("case " << index << " (" << c.pointer << "): got " << Catch::Detail::stringify(errors));
-    CHECK_FALSE(r.def.has_value());
+    CHECK_FALSE(r.system.has_value());
     CHECK(std::find(errors.begin(), errors.end(), std::string(c.expected)) != errors.end());
     // The CLI refuses it with exit 2 and writes nothing.
     const fs::path file = dir / ("case" + std::to_string(index) + ".json");
@@ -221,7 +221,7 @@ TEST_CASE("a folder or a missing file given as the scenario is one clear error")
     LoadResult r = load_scenario_file(path);
     REQUIRE(r.issues.size() == 1);
     CHECK(r.issues[0].text() == "file: \"" + path + "\" is not a readable file");
-    CHECK_FALSE(r.def);
+    CHECK_FALSE(r.system);
   }
 }
 
@@ -239,7 +239,7 @@ TEST_CASE("typical-range findings are warnings, not errors") {
   j["units"][0]["governor"]["droop"] = 0.2;
   j["ties"][0]["damping_mw_per_hz"] = 0;
   LoadResult r = parse_scenario(j.dump());
-  REQUIRE(r.def.has_value());
+  REQUIRE(r.system.has_value());
   std::vector<std::string> warnings;
   for (const Issue& i : r.issues)
     if (i.warning) warnings.push_back(i.text());
@@ -270,11 +270,11 @@ TEST_CASE("commands: one object or an array, at_s refused, types checked") {
 
 TEST_CASE("the scenario round-trips through its JSON form") {
   LoadResult r = parse_scenario(kBase);
-  REQUIRE(r.def);
-  const std::string once = scenario_to_json(*r.def).dump();
+  REQUIRE(r.system);
+  const std::string once = scenario_to_json(r.system->def()).dump();
   LoadResult again = parse_scenario(once);
-  REQUIRE(again.def);
-  CHECK(scenario_to_json(*again.def).dump() == once);
+  REQUIRE(again.system);
+  CHECK(scenario_to_json(again.system->def()).dump() == once);
 }
 
 TEST_CASE("determinism: two runs give byte-identical files") {
@@ -287,8 +287,9 @@ TEST_CASE("determinism: two runs give byte-identical files") {
   CHECK(sa == sb);
   CHECK(slurp(a / "summary.json") == slurp(b / "summary.json"));
   // In memory (the HTTP replay path) gives the same text as the files.
-  auto def = test::load("scenarios/demo_island.json");
-  auto mem = cli::run_to_strings(def, {});
+  auto loaded = load_scenario_file(test::source_path("scenarios/demo_island.json"));
+  REQUIRE(loaded.system);
+  auto mem = cli::run_to_strings(*loaded.system, {});
   CHECK(mem.series == sa);
   fs::remove_all(a);
   fs::remove_all(b);

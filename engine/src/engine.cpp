@@ -26,18 +26,8 @@ const char* to_string(UnitStatus s) {
 Engine::Engine(std::unique_ptr<Impl> impl) : impl_(std::move(impl)) {}
 Engine::~Engine() = default;
 
-CreateResult Engine::create(const SystemDef& def) {
-  CreateResult out;
-  out.issues = validate(def);
-  if (has_errors(out.issues)) return out;
-  std::vector<Issue> flow_issues;
-  auto flows = solve_initial_flows(def, flow_issues);
-  if (!flows) {
-    out.issues.insert(out.issues.begin(), flow_issues.begin(), flow_issues.end());
-    return out;
-  }
-  out.engine = std::unique_ptr<Engine>(new Engine(std::make_unique<Impl>(def, *flows)));
-  return out;
+std::unique_ptr<Engine> Engine::create(const CheckedSystem& system) {
+  return std::unique_ptr<Engine>(new Engine(std::make_unique<Impl>(system.def(), system.flows())));
 }
 
 std::unique_ptr<Engine> Engine::clone() const {
