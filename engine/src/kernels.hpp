@@ -1,12 +1,13 @@
 #pragma once
-// Hot per-type kernels of the RK4 step, one instance per model description (models/*.hpp). Each works on one contiguous segment of units of one
-// turbine type in one area, so the area's speed error is a scalar and the loop body has no branch
-// on type: the compiler vectorizes it. One call does a whole RK4 stage for the segment: it forms
-// the stage state from the step's start state and the previous stage's slope, evaluates the
-// model, and does the stage's bookkeeping (stage 4 writes the new state, valve limits applied),
-// so the unit data is read once per stage. Built in several instruction-set variants
-// (target_clones) picked at load time; every variant gives bit-identical results because
-// floating-point contraction is off and only element-wise IEEE operations are used.
+// Hot kernels of the RK4 step, one instance per turbine model description (models/*.hpp). Each
+// works on one contiguous segment of units of one turbine type in one area, so the area's speed
+// error is a scalar and the loop body has no branch on type: the compiler vectorizes it. One call
+// does a whole RK4 stage for the segment: it forms the stage state from the step's start state
+// and the previous stage's slope, evaluates the model, and does the stage's bookkeeping (stage 4
+// writes the new state, limits applied), so the unit data is read once per stage. Built in
+// several instruction-set variants picked at load time; every variant gives bit-identical
+// results because floating-point contraction is off and only element-wise IEEE operations are
+// used.
 #include <cstddef>
 
 #include "models/model_base.hpp"
