@@ -21,19 +21,19 @@ inline droopline::SystemDef load(const std::string& rel) {
   for (auto& i : r.issues)
     if (!i.warning) msgs += i.text() + "\n";
   INFO(msgs);
-  REQUIRE(r.def.has_value());
-  return *r.def;
+  REQUIRE(r.system.has_value());
+  return r.system->def();
 }
 
-/// Creates an engine; fails the test with the messages when the definition has errors.
+/// Checks a definition and creates an engine; fails the test with the messages when it has errors.
 inline std::unique_ptr<droopline::Engine> make(const droopline::SystemDef& def) {
-  auto c = droopline::Engine::create(def);
+  auto c = droopline::check(def);
   std::string msgs;
   for (auto& i : c.issues)
     if (!i.warning) msgs += i.text() + "\n";
   INFO(msgs);
-  REQUIRE(c.engine);
-  return std::move(c.engine);
+  REQUIRE(c.system);
+  return droopline::Engine::create(*c.system);
 }
 
 /// Steps until simulation time t (s).

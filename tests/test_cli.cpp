@@ -63,8 +63,9 @@ TEST_CASE("determinism: two runs give byte-identical files") {
   CHECK(sa == sb);
   CHECK(slurp(a / "summary.json") == slurp(b / "summary.json"));
   // In memory (the HTTP replay path) gives the same text as the files.
-  auto def = test::load("scenarios/demo_island.json");
-  auto mem = study::run_to_strings(def, {});
+  auto loaded = load_scenario_file(test::source_path("scenarios/demo_island.json"));
+  REQUIRE(loaded.system);
+  auto mem = study::run_to_strings(*loaded.system, {});
   CHECK(mem.series == sa);
   fs::remove_all(a);
   fs::remove_all(b);

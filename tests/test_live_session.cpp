@@ -48,10 +48,10 @@ struct Inbox {
   }
 };
 
-SystemDef demo() {
+CheckedSystem demo() {
   LoadResult r = load_scenario_file(std::string(DROOPLINE_SOURCE_DIR) + "/scenarios/demo_three_areas.json");
-  REQUIRE(r.def);
-  return *r.def;
+  REQUIRE(r.system);
+  return *r.system;
 }
 
 template <class T>

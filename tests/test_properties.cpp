@@ -155,8 +155,8 @@ TEST_CASE("extreme but valid inputs finish, or are refused with a clear message"
   SECTION("tiny inertia is refused, naming the time constant") {
     SystemDef d = test::one_area(50.0, 500.0, 300.0);
     d.units[0].inertia_s = 0.001;
-    auto c = Engine::create(d);
-    REQUIRE_FALSE(c.engine);
+    auto c = check(d);
+    REQUIRE_FALSE(c.system);
     bool named = false;
     for (const Issue& i : c.issues) named = named || i.text().find("M/beta") != std::string::npos;
     CHECK(named);

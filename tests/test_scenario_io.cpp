@@ -29,7 +29,7 @@ std::vector<std::string> error_texts(const LoadResult& r) {
 TEST_CASE("the base scenario of the bad-input table is valid") {
   LoadResult r = parse_scenario(kBase);
   INFO(Catch::Detail::stringify(error_texts(r)));
-  CHECK(r.def.has_value());
+  CHECK(r.system.has_value());
 }
 
 TEST_CASE("bad inputs give their exact message") {
@@ -40,7 +40,7 @@ TEST_CASE("bad inputs give their exact message") {
     LoadResult r = parse_scenario(text);
     const auto errors = error_texts(r);
     INFO("case " << index << " (" << c.pointer << "): got " << Catch::Detail::stringify(errors));
-    CHECK_FALSE(r.def.has_value());
+    CHECK_FALSE(r.system.has_value());
     CHECK(std::find(errors.begin(), errors.end(), std::string(c.expected)) != errors.end());
     ++index;
   }
@@ -97,7 +97,7 @@ TEST_CASE("a folder or a missing file given as the scenario is one clear error")
     LoadResult r = load_scenario_file(path);
     REQUIRE(r.issues.size() == 1);
     CHECK(r.issues[0].text() == "file: \"" + path + "\" is not a readable file");
-    CHECK_FALSE(r.def);
+    CHECK_FALSE(r.system);
   }
 }
 
@@ -115,7 +115,7 @@ TEST_CASE("typical-range findings are warnings, not errors") {
   j["units"][0]["governor"]["droop"] = 0.2;
   j["ties"][0]["damping_mw_per_hz"] = 0;
   LoadResult r = parse_scenario(j.dump());
-  REQUIRE(r.def.has_value());
+  REQUIRE(r.system.has_value());
   std::vector<std::string> warnings;
   for (const Issue& i : r.issues)
     if (i.warning) warnings.push_back(i.text());
@@ -146,11 +146,11 @@ TEST_CASE("commands: one object or an array, at_s refused, types checked") {
 
 TEST_CASE("the scenario round-trips through its JSON form") {
   LoadResult r = parse_scenario(kBase);
-  REQUIRE(r.def);
-  const std::string once = scenario_to_json(*r.def).dump();
+  REQUIRE(r.system);
+  const std::string once = scenario_to_json(r.system->def()).dump();
   LoadResult again = parse_scenario(once);
-  REQUIRE(again.def);
-  CHECK(scenario_to_json(*again.def).dump() == once);
+  REQUIRE(again.system);
+  CHECK(scenario_to_json(again.system->def()).dump() == once);
 }
 
 TEST_CASE("the series has the documented columns") {

@@ -3,10 +3,12 @@
 #include <algorithm>
 #include <cmath>
 
+#include <array>
 #include <atomic>
 #include <string>
 
 #include "droopline/kernel_choice.hpp"
+#include "models/models.hpp"
 
 // GCC on x86-64 builds three variants of the entry points and picks one at run time; other
 // compilers (the sanitizer builds use clang) build the portable one only.
@@ -26,18 +28,6 @@ inline double deadband(double e, double ae, double dbs) {
   return dbs < 0.0 ? stp : off;
 }
 
-// Valve/power rate: first-order toward the reference, rate-limited, and stopped at a limit in the
-// outward direction so the state never winds up beyond it.
-inline double limited_rate(double ref, double v, double inv_lag, double ramp, double lo,
-                           double hi) {
-  double r = (ref - v) * inv_lag;
-  r = std::min(r, ramp);
-  r = std::max(r, -ramp);
-  r = v >= hi ? std::min(r, 0.0) : r;
-  r = v <= lo ? std::max(r, 0.0) : r;
-  return r;
-}
-
 // The isochronous integrator stops while the valve sits at the limit it is pushing against.
 inline double iso_rate(double kiso, double ed, double v, double lo, double hi) {
   double r = kiso * ed;
@@ -45,8 +35,6 @@ inline double iso_rate(double kiso, double ed, double v, double lo, double hi) {
   r = (v <= lo && r < 0.0) ? 0.0 : r;
   return r;
 }
-
-inline double clamp(double v, double lo, double hi) { return std::min(std::max(v, lo), hi); }
 
 }  // namespace
 
@@ -56,7 +44,8 @@ inline double clamp(double v, double lo, double hi) { return std::min(std::max(v
 #define DL_ARRAYS(i)                                \
   double* __restrict y##i = a.y[i];                 \
   double* __restrict k##i = a.k[i];                 \
-  double* __restrict ac##i = a.acc[i]
+  double* __restrict ac##i = a.acc[i];              \
+  (void)y##i, (void)k##i, (void)ac##i
 #define DL_X(i) (S == 1 ? y##i[j] : y##i[j] + c * k##i[j])
 #define DL_PUT(i, d)                                 \
   do {                                               \
@@ -68,15 +57,6 @@ inline double clamp(double v, double lo, double hi) { return std::min(std::max(v
       ac##i[j] = ac##i[j] + 2.0 * (d);               \
     } else {                                         \
       y##i[j] = y##i[j] + h6 * (ac##i[j] + (d));     \
-    }                                                \
-  } while (0)
-// The isochronous integrator: read and advanced only in isochronous segments.
-#define DL_ISO_X(i) (ISO ? DL_X(i) : 0.0)
-#define DL_ISO_PUT(i, v, lo, hi)                     \
-  do {                                               \
-    if constexpr (ISO) {                             \
-      const double diso = iso_rate(kiso[j], ed, v, lo, hi); \
-      DL_PUT(i, diso);                               \
     }                                                \
   } while (0)
 #define DL_GOVERNOR                                  \
@@ -102,164 +82,86 @@ inline double clamp(double v, double lo, double hi) { return std::min(std::max(v
 
 namespace {
 
-template <int S, bool ISO>
-inline void steam_loop(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,
+// One RK4 stage of a segment of model M: the loop body reads the stage state, lets the model
+// work out its rates and output, advances the isochronous integrator against the limits the
+// model names, and in stage 4 keeps the model's clamped state in its range.
+#define DL_READ(i)                                        \
+  if constexpr (i < kIso) {                               \
+    x[i] = DL_X(i);                                       \
+  } else if constexpr (i == kIso) {                       \
+    x[i] = ISO ? DL_X(i) : 0.0;                           \
+  }
+#define DL_PARAM(i) \
+  if constexpr (i < M::kParams) p[i] = p##i[j]
+#define DL_WRITE(i)                                       \
+  if constexpr (i < kIso || (ISO && i == kIso)) DL_PUT(i, d[i])
+#define DL_CLAMP(i)                                                         \
+  if constexpr (S == 4 && M::kClamped == i) {                               \
+    const Range range = M::clamp_range(p, drive);                           \
+    y##i[j] = clamp(y##i[j], range.lo, range.hi);                           \
+  }
+
+// Always inlined into each instruction-set variant's entry point, so the loop is compiled for
+// that variant's instructions (an out-of-line copy would run the baseline code).
+template <class M, int S, bool ISO>
+[[gnu::always_inline]] inline void model_loop(std::size_t n, double df_hz, const GovernorParams& g, const ModelParams& t,
                        const SegmentArrays& a, double c, double h6, double* __restrict out) {
-  DL_GOVERNOR;
-  DL_ARRAYS(0);
-  DL_ARRAYS(1);
-  DL_ARRAYS(2);
-  const double* __restrict inv_tch = t.p1;
-  DL_IVDEP
-  for (std::size_t j = 0; j < n; ++j) {
-    const double pv = DL_X(0), pm = DL_X(1), iso = DL_ISO_X(2);
-    const double ed = deadband(e, ae, dbs[j]);
-    const double ref = pref0[j] + kd[j] * ed + iso;
-    const double dpv = limited_rate(ref, pv, inv_lag[j], ramp[j], pmin[j], pmax[j]);
-    const double dpm = (pv - pm) * inv_tch[j];
-    out[j] = pm;
-    DL_PUT(0, dpv);
-    DL_PUT(1, dpm);
-    DL_ISO_PUT(2, pv, pmin[j], pmax[j]);
-    if constexpr (S == 4) y0[j] = clamp(y0[j], pmin[j], pmax[j]);
-  }
-}
-
-template <int S, bool ISO>
-inline void reheat_loop(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,
-                        const SegmentArrays& a, double c, double h6, double* __restrict out) {
+  static_assert(M::kStates <= kMaxStates && M::kParams <= kMaxParams);
+  constexpr std::size_t kIso = M::kStates - 1;
   DL_GOVERNOR;
   DL_ARRAYS(0);
   DL_ARRAYS(1);
   DL_ARRAYS(2);
   DL_ARRAYS(3);
-  const double* __restrict inv_tch = t.p1;
-  const double* __restrict inv_trh = t.p2;
-  const double* __restrict fhp = t.p3;
+  const double* __restrict p0 = t.p[0];
+  const double* __restrict p1 = t.p[1];
+  const double* __restrict p2 = t.p[2];
+  const double* __restrict p3 = t.p[3];
+  (void)p1, (void)p2, (void)p3;
   DL_IVDEP
   for (std::size_t j = 0; j < n; ++j) {
-    const double pv = DL_X(0), hp = DL_X(1), rh = DL_X(2), iso = DL_ISO_X(3);
+    double x[M::kStates], d[M::kStates], p[M::kParams];
+    DL_READ(0);
+    DL_READ(1);
+    DL_READ(2);
+    DL_READ(3);
+    DL_PARAM(0);
+    DL_PARAM(1);
+    DL_PARAM(2);
+    DL_PARAM(3);
     const double ed = deadband(e, ae, dbs[j]);
-    const double ref = pref0[j] + kd[j] * ed + iso;
-    const double dpv = limited_rate(ref, pv, inv_lag[j], ramp[j], pmin[j], pmax[j]);
-    const double dhp = (pv - hp) * inv_tch[j];
-    const double drh = (hp - rh) * inv_trh[j];
-    out[j] = fhp[j] * hp + (1.0 - fhp[j]) * rh;
-    DL_PUT(0, dpv);
-    DL_PUT(1, dhp);
-    DL_PUT(2, drh);
-    DL_ISO_PUT(3, pv, pmin[j], pmax[j]);
-    if constexpr (S == 4) y0[j] = clamp(y0[j], pmin[j], pmax[j]);
+    const Drive drive{pref0[j] + kd[j] * ed + x[kIso], df_hz, inv_lag[j], ramp[j], pmin[j], pmax[j]};
+    const RateResult r = M::rates(x, p, drive, d);
+    out[j] = r.output_mw;
+    if constexpr (ISO) d[kIso] = iso_rate(kiso[j], ed, r.held, r.lo_mw, r.hi_mw);
+    DL_WRITE(0);
+    DL_WRITE(1);
+    DL_WRITE(2);
+    DL_WRITE(3);
+    DL_CLAMP(0);
+    DL_CLAMP(1);
+    DL_CLAMP(2);
+    DL_CLAMP(3);
   }
 }
 
-template <int S, bool ISO>
-inline void hydro_loop(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,
-                       const SegmentArrays& a, double c, double h6, double* __restrict out) {
-  DL_GOVERNOR;
-  DL_ARRAYS(0);
-  DL_ARRAYS(1);
-  DL_ARRAYS(2);
-  DL_ARRAYS(3);
-  const double* __restrict inv_ta = t.p1;
-  const double* __restrict gain_hf = t.p2;
-  const double* __restrict inv_half_tw = t.p3;
-  DL_IVDEP
-  for (std::size_t j = 0; j < n; ++j) {
-    const double w = DL_X(0), pv = DL_X(1), z = DL_X(2), iso = DL_ISO_X(3);
-    const double ed = deadband(e, ae, dbs[j]);
-    const double ref = pref0[j] + kd[j] * ed + iso;
-    // Transient droop (1 + s TR)/(1 + s TR RT/R) as a direct path plus a lag.
-    const double u = gain_hf[j] * ref + (1.0 - gain_hf[j]) * w;
-    const double dw = (ref - w) * inv_ta[j];
-    const double dpv = limited_rate(u, pv, inv_lag[j], ramp[j], pmin[j], pmax[j]);
-    const double dz = (pv - z) * inv_half_tw[j];
-    out[j] = 3.0 * z - 2.0 * pv;
-    DL_PUT(0, dw);
-    DL_PUT(1, dpv);
-    DL_PUT(2, dz);
-    DL_ISO_PUT(3, pv, pmin[j], pmax[j]);
-    if constexpr (S == 4) y1[j] = clamp(y1[j], pmin[j], pmax[j]);
-  }
-}
-
-template <int S, bool ISO>
-inline void gas_loop(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,
-                     const SegmentArrays& a, double c, double h6, double* __restrict out) {
-  DL_GOVERNOR;
-  DL_ARRAYS(0);
-  DL_ARRAYS(1);
-  DL_ARRAYS(2);
-  DL_ARRAYS(3);
-  const double* __restrict inv_tf = t.p1;
-  const double* __restrict inv_tc = t.p2;
-  const double* __restrict load_limit = t.p3;
-  DL_IVDEP
-  for (std::size_t j = 0; j < n; ++j) {
-    const double pv = DL_X(0), fuel = DL_X(1), pm = DL_X(2), iso = DL_ISO_X(3);
-    const double ed = deadband(e, ae, dbs[j]);
-    const double ref = pref0[j] + kd[j] * ed + iso;
-    const double dpv = limited_rate(ref, pv, inv_lag[j], ramp[j], pmin[j], pmax[j]);
-    const double dfuel = (std::min(pv, load_limit[j]) - fuel) * inv_tf[j];
-    const double dpm = (fuel - pm) * inv_tc[j];
-    out[j] = pm;
-    DL_PUT(0, dpv);
-    DL_PUT(1, dfuel);
-    DL_PUT(2, dpm);
-    DL_ISO_PUT(3, pv, pmin[j], std::min(pmax[j], load_limit[j]));
-    if constexpr (S == 4) y0[j] = clamp(y0[j], pmin[j], pmax[j]);
-  }
-}
-
-template <int S, bool ISO>
-inline void battery_loop(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,
-                         const SegmentArrays& a, double c, double h6, double* __restrict out) {
-  DL_GOVERNOR;
-  DL_ARRAYS(0);
-  DL_ARRAYS(1);
-  DL_ARRAYS(2);
-  DL_ARRAYS(3);
-  const double* __restrict inv_tfilt = t.p1;
-  const double* __restrict inv_tr = t.p2;
-  const double* __restrict kin = t.p3;
-  const double* __restrict cap = t.p4;
-  DL_IVDEP
-  for (std::size_t j = 0; j < n; ++j) {
-    const double q = DL_X(0), p = DL_X(1), en = DL_X(2), iso = DL_ISO_X(3);
-    const double ed = deadband(e, ae, dbs[j]);
-    const double rocof = (df_hz - q) * inv_tfilt[j];  // washout s/(1 + s Tf) on df
-    const double ref = pref0[j] + kd[j] * ed + iso - kin[j] * rocof;
-    // No discharge when empty, no charge when full.
-    const double hi = en <= 0.0 ? std::min(pmax[j], 0.0) : pmax[j];
-    const double lo = en >= cap[j] ? std::max(pmin[j], 0.0) : pmin[j];
-    double r = (clamp(ref, lo, hi) - p) * inv_tr[j];
-    r = std::min(r, ramp[j]);
-    r = std::max(r, -ramp[j]);
-    const double den = -p * (1.0 / 3600.0);
-    out[j] = p;
-    DL_PUT(0, rocof);
-    DL_PUT(1, r);
-    DL_PUT(2, den);
-    DL_ISO_PUT(3, p, lo, hi);
-    if constexpr (S == 4) y2[j] = clamp(y2[j], 0.0, cap[j]);
-  }
-}
-
+#undef DL_READ
+#undef DL_PARAM
+#undef DL_WRITE
+#undef DL_CLAMP
 #undef DL_ARRAYS
 #undef DL_X
 #undef DL_PUT
-#undef DL_ISO_X
-#undef DL_ISO_PUT
 #undef DL_GOVERNOR
 #undef DL_IVDEP
 
 // Dispatches the stage number to the loop instance (compiled inside each ISA clone).
 #define DL_DISPATCH_ISO(loop, ISO)                                   \
   switch (s.stage) {                                                 \
-    case 1: loop<1, ISO>(n, df_hz, g, t, a, s.c, s.h6, out); break;  \
-    case 2: loop<2, ISO>(n, df_hz, g, t, a, s.c, s.h6, out); break;  \
-    case 3: loop<3, ISO>(n, df_hz, g, t, a, s.c, s.h6, out); break;  \
-    default: loop<4, ISO>(n, df_hz, g, t, a, s.c, s.h6, out); break; \
+    case 1: loop, 1, ISO>(n, df_hz, g, t, a, s.c, s.h6, out); break;  \
+    case 2: loop, 2, ISO>(n, df_hz, g, t, a, s.c, s.h6, out); break;  \
+    case 3: loop, 3, ISO>(n, df_hz, g, t, a, s.c, s.h6, out); break;  \
+    default: loop, 4, ISO>(n, df_hz, g, t, a, s.c, s.h6, out); break; \
   }
 #define DL_DISPATCH(loop)          \
   if (s.iso) {                     \
@@ -270,29 +172,22 @@ inline void battery_loop(std::size_t n, double df_hz, const GovernorParams& g, c
 
 }  // namespace
 
+using StageFn = void (*)(std::size_t, double, const GovernorParams&, const ModelParams&, const SegmentArrays&,
+                         const StageInfo&, double*);
+
 // The entry points of every instruction-set variant: the same source compiled for AVX-512
-// (x86-64-v4), AVX2 and baseline x86-64. Every variant gives the same bits.
-#define DL_ENTRY_POINTS(ATTR)                                                                      \
-  ATTR void steam_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,  \
-                        const SegmentArrays& a, const StageInfo& s, double* out) {                  \
-    DL_DISPATCH(steam_loop)                                                                         \
-  }                                                                                                 \
-  ATTR void reheat_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t, \
-                         const SegmentArrays& a, const StageInfo& s, double* out) {                 \
-    DL_DISPATCH(reheat_loop)                                                                        \
-  }                                                                                                 \
-  ATTR void hydro_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,  \
-                        const SegmentArrays& a, const StageInfo& s, double* out) {                  \
-    DL_DISPATCH(hydro_loop)                                                                         \
-  }                                                                                                 \
-  ATTR void gas_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,    \
-                      const SegmentArrays& a, const StageInfo& s, double* out) {                    \
-    DL_DISPATCH(gas_loop)                                                                           \
-  }                                                                                                 \
-  ATTR void battery_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,\
-                          const SegmentArrays& a, const StageInfo& s, double* out) {                \
-    DL_DISPATCH(battery_loop)                                                                       \
-  }                                                                                                 \
+// (x86-64-v4), AVX2 and baseline x86-64, one stage function per model. Every variant gives the
+// same bits.
+#define DL_ENTRY_POINTS(ATTR)                                                                                \
+  template <class M>                                                                                         \
+  ATTR void model_stage(std::size_t n, double df_hz, const GovernorParams& g, const ModelParams& t,           \
+                        const SegmentArrays& a, const StageInfo& s, double* out) {                            \
+    DL_DISPATCH(model_loop<M)                                                                                \
+  }                                                                                                           \
+  template <class... Ms>                                                                                      \
+  constexpr std::array<StageFn, sizeof...(Ms)> stage_table(ModelList<Ms...>) {                                \
+    return {&model_stage<Ms>...};                                                                             \
+  }                                                                                                           \
   ATTR double ordered_sum(std::size_t n, const double* v) { return ordered_sum_body(n, v); }
 
 // Eight interleaved partial sums combined pairwise: a fixed order the compiler can map onto vector
@@ -326,11 +221,11 @@ namespace {
 
 struct KernelSet {
   const char* name;
-  decltype(&baseline::steam_stage) steam, reheat, hydro, gas, battery;
+  std::array<StageFn, kModelCount> stage;  // by TurbineType
   decltype(&baseline::ordered_sum) sum;
 };
 
-#define DL_SET(ns) {#ns, &ns::steam_stage, &ns::reheat_stage, &ns::hydro_stage, &ns::gas_stage, &ns::battery_stage, &ns::ordered_sum}
+#define DL_SET(ns) {#ns, ns::stage_table(Models{}), &ns::ordered_sum}
 constexpr KernelSet kBaseline = DL_SET(baseline);
 #if DL_VARIANTS
 constexpr KernelSet kAvx2 = DL_SET(avx2);
@@ -363,25 +258,9 @@ const KernelSet& active() {
 
 }  // namespace
 
-void steam_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t, const SegmentArrays& a,
-                 const StageInfo& s, double* out) {
-  active().steam(n, df_hz, g, t, a, s, out);
-}
-void reheat_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t, const SegmentArrays& a,
-                  const StageInfo& s, double* out) {
-  active().reheat(n, df_hz, g, t, a, s, out);
-}
-void hydro_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t, const SegmentArrays& a,
-                 const StageInfo& s, double* out) {
-  active().hydro(n, df_hz, g, t, a, s, out);
-}
-void gas_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t, const SegmentArrays& a,
-               const StageInfo& s, double* out) {
-  active().gas(n, df_hz, g, t, a, s, out);
-}
-void battery_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t, const SegmentArrays& a,
-                   const StageInfo& s, double* out) {
-  active().battery(n, df_hz, g, t, a, s, out);
+void model_stage(TurbineType type, std::size_t n, double df_hz, const GovernorParams& g, const ModelParams& t,
+                 const SegmentArrays& a, const StageInfo& s, double* out) {
+  active().stage[static_cast<std::size_t>(type)](n, df_hz, g, t, a, s, out);
 }
 double ordered_sum(std::size_t n, const double* v) { return active().sum(n, v); }
 

@@ -1,13 +1,16 @@
 #pragma once
-// Hot per-type kernels of the RK4 step. Each works on one contiguous segment of units of one
-// turbine type in one area, so the area's speed error is a scalar and the loop body has no branch
-// on type: the compiler vectorizes it. One call does a whole RK4 stage for the segment: it forms
-// the stage state from the step's start state and the previous stage's slope, evaluates the
-// model, and does the stage's bookkeeping (stage 4 writes the new state, valve limits applied),
-// so the unit data is read once per stage. Built in several instruction-set variants
-// (target_clones) picked at load time; every variant gives bit-identical results because
-// floating-point contraction is off and only element-wise IEEE operations are used.
+// Hot kernels of the RK4 step, one instance per turbine model description (models/*.hpp). Each
+// works on one contiguous segment of units of one turbine type in one area, so the area's speed
+// error is a scalar and the loop body has no branch on type: the compiler vectorizes it. One call
+// does a whole RK4 stage for the segment: it forms the stage state from the step's start state
+// and the previous stage's slope, evaluates the model, and does the stage's bookkeeping (stage 4
+// writes the new state, limits applied), so the unit data is read once per stage. Built in
+// several instruction-set variants picked at load time; every variant gives bit-identical
+// results because floating-point contraction is off and only element-wise IEEE operations are
+// used.
 #include <cstddef>
+
+#include "models/model_base.hpp"
 
 namespace droopline::detail {
 
@@ -23,20 +26,17 @@ struct GovernorParams {
   const double* pmax;     ///< upper valve/power limit (MW)
 };
 
-/// Turbine parameters of a segment (meaning by type, see Engine::Impl::fill_type_params).
-struct TypeParams {
-  const double* p1;
-  const double* p2;
-  const double* p3;
-  const double* p4;
+/// Turbine parameters of a segment: array i holds parameter i of the model's `Param` list.
+struct ModelParams {
+  const double* p[kMaxParams];
 };
 
 /// Arrays of one segment: state i of unit j is at y[i][j]. The last state of every type is the
 /// isochronous integrator, touched only in segments of isochronous units.
 struct SegmentArrays {
-  double* y[4];    ///< state at the start of the step; stage 4 writes the new state
-  double* k[4];    ///< slope: read as the previous stage's, overwritten with this stage's
-  double* acc[4];  ///< k1 + 2 k2 + 2 k3
+  double* y[kMaxStates];    ///< state at the start of the step; stage 4 writes the new state
+  double* k[kMaxStates];    ///< slope: read as the previous stage's, overwritten with this stage's
+  double* acc[kMaxStates];  ///< k1 + 2 k2 + 2 k3
 };
 
 /// One RK4 stage: 1..4, the stage offset c (0, h/2, h/2, h) and h/6 for the final combination;
@@ -48,18 +48,10 @@ struct StageInfo {
   bool iso;
 };
 
-// df_hz: the area's frequency deviation at the stage point; out_pm receives each unit's output
-// at the stage point (for the area's generation sum).
-void steam_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,
+/// One RK4 stage of a segment of `type` units. df_hz: the area's frequency deviation at the stage
+/// point; out_pm receives each unit's output at the stage point (for the area's generation sum).
+void model_stage(TurbineType type, std::size_t n, double df_hz, const GovernorParams& g, const ModelParams& t,
                  const SegmentArrays& a, const StageInfo& s, double* out_pm);
-void reheat_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,
-                  const SegmentArrays& a, const StageInfo& s, double* out_pm);
-void hydro_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,
-                 const SegmentArrays& a, const StageInfo& s, double* out_pm);
-void gas_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,
-               const SegmentArrays& a, const StageInfo& s, double* out_pm);
-void battery_stage(std::size_t n, double df_hz, const GovernorParams& g, const TypeParams& t,
-                   const SegmentArrays& a, const StageInfo& s, double* out_pm);
 
 /// Sum of v[0..n) in a fixed order (four interleaved partial sums), independent of the ISA.
 double ordered_sum(std::size_t n, const double* v);

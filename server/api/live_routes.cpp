@@ -128,8 +128,8 @@ void get_scenario(Services& s, Call& c) {
 
 void put_scenario(Services& s, Call& c) {
   LoadResult r = parse_scenario(c.request.body);
-  if (!r.def) return c.error(400, "invalid scenario; nothing changed", issue_texts(r.issues));
-  s.live->load(std::move(*r.def), answer(c));
+  if (!r.system) return c.error(400, "invalid scenario; nothing changed", issue_texts(r.issues));
+  s.live->load(std::move(*r.system), answer(c));
 }
 
 void commands(Services& s, Call& c) {

@@ -33,9 +33,9 @@ void answer(const Respond& respond, int status, std::string body) {
 
 void replays(Services& s, Call& c) {
   LoadResult r = parse_scenario(c.request.body);
-  if (!r.def) return c.error(400, "invalid scenario", issue_texts(r.issues));
+  if (!r.system) return c.error(400, "invalid scenario", issue_texts(r.issues));
   const double unit_steps =
-      r.def->duration_s / r.def->step_s * static_cast<double>(std::max<std::size_t>(1, r.def->units.size()));
+      r.system->def().duration_s / r.system->def().step_s * static_cast<double>(std::max<std::size_t>(1, r.system->def().units.size()));
   if (unit_steps > s.options.max_replay_unit_steps) {
     s.counters.replays_refused.fetch_add(1);
     return c.error(413, "replay too large: " + fmt_num(unit_steps) +
@@ -56,8 +56,8 @@ void replays(Services& s, Call& c) {
   std::vector<Issue> warnings;
   for (const Issue& i : r.issues)
     if (i.warning) warnings.push_back(i);
-  s.run_on_workers([&s, def = std::move(*r.def), warnings, respond = c.respond] {
-    study::RunOutcome out = study::run_to_strings(def, warnings);
+  s.run_on_workers([&s, system = std::move(*r.system), warnings, respond = c.respond] {
+    study::RunOutcome out = study::run_to_strings(system, warnings);
     s.counters.replays_active.fetch_sub(1);
     s.counters.replays.fetch_add(1);
     if (!out.ok) return answer(respond, 400, error_json("invalid scenario", issue_texts(out.issues)));
@@ -131,8 +131,8 @@ void post_sweep(Services& s, Call& c) {
   spec.threads = std::max(1u, std::thread::hardware_concurrency() - 1);  // one core left to the loop
   auto start = [&s, spec = std::move(spec), metric, respond = c.respond](std::string scenario_text) mutable {
     LoadResult r = parse_scenario(scenario_text);
-    if (!r.def) return answer(respond, 400, error_json("invalid scenario", issue_texts(r.issues)));
-    spec.scenario = scenario_to_json(*r.def);
+    if (!r.system) return answer(respond, 400, error_json("invalid scenario", issue_texts(r.issues)));
+    spec.scenario = scenario_to_json(r.system->def());
     // Each axis at its smallest and largest value must give a valid scenario: an absurd value is
     // refused now, not found in every row later.
     for (const auto& v : spec.vary)
@@ -142,7 +142,7 @@ void post_sweep(Services& s, Call& c) {
         std::string err;
         if (!study::set_path(probe, v.path, x, err)) return answer(respond, 400, error_json("vary " + err));
         LoadResult pr = parse_scenario(probe.dump());
-        if (!pr.def)
+        if (!pr.system)
           return answer(
               respond, 400,
               error_json("vary " + v.path + "=" + fmt_num(x) + " gives an invalid scenario", issue_texts(pr.issues)));
@@ -203,9 +203,9 @@ void assess(Services& s, Call& c) {
     s.run_on_workers([&s, respond, requirements, text = std::move(text)] {
       LoadResult r = parse_scenario(text);
       std::string body;
-      if (r.def) body = study::assessment_to_json(study::assess(*r.def, requirements), requirements).dump();
+      if (r.system) body = study::assessment_to_json(study::assess(r.system->def(), requirements), requirements).dump();
       s.counters.replays_active.fetch_sub(1);
-      if (!r.def) return answer(respond, 400, error_json("invalid scenario", issue_texts(r.issues)));
+      if (!r.system) return answer(respond, 400, error_json("invalid scenario", issue_texts(r.issues)));
       answer(respond, 200, std::move(body));
     });
   });
@@ -226,10 +226,10 @@ void modes(Services& s, Call& c) {
   auto analyse = [&s, threshold, respond = c.respond](std::string scenario_text) {
     s.run_on_workers([threshold, respond, text = std::move(scenario_text)] {
       LoadResult r = parse_scenario(text);
-      if (!r.def) return answer(respond, 400, error_json("invalid scenario", issue_texts(r.issues)));
+      if (!r.system) return answer(respond, 400, error_json("invalid scenario", issue_texts(r.issues)));
       study::ModesOptions opt;
       opt.damping_threshold = threshold;
-      const study::ModesResult m = study::small_signal(*r.def, opt);
+      const study::ModesResult m = study::small_signal(r.system->def(), opt);
       if (!m.error.empty()) return answer(respond, 422, error_json(m.error));
       answer(respond, 200, study::modes_to_json(m, opt).dump());
     });

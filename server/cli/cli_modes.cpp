@@ -18,13 +18,13 @@ namespace droopline::cli {
 
 int modes(const std::string& file, double damping_threshold, bool as_json) {
   LoadResult r = load_scenario_file(file);
-  if (!r.def) {
+  if (!r.system) {
     for (const Issue& i : r.issues) std::cerr << file << ": " << (i.warning ? "warning: " : "error: ") << i.text() << "\n";
     return 2;
   }
   study::ModesOptions opt;
   opt.damping_threshold = damping_threshold;
-  const study::ModesResult res = study::small_signal(*r.def, opt);
+  const study::ModesResult res = study::small_signal(r.system->def(), opt);
   if (!res.error.empty()) {
     std::cerr << file << ": error: " << res.error << "\n";
     return 2;
@@ -33,7 +33,7 @@ int modes(const std::string& file, double damping_threshold, bool as_json) {
     std::cout << to_text(study::modes_to_json(res, opt)) << "\n";
     return 0;
   }
-  std::cout << "droopline: modes of \"" << r.def->name << "\" (" << res.states.size() << " states)\n";
+  std::cout << "droopline: modes of \"" << r.system->def().name << "\" (" << res.states.size() << " states)\n";
   std::printf("%3s  %-12s %12s %14s %10s %10s  %s\n", "#", "kind", "real 1/s", "imag rad/s", "f Hz", "damping", "states taking part");
   int k = 0;
   for (const study::Mode& m : res.modes) {
@@ -56,7 +56,7 @@ int modes(const std::string& file, double damping_threshold, bool as_json) {
 
 int assess(const std::string& file, const std::string& requirements_file, bool as_json) {
   LoadResult r = load_scenario_file(file);
-  if (!r.def) {
+  if (!r.system) {
     for (const Issue& i : r.issues) std::cerr << file << ": " << (i.warning ? "warning: " : "error: ") << i.text() << "\n";
     return 2;
   }
@@ -73,12 +73,12 @@ int assess(const std::string& file, const std::string& requirements_file, bool a
     for (const Issue& i : issues) std::cerr << requirements_file << ": error: " << i.text() << "\n";
     return 2;
   }
-  const study::Assessment a = study::assess(*r.def, *req);
+  const study::Assessment a = study::assess(r.system->def(), *req);
   if (as_json) {
     std::cout << to_text(study::assessment_to_json(a, *req)) << "\n";
     return a.passed ? 0 : 3;
   }
-  std::cout << "droopline: \"" << r.def->name << "\" against \"" << req->name << "\"\n";
+  std::cout << "droopline: \"" << r.system->def().name << "\" against \"" << req->name << "\"\n";
   std::printf("%-52s %-16s %-14s %-10s %-10s\n", "requirement", "limit", "measured", "margin", "result");
   for (const study::CheckRow& c : a.rows) {
     const int digits = c.unit == "Hz" ? 3 : 2;
@@ -96,25 +96,24 @@ int assess(const std::string& file, const std::string& requirements_file, bool a
 
 int record(const RecordArgs& args) {
   LoadResult r = load_scenario_file(args.scenario_file);
-  if (!r.def) {
+  if (!r.system) {
     for (const Issue& i : r.issues)
       std::cerr << args.scenario_file << ": " << (i.warning ? "warning: " : "error: ") << i.text() << "\n";
     return 2;
   }
-  auto created = Engine::create(*r.def);
-  if (!created.engine) return 2;
-  Engine& e = *created.engine;
-  const double to = std::min(args.to_s, r.def->duration_s);
+  const std::unique_ptr<Engine> created = Engine::create(*r.system);
+  Engine& e = *created;
+  const double to = std::min(args.to_s, r.system->def().duration_s);
   if (!(args.from_s < to)) {
     std::cerr << "droopline: --from " << fmt_num(args.from_s) << " must lie before --to " << fmt_num(to) << " (the run ends at "
-              << fmt_num(r.def->duration_s) << " s)\n";
+              << fmt_num(r.system->def().duration_s) << " s)\n";
     return 2;
   }
   study::ComtradeInput in;
-  in.station = r.def->name;
+  in.station = r.system->def().name;
   in.columns = e.series_columns();
-  in.sample_hz = 1.0 / r.def->output_every_s;
-  in.nominal_hz = r.def->nominal_hz;
+  in.sample_hz = 1.0 / r.system->def().output_every_s;
+  in.nominal_hz = r.system->def().nominal_hz;
   in.start = args.start;
   std::vector<double> row(e.series_width());
   study::BatchObservers obs;

@@ -39,8 +39,8 @@ std::string opt_text(const std::optional<double>& v, int decimals, const char* u
 int check(const std::string& file) {
   LoadResult r = load_scenario_file(file);
   print_issues(r.issues, file);
-  if (!r.def) return 2;
-  const SystemDef& d = *r.def;
+  if (!r.system) return 2;
+  const SystemDef& d = r.system->def();
   std::cout << file << ": ok: \"" << d.name << "\": " << d.areas.size() << " area(s), "
             << d.units.size() << " unit(s), " << d.ties.size() << " tie(s), " << d.events.size()
             << " event(s), " << fmt_num(d.duration_s) << " s at a " << fmt_num(d.step_s)
@@ -59,8 +59,8 @@ int run(const std::string& file, const std::string& out_dir, bool quiet, unsigne
   LoadResult r = load_scenario_file(file);
   lap("load");
   print_issues(r.issues, file);
-  if (!r.def) return 2;
-  const SystemDef& def = *r.def;
+  if (!r.system) return 2;
+  const SystemDef& def = r.system->def();
   std::vector<Issue> warnings;
   for (const Issue& i : r.issues)
     if (i.warning) warnings.push_back(i);
@@ -71,13 +71,9 @@ int run(const std::string& file, const std::string& out_dir, bool quiet, unsigne
     std::cerr << "droopline: cannot create output folder \"" << out_dir << "\": " << ec.message() << "\n";
     return 1;
   }
-  CreateResult created = Engine::create(def);
-  if (!created.engine) {
-    print_issues(created.issues, file);
-    return 2;
-  }
+  const std::unique_ptr<Engine> created = Engine::create(*r.system);
   lap("create");
-  Engine& engine = *created.engine;
+  Engine& engine = *created;
   TaskPool pool(def.units.size() >= 4096 ? (threads ? threads : std::max(1u, std::thread::hardware_concurrency())) : 1);
   engine.set_task_runner(&pool);
   AtomicFile series(fs::path(out_dir) / "series.csv");
@@ -150,12 +146,8 @@ int replay(const std::string& journal, const std::string& out_dir, int run_numbe
     return 2;
   }
   const JournalRun& run = jr.runs[static_cast<std::size_t>(pick - 1)];
-  CreateResult created = Engine::create(run.def);
-  if (!created.engine) {
-    print_issues(created.issues, journal);
-    return 2;
-  }
-  Engine& engine = *created.engine;
+  const std::unique_ptr<Engine> created = Engine::create(run.system);
+  Engine& engine = *created;
   std::error_code ec;
   fs::create_directories(out_dir, ec);
   AtomicFile series(fs::path(out_dir) / "series.csv");
@@ -202,7 +194,7 @@ int replay(const std::string& journal, const std::string& out_dir, int run_numbe
     return 1;
   }
   if (!quiet)
-    std::cout << "droopline: replayed run " << pick << " of " << count << " (\"" << run.def.name << "\", "
+    std::cout << "droopline: replayed run " << pick << " of " << count << " (\"" << run.system.def().name << "\", "
               << run.commands.size() << " command batch(es), " << fmt_num(engine.time_s()) << " s) into " << out_dir << "\n";
   return 0;
 }

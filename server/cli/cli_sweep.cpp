@@ -81,13 +81,13 @@ int sweep(const SweepArgs& args) {
     return 2;
   }
   LoadResult base = load_scenario_file(args.scenario_file);
-  if (!base.def) {
+  if (!base.system) {
     for (const Issue& i : base.issues)
       std::cerr << args.scenario_file << ": " << (i.warning ? "warning: " : "error: ") << i.text() << "\n";
     return 2;
   }
   study::SweepSpec spec;
-  spec.scenario = scenario_to_json(*base.def);  // defaults explicit: every field can be varied
+  spec.scenario = scenario_to_json(base.system->def());  // defaults explicit: every field can be varied
   spec.sample = args.sample;
   spec.seed = args.seed;
   spec.shard = args.shard;
@@ -114,7 +114,7 @@ int sweep(const SweepArgs& args) {
   const json doc = study::sweep_to_json(spec, res);
   if (const int rc = write_outputs(args.out_dir, doc, res.rows, args.metric); rc != 0) return rc;
   if (!args.quiet) {
-    std::cout << "droopline: " << res.rows.size() << " run(s) of \"" << base.def->name << "\"";
+    std::cout << "droopline: " << res.rows.size() << " run(s) of \"" << base.system->def().name << "\"";
     if (spec.shards > 1) std::cout << " (shard " << spec.shard << "/" << spec.shards << " of " << res.selected << ")";
     else if (spec.sample) std::cout << " (a sample of " << res.grid_size << ")";
     std::cout << " on " << res.threads << " thread(s) in " << fmt_fixed(res.wall_s, 2) << " s; wrote " << args.out_dir << "/sweep.csv\n";

@@ -24,7 +24,7 @@ double wall_now_s() {
 
 }  // namespace
 
-LiveSession::LiveSession(const SystemDef& def, LiveConfig config, Sink sink)
+LiveSession::LiveSession(const CheckedSystem& system, LiveConfig config, Sink sink)
     : config_(std::move(config)),
       sink_(std::move(sink)),
       pipeline_(
@@ -35,8 +35,8 @@ LiveSession::LiveSession(const SystemDef& def, LiveConfig config, Sink sink)
           },
           counters_.commands, counters_.commands_refused) {
   speed_ = std::clamp(config_.speed, 0.1, 100.0);
-  if (pipeline_.journal().ok() && !journal_scenario(def)) journal_failed_ = true;
-  start_engine(def);
+  if (pipeline_.journal().ok() && !journal_scenario(system.def())) journal_failed_ = true;
+  start_engine(system);
   thread_ = std::thread([this] { run(); });
 }
 
@@ -68,17 +68,16 @@ bool LiveSession::journal_scenario(const SystemDef& def) {
   return false;
 }
 
-void LiveSession::start_engine(const SystemDef& def) {
-  def_ = def;
-  auto created = Engine::create(def_);
-  engine_ = std::move(created.engine);  // def was validated by the caller
-  output_every_ = std::max<std::int64_t>(1, std::llround(def_.output_every_s / def_.step_s));
+void LiveSession::start_engine(const CheckedSystem& system) {
+  system_ = system;
+  engine_ = Engine::create(system);
+  output_every_ = std::max<std::int64_t>(1, std::llround(def().output_every_s / def().step_s));
   reported_ = 0;
   announced_ = 0;
   checkpoint_ = engine_->clone();
-  checkpoint_every_ = std::max<std::int64_t>(1, std::llround(1.0 / def_.step_s));
+  checkpoint_every_ = std::max<std::int64_t>(1, std::llround(1.0 / def().step_s));
   halted_.clear();
-  store_.start(*engine_, def_, config_.history_s);
+  store_.start(*engine_, def(), config_.history_s);
   record_history();
   rebase();
 }
@@ -117,7 +116,7 @@ void LiveSession::run() {
     }
 
     const auto now = clock::now();
-    const double step_wall = def_.step_s / speed_.load();
+    const double step_wall = def().step_s / speed_.load();
     if (paused_.load()) {
       if (now >= next_frame_) {
         emit_frame(wall_now_s());
@@ -268,7 +267,7 @@ void LiveSession::apply(std::vector<Command> commands, Done done) {
     if (!halted_.empty()) return pipeline_.refuse(commands, done, 409, "command refused: " + halted_);
     std::int64_t step = e.step_index();
     if (!paused_.load())
-      step += static_cast<std::int64_t>(std::ceil(config_.journal_lead_s * speed_.load() / def_.step_s));
+      step += static_cast<std::int64_t>(std::ceil(config_.journal_lead_s * speed_.load() / def().step_s));
     pipeline_.submit(e, std::move(commands), step, std::move(done));
   });
 }
@@ -296,14 +295,15 @@ void LiveSession::settle_pending() {
   }
 }
 
-void LiveSession::load(SystemDef def, Done done) {
-  post([this, def = std::move(def), done = std::move(done)](Engine&) {
+void LiveSession::load(CheckedSystem system, Done done) {
+  post([this, system = std::move(system), done = std::move(done)](Engine&) {
     settle_pending();
+    const SystemDef& def = system.def();
     if (!journal_scenario(def)) {
       done(refused(pipeline_.journal().http_status(), "scenario refused, the session goes on unchanged: " + pipeline_.journal().error()));
       return;
     }
-    start_engine(def);
+    start_engine(system);
     push_event(json{{"type", "event"}, {"t_s", 0.0}, {"kind", "scenario"}, {"text", "scenario \"" + def.name + "\" loaded"}});
     done(accepted(json{{"ok", true}, {"scenario", def.name}}));
   });
@@ -312,12 +312,12 @@ void LiveSession::load(SystemDef def, Done done) {
 void LiveSession::reset(Done done) {
   post([this, done = std::move(done)](Engine&) {
     settle_pending();
-    const SystemDef def = def_;
-    if (!journal_scenario(def)) {
+    const CheckedSystem system = *system_;
+    if (!journal_scenario(system.def())) {
       done(refused(pipeline_.journal().http_status(), "reset refused, the session goes on unchanged: " + pipeline_.journal().error()));
       return;
     }
-    start_engine(def);
+    start_engine(system);
     push_event(json{{"type", "event"}, {"t_s", 0.0}, {"kind", "reset"}, {"text", "session reset to t = 0"}});
     done(accepted(json{{"ok", true}, {"t_s", 0.0}}));
   });
@@ -367,7 +367,7 @@ void LiveSession::state(std::function<void(std::string)> done) {
 }
 
 void LiveSession::scenario(std::function<void(std::string)> done) {
-  post([this, done = std::move(done)](Engine&) { done(scenario_to_json(def_).dump()); });
+  post([this, done = std::move(done)](Engine&) { done(scenario_to_json(def()).dump()); });
 }
 
 std::string LiveSession::history(double from_s, double to_s, double every_s, bool csv) const {

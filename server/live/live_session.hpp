@@ -74,8 +74,8 @@ class LiveSession {
   using Sink = std::function<void(const Outgoing&)>;
   using Task = std::function<void(Engine&)>;
 
-  /// Starts the loop thread on a valid definition. `sink` is called on the loop thread.
-  LiveSession(const SystemDef& def, LiveConfig config, Sink sink);
+  /// Starts the loop thread on a checked system. `sink` is called on the loop thread.
+  LiveSession(const CheckedSystem& system, LiveConfig config, Sink sink);
   ~LiveSession();
   LiveSession(const LiveSession&) = delete;
   LiveSession& operator=(const LiveSession&) = delete;
@@ -94,8 +94,8 @@ class LiveSession {
 
   /// Applies commands atomically (all or none), journals them, then answers.
   void apply(std::vector<Command> commands, Done done);
-  /// Replaces the scenario (already validated) and restarts from t = 0.
-  void load(SystemDef def, Done done);
+  /// Replaces the scenario (checked by the loader) and restarts from t = 0.
+  void load(CheckedSystem system, Done done);
   /// Restarts the current scenario from t = 0.
   void reset(Done done);
   void pause(Done done);
@@ -128,7 +128,7 @@ class LiveSession {
 
  private:
   void run();
-  void start_engine(const SystemDef& def);
+  void start_engine(const CheckedSystem& system);
   bool journal_scenario(const SystemDef& def);  ///< false (logged) when the record failed
   // Commands wait here, scheduled for a step, until their journal record is durable.
   void apply_due();             ///< answers failed ones; applies durable ones whose step has come
@@ -157,7 +157,8 @@ class LiveSession {
 
   // Loop-thread state
   std::unique_ptr<Engine> engine_;
-  SystemDef def_;
+  std::optional<CheckedSystem> system_;  // the running scenario with its initial flows (a reset starts it again)
+  const SystemDef& def() const { return system_->def(); }
   std::int64_t output_every_ = 10;
   std::size_t reported_ = 0;   // disturbances already sent complete
   std::size_t announced_ = 0;  // disturbances already sent as begun

@@ -53,7 +53,7 @@ int serve(Options options) {
   LoadResult r = load_scenario_file(opt.scenario_file);
   for (const Issue& i : r.issues)
     (i.warning ? spdlog::warn("{}: {}", opt.scenario_file, i.text()) : spdlog::error("{}: {}", opt.scenario_file, i.text()));
-  if (!r.def) return 2;
+  if (!r.system) return 2;
 
   if (!opt.token_file.empty()) {
     std::ifstream in(opt.token_file);
@@ -89,7 +89,7 @@ int serve(Options options) {
   lc.frame_hz = opt.frame_hz;
   lc.history_s = opt.history_s;
   lc.journal_path = opt.journal;
-  ctx.live = std::make_unique<LiveSession>(*r.def, lc, [&ctx](const Outgoing& m) { ctx.hub.broadcast(m); });
+  ctx.live = std::make_unique<LiveSession>(*r.system, lc, [&ctx](const Outgoing& m) { ctx.hub.broadcast(m); });
   if (!ctx.live->journal_ok()) {
     spdlog::error("{}", ctx.live->journal_error());
     return 1;
@@ -104,7 +104,7 @@ int serve(Options options) {
     return 1;
   }
   listener->run();
-  spdlog::info("droopline serving \"{}\" on http://{}:{}/ (stream ws://{}:{}/api/v1/stream)", r.def->name, opt.host,
+  spdlog::info("droopline serving \"{}\" on http://{}:{}/ (stream ws://{}:{}/api/v1/stream)", r.system->def().name, opt.host,
                listener->port(), opt.host, listener->port());
   if (!address.is_loopback())
     spdlog::warn("the session is reachable from the network at {}:{}: viewing needs no token, changes need the instructor token",

@@ -180,19 +180,20 @@ int main(int argc, char** argv) {
               "all cores", "process s", "peak MiB", "peer solve s", "peer/us", "peer |df| Hz");
   for (std::size_t n : sizes) {
     const SystemDef def = fleet(n, seconds);
+    const CheckResult checked = check(def);
+    if (!checked.system) {
+      std::cerr << "bench fleet invalid: " << checked.issues.front().text() << "\n";
+      return 1;
+    }
     // In process, one thread: stepping only.
     double best_engine = 1e300;
     std::int64_t steps = 0;
     for (int r = 0; r < repeat; ++r) {
-      auto created = Engine::create(def);
-      if (!created.engine) {
-        std::cerr << "bench fleet invalid: " << created.issues.front().text() << "\n";
-        return 1;
-      }
+      const std::unique_ptr<Engine> engine = Engine::create(*checked.system);
       const double t0 = now_s();
-      created.engine->run();
+      engine->run();
       best_engine = std::min(best_engine, now_s() - t0);
-      steps = created.engine->step_index();
+      steps = engine->step_index();
     }
     const double unit_steps = static_cast<double>(steps) * static_cast<double>(n) / best_engine;
     // The same with every core (the engine splits fleets of 4096+ units over a TaskPool).
@@ -200,10 +201,10 @@ int main(int argc, char** argv) {
     {
       TaskPool pool(std::max(1u, std::thread::hardware_concurrency()));
       for (int r = 0; r < repeat; ++r) {
-        auto created = Engine::create(def);
-        created.engine->set_task_runner(&pool);
+        const std::unique_ptr<Engine> engine = Engine::create(*checked.system);
+        engine->set_task_runner(&pool);
         const double t0 = now_s();
-        created.engine->run();
+        engine->run();
         best_pool = std::min(best_pool, now_s() - t0);
       }
     }

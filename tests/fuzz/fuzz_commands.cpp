@@ -11,8 +11,8 @@
 namespace {
 std::unique_ptr<droopline::Engine> make_engine() {
   auto r = droopline::load_scenario_file(DROOPLINE_SOURCE_DIR "/scenarios/demo_three_areas.json");
-  if (!r.def) std::abort();
-  return std::move(droopline::Engine::create(*r.def).engine);
+  if (!r.system) std::abort();
+  return droopline::Engine::create(*r.system);
 }
 }  // namespace
 

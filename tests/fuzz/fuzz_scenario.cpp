@@ -10,12 +10,11 @@
 extern "C" int LLVMFuzzerTestOneInput(const std::uint8_t* data, std::size_t size) {
   const std::string_view text(reinterpret_cast<const char*>(data), size);
   droopline::LoadResult r = droopline::parse_scenario(text);
-  if (!r.def && r.issues.empty()) std::abort();  // refused without saying why
-  if (r.def) {
+  if (!r.system && r.issues.empty()) std::abort();  // refused without saying why
+  if (r.system) {
     // A valid scenario must also make an engine and survive a few steps.
-    auto c = droopline::Engine::create(*r.def);
-    if (!c.engine) std::abort();
-    for (int i = 0; i < 20 && !c.engine->finished(); ++i) c.engine->step();
+    auto engine = droopline::Engine::create(*r.system);
+    for (int i = 0; i < 20 && !engine->finished(); ++i) engine->step();
   }
   return 0;
 }

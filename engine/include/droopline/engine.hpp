@@ -120,19 +120,11 @@ class TaskRunner {
                    void* ctx) = 0;
 };
 
-class Engine;
-
-/// Result of Engine::create: an engine, or the errors that stop one being made.
-struct CreateResult {
-  std::unique_ptr<Engine> engine;  ///< null when the definition has errors
-  std::vector<Issue> issues;       ///< errors and warnings
-};
-
 /// Fixed-step RK4 simulation of areas, units and ties. Not thread-safe: drive it from one thread.
 class Engine {
  public:
-  /// Validates and copies the definition; no engine when it has errors.
-  static CreateResult create(const SystemDef& def);
+  /// An engine at t = 0 of a checked system (copied): see check() and the scenario loader.
+  static std::unique_ptr<Engine> create(const CheckedSystem& system);
   ~Engine();
   Engine(const Engine&) = delete;
   Engine& operator=(const Engine&) = delete;

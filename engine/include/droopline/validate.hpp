@@ -3,6 +3,7 @@
 /// other fields. Nothing here throws: every problem is reported as an Issue.
 #include <optional>
 #include <string>
+#include <utility>
 #include <vector>
 
 #include "droopline/defs.hpp"
@@ -55,6 +56,34 @@ struct InitialFlows {
 /// Solves the tie flows that the per-area surplus (setpoints minus demand) implies.
 /// Appends an error and returns nothing when the ties cannot carry the exchange.
 std::optional<InitialFlows> solve_initial_flows(const SystemDef& def, std::vector<Issue>& issues);
+
+struct CheckResult;
+
+/// A system definition that passed validate(), with its initial operating point: what
+/// Engine::create takes. Only check() makes one, so an engine never sees an unchecked definition.
+class CheckedSystem {
+ public:
+  /// The definition as checked.
+  const SystemDef& def() const { return def_; }
+  /// Its steady operating point at t = 0.
+  const InitialFlows& flows() const { return flows_; }
+
+ private:
+  friend CheckResult check(SystemDef def);
+  CheckedSystem(SystemDef def, InitialFlows flows) : def_(std::move(def)), flows_(std::move(flows)) {}
+  SystemDef def_;
+  InitialFlows flows_;
+};
+
+/// A checked system, or the errors that stop one being made.
+struct CheckResult {
+  std::optional<CheckedSystem> system;  ///< set only when there are no errors
+  std::vector<Issue> issues;            ///< errors first, then warnings (as validate())
+};
+
+/// Validates a definition and solves its initial flows, once: the loader's path, and the one for
+/// tests and tools that build a SystemDef in code.
+CheckResult check(SystemDef def);
 
 /// Island index of every area given which ties are in service (areas joined by ties share one).
 std::vector<int> islands_of(std::size_t area_count, const std::vector<int>& tie_from,

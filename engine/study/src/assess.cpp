@@ -127,9 +127,10 @@ struct Trace {
 };
 
 std::optional<Trace> simulate(const SystemDef& def) {
-  auto created = Engine::create(def);
-  if (!created.engine) return std::nullopt;
-  Engine& e = *created.engine;
+  const CheckResult checked = check(def);
+  if (!checked.system) return std::nullopt;
+  const std::unique_ptr<Engine> engine = Engine::create(*checked.system);
+  Engine& e = *engine;
   Trace tr;
   BatchObservers obs;
   obs.row = [&](const Engine& at) {

@@ -36,14 +36,10 @@ void run_batch(Engine& engine, const BatchOptions& options, const BatchObservers
     for (const Disturbance& d : engine.disturbances()) observers.disturbance(d);
 }
 
-RunOutcome run_to_strings(const SystemDef& def, const std::vector<Issue>& warnings) {
+RunOutcome run_to_strings(const CheckedSystem& system, const std::vector<Issue>& warnings) {
   RunOutcome out;
-  CreateResult created = Engine::create(def);
-  if (!created.engine) {
-    out.issues = created.issues;
-    return out;
-  }
-  Engine& engine = *created.engine;
+  const std::unique_ptr<Engine> created = Engine::create(system);
+  Engine& engine = *created;
   SeriesCsv csv;
   out.series = SeriesCsv::header(engine);
   std::vector<Notice> notices;

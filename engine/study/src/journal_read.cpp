@@ -34,12 +34,12 @@ JournalRead read_journal(const std::string& path) {
     const std::int64_t step = j["step"].get<std::int64_t>();
     if (type == "scenario") {
       LoadResult r = parse_scenario(j["scenario"].dump());
-      if (!r.def) {
+      if (!r.system) {
         for (auto& i : r.issues)
           if (!i.warning) out.issues.push_back({where, i.text(), false});
         return out;
       }
-      out.runs.push_back({*r.def, {}, 0});
+      out.runs.push_back({std::move(*r.system), {}, 0});
     } else if (type == "commands" || type == "stop") {
       if (out.runs.empty()) {
         out.issues.push_back({where, "a record before any scenario", false});

@@ -21,13 +21,14 @@ ModesResult small_signal(const SystemDef& base, const ModesOptions& opt) {
     u.governor.deadband_hz = 0.0;
   }
   for (const AreaDef& a : def.areas) had_agc = had_agc || a.agc.enabled;
-  auto created = Engine::create(def);
-  if (!created.engine) {
-    for (const Issue& i : created.issues)
+  const CheckResult checked = check(def);  // the events and deadbands changed: check again
+  if (!checked.system) {
+    for (const Issue& i : checked.issues)
       if (!i.warning) out.error += (out.error.empty() ? "" : "; ") + i.text();
     return out;
   }
-  Engine& e = *created.engine;
+  const std::unique_ptr<Engine> engine = Engine::create(*checked.system);
+  Engine& e = *engine;
   const double h = def.step_s;
   const std::vector<double> x0 = e.state();
   const std::vector<std::string> names = e.state_names();

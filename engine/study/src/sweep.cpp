@@ -63,17 +63,16 @@ SweepRow run_one(const SweepSpec& spec, std::uint64_t index, const std::vector<s
     set_path(doc, spec.vary[k].path, value, err);  // resolved on the base already
   }
   LoadResult loaded = parse_scenario(doc.dump());
-  CreateResult created;
-  if (loaded.def) created = Engine::create(*loaded.def);
-  if (!created.engine) {
+  if (!loaded.system) {
     row.status = "invalid";
-    for (const Issue& i : loaded.def ? created.issues : loaded.issues) {
+    for (const Issue& i : loaded.issues) {
       if (i.warning) continue;
       row.error += (row.error.empty() ? "" : "; ") + i.text();
     }
     return row;
   }
-  Engine& e = *created.engine;
+  const std::unique_ptr<Engine> engine = Engine::create(*loaded.system);
+  Engine& e = *engine;
   const SystemDef& def = e.def();
   double lowest = INFINITY, highest = -INFINITY;
   BatchObservers obs;

@@ -15,13 +15,13 @@
 
 namespace droopline {
 
-/// A parsed and validated scenario, or the reasons there is none.
+/// A parsed and checked scenario, or the reasons there is none.
 struct LoadResult {
-  std::optional<SystemDef> def;  ///< set only when there are no errors
-  std::vector<Issue> issues;     ///< errors first, then warnings
+  std::optional<CheckedSystem> system;  ///< set only when there are no errors
+  std::vector<Issue> issues;            ///< errors first, then warnings
 };
 
-/// Parses JSON text into a validated SystemDef. Unknown fields, wrong types, missing required
+/// Parses JSON text into a checked system (definition and initial flows). Unknown fields, wrong types, missing required
 /// fields, duplicate keys and every semantic problem of validate() are reported together.
 LoadResult parse_scenario(std::string_view json_text);
 /// Reads a file and parses it; an unreadable file is one error under the path "file".

@@ -48,6 +48,6 @@ struct RunOutcome {
 };
 
 /// Runs a validated definition to its end and returns both outputs as text.
-RunOutcome run_to_strings(const SystemDef& def, const std::vector<Issue>& warnings);
+RunOutcome run_to_strings(const CheckedSystem& system, const std::vector<Issue>& warnings);
 
 }  // namespace droopline::study

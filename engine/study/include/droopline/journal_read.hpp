@@ -17,7 +17,7 @@ namespace droopline {
 
 /// One scenario-long stretch of a journal: the scenario and the commands applied to it.
 struct JournalRun {
-  SystemDef def;
+  CheckedSystem system;  ///< the scenario as the loader checked it
   std::vector<std::pair<std::int64_t, std::vector<Command>>> commands;  ///< (step, commands)
   std::int64_t last_step = 0;  ///< the stop record's step, else the last command's step
 };

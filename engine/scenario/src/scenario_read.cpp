@@ -1,0 +1,199 @@
+// Reading a scenario: the JSON shape with `path: message` errors, then the checks of the
+// definition and its initial flows (check()), so the result is a CheckedSystem.
+#include <filesystem>
+#include <fstream>
+
+#include "droopline/format.hpp"
+#include "droopline/json_input.hpp"
+#include "droopline/scenario_io.hpp"
+#include "json_fields.hpp"
+
+namespace droopline {
+
+using namespace detail;  // the JSON reader (json_fields.hpp)
+
+namespace {
+
+void read_governor(Reader& r, const ijson& j, const std::string& p, GovernorDef& g) {
+  if (!r.object(j, p, {"mode", "droop", "deadband_hz", "deadband", "lag_s", "integral_s"})) return;
+  r.choice(j, "mode", p, kModeNames, g.mode);
+  r.number(j, "droop", p, g.droop);
+  r.number(j, "deadband_hz", p, g.deadband_hz);
+  r.choice(j, "deadband", p, kDeadbandNames, g.deadband);
+  r.number(j, "lag_s", p, g.lag_s);
+  r.number(j, "integral_s", p, g.integral_s);
+}
+
+void read_turbine(Reader& r, const ijson& j, const std::string& p, TurbineDef& t) {
+  if (!j.is_object()) {
+    r.error(p, std::string("must be an object, got ") + type_name(j));
+    return;
+  }
+  if (!r.choice(j, "type", p, kTurbineNames, t.type, true)) return;
+  static const std::vector<std::vector<std::string_view>> kAllowed = {
+      {"type", "steam_chest_s"},
+      {"type", "steam_chest_s", "reheat_s", "hp_fraction"},
+      {"type", "water_s", "temporary_droop", "reset_s"},
+      {"type", "fuel_s", "combustion_s", "load_limit_mw"},
+      {"type", "response_s", "synthetic_inertia_s", "rocof_filter_s", "energy_mwh", "soc"}};
+  const auto& allowed = kAllowed[static_cast<std::size_t>(t.type)];
+  for (auto it = j.begin(); it != j.end(); ++it)
+    if (std::find(allowed.begin(), allowed.end(), it.key()) == allowed.end())
+      r.error(join(p, it.key()), "unknown field for a " + std::string(to_string(t.type)) + " turbine");
+  r.number(j, "steam_chest_s", p, t.steam_chest_s);
+  r.number(j, "reheat_s", p, t.reheat_s);
+  r.number(j, "hp_fraction", p, t.hp_fraction);
+  r.number(j, "water_s", p, t.water_s);
+  r.number(j, "temporary_droop", p, t.temporary_droop);
+  r.number(j, "reset_s", p, t.reset_s);
+  r.number(j, "fuel_s", p, t.fuel_s);
+  r.number(j, "combustion_s", p, t.combustion_s);
+  r.number(j, "load_limit_mw", p, t.load_limit_mw);
+  r.number(j, "response_s", p, t.response_s);
+  r.number(j, "synthetic_inertia_s", p, t.synthetic_inertia_s);
+  r.number(j, "rocof_filter_s", p, t.rocof_filter_s);
+  r.number(j, "energy_mwh", p, t.energy_mwh);
+  r.number(j, "soc", p, t.soc);
+}
+
+template <class F>
+void each(Reader& r, const ijson& obj, const std::string& key, const std::string& path, bool required, F&& f) {
+  if (const ijson* arr = r.array(obj, key, path, required))
+    for (std::size_t i = 0; i < arr->size(); ++i) f((*arr)[i], join(path, key) + "[" + std::to_string(i) + "]");
+}
+
+SystemDef read_system(Reader& r, const ijson& j) {
+  SystemDef d;
+  if (!r.object(j, "",
+                {"name", "nominal_hz", "step_s", "duration_s", "output_every_s", "seed", "areas", "ties", "units",
+                 "events", "description"}))
+    return d;
+  r.string(j, "name", "", d.name);
+  r.number(j, "nominal_hz", "", d.nominal_hz);
+  r.number(j, "step_s", "", d.step_s);
+  r.number(j, "duration_s", "", d.duration_s, true);
+  r.number(j, "output_every_s", "", d.output_every_s);
+  if (const ijson* seed = r.field(j, "seed", "", false)) {
+    if (seed->is_number_unsigned() || (seed->is_number_integer() && seed->get<std::int64_t>() >= 0))
+      d.seed = seed->get<std::uint64_t>();
+    else
+      r.error("seed", std::string("must be a whole number >= 0, got ") +
+                          (seed->is_number() ? fmt_num(seed->get<double>()) : type_name(*seed)));
+  }
+  if (const ijson* desc = r.field(j, "description", "", false); desc && !desc->is_string())
+    r.error("description", std::string("must be a string, got ") + type_name(*desc));
+
+  each(r, j, "areas", "", true, [&](const ijson& a, const std::string& p) {
+    AreaDef ad;
+    if (r.object(a, p, {"id", "demand_mw", "load_damping", "agc", "shedding"})) {
+      r.string(a, "id", p, ad.id, true);
+      r.number(a, "demand_mw", p, ad.demand_mw, true);
+      r.number(a, "load_damping", p, ad.load_damping);
+      if (const ijson* agc = r.field(a, "agc", p, false)) {
+        const std::string ap = join(p, "agc");
+        if (r.object(*agc, ap, {"enabled", "bias_mw_per_hz", "kp", "ki_per_s", "period_s"})) {
+          r.boolean(*agc, "enabled", ap, ad.agc.enabled);
+          r.number(*agc, "bias_mw_per_hz", ap, ad.agc.bias_mw_per_hz);
+          r.number(*agc, "kp", ap, ad.agc.kp);
+          r.number(*agc, "ki_per_s", ap, ad.agc.ki_per_s);
+          r.number(*agc, "period_s", ap, ad.agc.period_s);
+        }
+      }
+      each(r, a, "shedding", p, false, [&](const ijson& s, const std::string& sp) {
+        SheddingStageDef st;
+        if (r.object(s, sp, {"below_hz", "delay_s", "shed_pct"})) {
+          r.number(s, "below_hz", sp, st.below_hz, true);
+          r.number(s, "delay_s", sp, st.delay_s, true);
+          r.number(s, "shed_pct", sp, st.shed_pct, true);
+        }
+        ad.shedding.push_back(st);
+      });
+    }
+    d.areas.push_back(std::move(ad));
+  });
+
+  each(r, j, "ties", "", false, [&](const ijson& t, const std::string& p) {
+    TieDef td;
+    if (r.object(t, p, {"id", "from", "to", "pmax_mw", "damping_mw_per_hz", "trip_angle_deg", "in_service"})) {
+      r.string(t, "id", p, td.id, true);
+      r.string(t, "from", p, td.from, true);
+      r.string(t, "to", p, td.to, true);
+      r.number(t, "pmax_mw", p, td.pmax_mw, true);
+      r.number(t, "damping_mw_per_hz", p, td.damping_mw_per_hz);
+      r.number(t, "trip_angle_deg", p, td.trip_angle_deg);
+      r.boolean(t, "in_service", p, td.in_service);
+    }
+    d.ties.push_back(std::move(td));
+  });
+
+  each(r, j, "units", "", true, [&](const ijson& u, const std::string& p) {
+    UnitDef ud;
+    if (r.object(u, p,
+                 {"id", "area", "rating_mw", "inertia_s", "setpoint_mw", "min_mw", "max_mw", "ramp_mw_per_s",
+                  "agc_share", "online", "governor", "turbine"})) {
+      r.string(u, "id", p, ud.id, true);
+      r.string(u, "area", p, ud.area, true);
+      r.number(u, "rating_mw", p, ud.rating_mw, true);
+      r.number(u, "setpoint_mw", p, ud.setpoint_mw, true);
+      r.number(u, "min_mw", p, ud.min_mw);
+      r.number(u, "max_mw", p, ud.max_mw);
+      r.number(u, "ramp_mw_per_s", p, ud.ramp_mw_per_s);
+      r.number(u, "agc_share", p, ud.agc_share);
+      r.boolean(u, "online", p, ud.online);
+      if (const ijson* g = r.field(u, "governor", p, false)) read_governor(r, *g, join(p, "governor"), ud.governor);
+      if (const ijson* t = r.field(u, "turbine", p, true)) read_turbine(r, *t, join(p, "turbine"), ud.turbine);
+      const bool battery = ud.turbine.type == TurbineType::battery;
+      if (!battery && !u.contains("inertia_s")) r.error(join(p, "inertia_s"), "required for a synchronous unit");
+      r.number(u, "inertia_s", p, ud.inertia_s);
+    }
+    d.units.push_back(std::move(ud));
+  });
+
+  each(r, j, "events", "", false, [&](const ijson& e, const std::string& p) {
+    EventDef ev;
+    if (auto c = read_command(r, e, p, true, &ev.at_s)) {
+      ev.command = *c;
+      d.events.push_back(std::move(ev));
+    }
+  });
+  return d;
+}
+
+}  // namespace
+
+LoadResult parse_scenario(std::string_view json_text) {
+  LoadResult out;
+  auto j = parse_untrusted_json(json_text, out.issues);
+  if (!j) return out;
+  Reader r(out.issues);
+  SystemDef def = read_system(r, *j);
+  if (!out.issues.empty()) return out;  // shape errors first: semantics would only echo them
+  CheckResult checked = check(std::move(def));
+  out.issues = std::move(checked.issues);
+  out.system = std::move(checked.system);
+  return out;
+}
+
+LoadResult load_scenario_file(const std::string& path) {
+  std::error_code ec;
+  if (!std::filesystem::is_regular_file(path, ec)) {  // a folder would "open" and report a huge size
+    LoadResult out;
+    out.issues.push_back({"file", "\"" + path + "\" is not a readable file", false});
+    return out;
+  }
+  std::ifstream in(path, std::ios::binary | std::ios::ate);
+  std::string text;
+  if (in) {
+    text.resize(static_cast<std::size_t>(in.tellg()));
+    in.seekg(0);
+    in.read(text.data(), static_cast<std::streamsize>(text.size()));
+  }
+  if (!in) {
+    LoadResult out;
+    out.issues.push_back({"file", "cannot read \"" + path + "\"", false});
+    return out;
+  }
+  return parse_scenario(text);
+}
+
+}  // namespace droopline

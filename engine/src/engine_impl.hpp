@@ -1,0 +1,230 @@
+#pragma once
+// The engine's private state and the member functions that work on it, spread over one file per
+// concern: layout.cpp (state layout, start-up of units), topology.cpp (islands, inertia,
+// participants), integration.cpp (RK4 stages, pieces, the task runner, the step), outputs.cpp
+// (derived outputs, state names), commands.cpp (live checks, perform), agc.cpp (secondary
+// control), protection.cpp (shedding, out-of-step trips, collapse); disturbances.hpp (metrics).
+#include <array>
+#include <cstdint>
+#include <limits>
+#include <span>
+#include <string>
+#include <utility>
+#include <vector>
+
+#include "disturbances.hpp"
+#include "droopline/engine.hpp"
+#include "models/model_base.hpp"
+#include "noise.hpp"
+
+namespace droopline::detail {
+
+/// Ramp rate standing for "no ramp limit" (MW/s).
+inline constexpr double kNoRamp = 1e300;
+
+/// A maximal run of units of one block sharing area and governor mode.
+struct Segment {
+  std::size_t area, begin, end;  // [begin, end) within the block
+  bool iso;                      // isochronous units: the kernel runs their integrator too
+};
+
+/// The units of one turbine type: contiguous slots, and their states in the state vector as
+/// `y[off + state * n + j]` (one array per state, so the kernels stream them).
+struct Block {
+  TurbineType type = TurbineType::steam;
+  std::size_t first_slot = 0, n = 0, off = 0, nstate = 0;
+  std::vector<Segment> segments;
+  std::array<std::vector<double>, kMaxParams> params;  // by the model's Param list (models/*.hpp)
+};
+
+/// At most kPieceUnits units of one segment: the unit of work of a stage.
+struct Piece {
+  std::size_t block, area, begin, end;  // [begin, end) within the block
+  bool iso;
+};
+
+/// A load ramp in progress.
+struct Ramp {
+  double start_s, over_s, mw;
+};
+
+/// One under-frequency shedding stage's timer.
+struct ShedTimer {
+  double timer_s = 0.0;  // time spent below the threshold since it was first seen below
+  bool below = false;
+  bool done = false;
+};
+
+/// An area's load, protection, secondary control and topology.
+struct AreaRt {
+  // Load
+  double pd0 = 0.0, dmp = 0.0;  // initial demand (MW), damping D*Pd0/f0 (MW/Hz)
+  double steps_mw = 0.0;        // accumulated load steps and finished ramps
+  std::vector<Ramp> ramps;
+  double noise_sigma = 0.0, noise_tau = 1.0, noise_mw = 0.0, noise_next = 0.0;
+  NormalSource rng;
+  // Protection
+  double shed_mw = 0.0;
+  std::vector<ShedTimer> stages;
+  // Topology
+  double m = 0.0;  // 2*sum(H S)/f0 (MW s/Hz)
+  bool collapsed = false;
+  int island = 0;
+  // Secondary control
+  bool agc_on = false;
+  double bias = 0.0, kp = 0.0, ki = 0.0;
+  std::int64_t period_steps = 1;
+  double integral = 0.0, agc_total = 0.0, sched_export = 0.0;
+  std::vector<std::size_t> participants;  // slots
+};
+
+/// A unit's place in the layout and its governor settings now.
+struct UnitRt {
+  std::size_t slot = 0, block = 0, j = 0, area = 0;
+  bool online = true, tripped = false;
+  double droop = 0.05, deadband_hz = 0.0;
+  DeadbandKind deadband = DeadbandKind::offset;
+  GovernorMode mode = GovernorMode::droop;
+  double target_mw = 0.0, target_rate = 0.0;  // setpoint ramp in progress when rate > 0
+};
+
+/// A tie's parameters and its flow after the last step.
+struct TieRt {
+  std::size_t from = 0, to = 0;
+  double pmax = 0.0, dt = 0.0, trip_rad = std::numeric_limits<double>::infinity();
+  double scheduled = 0.0, flow = 0.0;
+  bool in_service = true;
+};
+
+/// Everything the engine holds. Units live in slots sorted by (type, area, mode); per-slot arrays
+/// are indexed by slot, `units` by file order.
+struct EngineState {
+  SystemDef def;
+  double f0 = 50.0, h = 0.01;
+  double steps_per_s = 0.0;  // 1/h when that is a whole number (see time())
+  std::int64_t n = 0, n_total = 0;
+  std::size_t na = 0, nt = 0, nu = 0;
+  std::vector<AreaRt> areas;
+  std::vector<TieRt> ties;
+  std::vector<UnitRt> units;
+  std::vector<Block> blocks;
+  std::vector<std::size_t> unit_of_slot;
+  std::vector<int> active_ties;
+
+  // Per slot, read by the kernels (GovernorParams)
+  std::vector<double> pref0, kd, kiso, dbs, inv_lag, ramp, pmin, pmax;
+  // Per slot, read outside the stage loop
+  std::vector<double> pset, pagc, pm;
+  // Per slot: the definition's limits and ramp, restored on unit start
+  std::vector<double> def_pmin, def_pmax, def_ramp;
+  // State (areas' df, areas' angles, then the blocks) and RK4 work arrays (k: the latest slope)
+  std::vector<double> y, k, acc, pm_stage;
+  // Per area at the stage point
+  std::vector<double> dfv, thv, gen, net_out, lc0, lc1, inv_m;
+  // Derived outputs after the last step (see ensure_outputs)
+  std::vector<double> out_gen, out_net, rocof;
+  bool outputs_valid = false;
+  std::vector<std::size_t> ramping;  // units whose setpoint is moving
+
+  // Work pieces of a stage and the task runner
+  std::vector<Piece> pieces;
+  std::vector<double> piece_gen;
+  TaskRunner* runner = nullptr;
+  int stage_now = 1;
+  double stage_c = 0.0;
+
+  // Secondary-control scratch, sized for every unit so the step never allocates
+  std::vector<double> agc_give;
+  std::vector<unsigned char> agc_fixed;
+  // step_state's saved state, pre-sized
+  std::vector<double> saved_y;
+
+  // Events, notices and metrics
+  std::vector<std::pair<std::int64_t, Command>> schedule;
+  std::size_t next_event = 0;
+  std::vector<Notice> notices;
+  DisturbanceTracker metrics;
+
+  /// Simulation time: n / (steps per second) when that is a whole number, so 278 steps of 0.01 s
+  /// print as 2.78, not as 2.7800000000000002.
+  double time() const { return steps_per_s > 0.0 ? static_cast<double>(n) / steps_per_s : static_cast<double>(n) * h; }
+  /// Unit u's state `which` (block order of its model).
+  double& state(std::size_t u, std::size_t which) {
+    const UnitRt& ur = units[u];
+    const Block& b = blocks[ur.block];
+    return y[b.off + which * b.n + ur.j];
+  }
+};
+
+}  // namespace droopline::detail
+
+namespace droopline {
+
+struct Engine::Impl : detail::EngineState {
+  /// A piece holds at most this many units; the split depends on the layout only, never on the
+  /// number of threads, so sums over pieces come out the same with any runner.
+  static constexpr std::size_t kPieceUnits = 1024;
+  /// Fleets from this size spread their stages over the task runner.
+  static constexpr std::size_t kParallelMinUnits = 4096;
+
+  // layout.cpp
+  Impl(const SystemDef& d, const InitialFlows& flows);
+  void fill_type_params(std::size_t u);
+  void rebuild_segments();
+  void rebuild_pieces();
+  void set_governor_gains(std::size_t u);
+  void bring_online(std::size_t u, double mw, bool steady);
+  void take_offline(std::size_t u);
+
+  // topology.cpp
+  void update_inertia();
+  void update_topology();
+  void refresh_participants(std::size_t a);
+
+  // integration.cpp
+  static void run_task(void* self, std::size_t task, std::size_t tasks);
+  void run_piece(std::size_t p);
+  void stage(int st);
+  double extra_load(const detail::AreaRt& ar, double t) const;
+  void step();
+  void step_state(std::span<const double> x, std::span<double> next);
+  void post_step();
+
+  // outputs.cpp
+  void invalidate_outputs() { outputs_valid = false; }
+  void ensure_outputs();
+  double current_load(std::size_t a, double t) const;
+  UnitState unit_state(std::size_t u);
+  std::vector<std::string> state_names() const;
+
+  // agc.cpp
+  double ace(std::size_t a);
+  void run_agc(std::size_t a);
+  double allocate_agc(std::size_t a, double want, bool commit);
+
+  // protection.cpp
+  void check_out_of_step();
+  void check_shedding(std::size_t a);
+  void trip_tie(std::size_t t, const std::string& cause);
+  void collapse_area_if_dead(std::size_t a);
+
+  // commands.cpp
+  struct Shadow {
+    std::vector<bool> unit_online, tie_in;
+    std::vector<double> droop;  // as the commands checked so far would leave them
+  };
+  std::size_t unit_idx(const std::string& id) const;
+  std::size_t area_idx(const std::string& id) const;
+  std::size_t tie_idx(const std::string& id) const;
+  std::string dynamic_error(const Command& c, Shadow& sh, const std::string& path) const;
+  Shadow shadow() const;
+  ApplyResult apply_checked(std::span<const Command> cmds);
+  ApplyResult check(std::span<const Command> cmds) const;
+  void perform(const Command& c);
+  void open_disturbance(std::size_t area, double delta, CommandKind kind, const std::string& cause) {
+    ensure_outputs();
+    metrics.open(*this, area, delta, kind, cause);
+  }
+};
+
+}  // namespace droopline

@@ -1,0 +1,171 @@
+// Integration: one RK4 step of the areas (scalar code here) and the units (the per-model kernels,
+// over work pieces that a task runner may spread), and what runs between steps.
+#include <algorithm>
+#include <cmath>
+#include <numbers>
+
+#include "engine_impl.hpp"
+#include "kernels.hpp"
+
+namespace droopline {
+namespace {
+constexpr double kTwoPi = 2.0 * std::numbers::pi;
+}  // namespace
+
+void Engine::Impl::run_task(void* self, std::size_t task, std::size_t tasks) {
+  auto* m = static_cast<Impl*>(self);
+  for (std::size_t p = task; p < m->pieces.size(); p += tasks) m->run_piece(p);
+}
+
+void Engine::Impl::run_piece(std::size_t p) {
+  const detail::Piece& pc = pieces[p];
+  detail::Block& b = blocks[pc.block];
+  const detail::StageInfo info{stage_now, stage_c, h / 6.0, pc.iso};
+  const std::size_t s0 = b.first_slot + pc.begin, len = pc.end - pc.begin, j = pc.begin;
+  const detail::GovernorParams g{&pref0[s0],   &kd[s0],   &kiso[s0], &dbs[s0],
+                                 &inv_lag[s0], &ramp[s0], &pmin[s0], &pmax[s0]};
+  detail::ModelParams tp{};
+  for (std::size_t i = 0; i < detail::kMaxParams; ++i) tp.p[i] = &b.params[i][j];
+  detail::SegmentArrays arr{};
+  for (std::size_t i = 0; i < b.nstate; ++i) {
+    const std::size_t o = b.off + i * b.n + j;
+    arr.y[i] = &y[o];
+    arr.k[i] = &k[o];
+    arr.acc[i] = &acc[o];
+  }
+  double* out = &pm_stage[s0];
+  detail::model_stage(b.type, len, dfv[pc.area], g, tp, arr, info, out);
+  piece_gen[p] = detail::ordered_sum(len, out);
+}
+
+// Stage 1 reads y; stages 2-4 read y + c * (previous slope). Areas are done here in scalar code,
+// units by the per-model kernels (which also write the new unit state in stage 4).
+void Engine::Impl::stage(int st) {
+  const double c = st == 1 ? 0.0 : (st == 4 ? h : 0.5 * h);
+  const double frac = st == 1 ? 0.0 : (st == 4 ? 1.0 : 0.5);
+  for (std::size_t a = 0; a < na; ++a) {
+    dfv[a] = st == 1 ? y[a] : y[a] + c * k[a];
+    thv[a] = st == 1 ? y[na + a] : y[na + a] + c * k[na + a];
+    net_out[a] = 0.0;
+    gen[a] = 0.0;
+  }
+  for (int t : active_ties) {
+    const detail::TieRt& tr = ties[t];
+    const double f = tr.pmax * std::sin(thv[tr.from] - thv[tr.to]) + tr.dt * (dfv[tr.from] - dfv[tr.to]);
+    net_out[tr.from] += f;
+    net_out[tr.to] -= f;
+  }
+  stage_now = st;
+  stage_c = c;
+  const std::size_t tasks = runner && nu >= kParallelMinUnits ? std::min(runner->concurrency(), pieces.size()) : 1;
+  if (tasks > 1) {
+    runner->run(tasks, &Impl::run_task, this);
+  } else {
+    for (std::size_t p = 0; p < pieces.size(); ++p) run_piece(p);
+  }
+  // Pieces are summed in a fixed order: the result does not depend on how many ran in parallel.
+  for (std::size_t p = 0; p < pieces.size(); ++p) gen[pieces[p].area] += piece_gen[p];
+  for (std::size_t a = 0; a < na; ++a) {
+    double d_df = 0.0, d_th = 0.0;
+    if (!areas[a].collapsed) {
+      const double load = lc0[a] + (lc1[a] - lc0[a]) * frac + areas[a].dmp * dfv[a];
+      d_df = (gen[a] - load - net_out[a]) * inv_m[a];
+      d_th = kTwoPi * dfv[a];
+    }
+    for (auto [i, d] : {std::pair{a, d_df}, std::pair{na + a, d_th}}) {
+      if (st == 1) {
+        k[i] = d;
+        acc[i] = d;
+      } else if (st < 4) {
+        k[i] = d;
+        acc[i] = acc[i] + 2.0 * d;
+      } else {
+        y[i] = y[i] + (h / 6.0) * (acc[i] + d);
+      }
+    }
+  }
+}
+
+double Engine::Impl::extra_load(const detail::AreaRt& ar, double t) const {
+  double mw = ar.steps_mw;
+  for (const detail::Ramp& r : ar.ramps) mw += r.mw * std::clamp((t - r.start_s) / r.over_s, 0.0, 1.0);
+  return mw;
+}
+
+void Engine::Impl::step() {
+  while (next_event < schedule.size() && schedule[next_event].first <= n) {
+    const Command& c = schedule[next_event].second;
+    ApplyResult r = apply_checked(std::span<const Command>(&c, 1));
+    if (!r.ok) notices.push_back({time(), "command_refused", r.error});
+    ++next_event;
+  }
+  const double t0 = time();
+  for (std::size_t a = 0; a < na; ++a) {
+    detail::AreaRt& ar = areas[a];
+    // Fold finished ramps into the constant part.
+    for (std::size_t i = 0; i < ar.ramps.size();) {
+      if (t0 >= ar.ramps[i].start_s + ar.ramps[i].over_s) {
+        ar.steps_mw += ar.ramps[i].mw;
+        ar.ramps.erase(ar.ramps.begin() + static_cast<std::ptrdiff_t>(i));
+      } else {
+        ++i;
+      }
+    }
+    if (ar.noise_sigma > 0.0) {
+      const double phi = std::exp(-h / ar.noise_tau);
+      ar.noise_next = phi * ar.noise_mw + ar.noise_sigma * std::sqrt(1.0 - phi * phi) * ar.rng.next();
+    } else {
+      ar.noise_next = 0.0;
+    }
+    const double base = ar.pd0 - ar.shed_mw;
+    lc0[a] = base + extra_load(ar, t0) + ar.noise_mw;
+    lc1[a] = base + extra_load(ar, t0 + h) + ar.noise_next;
+  }
+  for (int st = 1; st <= 4; ++st) stage(st);
+  ++n;
+  for (detail::AreaRt& ar : areas) ar.noise_mw = ar.noise_next;
+  post_step();
+}
+
+void Engine::Impl::step_state(std::span<const double> x, std::span<double> next) {
+  saved_y = y;
+  std::copy(x.begin(), x.end(), y.begin());
+  const double t0 = time();
+  for (std::size_t a = 0; a < na; ++a) {
+    const detail::AreaRt& ar = areas[a];
+    lc0[a] = lc1[a] = ar.pd0 - ar.shed_mw + extra_load(ar, t0);
+  }
+  for (int st = 1; st <= 4; ++st) stage(st);
+  std::copy(y.begin(), y.end(), next.begin());
+  y.swap(saved_y);
+  invalidate_outputs();
+}
+
+// Between steps: protection, secondary control on its cycle, setpoint ramps, then the metrics.
+void Engine::Impl::post_step() {
+  invalidate_outputs();
+  check_out_of_step();
+  for (std::size_t a = 0; a < na; ++a) {
+    if (areas[a].collapsed) continue;
+    check_shedding(a);
+    if (areas[a].agc_on && n % areas[a].period_steps == 0) run_agc(a);
+  }
+  for (std::size_t i = 0; i < ramping.size();) {
+    detail::UnitRt& ur = units[ramping[i]];
+    const std::size_t s = ur.slot;
+    const double dmax = ur.target_rate * h;
+    if (ur.target_rate <= 0.0 || std::fabs(ur.target_mw - pset[s]) <= dmax) {
+      if (ur.target_rate > 0.0) pset[s] = ur.target_mw;
+      ur.target_rate = 0.0;
+      ramping.erase(ramping.begin() + static_cast<std::ptrdiff_t>(i));
+    } else {
+      pset[s] += ur.target_mw > pset[s] ? dmax : -dmax;
+      ++i;
+    }
+    pref0[s] = pset[s] + pagc[s];
+  }
+  if (metrics.wants_outputs(n)) ensure_outputs();
+  metrics.after_step(*this);
+}
+
+}  // namespace droopline

@@ -1,0 +1,85 @@
+// Protection: out-of-step tie trips, under-frequency load shedding, and the collapse of an area
+// that lost all synchronous inertia.
+#include <cmath>
+#include <numbers>
+
+#include "droopline/format.hpp"
+#include "engine_impl.hpp"
+
+namespace droopline {
+
+// Out-of-step: the unwrapped angle passed the trip setting.
+void Engine::Impl::check_out_of_step() {
+  for (bool tripped = true; tripped;) {
+    tripped = false;
+    for (int t_idx : active_ties) {
+      const detail::TieRt& tr = ties[t_idx];
+      const double ang = y[na + tr.from] - y[na + tr.to];
+      if (std::fabs(ang) <= tr.trip_rad) continue;
+      notices.push_back({time(), "out_of_step",
+                         "tie " + def.ties[t_idx].id + " tripped out of step at " +
+                             fmt_fixed(ang * 180.0 / std::numbers::pi, 1) + " deg"});
+      trip_tie(static_cast<std::size_t>(t_idx), "out-of-step trip of tie " + def.ties[t_idx].id);
+      tripped = true;  // active_ties changed: scan again
+      break;
+    }
+  }
+}
+
+void Engine::Impl::check_shedding(std::size_t a) {
+  detail::AreaRt& ar = areas[a];
+  const double f = f0 + y[a];
+  const auto& stages = def.areas[a].shedding;
+  for (std::size_t s = 0; s < stages.size(); ++s) {
+    detail::ShedTimer& st = ar.stages[s];
+    if (st.done) continue;
+    if (f < stages[s].below_hz) {
+      if (st.below) st.timer_s += h;
+      st.below = true;
+      if (st.timer_s >= stages[s].delay_s - 1e-9) {
+        st.done = true;
+        const double mw = stages[s].shed_pct / 100.0 * ar.pd0;
+        ar.shed_mw += mw;
+        notices.push_back({time(), "shedding",
+                           "area " + def.areas[a].id + " shed stage " + std::to_string(s + 1) + ": " +
+                               fmt_fixed(mw, 1) + " MW below " + fmt_num(stages[s].below_hz) + " Hz"});
+      }
+    } else {
+      st.timer_s = 0.0;
+      st.below = false;
+    }
+  }
+}
+
+void Engine::Impl::trip_tie(std::size_t t, const std::string& cause) {
+  ensure_outputs();
+  detail::TieRt& tr = ties[t];
+  const double flow = tr.flow;
+  tr.in_service = false;
+  update_topology();
+  tr.flow = 0.0;
+  if (areas[tr.from].island != areas[tr.to].island) {
+    open_disturbance(tr.from, -flow, CommandKind::tie_trip, cause + " (island of " + def.areas[tr.from].id + ")");
+    open_disturbance(tr.to, flow, CommandKind::tie_trip, cause + " (island of " + def.areas[tr.to].id + ")");
+  }
+  invalidate_outputs();
+}
+
+void Engine::Impl::collapse_area_if_dead(std::size_t a) {
+  detail::AreaRt& ar = areas[a];
+  if (ar.collapsed || ar.m > 0.0) return;
+  ar.collapsed = true;
+  notices.push_back({time(), "collapse",
+                     "area " + def.areas[a].id + " lost all synchronous inertia and collapsed; its ties are opened"});
+  for (std::size_t t = 0; t < nt; ++t)
+    if (ties[t].in_service && (ties[t].from == a || ties[t].to == a)) {
+      ties[t].in_service = false;
+      ties[t].flow = 0.0;
+    }
+  for (std::size_t u = 0; u < nu; ++u)
+    if (units[u].area == a && units[u].online) take_offline(u);
+  update_topology();
+  refresh_participants(a);
+}
+
+}  // namespace droopline
