@@ -11,10 +11,8 @@ struct Hydro : ModelDefaults {
   static constexpr TurbineType kType = TurbineType::hydro;
   /// States, in block order; the isochronous integrator is always last.
   enum State : std::size_t { droop_lag, gate, water, iso_integral, kStates };
-  /// Names of the states in Engine::state_names(), kept as published: the first and third read
-  /// swapped against what the states hold (droop_lag is printed `water_power`, water
-  /// `transient_droop`); renaming them changes the modes output.
-  static constexpr const char* kStateNames[kStates] = {"water_power", "gate", "transient_droop", "iso_integral"};
+  /// Names of the states in Engine::state_names().
+  static constexpr const char* kStateNames[kStates] = {"transient_droop", "gate", "water_power", "iso_integral"};
   /// The gate (UnitState::valve_mw) and the state limited at the end of a step.
   static constexpr std::size_t kValve = gate, kClamped = gate;
   /// Parameters, one array each per block.
