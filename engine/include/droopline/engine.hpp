@@ -8,17 +8,12 @@
 #include <string_view>
 #include <vector>
 
+#include "droopline/commands.hpp"
 #include "droopline/defs.hpp"
+#include "droopline/ids.hpp"
 #include "droopline/validate.hpp"
 
 namespace droopline {
-
-/// Dense index of an area, checked when used.
-struct AreaId { std::uint32_t index = 0; };
-/// Dense index of a unit (file order), checked when used.
-struct UnitId { std::uint32_t index = 0; };
-/// Dense index of a tie, checked when used.
-struct TieId { std::uint32_t index = 0; };
 
 /// Operating state of a unit.
 enum class UnitStatus { online, at_max, at_min, tripped };
@@ -101,11 +96,11 @@ struct Notice {
   std::string text;   ///< one readable line
 };
 
-/// Result of applying a command between steps.
+/// Result of applying (or checking) commands between steps.
 struct ApplyResult {
-  bool ok = false;
-  std::string error;  ///< `path: message` when not ok
-  double at_s = 0.0;  ///< simulation time at which the command took effect
+  bool ok = false;            ///< every command passed the checks of the live state
+  std::vector<Issue> issues;  ///< why not, one problem each (`command.unit`, `commands[i].tie`, ...)
+  double at_s = 0.0;          ///< simulation time at which the commands took (or would take) effect
 };
 
 /// Runs independent tasks, possibly in parallel, for engines with large fleets. The engine
@@ -145,12 +140,13 @@ class Engine {
   /// Closes the metric windows that are still open (end of run); values not reached stay empty.
   void close_disturbances();
 
-  /// Applies one command now (between steps). Disturbing commands open a metrics record.
-  ApplyResult apply(const Command& command);
-  /// Applies several commands atomically: all when every one validates, else none.
-  ApplyResult apply_all(std::span<const Command> commands);
+  /// Applies one resolved command now (between steps), checked against the live state only (its
+  /// static checks were made by resolve()). Disturbing commands open a metrics record.
+  ApplyResult apply(const Action& action);
+  /// Applies several commands atomically: all when every one passes the state checks, else none.
+  ApplyResult apply_all(std::span<const Action> actions);
   /// What apply_all would answer, without changing anything.
-  ApplyResult check_all(std::span<const Command> commands) const;
+  ApplyResult check_all(std::span<const Action> actions) const;
 
   /// Simulation time (s) = step_index * step_s.
   double time_s() const;
@@ -158,6 +154,8 @@ class Engine {
   std::int64_t step_index() const;
   /// The copied definition (events included).
   const SystemDef& def() const;
+  /// The checked system the engine was created from (definition, id index, resolved events).
+  const CheckedSystem& system() const;
 
   std::optional<AreaId> find_area(std::string_view id) const;  ///< by scenario id
   std::optional<UnitId> find_unit(std::string_view id) const;  ///< by scenario id

@@ -32,7 +32,7 @@ struct CommandParse {
   std::vector<Command> commands;
   std::vector<Issue> issues;  ///< empty when every command parsed
 };
-/// Parses a command body; checks shape and types only (references are checked on apply).
+/// Parses a command body; checks shape and types only (references and bounds: resolve()).
 CommandParse parse_commands(std::string_view json_text);
 
 /// The scenario as JSON in the file format (defaults made explicit).
