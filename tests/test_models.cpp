@@ -244,7 +244,7 @@ TEST_CASE("under-frequency shedding: stages pick up after their delay, once each
     e->step();
     if (first_below < 0.0 && test::freq(*e, "A") < 49.5) first_below = e->time_s();
     for (const Notice& n : e->take_notices())
-      if (n.kind == "shedding" && shed_at < 0.0) shed_at = n.t_s;
+      if (n.kind == NoticeKind::shedding && shed_at < 0.0) shed_at = n.t_s;
   }
   const AreaState a = e->area(AreaId{0});
   CHECK(a.shed_mw == Approx(60.0));  // two 5 % stages of 600 MW; the 47 Hz stage never picks up
@@ -264,7 +264,7 @@ TEST_CASE("out-of-step: a tie pushed past pull-out slips, trips and leaves two i
   while (!e->finished()) {
     e->step();
     if (e->tie(TieId{0}).in_service) max_angle = std::max(max_angle, std::fabs(e->tie(TieId{0}).angle_deg));
-    for (const Notice& n : e->take_notices()) tripped = tripped || n.kind == "out_of_step";
+    for (const Notice& n : e->take_notices()) tripped = tripped || n.kind == NoticeKind::out_of_step;
   }
   CHECK(tripped);
   CHECK(max_angle > 90.0);
@@ -309,7 +309,7 @@ TEST_CASE("losing the last synchronous unit collapses the area") {
   test::run_until(*e, 2.0);
   CHECK(e->area(AreaId{0}).collapsed);
   bool told = false;
-  for (const Notice& n : e->take_notices()) told = told || n.kind == "collapse";
+  for (const Notice& n : e->take_notices()) told = told || n.kind == NoticeKind::collapse;
   CHECK(told);
 }
 

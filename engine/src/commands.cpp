@@ -5,7 +5,6 @@
 #include <optional>
 #include <variant>
 
-#include "droopline/format.hpp"
 #include "engine_impl.hpp"
 
 namespace droopline {
@@ -142,36 +141,34 @@ ApplyResult Engine::Impl::check(std::span<const Action> cmds) const {
 void Engine::Impl::perform(const Action& action) {
   ensure_outputs();
   const double t = time();
-  std::string text;
+  Notice notice = detail::notice_at(t, NoticeKind::command, action);
   switch (kind_of(action)) {
     case CommandKind::load_step: {
       const LoadStep& c = std::get<LoadStep>(action);
       const std::size_t a = c.area.index;
       areas[a].steps_mw += c.mw;
-      text = "load step " + fmt_num(c.mw) + " MW in area " + def.areas[c.area.index].id;
-      open_disturbance(a, c.mw, kind_of(action), text);
+      open_disturbance(a, c.mw, kind_of(action), notice);
       break;
     }
     case CommandKind::load_ramp: {
       const LoadRamp& c = std::get<LoadRamp>(action);
       const std::size_t a = c.area.index;
       areas[a].ramps.push_back({t, c.over_s, c.mw});
-      text = "load ramp " + fmt_num(c.mw) + " MW over " + fmt_num(c.over_s) + " s in area " + def.areas[c.area.index].id;
-      open_disturbance(a, c.mw, kind_of(action), text);
+      open_disturbance(a, c.mw, kind_of(action), notice);
       break;
     }
     case CommandKind::unit_trip: {
       const UnitTrip& c = std::get<UnitTrip>(action);
       const std::size_t u = c.unit.index;
       const double lost = pm[units[u].slot];
+      notice.value = lost;
       const std::size_t a = units[u].area;
       take_offline(u);
       units[u].tripped = true;
       update_inertia();
       refresh_participants(a);
-      text = "unit " + def.units[c.unit.index].id + " tripped from " + fmt_fixed(lost, 1) + " MW";
       collapse_area_if_dead(a);
-      if (!areas[a].collapsed) open_disturbance(a, lost, kind_of(action), text);
+      if (!areas[a].collapsed) open_disturbance(a, lost, kind_of(action), notice);
       break;
     }
     case CommandKind::unit_start: {
@@ -180,8 +177,7 @@ void Engine::Impl::perform(const Action& action) {
       bring_online(u, c.mw, false);
       update_inertia();
       refresh_participants(units[u].area);
-      text = "unit " + def.units[c.unit.index].id + " started, loading to " + fmt_num(c.mw) + " MW";
-      open_disturbance(units[u].area, -c.mw, kind_of(action), text);
+      open_disturbance(units[u].area, -c.mw, kind_of(action), notice);
       break;
     }
     case CommandKind::setpoint: {
@@ -196,8 +192,6 @@ void Engine::Impl::perform(const Action& action) {
         pset[ur.slot] = c.mw;
         pref0[ur.slot] = c.mw + pagc[ur.slot];
       }
-      text = "setpoint of " + def.units[c.unit.index].id + " to " + fmt_num(c.mw) + " MW" +
-             (c.ramp_mw_per_s ? " at " + fmt_num(*c.ramp_mw_per_s) + " MW/s" : "");
       break;
     }
     case CommandKind::governor: {
@@ -222,15 +216,14 @@ void Engine::Impl::perform(const Action& action) {
       }
       set_governor_gains(u);
       fill_type_params(u);
-      text = "governor of " + def.units[c.unit.index].id + ": droop " + fmt_num(ur.droop) + ", deadband " + fmt_num(ur.deadband_hz) +
-             " Hz " + to_string(ur.deadband) + ", " + to_string(ur.mode);
+      notice.action = GovernorChange{c.unit, ur.droop, ur.deadband_hz, ur.deadband, ur.mode};  // as they now stand
       break;
     }
     case CommandKind::tie_trip: {
       const TieTrip& c = std::get<TieTrip>(action);
       const std::size_t ti = c.tie.index;
-      text = "tie " + def.ties[c.tie.index].id + " tripped carrying " + fmt_fixed(ties[ti].flow, 1) + " MW";
-      trip_tie(ti, "trip of tie " + def.ties[c.tie.index].id);
+      notice.value = ties[ti].flow;
+      trip_tie(ti, action);
       break;
     }
     case CommandKind::tie_close: {
@@ -249,15 +242,13 @@ void Engine::Impl::perform(const Action& action) {
       tr.in_service = true;
       update_topology();
       invalidate_outputs();
-      text = "tie " + def.ties[c.tie.index].id + " closed at " +
-             fmt_fixed((y[na + tr.from] - y[na + tr.to]) * 180.0 / std::numbers::pi, 1) + " deg";
+      notice.value = (y[na + tr.from] - y[na + tr.to]) * 180.0 / std::numbers::pi;
       break;
     }
     case CommandKind::agc: {
       const AgcSwitch& c = std::get<AgcSwitch>(action);
       const std::size_t a = c.area.index;
       areas[a].agc_on = c.enabled;
-      text = std::string("secondary control ") + (c.enabled ? "on" : "off") + " in area " + def.areas[c.area.index].id;
       break;
     }
     case CommandKind::fluctuation: {
@@ -266,14 +257,11 @@ void Engine::Impl::perform(const Action& action) {
       ar.noise_sigma = c.sigma_mw;
       ar.noise_tau = c.tau_s;
       if (c.sigma_mw <= 0.0) ar.noise_mw = 0.0;
-      text = c.sigma_mw > 0.0
-                 ? "load fluctuation " + fmt_num(c.sigma_mw) + " MW (tau " + fmt_num(c.tau_s) + " s) in area " + def.areas[c.area.index].id
-                 : "load fluctuation off in area " + def.areas[c.area.index].id;
       break;
     }
   }
   invalidate_outputs();
-  notices.push_back({t, "command", text});
+  notices.push_back(std::move(notice));
 }
 
 }  // namespace droopline

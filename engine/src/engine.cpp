@@ -21,6 +21,18 @@ const char* to_string(UnitStatus s) {
   return "?";
 }
 
+const char* to_string(NoticeKind k) {
+  switch (k) {
+    case NoticeKind::command: return "command";
+    case NoticeKind::command_refused: return "command_refused";
+    case NoticeKind::out_of_step: return "out_of_step";
+    case NoticeKind::shedding: return "shedding";
+    case NoticeKind::collapse: return "collapse";
+    case NoticeKind::islanded: return "islanded";
+  }
+  return "?";
+}
+
 // -------------------------------------------------------------------- public interface
 
 Engine::Engine(std::unique_ptr<Impl> impl) : impl_(std::move(impl)) {}

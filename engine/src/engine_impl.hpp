@@ -20,6 +20,15 @@
 
 namespace droopline::detail {
 
+/// A notice of `kind` at `t_s`, about `action` when given; the caller fills in the rest.
+inline Notice notice_at(double t_s, NoticeKind kind, std::optional<Action> action = std::nullopt) {
+  Notice n;
+  n.t_s = t_s;
+  n.kind = kind;
+  n.action = std::move(action);
+  return n;
+}
+
 /// Ramp rate standing for "no ramp limit" (MW/s).
 inline constexpr double kNoRamp = 1e300;
 
@@ -211,7 +220,7 @@ struct Engine::Impl : detail::EngineState {
   // protection.cpp
   void check_out_of_step();
   void check_shedding(std::size_t a);
-  void trip_tie(std::size_t t, const std::string& cause);
+  void trip_tie(std::size_t t, const std::optional<Action>& by);
   void collapse_area_if_dead(std::size_t a);
 
   // commands.cpp
@@ -224,7 +233,7 @@ struct Engine::Impl : detail::EngineState {
   ApplyResult apply_checked(std::span<const Action> cmds);
   ApplyResult check(std::span<const Action> cmds) const;
   void perform(const Action& a);
-  void open_disturbance(std::size_t area, double delta, CommandKind kind, const std::string& cause) {
+  void open_disturbance(std::size_t area, double delta, CommandKind kind, const Notice& cause) {
     ensure_outputs();
     metrics.open(*this, area, delta, kind, cause);
   }

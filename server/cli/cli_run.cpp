@@ -123,9 +123,9 @@ int run(const std::string& file, const std::string& out_dir, bool quiet, unsigne
               << (fs::path(out_dir) / "series.csv").string() << " and "
               << (fs::path(out_dir) / "summary.json").string() << "\n";
     for (const Notice& n : notices)
-      if (n.kind != "command") std::cout << "  t=" << fmt_fixed(n.t_s, 2) << " s  " << n.text << "\n";
+      if (n.kind != NoticeKind::command) std::cout << "  t=" << fmt_fixed(n.t_s, 2) << " s  " << describe(def, n) << "\n";
     for (const Disturbance& d : engine.disturbances()) {
-      std::cout << "  disturbance at t=" << fmt_fixed(d.at_s, 2) << " s: " << d.cause << "\n"
+      std::cout << "  disturbance at t=" << fmt_fixed(d.at_s, 2) << " s: " << describe_cause(def, d) << "\n"
                 << "    imbalance " << fmt_fixed(d.delta_mw, 1) << " MW, RoCoF "
                 << opt_text(d.rocof_hz_per_s, 3, " Hz/s") << ", " << (d.zenith ? "zenith " : "nadir ")
                 << opt_text(d.nadir_hz, 3, " Hz")

@@ -61,6 +61,33 @@ struct TieState {
   bool in_service = true;
 };
 
+/// What a notice reports.
+enum class NoticeKind {
+  command,          ///< a command took effect (`action`, `value`)
+  command_refused,  ///< a scenario event was refused by the state checks (`action`, `issues`)
+  out_of_step,      ///< a tie tripped out of step (`tie`, `value`: angle in deg)
+  shedding,         ///< an under-frequency stage shed load (`area`, `stage`, `value`: MW shed)
+  collapse,         ///< an area lost all synchronous inertia (`area`)
+  islanded          ///< a disturbance cause only: a tie trip split the system (`tie`, `area`: the island's
+                    ///< area; `action` set when a command tripped it, absent when out of step)
+};
+/// File and message name of a NoticeKind.
+const char* to_string(NoticeKind k);
+
+/// Something that happened inside the engine (command, refusal, shedding, out-of-step, collapse),
+/// as data: its text is written at the boundary (`describe` in scenario_io.hpp).
+struct Notice {
+  double t_s = 0.0;                       ///< when (s)
+  NoticeKind kind = NoticeKind::command;  ///< what happened
+  std::optional<Action> action;  ///< command, command_refused: the action (governor: every setting as it now stands)
+  std::uint32_t area = 0;        ///< shedding, collapse: the area; islanded: the island's area
+  std::uint32_t tie = 0;         ///< out_of_step, islanded: the tie
+  std::uint32_t stage = 0;       ///< shedding: the stage (0-based)
+  double value = 0.0;  ///< command unit_trip: MW lost, tie_trip: MW carried, tie_close: angle (deg);
+                       ///< out_of_step: angle (deg); shedding: MW shed
+  std::vector<Issue> issues;  ///< command_refused: why
+};
+
 /// One unit's part in a disturbance.
 struct UnitResponse {
   std::uint32_t unit = 0;                   ///< unit index
@@ -73,7 +100,7 @@ struct UnitResponse {
 /// Metrics of one disturbance in one island, filled in as the run goes.
 struct Disturbance {
   CommandKind kind = CommandKind::load_step; ///< first cause
-  std::string cause;                       ///< readable description of every cause at t0
+  std::vector<Notice> causes;              ///< every cause at t0 (`describe_cause` writes them)
   double at_s = 0.0;                       ///< t0 (s)
   std::vector<std::uint32_t> areas;        ///< areas of the island (indices)
   double delta_mw = 0.0;                   ///< imbalance, positive = deficit (MW)
@@ -87,13 +114,6 @@ struct Disturbance {
   double predicted_settling_hz = 0.0;      ///< f0 - delta_mw / sum(beta), limits ignored (Hz)
   std::vector<UnitResponse> units;         ///< every online unit of the island
   bool open = true;                        ///< still collecting (the window has not ended)
-};
-
-/// Something that happened inside the engine (trip, shedding, out-of-step, collapse, command).
-struct Notice {
-  double t_s = 0.0;
-  std::string kind;   ///< `command`, `unit_trip`, `shedding`, `out_of_step`, `collapse`, `limit`, ...
-  std::string text;   ///< one readable line
 };
 
 /// Result of applying (or checking) commands between steps.

@@ -39,6 +39,10 @@ CommandParse parse_commands(std::string_view json_text);
 nlohmann::ordered_json scenario_to_json(const SystemDef& def);
 /// One command as JSON in the file format (no `at_s`).
 nlohmann::ordered_json command_to_json(const Command& command);
+/// The one readable line of a notice: summary.json, the live event log and stream, the command line.
+std::string describe(const SystemDef& def, const Notice& notice);
+/// A disturbance's causes at its start as one line (`; ` between them).
+std::string describe_cause(const SystemDef& def, const Disturbance& disturbance);
 /// One disturbance record as JSON (null for metrics not reached).
 nlohmann::ordered_json disturbance_to_json(const Engine& engine, const Disturbance& d);
 /// The run summary: disturbances, final state, notices and warnings.
