@@ -4,6 +4,7 @@
 
 #include <cmath>
 #include <string>
+#include <vector>
 
 #include "droopline/engine.hpp"
 #include "droopline/scenario_io.hpp"
@@ -68,6 +69,14 @@ inline droopline::Command unit_cmd(droopline::CommandKind kind, const char* unit
   c.unit = unit;
   c.mw = mw;
   return c;
+}
+
+/// Resolves `commands` against the engine's system (ids, static checks) and applies them (state
+/// checks), as the live pipeline does: the issues of whichever step refused them.
+inline droopline::ApplyResult apply(droopline::Engine& e, const std::vector<droopline::Command>& commands) {
+  droopline::Resolved r = droopline::resolve_all(e.system(), commands);
+  if (!r.issues.empty()) return droopline::ApplyResult{false, std::move(r.issues), e.time_s()};
+  return e.apply_all(r.actions);
 }
 
 /// A minimal valid one-area system: one steam unit of `rating` MW at `setpoint` MW.

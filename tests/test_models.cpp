@@ -244,7 +244,7 @@ TEST_CASE("under-frequency shedding: stages pick up after their delay, once each
     e->step();
     if (first_below < 0.0 && test::freq(*e, "A") < 49.5) first_below = e->time_s();
     for (const Notice& n : e->take_notices())
-      if (n.kind == "shedding" && shed_at < 0.0) shed_at = n.t_s;
+      if (n.kind == NoticeKind::shedding && shed_at < 0.0) shed_at = n.t_s;
   }
   const AreaState a = e->area(AreaId{0});
   CHECK(a.shed_mw == Approx(60.0));  // two 5 % stages of 600 MW; the 47 Hz stage never picks up
@@ -264,7 +264,7 @@ TEST_CASE("out-of-step: a tie pushed past pull-out slips, trips and leaves two i
   while (!e->finished()) {
     e->step();
     if (e->tie(TieId{0}).in_service) max_angle = std::max(max_angle, std::fabs(e->tie(TieId{0}).angle_deg));
-    for (const Notice& n : e->take_notices()) tripped = tripped || n.kind == "out_of_step";
+    for (const Notice& n : e->take_notices()) tripped = tripped || n.kind == NoticeKind::out_of_step;
   }
   CHECK(tripped);
   CHECK(max_angle > 90.0);
@@ -309,7 +309,7 @@ TEST_CASE("losing the last synchronous unit collapses the area") {
   test::run_until(*e, 2.0);
   CHECK(e->area(AreaId{0}).collapsed);
   bool told = false;
-  for (const Notice& n : e->take_notices()) told = told || n.kind == "collapse";
+  for (const Notice& n : e->take_notices()) told = told || n.kind == NoticeKind::collapse;
   CHECK(told);
 }
 
@@ -332,15 +332,17 @@ TEST_CASE("commands: a batch applies all or nothing, and stale ids are errors") 
   SystemDef d = test::one_area(50.0, 500.0, 300.0);
   auto e = test::make(d);
   std::vector<Command> batch{load_step("A", 10.0), load_step("nowhere", 5.0)};
-  ApplyResult r = e->apply_all(batch);
+  ApplyResult r = test::apply(*e, batch);
   CHECK_FALSE(r.ok);
-  CHECK(r.error == "commands[1].area: unknown area \"nowhere\"");
+  REQUIRE(r.issues.size() == 1);
+  CHECK(r.issues[0].text() == "commands[1].area: unknown area \"nowhere\"");
   test::run_until(*e, 5.0);
   CHECK(test::freq(*e, "A") == Approx(50.0).margin(1e-12));  // the valid one was not applied
-  ApplyResult twice = e->apply_all(std::vector<Command>{unit_cmd(CommandKind::unit_trip, "G1"),
-                                                        unit_cmd(CommandKind::unit_trip, "G1")});
-  CHECK(twice.error == "commands[1].unit: unit \"G1\" is not online");
-  ApplyResult ok = e->apply(load_step("A", 10.0));
+  ApplyResult twice =
+      test::apply(*e, {unit_cmd(CommandKind::unit_trip, "G1"), unit_cmd(CommandKind::unit_trip, "G1")});
+  REQUIRE(twice.issues.size() == 1);
+  CHECK(twice.issues[0].text() == "commands[1].unit: unit \"G1\" is not online");
+  ApplyResult ok = test::apply(*e, {load_step("A", 10.0)});
   CHECK(ok.ok);
   CHECK(ok.at_s == Approx(5.0));
   CHECK_THROWS_AS(e->area(AreaId{7}), std::out_of_range);
@@ -447,13 +449,13 @@ TEST_CASE("governor commands: droop change reshapes the sharing, mode change is 
   iso.kind = CommandKind::governor;
   iso.unit = "G1";
   iso.mode = GovernorMode::isochronous;
-  REQUIRE(e->apply(iso).ok);
+  REQUIRE(test::apply(*e, {iso}).ok);
   test::run_until(*e, 350.0);  // the integrator's loop time constant is about 30 s here
   CHECK(test::freq(*e, "A") == Approx(50.0).margin(0.002));
   const double before = test::power(*e, "G1");
   Command back = iso;
   back.mode = GovernorMode::droop;
-  REQUIRE(e->apply(back).ok);
+  REQUIRE(test::apply(*e, {back}).ok);
   CHECK(e->unit(*e->find_unit("G1")).setpoint_mw > 330.0);  // took the integrator's output
   e->step();
   CHECK(test::power(*e, "G1") == Approx(before).margin(1e-3));
@@ -476,7 +478,7 @@ TEST_CASE("secondary control can be switched off and on by command") {
   CHECK(test::freq(*e, "A") < 49.95);  // primary control only: a steady offset remains
   Command on = off;
   on.enabled = true;
-  REQUIRE(e->apply(on).ok);
+  REQUIRE(test::apply(*e, {on}).ok);
   e->run();
   CHECK(test::freq(*e, "A") == Approx(50.0).margin(0.002));
 }

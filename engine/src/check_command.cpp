@@ -2,6 +2,7 @@
 // engine's live checks (Engine::check_all), so a bound is written once.
 #include <algorithm>
 #include <cmath>
+#include <iterator>
 
 #include "checker.hpp"
 
@@ -117,19 +118,63 @@ void check_command(Checker& ck, const SystemDef& def, const Command& c, const st
   }
 }
 
+Action to_action(const SystemIndex& index, const Command& c) {
+  auto area = [&] { return AreaId{static_cast<std::uint32_t>(index.areas.find(c.area)->second)}; };
+  auto unit = [&] { return UnitId{static_cast<std::uint32_t>(index.units.find(c.unit)->second)}; };
+  auto tie = [&] { return TieId{static_cast<std::uint32_t>(index.ties.find(c.tie)->second)}; };
+  switch (c.kind) {
+    case CommandKind::load_step: return LoadStep{area(), c.mw};
+    case CommandKind::load_ramp: return LoadRamp{area(), c.mw, c.over_s};
+    case CommandKind::unit_trip: return UnitTrip{unit()};
+    case CommandKind::unit_start: return UnitStart{unit(), c.mw};
+    case CommandKind::setpoint: return Setpoint{unit(), c.mw, c.ramp_mw_per_s};
+    case CommandKind::governor: return GovernorChange{unit(), c.droop, c.deadband_hz, c.deadband, c.mode};
+    case CommandKind::tie_trip: return TieTrip{tie()};
+    case CommandKind::tie_close: return TieClose{tie()};
+    case CommandKind::agc: return AgcSwitch{area(), c.enabled};
+    case CommandKind::fluctuation: return Fluctuation{area(), c.sigma_mw, c.tau_s};
+  }
+  return LoadStep{area(), c.mw};
+}
+
 }  // namespace droopline::detail
 
 namespace droopline {
 
-std::vector<Issue> validate_command(const SystemDef& def, const Command& command, const std::string& path) {
-  std::vector<Issue> out;
-  detail::Checker ck(out);
-  detail::IdIndex areas, units, ties;
-  for (std::size_t i = 0; i < def.areas.size(); ++i) areas.emplace(def.areas[i].id, i);
-  for (std::size_t i = 0; i < def.units.size(); ++i) units.emplace(def.units[i].id, i);
-  for (std::size_t i = 0; i < def.ties.size(); ++i) ties.emplace(def.ties[i].id, i);
-  detail::check_command(ck, def, command, path, areas, units, ties, detail::area_sizes(def, areas));
+namespace {
+template <class Id>
+std::optional<Id> find_id(const SystemIndex::Ids& ids, std::string_view id) {
+  auto it = ids.find(id);
+  if (it == ids.end()) return std::nullopt;
+  return Id{static_cast<std::uint32_t>(it->second)};
+}
+}  // namespace
+
+std::optional<AreaId> SystemIndex::area(std::string_view id) const { return find_id<AreaId>(areas, id); }
+std::optional<UnitId> SystemIndex::unit(std::string_view id) const { return find_id<UnitId>(units, id); }
+std::optional<TieId> SystemIndex::tie(std::string_view id) const { return find_id<TieId>(ties, id); }
+
+std::optional<Action> resolve(const CheckedSystem& system, const Command& command, const std::string& path,
+                              std::vector<Issue>& issues) {
+  std::vector<Issue> found;
+  detail::Checker ck(found);
+  const SystemIndex& ix = system.index();
+  detail::check_command(ck, system.def(), command, path, ix.areas, ix.units, ix.ties, ix.area_size_mw);
+  const bool ok = found.empty();
+  issues.insert(issues.end(), std::make_move_iterator(found.begin()), std::make_move_iterator(found.end()));
+  if (!ok) return std::nullopt;
+  return detail::to_action(ix, command);
+}
+
+Resolved resolve_all(const CheckedSystem& system, std::span<const Command> commands) {
+  Resolved out;
+  for (std::size_t i = 0; i < commands.size(); ++i) {
+    const std::string path = commands.size() == 1 ? "command" : "commands[" + std::to_string(i) + "]";
+    if (auto a = resolve(system, commands[i], path, out.issues)) out.actions.push_back(std::move(*a));
+  }
+  if (!out.issues.empty()) out.actions.clear();
   return out;
 }
 
 }  // namespace droopline
+

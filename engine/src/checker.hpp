@@ -111,7 +111,7 @@ class Checker {
 };
 
 /// Dense index of every id of one list.
-using IdIndex = std::map<std::string, std::size_t>;
+using IdIndex = SystemIndex::Ids;
 
 /// The size of each area (MW): the larger of its demand and its units' ratings.
 std::vector<double> area_sizes(const SystemDef& def, const IdIndex& areas);
@@ -120,5 +120,8 @@ std::vector<double> area_sizes(const SystemDef& def, const IdIndex& areas);
 /// against a new droop. The one checker the loader's events and the live commands share.
 void check_command(Checker& ck, const SystemDef& def, const Command& c, const std::string& p, const IdIndex& areas,
                    const IdIndex& units, const IdIndex& ties, const std::vector<double>& area_size_mw);
+
+/// The typed form of a command that passed check_command against `index` (ids looked up only).
+Action to_action(const SystemIndex& index, const Command& c);
 
 }  // namespace droopline::detail

@@ -2,8 +2,9 @@
 // check_command that the loader shares), and their effect.
 #include <cmath>
 #include <numbers>
+#include <optional>
+#include <variant>
 
-#include "droopline/format.hpp"
 #include "engine_impl.hpp"
 
 namespace droopline {
@@ -11,44 +12,63 @@ namespace {
 
 constexpr double kTwoPi = 2.0 * std::numbers::pi;
 
-// Dense index of a scenario id (the count when absent); commands are validated first.
-template <class T>
-std::size_t index_of(const std::vector<T>& items, const std::string& id) {
-  for (std::size_t i = 0; i < items.size(); ++i)
-    if (items[i].id == id) return i;
-  return items.size();
+// The area of a command that names one (load_step, load_ramp, agc, fluctuation).
+std::size_t area_of(const Action& action) {
+  return std::visit(
+      [](const auto& c) -> std::size_t {
+        if constexpr (requires { c.area; })
+          return c.area.index;
+        else
+          return 0;
+      },
+      action);
 }
 
 }  // namespace
 
-std::size_t Engine::Impl::unit_idx(const std::string& id) const { return index_of(def.units, id); }
-std::size_t Engine::Impl::area_idx(const std::string& id) const { return index_of(def.areas, id); }
-std::size_t Engine::Impl::tie_idx(const std::string& id) const { return index_of(def.ties, id); }
-
-std::string Engine::Impl::dynamic_error(const Command& c, Shadow& sh, const std::string& path) const {
-  switch (c.kind) {
+std::optional<Issue> Engine::Impl::dynamic_error(const Action& action, Shadow& sh, const std::string& path) const {
+  // Ids come resolved against this engine's system; one from another is an error, not a crash.
+  std::optional<Issue> stale = std::visit(
+      [&](const auto& c) -> std::optional<Issue> {
+        auto out_of = [&](const char* field, std::size_t index, std::size_t count) -> std::optional<Issue> {
+          if (index < count) return std::nullopt;
+          return Issue{path + "." + field, std::string("no ") + field + " with index " + std::to_string(index)};
+        };
+        if constexpr (requires { c.area; }) return out_of("area", c.area.index, na);
+        if constexpr (requires { c.unit; }) return out_of("unit", c.unit.index, nu);
+        if constexpr (requires { c.tie; }) return out_of("tie", c.tie.index, nt);
+        return std::nullopt;
+      },
+      action);
+  if (stale) return stale;
+  auto unit_issue = [&](std::size_t u, const std::string& what) {
+    return Issue{path + ".unit", "unit \"" + def.units[u].id + "\" " + what};
+  };
+  auto tie_issue = [&](const std::string& message) { return Issue{path + ".tie", message}; };
+  switch (kind_of(action)) {
     case CommandKind::unit_trip: {
-      const std::size_t u = unit_idx(c.unit);
-      if (!sh.unit_online[u]) return path + ".unit: unit \"" + c.unit + "\" is not online";
+      const std::size_t u = std::get<UnitTrip>(action).unit.index;
+      if (!sh.unit_online[u]) return unit_issue(u, "is not online");
       sh.unit_online[u] = false;
       break;
     }
     case CommandKind::unit_start: {
-      const std::size_t u = unit_idx(c.unit);
-      if (sh.unit_online[u]) return path + ".unit: unit \"" + c.unit + "\" is already online";
+      const std::size_t u = std::get<UnitStart>(action).unit.index;
+      if (sh.unit_online[u]) return unit_issue(u, "is already online");
       if (areas[units[u].area].collapsed)
-        return path + ".unit: area \"" + def.areas[units[u].area].id + "\" has collapsed";
+        return Issue{path + ".unit", "area \"" + def.areas[units[u].area].id + "\" has collapsed"};
       sh.unit_online[u] = true;
       break;
     }
     case CommandKind::setpoint: {
-      const std::size_t u = unit_idx(c.unit);
-      if (!sh.unit_online[u]) return path + ".unit: unit \"" + c.unit + "\" is not online";
+      const std::size_t u = std::get<Setpoint>(action).unit.index;
+      if (!sh.unit_online[u]) return unit_issue(u, "is not online");
       break;
     }
     case CommandKind::governor: {
-      const std::size_t u = unit_idx(c.unit);
-      if (!sh.unit_online[u]) return path + ".unit: unit \"" + c.unit + "\" is not online";
+      const GovernorChange& c = std::get<GovernorChange>(action);
+      const std::size_t u = c.unit.index;
+      if (!sh.unit_online[u]) return unit_issue(u, "is not online");
       if (c.droop) {
         // With the droops as they are now (earlier commands included), the area's frequency
         // loop must stay slow enough for the fixed step: M/beta at least five steps.
@@ -59,21 +79,21 @@ std::string Engine::Impl::dynamic_error(const Command& c, Shadow& sh, const std:
           if (units[v].area == a && sh.unit_online[v] && sh.droop[v] > 0.0)
             beta += def.units[v].rating_mw / (sh.droop[v] * f0);
         if (std::string why = droop_step_problem(*c.droop, def.areas[a].id, areas[a].m, beta, h); !why.empty())
-          return path + ".droop: " + why;
+          return Issue{path + ".droop", why};
       }
       break;
     }
     case CommandKind::tie_trip: {
-      const std::size_t t = tie_idx(c.tie);
-      if (!sh.tie_in[t]) return path + ".tie: tie \"" + c.tie + "\" is already open";
+      const std::size_t t = std::get<TieTrip>(action).tie.index;
+      if (!sh.tie_in[t]) return tie_issue("tie \"" + def.ties[t].id + "\" is already open");
       sh.tie_in[t] = false;
       break;
     }
     case CommandKind::tie_close: {
-      const std::size_t t = tie_idx(c.tie);
-      if (sh.tie_in[t]) return path + ".tie: tie \"" + c.tie + "\" is already in service";
+      const std::size_t t = std::get<TieClose>(action).tie.index;
+      if (sh.tie_in[t]) return tie_issue("tie \"" + def.ties[t].id + "\" is already in service");
       if (areas[ties[t].from].collapsed || areas[ties[t].to].collapsed)
-        return path + ".tie: an end of tie \"" + c.tie + "\" has collapsed";
+        return tie_issue("an end of tie \"" + def.ties[t].id + "\" has collapsed");
       sh.tie_in[t] = true;
       break;
     }
@@ -81,12 +101,12 @@ std::string Engine::Impl::dynamic_error(const Command& c, Shadow& sh, const std:
     case CommandKind::load_ramp:
     case CommandKind::agc:
     case CommandKind::fluctuation: {
-      const std::size_t a = area_idx(c.area);
-      if (areas[a].collapsed) return path + ".area: area \"" + c.area + "\" has collapsed";
+      const std::size_t a = area_of(action);
+      if (areas[a].collapsed) return Issue{path + ".area", "area \"" + def.areas[a].id + "\" has collapsed"};
       break;
     }
   }
-  return {};
+  return std::nullopt;
 }
 
 Engine::Impl::Shadow Engine::Impl::shadow() const {
@@ -99,91 +119,84 @@ Engine::Impl::Shadow Engine::Impl::shadow() const {
   return sh;
 }
 
-ApplyResult Engine::Impl::apply_checked(std::span<const Command> cmds) {
+ApplyResult Engine::Impl::apply_checked(std::span<const Action> cmds) {
   ApplyResult r = check(cmds);
   if (!r.ok) return r;
-  for (const Command& c : cmds) perform(c);
+  for (const Action& c : cmds) perform(c);
   return r;
 }
 
-ApplyResult Engine::Impl::check(std::span<const Command> cmds) const {
+ApplyResult Engine::Impl::check(std::span<const Action> cmds) const {
   Shadow sh = shadow();
-  std::vector<std::string> errors;
-  for (std::size_t i = 0; i < cmds.size(); ++i) {
-    const std::string path = cmds.size() == 1 ? "command" : "commands[" + std::to_string(i) + "]";
-    auto issues = validate_command(def, cmds[i], path);
-    for (const Issue& is : issues)
-      if (!is.warning) errors.push_back(is.text());
-    if (issues.empty()) {
-      std::string dyn = dynamic_error(cmds[i], sh, path);
-      if (!dyn.empty()) errors.push_back(dyn);
-    }
-  }
   ApplyResult r;
   r.at_s = time();
-  for (std::size_t i = 0; i < errors.size(); ++i) r.error += (i ? "; " : "") + errors[i];
-  r.ok = errors.empty();
+  for (std::size_t i = 0; i < cmds.size(); ++i) {
+    const std::string path = cmds.size() == 1 ? "command" : "commands[" + std::to_string(i) + "]";
+    if (std::optional<Issue> issue = dynamic_error(cmds[i], sh, path)) r.issues.push_back(std::move(*issue));
+  }
+  r.ok = r.issues.empty();
   return r;
 }
 
-void Engine::Impl::perform(const Command& c) {
+void Engine::Impl::perform(const Action& action) {
   ensure_outputs();
   const double t = time();
-  std::string text;
-  switch (c.kind) {
+  Notice notice = detail::notice_at(t, NoticeKind::command, action);
+  switch (kind_of(action)) {
     case CommandKind::load_step: {
-      const std::size_t a = area_idx(c.area);
+      const LoadStep& c = std::get<LoadStep>(action);
+      const std::size_t a = c.area.index;
       areas[a].steps_mw += c.mw;
-      text = "load step " + fmt_num(c.mw) + " MW in area " + c.area;
-      open_disturbance(a, c.mw, c.kind, text);
+      open_disturbance(a, c.mw, kind_of(action), notice);
       break;
     }
     case CommandKind::load_ramp: {
-      const std::size_t a = area_idx(c.area);
+      const LoadRamp& c = std::get<LoadRamp>(action);
+      const std::size_t a = c.area.index;
       areas[a].ramps.push_back({t, c.over_s, c.mw});
-      text = "load ramp " + fmt_num(c.mw) + " MW over " + fmt_num(c.over_s) + " s in area " + c.area;
-      open_disturbance(a, c.mw, c.kind, text);
+      open_disturbance(a, c.mw, kind_of(action), notice);
       break;
     }
     case CommandKind::unit_trip: {
-      const std::size_t u = unit_idx(c.unit);
+      const UnitTrip& c = std::get<UnitTrip>(action);
+      const std::size_t u = c.unit.index;
       const double lost = pm[units[u].slot];
+      notice.value = lost;
       const std::size_t a = units[u].area;
       take_offline(u);
       units[u].tripped = true;
       update_inertia();
       refresh_participants(a);
-      text = "unit " + c.unit + " tripped from " + fmt_fixed(lost, 1) + " MW";
       collapse_area_if_dead(a);
-      if (!areas[a].collapsed) open_disturbance(a, lost, c.kind, text);
+      if (!areas[a].collapsed) open_disturbance(a, lost, kind_of(action), notice);
       break;
     }
     case CommandKind::unit_start: {
-      const std::size_t u = unit_idx(c.unit);
+      const UnitStart& c = std::get<UnitStart>(action);
+      const std::size_t u = c.unit.index;
       bring_online(u, c.mw, false);
       update_inertia();
       refresh_participants(units[u].area);
-      text = "unit " + c.unit + " started, loading to " + fmt_num(c.mw) + " MW";
-      open_disturbance(units[u].area, -c.mw, c.kind, text);
+      open_disturbance(units[u].area, -c.mw, kind_of(action), notice);
       break;
     }
     case CommandKind::setpoint: {
-      detail::UnitRt& ur = units[unit_idx(c.unit)];
+      const Setpoint& c = std::get<Setpoint>(action);
+      detail::UnitRt& ur = units[c.unit.index];
       ur.target_mw = c.mw;
       if (c.ramp_mw_per_s) {
-        if (ur.target_rate <= 0.0) ramping.push_back(unit_idx(c.unit));
+        if (ur.target_rate <= 0.0) ramping.push_back(c.unit.index);
         ur.target_rate = *c.ramp_mw_per_s;
       } else {
         ur.target_rate = 0.0;
         pset[ur.slot] = c.mw;
         pref0[ur.slot] = c.mw + pagc[ur.slot];
       }
-      text = "setpoint of " + c.unit + " to " + fmt_num(c.mw) + " MW" +
-             (c.ramp_mw_per_s ? " at " + fmt_num(*c.ramp_mw_per_s) + " MW/s" : "");
       break;
     }
     case CommandKind::governor: {
-      const std::size_t u = unit_idx(c.unit);
+      const GovernorChange& c = std::get<GovernorChange>(action);
+      const std::size_t u = c.unit.index;
       detail::UnitRt& ur = units[u];
       if (c.droop) ur.droop = *c.droop;
       if (c.deadband_hz) ur.deadband_hz = *c.deadband_hz;
@@ -203,18 +216,19 @@ void Engine::Impl::perform(const Command& c) {
       }
       set_governor_gains(u);
       fill_type_params(u);
-      text = "governor of " + c.unit + ": droop " + fmt_num(ur.droop) + ", deadband " + fmt_num(ur.deadband_hz) +
-             " Hz " + to_string(ur.deadband) + ", " + to_string(ur.mode);
+      notice.action = GovernorChange{c.unit, ur.droop, ur.deadband_hz, ur.deadband, ur.mode};  // as they now stand
       break;
     }
     case CommandKind::tie_trip: {
-      const std::size_t ti = tie_idx(c.tie);
-      text = "tie " + c.tie + " tripped carrying " + fmt_fixed(ties[ti].flow, 1) + " MW";
-      trip_tie(ti, "trip of tie " + c.tie);
+      const TieTrip& c = std::get<TieTrip>(action);
+      const std::size_t ti = c.tie.index;
+      notice.value = ties[ti].flow;
+      trip_tie(ti, action);
       break;
     }
     case CommandKind::tie_close: {
-      const std::size_t ti = tie_idx(c.tie);
+      const TieClose& c = std::get<TieClose>(action);
+      const std::size_t ti = c.tie.index;
       detail::TieRt& tr = ties[ti];
       // Closing between islands: shift the joining island's angles by whole turns so the
       // tracked (unwrapped) difference starts within +/-180 degrees.
@@ -228,29 +242,26 @@ void Engine::Impl::perform(const Command& c) {
       tr.in_service = true;
       update_topology();
       invalidate_outputs();
-      text = "tie " + c.tie + " closed at " +
-             fmt_fixed((y[na + tr.from] - y[na + tr.to]) * 180.0 / std::numbers::pi, 1) + " deg";
+      notice.value = (y[na + tr.from] - y[na + tr.to]) * 180.0 / std::numbers::pi;
       break;
     }
     case CommandKind::agc: {
-      const std::size_t a = area_idx(c.area);
+      const AgcSwitch& c = std::get<AgcSwitch>(action);
+      const std::size_t a = c.area.index;
       areas[a].agc_on = c.enabled;
-      text = std::string("secondary control ") + (c.enabled ? "on" : "off") + " in area " + c.area;
       break;
     }
     case CommandKind::fluctuation: {
-      detail::AreaRt& ar = areas[area_idx(c.area)];
+      const Fluctuation& c = std::get<Fluctuation>(action);
+      detail::AreaRt& ar = areas[c.area.index];
       ar.noise_sigma = c.sigma_mw;
       ar.noise_tau = c.tau_s;
       if (c.sigma_mw <= 0.0) ar.noise_mw = 0.0;
-      text = c.sigma_mw > 0.0
-                 ? "load fluctuation " + fmt_num(c.sigma_mw) + " MW (tau " + fmt_num(c.tau_s) + " s) in area " + c.area
-                 : "load fluctuation off in area " + c.area;
       break;
     }
   }
   invalidate_outputs();
-  notices.push_back({t, "command", text});
+  notices.push_back(std::move(notice));
 }
 
 }  // namespace droopline

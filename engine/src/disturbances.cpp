@@ -41,7 +41,7 @@ double DisturbanceTracker::coi_deviation(const EngineState& e, const std::vector
 }
 
 void DisturbanceTracker::open(const EngineState& e, std::size_t area, double delta, CommandKind kind,
-                              const std::string& cause) {
+                              const Notice& cause) {
   std::vector<std::uint32_t> ids;
   for (std::size_t b = 0; b < e.na; ++b)
     if (e.areas[b].island == e.areas[area].island && !e.areas[b].collapsed)
@@ -51,7 +51,7 @@ void DisturbanceTracker::open(const EngineState& e, std::size_t area, double del
     Disturbance& d = records_[w.record];
     if (w.n0 == e.n && d.areas == ids) {
       d.delta_mw += delta;
-      d.cause += "; " + cause;
+      d.causes.push_back(cause);
       finish_prediction(e, d, w);
       return;
     }
@@ -70,7 +70,7 @@ void DisturbanceTracker::open(const EngineState& e, std::size_t area, double del
   }
   Disturbance d;
   d.kind = kind;
-  d.cause = cause;
+  d.causes.push_back(cause);
   d.at_s = e.time();
   d.areas = ids;
   d.delta_mw = delta;

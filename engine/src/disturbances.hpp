@@ -21,7 +21,7 @@ class DisturbanceTracker {
 
   /// Opens a record for an imbalance of `delta_mw` (positive = deficit) in the island of `area`,
   /// or adds it to one opened at the same instant in the same island.
-  void open(const EngineState& e, std::size_t area, double delta_mw, CommandKind kind, const std::string& cause);
+  void open(const EngineState& e, std::size_t area, double delta_mw, CommandKind kind, const Notice& cause);
   /// True when the next update reads unit outputs (a 10 s or 30 s response is due).
   bool wants_outputs(std::int64_t n) const;
   /// Feeds the state after step `n`: history, extremes, averaging windows, responses.

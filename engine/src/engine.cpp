@@ -21,13 +21,25 @@ const char* to_string(UnitStatus s) {
   return "?";
 }
 
+const char* to_string(NoticeKind k) {
+  switch (k) {
+    case NoticeKind::command: return "command";
+    case NoticeKind::command_refused: return "command_refused";
+    case NoticeKind::out_of_step: return "out_of_step";
+    case NoticeKind::shedding: return "shedding";
+    case NoticeKind::collapse: return "collapse";
+    case NoticeKind::islanded: return "islanded";
+  }
+  return "?";
+}
+
 // -------------------------------------------------------------------- public interface
 
 Engine::Engine(std::unique_ptr<Impl> impl) : impl_(std::move(impl)) {}
 Engine::~Engine() = default;
 
 std::unique_ptr<Engine> Engine::create(const CheckedSystem& system) {
-  return std::unique_ptr<Engine>(new Engine(std::make_unique<Impl>(system.def(), system.flows())));
+  return std::unique_ptr<Engine>(new Engine(std::make_unique<Impl>(system)));
 }
 
 std::unique_ptr<Engine> Engine::clone() const {
@@ -46,37 +58,20 @@ bool Engine::finished() const { return impl_->n >= impl_->n_total; }
 
 void Engine::close_disturbances() { impl_->metrics.close_all(); }
 
-ApplyResult Engine::apply(const Command& command) {
-  return impl_->apply_checked(std::span<const Command>(&command, 1));
-}
+ApplyResult Engine::apply(const Action& action) { return impl_->apply_checked(std::span<const Action>(&action, 1)); }
 
-ApplyResult Engine::apply_all(std::span<const Command> commands) {
-  return impl_->apply_checked(commands);
-}
+ApplyResult Engine::apply_all(std::span<const Action> actions) { return impl_->apply_checked(actions); }
 
-ApplyResult Engine::check_all(std::span<const Command> commands) const {
-  return impl_->check(commands);
-}
+ApplyResult Engine::check_all(std::span<const Action> actions) const { return impl_->check(actions); }
 
 double Engine::time_s() const { return impl_->time(); }
 std::int64_t Engine::step_index() const { return impl_->n; }
 const SystemDef& Engine::def() const { return impl_->def; }
+const CheckedSystem& Engine::system() const { return impl_->system; }
 
-std::optional<AreaId> Engine::find_area(std::string_view id) const {
-  for (std::size_t a = 0; a < impl_->na; ++a)
-    if (impl_->def.areas[a].id == id) return AreaId{static_cast<std::uint32_t>(a)};
-  return std::nullopt;
-}
-std::optional<UnitId> Engine::find_unit(std::string_view id) const {
-  for (std::size_t u = 0; u < impl_->nu; ++u)
-    if (impl_->def.units[u].id == id) return UnitId{static_cast<std::uint32_t>(u)};
-  return std::nullopt;
-}
-std::optional<TieId> Engine::find_tie(std::string_view id) const {
-  for (std::size_t t = 0; t < impl_->nt; ++t)
-    if (impl_->def.ties[t].id == id) return TieId{static_cast<std::uint32_t>(t)};
-  return std::nullopt;
-}
+std::optional<AreaId> Engine::find_area(std::string_view id) const { return impl_->system.index().area(id); }
+std::optional<UnitId> Engine::find_unit(std::string_view id) const { return impl_->system.index().unit(id); }
+std::optional<TieId> Engine::find_tie(std::string_view id) const { return impl_->system.index().tie(id); }
 
 AreaState Engine::area(AreaId id) const {
   if (id.index >= impl_->na) throw std::out_of_range("no area with index " + std::to_string(id.index));

@@ -7,6 +7,7 @@
 #include <array>
 #include <cstdint>
 #include <limits>
+#include <optional>
 #include <span>
 #include <string>
 #include <utility>
@@ -18,6 +19,15 @@
 #include "noise.hpp"
 
 namespace droopline::detail {
+
+/// A notice of `kind` at `t_s`, about `action` when given; the caller fills in the rest.
+inline Notice notice_at(double t_s, NoticeKind kind, std::optional<Action> action = std::nullopt) {
+  Notice n;
+  n.t_s = t_s;
+  n.kind = kind;
+  n.action = std::move(action);
+  return n;
+}
 
 /// Ramp rate standing for "no ramp limit" (MW/s).
 inline constexpr double kNoRamp = 1e300;
@@ -99,7 +109,12 @@ struct TieRt {
 /// Everything the engine holds. Units live in slots sorted by (type, area, mode); per-slot arrays
 /// are indexed by slot, `units` by file order.
 struct EngineState {
-  SystemDef def;
+  /// Starts from a checked system (shared, never changed): `def` refers into it.
+  explicit EngineState(const CheckedSystem& checked) : system(checked), def(system.def()) {}
+  EngineState(const EngineState&) = default;  // a clone shares the checked system
+
+  CheckedSystem system;
+  const SystemDef& def;
   double f0 = 50.0, h = 0.01;
   double steps_per_s = 0.0;  // 1/h when that is a whole number (see time())
   std::int64_t n = 0, n_total = 0;
@@ -140,7 +155,7 @@ struct EngineState {
   std::vector<double> saved_y;
 
   // Events, notices and metrics
-  std::vector<std::pair<std::int64_t, Command>> schedule;
+  std::vector<std::pair<std::int64_t, Action>> schedule;
   std::size_t next_event = 0;
   std::vector<Notice> notices;
   DisturbanceTracker metrics;
@@ -168,7 +183,7 @@ struct Engine::Impl : detail::EngineState {
   static constexpr std::size_t kParallelMinUnits = 4096;
 
   // layout.cpp
-  Impl(const SystemDef& d, const InitialFlows& flows);
+  explicit Impl(const CheckedSystem& checked);
   void fill_type_params(std::size_t u);
   void rebuild_segments();
   void rebuild_pieces();
@@ -205,7 +220,7 @@ struct Engine::Impl : detail::EngineState {
   // protection.cpp
   void check_out_of_step();
   void check_shedding(std::size_t a);
-  void trip_tie(std::size_t t, const std::string& cause);
+  void trip_tie(std::size_t t, const std::optional<Action>& by);
   void collapse_area_if_dead(std::size_t a);
 
   // commands.cpp
@@ -213,15 +228,12 @@ struct Engine::Impl : detail::EngineState {
     std::vector<bool> unit_online, tie_in;
     std::vector<double> droop;  // as the commands checked so far would leave them
   };
-  std::size_t unit_idx(const std::string& id) const;
-  std::size_t area_idx(const std::string& id) const;
-  std::size_t tie_idx(const std::string& id) const;
-  std::string dynamic_error(const Command& c, Shadow& sh, const std::string& path) const;
+  std::optional<Issue> dynamic_error(const Action& a, Shadow& sh, const std::string& path) const;
   Shadow shadow() const;
-  ApplyResult apply_checked(std::span<const Command> cmds);
-  ApplyResult check(std::span<const Command> cmds) const;
-  void perform(const Command& c);
-  void open_disturbance(std::size_t area, double delta, CommandKind kind, const std::string& cause) {
+  ApplyResult apply_checked(std::span<const Action> cmds);
+  ApplyResult check(std::span<const Action> cmds) const;
+  void perform(const Action& a);
+  void open_disturbance(std::size_t area, double delta, CommandKind kind, const Notice& cause) {
     ensure_outputs();
     metrics.open(*this, area, delta, kind, cause);
   }

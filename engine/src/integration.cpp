@@ -94,9 +94,13 @@ double Engine::Impl::extra_load(const detail::AreaRt& ar, double t) const {
 
 void Engine::Impl::step() {
   while (next_event < schedule.size() && schedule[next_event].first <= n) {
-    const Command& c = schedule[next_event].second;
-    ApplyResult r = apply_checked(std::span<const Command>(&c, 1));
-    if (!r.ok) notices.push_back({time(), "command_refused", r.error});
+    const Action& c = schedule[next_event].second;
+    ApplyResult r = apply_checked(std::span<const Action>(&c, 1));
+    if (!r.ok) {
+      Notice refused = detail::notice_at(time(), NoticeKind::command_refused, c);
+      refused.issues = std::move(r.issues);
+      notices.push_back(std::move(refused));
+    }
     ++next_event;
   }
   const double t0 = time();

@@ -15,8 +15,10 @@ using detail::kNoRamp;
 using detail::Segment;
 using detail::UnitRt;
 
-Engine::Impl::Impl(const SystemDef& d, const InitialFlows& flows) {
-  def = d;
+Engine::Impl::Impl(const CheckedSystem& checked) : EngineState(checked) {
+  const InitialFlows& flows = system.flows();
+  // Ids are looked up in the checked system's index, here at creation only.
+  auto area_idx = [&ids = system.index().areas](const std::string& id) { return ids.find(id)->second; };
   f0 = def.nominal_hz;
   h = def.step_s;
   n_total = std::llround(def.duration_s / h);
@@ -132,8 +134,7 @@ Engine::Impl::Impl(const SystemDef& d, const InitialFlows& flows) {
   for (auto* v : {&dfv, &thv, &gen, &net_out, &out_gen, &out_net, &lc0, &lc1, &rocof}) v->assign(na, 0.0);
   metrics = detail::DisturbanceTracker(na, h);
 
-  for (std::size_t i = 0; i < def.events.size(); ++i)
-    schedule.emplace_back(std::llround(def.events[i].at_s / h), def.events[i].command);
+  for (const TimedAction& e : system.events()) schedule.emplace_back(std::llround(e.at_s / h), e.action);
   std::stable_sort(schedule.begin(), schedule.end(), [](const auto& a, const auto& b) { return a.first < b.first; });
   post_step();
 }

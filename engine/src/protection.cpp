@@ -3,7 +3,6 @@
 #include <cmath>
 #include <numbers>
 
-#include "droopline/format.hpp"
 #include "engine_impl.hpp"
 
 namespace droopline {
@@ -16,10 +15,11 @@ void Engine::Impl::check_out_of_step() {
       const detail::TieRt& tr = ties[t_idx];
       const double ang = y[na + tr.from] - y[na + tr.to];
       if (std::fabs(ang) <= tr.trip_rad) continue;
-      notices.push_back({time(), "out_of_step",
-                         "tie " + def.ties[t_idx].id + " tripped out of step at " +
-                             fmt_fixed(ang * 180.0 / std::numbers::pi, 1) + " deg"});
-      trip_tie(static_cast<std::size_t>(t_idx), "out-of-step trip of tie " + def.ties[t_idx].id);
+      Notice note = detail::notice_at(time(), NoticeKind::out_of_step);
+      note.tie = static_cast<std::uint32_t>(t_idx);
+      note.value = ang * 180.0 / std::numbers::pi;
+      notices.push_back(std::move(note));
+      trip_tie(static_cast<std::size_t>(t_idx), std::nullopt);
       tripped = true;  // active_ties changed: scan again
       break;
     }
@@ -40,9 +40,11 @@ void Engine::Impl::check_shedding(std::size_t a) {
         st.done = true;
         const double mw = stages[s].shed_pct / 100.0 * ar.pd0;
         ar.shed_mw += mw;
-        notices.push_back({time(), "shedding",
-                           "area " + def.areas[a].id + " shed stage " + std::to_string(s + 1) + ": " +
-                               fmt_fixed(mw, 1) + " MW below " + fmt_num(stages[s].below_hz) + " Hz"});
+        Notice note = detail::notice_at(time(), NoticeKind::shedding);
+        note.area = static_cast<std::uint32_t>(a);
+        note.stage = static_cast<std::uint32_t>(s);
+        note.value = mw;
+        notices.push_back(std::move(note));
       }
     } else {
       st.timer_s = 0.0;
@@ -51,7 +53,7 @@ void Engine::Impl::check_shedding(std::size_t a) {
   }
 }
 
-void Engine::Impl::trip_tie(std::size_t t, const std::string& cause) {
+void Engine::Impl::trip_tie(std::size_t t, const std::optional<Action>& by) {
   ensure_outputs();
   detail::TieRt& tr = ties[t];
   const double flow = tr.flow;
@@ -59,8 +61,12 @@ void Engine::Impl::trip_tie(std::size_t t, const std::string& cause) {
   update_topology();
   tr.flow = 0.0;
   if (areas[tr.from].island != areas[tr.to].island) {
-    open_disturbance(tr.from, -flow, CommandKind::tie_trip, cause + " (island of " + def.areas[tr.from].id + ")");
-    open_disturbance(tr.to, flow, CommandKind::tie_trip, cause + " (island of " + def.areas[tr.to].id + ")");
+    Notice cause = detail::notice_at(time(), NoticeKind::islanded, by);
+    cause.tie = static_cast<std::uint32_t>(t);
+    cause.area = static_cast<std::uint32_t>(tr.from);
+    open_disturbance(tr.from, -flow, CommandKind::tie_trip, cause);
+    cause.area = static_cast<std::uint32_t>(tr.to);
+    open_disturbance(tr.to, flow, CommandKind::tie_trip, cause);
   }
   invalidate_outputs();
 }
@@ -69,8 +75,9 @@ void Engine::Impl::collapse_area_if_dead(std::size_t a) {
   detail::AreaRt& ar = areas[a];
   if (ar.collapsed || ar.m > 0.0) return;
   ar.collapsed = true;
-  notices.push_back({time(), "collapse",
-                     "area " + def.areas[a].id + " lost all synchronous inertia and collapsed; its ties are opened"});
+  Notice note = detail::notice_at(time(), NoticeKind::collapse);
+  note.area = static_cast<std::uint32_t>(a);
+  notices.push_back(std::move(note));
   for (std::size_t t = 0; t < nt; ++t)
     if (ties[t].in_service && (ties[t].from == a || ties[t].to == a)) {
       ties[t].in_service = false;

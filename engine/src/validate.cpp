@@ -126,7 +126,8 @@ namespace {
 
 // Every issue of `def` into `out`, errors first; the initial flows when the parts were valid
 // enough to solve them.
-std::optional<InitialFlows> check_definition(const SystemDef& def, std::vector<Issue>& out) {
+// `index`, when given, receives the id index and the area sizes the checks built.
+std::optional<InitialFlows> check_definition(const SystemDef& def, std::vector<Issue>& out, SystemIndex* index) {
   Checker ck(out);
   ck.within("nominal_hz", def.nominal_hz, bound::kNominalHzMin, bound::kNominalHz);
   if (def.nominal_hz > 0.0 && def.nominal_hz != 50.0 && def.nominal_hz != 60.0)
@@ -144,9 +145,9 @@ std::optional<InitialFlows> check_definition(const SystemDef& def, std::vector<I
   }
   if (def.areas.empty()) ck.error("areas", "at least one area is required");
 
-  const auto areas = index_ids(ck, def.areas, "areas");
-  const auto units = index_ids(ck, def.units, "units");
-  const auto ties = index_ids(ck, def.ties, "ties");
+  auto areas = index_ids(ck, def.areas, "areas");
+  auto units = index_ids(ck, def.units, "units");
+  auto ties = index_ids(ck, def.ties, "ties");
 
   std::vector<TimeConstant> tcs;
   std::vector<double> inertia(def.areas.size(), 0.0);
@@ -244,7 +245,7 @@ std::optional<InitialFlows> check_definition(const SystemDef& def, std::vector<I
                "area \"" + def.areas[i].id +
                    "\" has no inertia: no online synchronous unit with inertia_s > 0");
 
-  const std::vector<double> sizes = area_sizes(def, areas);
+  std::vector<double> sizes = area_sizes(def, areas);
   for (std::size_t i = 0; i < def.events.size(); ++i) {
     const EventDef& e = def.events[i];
     const std::string p = "events[" + std::to_string(i) + "]";
@@ -322,6 +323,7 @@ std::optional<InitialFlows> check_definition(const SystemDef& def, std::vector<I
     }
   }
   std::stable_partition(out.begin(), out.end(), [](const Issue& i) { return !i.warning; });
+  if (index) *index = SystemIndex{std::move(areas), std::move(units), std::move(ties), std::move(sizes)};
   return flows;
 }
 
@@ -329,14 +331,21 @@ std::optional<InitialFlows> check_definition(const SystemDef& def, std::vector<I
 
 std::vector<Issue> validate(const SystemDef& def) {
   std::vector<Issue> out;
-  check_definition(def, out);
+  check_definition(def, out, nullptr);
   return out;
 }
 
 CheckResult check(SystemDef def) {
   CheckResult r;
-  std::optional<InitialFlows> flows = check_definition(def, r.issues);
-  if (flows && !has_errors(r.issues)) r.system = CheckedSystem(std::move(def), std::move(*flows));
+  SystemIndex index;
+  std::optional<InitialFlows> flows = check_definition(def, r.issues, &index);
+  if (!flows || has_errors(r.issues)) return r;
+  // The events passed check_command above: only their ids are looked up here.
+  std::vector<TimedAction> events;
+  events.reserve(def.events.size());
+  for (const EventDef& e : def.events) events.push_back({e.at_s, to_action(index, e.command)});
+  r.system = CheckedSystem(std::make_shared<const CheckedSystem::Parts>(
+      CheckedSystem::Parts{std::move(def), std::move(*flows), std::move(index), std::move(events)}));
   return r;
 }
 

@@ -39,7 +39,7 @@ LiveSession::Done answer(const Call& call) {
   return [respond = call.respond](LiveSession::Result r) {
     Reply out;
     out.status = r.status;
-    out.body = r.status == 200 ? r.data.dump() : error_json(r.error, r.issues);
+    out.body = r.status == 200 ? r.data.dump() : error_json(r.error, issue_texts(r.issues));
     respond(std::move(out));
   };
 }

@@ -30,6 +30,13 @@ void print_issues(const std::vector<Issue>& issues, const std::string& file) {
 }
 
 
+// Issues on one line, as a warning prints them.
+std::string joined_texts(const std::vector<Issue>& issues) {
+  std::string out;
+  for (const Issue& i : issues) out += (out.empty() ? "" : "; ") + i.text();
+  return out;
+}
+
 std::string opt_text(const std::optional<double>& v, int decimals, const char* unit) {
   return v ? fmt_fixed(*v, decimals) + unit : std::string("-");
 }
@@ -116,9 +123,9 @@ int run(const std::string& file, const std::string& out_dir, bool quiet, unsigne
               << (fs::path(out_dir) / "series.csv").string() << " and "
               << (fs::path(out_dir) / "summary.json").string() << "\n";
     for (const Notice& n : notices)
-      if (n.kind != "command") std::cout << "  t=" << fmt_fixed(n.t_s, 2) << " s  " << n.text << "\n";
+      if (n.kind != NoticeKind::command) std::cout << "  t=" << fmt_fixed(n.t_s, 2) << " s  " << describe(def, n) << "\n";
     for (const Disturbance& d : engine.disturbances()) {
-      std::cout << "  disturbance at t=" << fmt_fixed(d.at_s, 2) << " s: " << d.cause << "\n"
+      std::cout << "  disturbance at t=" << fmt_fixed(d.at_s, 2) << " s: " << describe_cause(def, d) << "\n"
                 << "    imbalance " << fmt_fixed(d.delta_mw, 1) << " MW, RoCoF "
                 << opt_text(d.rocof_hz_per_s, 3, " Hz/s") << ", " << (d.zenith ? "zenith " : "nadir ")
                 << opt_text(d.nadir_hz, 3, " Hz")
@@ -164,9 +171,12 @@ int replay(const std::string& journal, const std::string& out_dir, int run_numbe
   auto apply_due = [&] {
     while (next < run.commands.size() && run.commands[next].first <= engine.step_index()) {
       const auto& [step, batch] = run.commands[next];
-      const ApplyResult r = engine.apply_all(batch);
+      // Resolved (ids, static checks) and applied (state checks) as the live pipeline did.
+      const Resolved resolved = resolve_all(engine.system(), batch);
+      const ApplyResult r = resolved.issues.empty() ? engine.apply_all(resolved.actions) : ApplyResult{};
       if (!r.ok) {
-        std::cerr << journal << ": warning: commands at step " << step << " refused on replay: " << r.error << "\n";
+        std::cerr << journal << ": warning: commands at step " << step << " refused on replay: "
+                  << joined_texts(resolved.issues.empty() ? r.issues : resolved.issues) << "\n";
       } else {
         nlohmann::ordered_json cmds = nlohmann::ordered_json::array();
         for (const Command& c : batch) cmds.push_back(command_to_json(c));

@@ -5,7 +5,6 @@
 #include <algorithm>
 
 #include "droopline/scenario_io.hpp"
-#include "telemetry.hpp"
 
 namespace droopline {
 namespace {
@@ -14,7 +13,7 @@ using json = nlohmann::ordered_json;
 
 LiveResult accepted(json data) { return {200, std::move(data), {}, {}}; }
 
-LiveResult refused(int status, std::string error, std::vector<std::string> issues) {
+LiveResult refused(int status, std::string error, std::vector<Issue> issues) {
   return {status, nullptr, std::move(error), std::move(issues)};
 }
 
@@ -30,10 +29,16 @@ void CommandPipeline::refuse(const std::vector<Command>& commands, const Done& d
 
 bool CommandPipeline::submit(const Engine& engine, std::vector<Command> commands, std::int64_t earliest_step,
                              Done done) {
-  const ApplyResult check = engine.check_all(commands);
+  Resolved resolved = resolve_all(engine.system(), commands);
+  if (!resolved.issues.empty()) {
+    refused_.fetch_add(commands.size());
+    done(refused(400, "command refused", std::move(resolved.issues)));
+    return false;
+  }
+  ApplyResult check = engine.check_all(resolved.actions);
   if (!check.ok) {
     refused_.fetch_add(commands.size());
-    done(refused(400, "command refused", split_on(check.error, "; ")));
+    done(refused(400, "command refused", std::move(check.issues)));
     return false;
   }
   std::int64_t step = earliest_step;
@@ -41,7 +46,7 @@ bool CommandPipeline::submit(const Engine& engine, std::vector<Command> commands
   json cmds = json::array();
   for (const Command& c : commands) cmds.push_back(command_to_json(c));
   auto outcome = journal_.submit(json{{"type", "commands"}, {"step", step}, {"commands", cmds}}.dump());
-  pending_.push_back({step, std::move(commands), std::move(done), std::move(outcome)});
+  pending_.push_back({step, std::move(resolved.actions), std::move(done), std::move(outcome)});
   return true;
 }
 
@@ -67,7 +72,7 @@ void CommandPipeline::apply_due(Engine& engine, const std::function<void()>& app
       continue;
     }
     spdlog::error("{}", it->outcome->error);
-    refused_.fetch_add(it->commands.size());
+    refused_.fetch_add(it->actions.size());
     it->done(refused(it->outcome->status, "command refused, nothing applied: " + it->outcome->error));
     it = pending_.erase(it);
   }
@@ -75,22 +80,22 @@ void CommandPipeline::apply_due(Engine& engine, const std::function<void()>& app
          pending_.front().outcome->state.load(std::memory_order_acquire) == JournalWriter::durable) {
     Pending p = std::move(pending_.front());
     pending_.pop_front();
-    const ApplyResult r = engine.apply_all(p.commands);
+    ApplyResult r = engine.apply_all(p.actions);
     if (!r.ok) {  // replay refuses it the same way
-      refused_.fetch_add(p.commands.size());
-      p.done(refused(400, "command refused", split_on(r.error, "; ")));
+      refused_.fetch_add(p.actions.size());
+      p.done(refused(400, "command refused", std::move(r.issues)));
       continue;
     }
-    applied_.fetch_add(p.commands.size());
+    applied_.fetch_add(p.actions.size());
     applied();
     p.done(
-        accepted(json{{"ok", true}, {"applied", p.commands.size()}, {"t_s", r.at_s}, {"step", engine.step_index()}}));
+        accepted(json{{"ok", true}, {"applied", p.actions.size()}, {"t_s", r.at_s}, {"step", engine.step_index()}}));
   }
 }
 
 void CommandPipeline::refuse_all(int status, const std::string& why) {
   for (Pending& p : pending_) {
-    refused_.fetch_add(p.commands.size());
+    refused_.fetch_add(p.actions.size());
     p.done(refused(status, why));
   }
   pending_.clear();

@@ -1,6 +1,6 @@
 #pragma once
-// The live session's command pipeline, journal before apply: a command is checked against the
-// state, scheduled for a step a little ahead, its record handed to the journal's writer thread,
+// The live session's command pipeline, journal before apply: a command is resolved against the
+// running system (ids and static checks, once), checked against the state, scheduled for a step a little ahead, its record handed to the journal's writer thread,
 // and applied at that step only once the record is durable. One refused by the check or the
 // journal changes nothing. Used on the loop thread only (the journal writes on its own).
 #include <atomic>
@@ -23,13 +23,13 @@ struct LiveResult {
   int status = 200;                 ///< 200, or the refusal's status
   nlohmann::ordered_json data;      ///< what a 200 carries
   std::string error;                ///< why it was refused
-  std::vector<std::string> issues;  ///< the problems one by one (`path: message`)
+  std::vector<Issue> issues;        ///< the problems one by one (`path`, `message`)
 };
 
 /// A 200 result carrying `data`.
 LiveResult accepted(nlohmann::ordered_json data);
 /// A refusal with its status, reason and the problems one by one.
-LiveResult refused(int status, std::string error, std::vector<std::string> issues = {});
+LiveResult refused(int status, std::string error, std::vector<Issue> issues = {});
 
 /// Commands between the API and the engine (loop thread only).
 class CommandPipeline {
@@ -46,9 +46,9 @@ class CommandPipeline {
   /// The journal's writer, to ask whether it is open and why not.
   const JournalWriter& journal() const { return journal_; }
 
-  /// Checks `commands` against `engine`, schedules them for `earliest_step` or later (never before
-  /// one already waiting) and submits their record; false (nothing kept) with `done` answered
-  /// when the check refuses them.
+  /// Resolves `commands` against `engine`'s system (ids, static checks), checks them against its
+  /// state, schedules them for `earliest_step` or later (never before one already waiting) and
+  /// submits their record; false (nothing kept) with `done` answered when a check refuses them.
   bool submit(const Engine& engine, std::vector<Command> commands, std::int64_t earliest_step, Done done);
   /// The next command is due at `step` but its record is not on disk yet (the loop waits).
   bool due_unwritten(std::int64_t step) const;
@@ -67,7 +67,7 @@ class CommandPipeline {
  private:
   struct Pending {
     std::int64_t step;
-    std::vector<Command> commands;
+    std::vector<Action> actions;  // resolved once, applied at `step`
     Done done;
     std::shared_ptr<const JournalWriter::Outcome> outcome;
   };

@@ -246,8 +246,9 @@ bool LiveSession::guard_step() {
 
 void LiveSession::drain_notices() {
   for (const Notice& n : engine_->take_notices()) {
-    if (n.kind != "command") spdlog::info("t = {:.2f} s: {}", n.t_s, n.text);
-    push_event(json{{"type", "event"}, {"t_s", n.t_s}, {"kind", n.kind}, {"text", n.text}});
+    const std::string text = describe(engine_->def(), n);
+    if (n.kind != NoticeKind::command) spdlog::info("t = {:.2f} s: {}", n.t_s, text);
+    push_event(json{{"type", "event"}, {"t_s", n.t_s}, {"kind", to_string(n.kind)}, {"text", text}});
   }
   // Each disturbance is announced when it begins (metrics still filling in, "open": true) and
   // again, complete, when its window ends.

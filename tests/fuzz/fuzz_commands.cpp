@@ -1,5 +1,5 @@
 // libFuzzer target: one command body (an object or an array), as HTTP or WebSocket would get it,
-// parsed and then checked and applied against the demo scenario.
+// parsed, resolved, and then checked and applied against the demo scenario.
 #include <cstdint>
 #include <cstdlib>
 #include <memory>
@@ -22,8 +22,10 @@ extern "C" int LLVMFuzzerTestOneInput(const std::uint8_t* data, std::size_t size
   droopline::CommandParse cp = droopline::parse_commands(text);
   if (cp.commands.empty() && cp.issues.empty()) std::abort();
   if (!cp.commands.empty()) {
-    const auto check = engine->check_all(cp.commands);
-    const auto applied = engine->apply_all(cp.commands);
+    const droopline::Resolved resolved = droopline::resolve_all(engine->system(), cp.commands);
+    if (!resolved.issues.empty() && !resolved.actions.empty()) std::abort();  // refused means nothing to apply
+    const auto check = engine->check_all(resolved.actions);
+    const auto applied = engine->apply_all(resolved.actions);
     if (check.ok != applied.ok) std::abort();  // the check must predict the apply
     engine->step();
   }

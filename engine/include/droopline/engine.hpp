@@ -8,17 +8,12 @@
 #include <string_view>
 #include <vector>
 
+#include "droopline/commands.hpp"
 #include "droopline/defs.hpp"
+#include "droopline/ids.hpp"
 #include "droopline/validate.hpp"
 
 namespace droopline {
-
-/// Dense index of an area, checked when used.
-struct AreaId { std::uint32_t index = 0; };
-/// Dense index of a unit (file order), checked when used.
-struct UnitId { std::uint32_t index = 0; };
-/// Dense index of a tie, checked when used.
-struct TieId { std::uint32_t index = 0; };
 
 /// Operating state of a unit.
 enum class UnitStatus { online, at_max, at_min, tripped };
@@ -66,6 +61,33 @@ struct TieState {
   bool in_service = true;
 };
 
+/// What a notice reports.
+enum class NoticeKind {
+  command,          ///< a command took effect (`action`, `value`)
+  command_refused,  ///< a scenario event was refused by the state checks (`action`, `issues`)
+  out_of_step,      ///< a tie tripped out of step (`tie`, `value`: angle in deg)
+  shedding,         ///< an under-frequency stage shed load (`area`, `stage`, `value`: MW shed)
+  collapse,         ///< an area lost all synchronous inertia (`area`)
+  islanded          ///< a disturbance cause only: a tie trip split the system (`tie`, `area`: the island's
+                    ///< area; `action` set when a command tripped it, absent when out of step)
+};
+/// File and message name of a NoticeKind.
+const char* to_string(NoticeKind k);
+
+/// Something that happened inside the engine (command, refusal, shedding, out-of-step, collapse),
+/// as data: its text is written at the boundary (`describe` in scenario_io.hpp).
+struct Notice {
+  double t_s = 0.0;                       ///< when (s)
+  NoticeKind kind = NoticeKind::command;  ///< what happened
+  std::optional<Action> action;  ///< command, command_refused: the action (governor: every setting as it now stands)
+  std::uint32_t area = 0;        ///< shedding, collapse: the area; islanded: the island's area
+  std::uint32_t tie = 0;         ///< out_of_step, islanded: the tie
+  std::uint32_t stage = 0;       ///< shedding: the stage (0-based)
+  double value = 0.0;  ///< command unit_trip: MW lost, tie_trip: MW carried, tie_close: angle (deg);
+                       ///< out_of_step: angle (deg); shedding: MW shed
+  std::vector<Issue> issues;  ///< command_refused: why
+};
+
 /// One unit's part in a disturbance.
 struct UnitResponse {
   std::uint32_t unit = 0;                   ///< unit index
@@ -78,7 +100,7 @@ struct UnitResponse {
 /// Metrics of one disturbance in one island, filled in as the run goes.
 struct Disturbance {
   CommandKind kind = CommandKind::load_step; ///< first cause
-  std::string cause;                       ///< readable description of every cause at t0
+  std::vector<Notice> causes;              ///< every cause at t0 (`describe_cause` writes them)
   double at_s = 0.0;                       ///< t0 (s)
   std::vector<std::uint32_t> areas;        ///< areas of the island (indices)
   double delta_mw = 0.0;                   ///< imbalance, positive = deficit (MW)
@@ -94,18 +116,11 @@ struct Disturbance {
   bool open = true;                        ///< still collecting (the window has not ended)
 };
 
-/// Something that happened inside the engine (trip, shedding, out-of-step, collapse, command).
-struct Notice {
-  double t_s = 0.0;
-  std::string kind;   ///< `command`, `unit_trip`, `shedding`, `out_of_step`, `collapse`, `limit`, ...
-  std::string text;   ///< one readable line
-};
-
-/// Result of applying a command between steps.
+/// Result of applying (or checking) commands between steps.
 struct ApplyResult {
-  bool ok = false;
-  std::string error;  ///< `path: message` when not ok
-  double at_s = 0.0;  ///< simulation time at which the command took effect
+  bool ok = false;            ///< every command passed the checks of the live state
+  std::vector<Issue> issues;  ///< why not, one problem each (`command.unit`, `commands[i].tie`, ...)
+  double at_s = 0.0;          ///< simulation time at which the commands took (or would take) effect
 };
 
 /// Runs independent tasks, possibly in parallel, for engines with large fleets. The engine
@@ -145,12 +160,13 @@ class Engine {
   /// Closes the metric windows that are still open (end of run); values not reached stay empty.
   void close_disturbances();
 
-  /// Applies one command now (between steps). Disturbing commands open a metrics record.
-  ApplyResult apply(const Command& command);
-  /// Applies several commands atomically: all when every one validates, else none.
-  ApplyResult apply_all(std::span<const Command> commands);
+  /// Applies one resolved command now (between steps), checked against the live state only (its
+  /// static checks were made by resolve()). Disturbing commands open a metrics record.
+  ApplyResult apply(const Action& action);
+  /// Applies several commands atomically: all when every one passes the state checks, else none.
+  ApplyResult apply_all(std::span<const Action> actions);
   /// What apply_all would answer, without changing anything.
-  ApplyResult check_all(std::span<const Command> commands) const;
+  ApplyResult check_all(std::span<const Action> actions) const;
 
   /// Simulation time (s) = step_index * step_s.
   double time_s() const;
@@ -158,6 +174,8 @@ class Engine {
   std::int64_t step_index() const;
   /// The copied definition (events included).
   const SystemDef& def() const;
+  /// The checked system the engine was created from (definition, id index, resolved events).
+  const CheckedSystem& system() const;
 
   std::optional<AreaId> find_area(std::string_view id) const;  ///< by scenario id
   std::optional<UnitId> find_unit(std::string_view id) const;  ///< by scenario id

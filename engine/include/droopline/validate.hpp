@@ -1,12 +1,19 @@
 #pragma once
 /// Validation of a SystemDef and of single commands, and the resolved defaults that depend on
 /// other fields. Nothing here throws: every problem is reported as an Issue.
+#include <functional>
+#include <map>
+#include <memory>
 #include <optional>
+#include <span>
 #include <string>
+#include <string_view>
 #include <utility>
 #include <vector>
 
+#include "droopline/commands.hpp"
 #include "droopline/defs.hpp"
+#include "droopline/ids.hpp"
 
 namespace droopline {
 
@@ -25,10 +32,6 @@ bool has_errors(const std::vector<Issue>& issues);
 
 /// Every error and warning of a system definition, errors first in file order.
 std::vector<Issue> validate(const SystemDef& def);
-
-/// Errors of one command against a (valid) system, reported under `path`.
-std::vector<Issue> validate_command(const SystemDef& def, const Command& command,
-                                    const std::string& path);
 
 /// Minimum output (MW) with its default applied.
 double unit_min_mw(const UnitDef& unit);
@@ -59,20 +62,45 @@ std::optional<InitialFlows> solve_initial_flows(const SystemDef& def, std::vecto
 
 struct CheckResult;
 
-/// A system definition that passed validate(), with its initial operating point: what
-/// Engine::create takes. Only check() makes one, so an engine never sees an unchecked definition.
+/// The ids of a valid system, indexed once per definition (by check()): string id to dense index,
+/// and what the command checks need besides.
+struct SystemIndex {
+  /// Scenario id to position in its list.
+  using Ids = std::map<std::string, std::size_t, std::less<>>;
+  Ids areas;                         ///< area id -> index
+  Ids units;                         ///< unit id -> index
+  Ids ties;                          ///< tie id -> index
+  std::vector<double> area_size_mw;  ///< per area: the larger of its demand and its units' ratings (MW)
+
+  std::optional<AreaId> area(std::string_view id) const;  ///< by scenario id
+  std::optional<UnitId> unit(std::string_view id) const;  ///< by scenario id
+  std::optional<TieId> tie(std::string_view id) const;    ///< by scenario id
+};
+
+/// A system definition that passed validate(), with its initial operating point, its id index and
+/// its events resolved: what Engine::create takes. Only check() makes one, so an engine never sees
+/// an unchecked definition. Copies are cheap and share the (immutable) contents.
 class CheckedSystem {
  public:
   /// The definition as checked.
-  const SystemDef& def() const { return def_; }
+  const SystemDef& def() const { return parts_->def; }
   /// Its steady operating point at t = 0.
-  const InitialFlows& flows() const { return flows_; }
+  const InitialFlows& flows() const { return parts_->flows; }
+  /// Its ids, indexed.
+  const SystemIndex& index() const { return parts_->index; }
+  /// Its events (def().events) resolved, in file order.
+  const std::vector<TimedAction>& events() const { return parts_->events; }
 
  private:
+  struct Parts {
+    SystemDef def;
+    InitialFlows flows;
+    SystemIndex index;
+    std::vector<TimedAction> events;
+  };
   friend CheckResult check(SystemDef def);
-  CheckedSystem(SystemDef def, InitialFlows flows) : def_(std::move(def)), flows_(std::move(flows)) {}
-  SystemDef def_;
-  InitialFlows flows_;
+  explicit CheckedSystem(std::shared_ptr<const Parts> parts) : parts_(std::move(parts)) {}
+  std::shared_ptr<const Parts> parts_;
 };
 
 /// A checked system, or the errors that stop one being made.
@@ -84,6 +112,21 @@ struct CheckResult {
 /// Validates a definition and solves its initial flows, once: the loader's path, and the one for
 /// tests and tools that build a SystemDef in code.
 CheckResult check(SystemDef def);
+
+/// Resolves one command of the string form against a checked system: its ids looked up in the
+/// index and every static check (references, physical bounds, the step against a new droop) made,
+/// the one checker the loader's events share. Problems are appended to `issues` under `path`;
+/// the action is returned only when there are none. State-dependent checks are the engine's.
+std::optional<Action> resolve(const CheckedSystem& system, const Command& command, const std::string& path,
+                              std::vector<Issue>& issues);
+
+/// Commands resolved together: every action, or the problems (then no action).
+struct Resolved {
+  std::vector<Action> actions;  ///< in the order given; empty when there are issues
+  std::vector<Issue> issues;    ///< `command` or `commands[i]` paths, as the API reports them
+};
+/// Resolves a batch, each command under `command` (a batch of one) or `commands[i]`.
+Resolved resolve_all(const CheckedSystem& system, std::span<const Command> commands);
 
 /// Island index of every area given which ties are in service (areas joined by ties share one).
 std::vector<int> islands_of(std::size_t area_count, const std::vector<int>& tie_from,

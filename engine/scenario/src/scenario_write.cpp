@@ -110,7 +110,7 @@ json disturbance_to_json(const Engine& engine, const Disturbance& d) {
   const SystemDef& def = engine.def();
   json j;
   j["kind"] = to_string(d.kind);
-  j["cause"] = d.cause;
+  j["cause"] = describe_cause(def, d);
   j["at_s"] = d.at_s;
   j["island"] = json::array();
   for (auto a : d.areas) j["island"].push_back(def.areas[a].id);
@@ -173,7 +173,7 @@ json summary_to_json(const Engine& engine, const std::vector<Notice>& notices, c
   }
   j["final"] = fin;
   j["notices"] = json::array();
-  for (const Notice& n : notices) j["notices"].push_back({{"t_s", n.t_s}, {"kind", n.kind}, {"text", n.text}});
+  for (const Notice& n : notices) j["notices"].push_back({{"t_s", n.t_s}, {"kind", to_string(n.kind)}, {"text", describe(def, n)}});
   j["warnings"] = json::array();
   for (const Issue& w : warnings) j["warnings"].push_back(w.text());
   return j;

@@ -8,6 +8,7 @@
 #include "droopline/engine.hpp"
 #include "droopline/format.hpp"
 #include "droopline/json_input.hpp"
+#include "droopline/scenario_io.hpp"
 
 namespace droopline::study {
 namespace {
@@ -169,11 +170,11 @@ Assessment assess(const SystemDef& def, const Requirements& req) {
   for (const Disturbance& d : ds) {
     if (d.settling_hz && std::abs(*d.settling_hz - def.nominal_hz) > settle_dev) {
       settle_dev = std::abs(*d.settling_hz - def.nominal_hz);
-      settle_at = d.cause + " at " + fmt_num(d.at_s) + " s";
+      settle_at = describe_cause(def, d) + " at " + fmt_num(d.at_s) + " s";
     }
     if (d.rocof_hz_per_s && std::abs(*d.rocof_hz_per_s) > rocof) {
       rocof = std::abs(*d.rocof_hz_per_s);
-      rocof_at = d.cause + " at " + fmt_num(d.at_s) + " s";
+      rocof_at = describe_cause(def, d) + " at " + fmt_num(d.at_s) + " s";
     }
   }
   for (const Limit& l : req.limits) {
@@ -240,7 +241,7 @@ Assessment assess(const SystemDef& def, const Requirements& req) {
         const double share = delivered / asked;
         if (!row.measured || share < *row.measured) {
           row.measured = share;
-          row.detail = d.cause + ": " + fmt_fixed(delivered, 1) + " of " + fmt_fixed(asked, 1) + " MW at t = " + fmt_num(t[ie]) + " s";
+          row.detail = describe_cause(def, d) + ": " + fmt_fixed(delivered, 1) + " of " + fmt_fixed(asked, 1) + " MW at t = " + fmt_num(t[ie]) + " s";
         }
       }
       out.rows.push_back(row);

@@ -106,7 +106,7 @@ SweepRow run_one(const SweepSpec& spec, std::uint64_t index, const std::vector<s
     }
   }
   if (worst) {
-    row.worst_cause = worst->cause;
+    row.worst_cause = describe_cause(def, *worst);
     row.metrics[m_delta] = worst->delta_mw;
     row.metrics[m_rocof] = worst->rocof_hz_per_s;
     row.metrics[m_nadir] = worst->nadir_hz;

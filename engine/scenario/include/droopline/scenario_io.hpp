@@ -32,13 +32,17 @@ struct CommandParse {
   std::vector<Command> commands;
   std::vector<Issue> issues;  ///< empty when every command parsed
 };
-/// Parses a command body; checks shape and types only (references are checked on apply).
+/// Parses a command body; checks shape and types only (references and bounds: resolve()).
 CommandParse parse_commands(std::string_view json_text);
 
 /// The scenario as JSON in the file format (defaults made explicit).
 nlohmann::ordered_json scenario_to_json(const SystemDef& def);
 /// One command as JSON in the file format (no `at_s`).
 nlohmann::ordered_json command_to_json(const Command& command);
+/// The one readable line of a notice: summary.json, the live event log and stream, the command line.
+std::string describe(const SystemDef& def, const Notice& notice);
+/// A disturbance's causes at its start as one line (`; ` between them).
+std::string describe_cause(const SystemDef& def, const Disturbance& disturbance);
 /// One disturbance record as JSON (null for metrics not reached).
 nlohmann::ordered_json disturbance_to_json(const Engine& engine, const Disturbance& d);
 /// The run summary: disturbances, final state, notices and warnings.
