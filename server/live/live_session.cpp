@@ -9,6 +9,7 @@
 #include <nlohmann/json.hpp>
 #include <spdlog/spdlog.h>
 
+#include "droopline/batch.hpp"
 #include "droopline/format.hpp"
 #include "droopline/scenario_io.hpp"
 
@@ -71,7 +72,7 @@ bool LiveSession::journal_scenario(const SystemDef& def) {
 void LiveSession::start_engine(const CheckedSystem& system) {
   system_ = system;
   engine_ = Engine::create(system);
-  output_every_ = std::max<std::int64_t>(1, std::llround(def().output_every_s / def().step_s));
+  output_every_ = study::output_every(def());
   reported_ = 0;
   announced_ = 0;
   checkpoint_ = engine_->clone();
