@@ -217,19 +217,23 @@ class StreamTests(ThreeAreaServerCase):
             try:
                 async with websockets.connect(self.srv.ws_url(), max_size=2**24) as ws:
                     await next_of(ws, "frame")
-                    gaps, last = [], time.time()
-                    for _ in range(60):  # 3 s
+                    gaps, start = [], time.time()
+                    last = start
+                    for _ in range(60):  # 3 s at 20 frames/s
                         await next_of(ws, "frame")
                         now = time.time()
                         gaps.append(now - last)
                         last = now
-                    return max(gaps)
+                    return max(gaps), last - start
             finally:
                 stuck.transport.abort()
-        worst = run(go())
-        # Frames keep coming at 20/s to the reading client (a stuck client would stall it for
-        # seconds). Under the sanitizers, with other tests running beside, allow one slow frame.
-        self.assertLess(worst, 0.5 if os.environ.get("DROOPLINE_SANITIZED") else 0.25)
+        worst, total = run(go())
+        # A server that waited on the stuck client would stall every other client for good once
+        # the stuck socket's buffers fill (seconds). The bounds below catch that and nothing less:
+        # a loaded CI machine delays single frames by a few hundred milliseconds (0.256 s seen), so
+        # a tight per-frame bound tests the machine, not the server.
+        self.assertLess(worst, 1.0)
+        self.assertLess(total, 5.0)
 
     def test_speed_and_pause_follow_the_wall_clock(self):
         def t_now():
