@@ -1,0 +1,72 @@
+#pragma once
+// A training exercise: a scenario, a briefing, operator seats with the areas each answers for, a
+// hidden script of instructor events (timed or conditional), alarm thresholds and a time limit.
+// Parsed and checked like a scenario: every problem as `path: message`.
+#include <optional>
+#include <string>
+#include <string_view>
+#include <vector>
+
+#include "droopline/alarms.hpp"
+#include "droopline/defs.hpp"
+#include "droopline/validate.hpp"
+
+namespace droopline::study {
+
+/// One operator seat.
+struct SeatDef {
+  std::string id;                       ///< short id ([A-Za-z0-9_-], unique)
+  std::string name;                     ///< display name ("North desk")
+  std::vector<std::string> areas;       ///< ids of the areas it answers for (at least one)
+};
+
+/// When a conditional script event fires.
+struct ScriptCondition {
+  enum class Kind { frequency_below, tie_above } kind = Kind::frequency_below;
+  std::string area;            ///< frequency_below: the area
+  double below_hz = 0.0;       ///< frequency_below: threshold (Hz)
+  double for_s = 0.0;          ///< frequency_below: how long it must stay below (s)
+  std::string tie;             ///< tie_above: the tie
+  double above_pct = 0.0;      ///< tie_above: share of the tie's pull-out power (%)
+};
+
+/// One event of the hidden script: a command at a time, or when a condition first holds.
+struct ScriptEventDef {
+  std::string id;                        ///< unique within the script ("" in a file: "s1", "s2", ... given)
+  std::optional<double> at_s;            ///< timed: simulation time (s)
+  std::optional<ScriptCondition> when;   ///< conditional (exactly one of at_s and when)
+  Command command;                       ///< what happens
+  std::string note;                      ///< for the instructor ("the neighbour's largest unit trips")
+};
+
+struct ExerciseDef {
+  std::string name;
+  std::string briefing;                  ///< what the trainees must achieve (shown to seats)
+  std::string scenario_path;             ///< as written in the file, when the scenario is a path ("" inline)
+  std::vector<SeatDef> seats;
+  std::vector<ScriptEventDef> script;
+  AlarmLimits alarms;                    ///< defaults for f0 filled in, file values over them
+  double time_limit_s = 0.0;             ///< the exercise's length (s)
+};
+
+/// A parsed and checked exercise: its definition and its checked scenario.
+struct Exercise {
+  ExerciseDef def;
+  CheckedSystem system;
+};
+
+struct ExerciseLoad {
+  std::optional<Exercise> exercise;  ///< set only when there are no errors
+  std::vector<Issue> issues;         ///< errors first, then warnings
+};
+
+/// Parses an exercise; a scenario given as a path is read relative to `base_dir`, and its problems
+/// are reported under `scenario.` + their path.
+ExerciseLoad parse_exercise(std::string_view json_text, const std::string& base_dir);
+/// Reads a file and parses it (the scenario path is relative to the file's folder).
+ExerciseLoad load_exercise_file(const std::string& path);
+/// True when the JSON text looks like an exercise (an object with `seats` or `script`): lets
+/// `droopline check` take either kind of file.
+bool looks_like_exercise(std::string_view json_text);
+
+}  // namespace droopline::study
