@@ -49,11 +49,11 @@ TEST_CASE("every route is documented in openapi.json with its role") {
     const json& paths = doc["paths"][r.pattern];
     REQUIRE(paths.contains(lower(verb_name(r.verb))));
     const json& op = paths[lower(verb_name(r.verb))];
-    const bool instructor = r.role == Role::instructor;
-    CHECK(op.value("x-role", "") == (instructor ? "instructor" : "viewer"));
+    const bool guarded = r.role != Role::viewer;
+    CHECK(op.value("x-role", "") == role_name(r.role));
     REQUIRE(op.contains("security"));
-    CHECK(op["security"].empty() == !instructor);
-    if (instructor) {
+    CHECK(op["security"].empty() == !guarded);
+    if (guarded) {
       CHECK(std::string(r.why).size() > 10);  // a 401 says why, in words a trainee can act on
       CHECK(op["responses"].contains("401"));
     }
@@ -72,11 +72,11 @@ TEST_CASE("nothing is documented in openapi.json that is not routed") {
     }
 }
 
-TEST_CASE("the dispatch refuses a viewer on every instructor route, before the handler runs") {
+TEST_CASE("the dispatch refuses a viewer on every seat and instructor route, before the handler runs") {
   Services services;  // no live session: a handler that ran would crash
   Api api(services);
   for (const Route& r : api.routes()) {
-    if (r.role != Role::instructor) continue;
+    if (r.role == Role::viewer) continue;
     std::string target = r.pattern;
     if (auto at = target.find("{id}"); at != std::string::npos) target.replace(at, 4, "1");
     INFO(target);
@@ -110,4 +110,74 @@ TEST_CASE("the dispatch answers 405 with Allow, 404 under /api/, and leaves page
   Request page;
   page.target = "/index.html";
   CHECK_FALSE(api.handle(page, [](Reply) {}));
+}
+
+TEST_CASE("join codes: six characters without look-alikes, typed in any case, each naming one seat") {
+  for (int i = 0; i < 200; ++i) {
+    const std::string code = SeatRoster::draw_code();
+    REQUIRE(code.size() == SeatRoster::kCodeLength);
+    for (char ch : code) CHECK(SeatRoster::kAlphabet.find(ch) != std::string_view::npos);
+    CHECK(code.find_first_of("01ILO") == std::string::npos);
+  }
+  SeatRoster roster;
+  CHECK_FALSE(roster.any());
+  roster.set({{"west", "West desk", {"vellmark"}}, {"east", "East desk", {"oskany", "dreyholt"}}});
+  const auto seats = roster.list();
+  REQUIRE(seats.size() == 2);
+  CHECK(seats[0].join_code != seats[1].join_code);
+  CHECK_FALSE(seats[1].joined);
+  std::string typed = seats[1].join_code;
+  for (char& ch : typed) ch = static_cast<char>(std::tolower(static_cast<unsigned char>(ch)));
+  typed = " " + typed.substr(0, 3) + "-" + typed.substr(3) + " ";
+  const auto east = roster.sign_in(typed);
+  REQUIRE(east);
+  CHECK(east->id == "east");
+  CHECK(east->areas == std::vector<std::string>{"oskany", "dreyholt"});
+  CHECK(roster.list()[1].joined);
+  CHECK_FALSE(roster.list()[0].joined);
+  CHECK_FALSE(roster.sign_in(seats[0].join_code.substr(0, 5)));
+  CHECK_FALSE(roster.sign_in(""));
+  // Loading another exercise draws new codes: the old ones stop working.
+  const std::string old = seats[0].join_code;
+  roster.set({{"west", "West desk", {"vellmark"}}});
+  CHECK(roster.list()[0].join_code != old);  // 1 in 887 million to fail by chance
+  CHECK_FALSE(roster.sign_in(seats[1].join_code));
+}
+
+TEST_CASE("the dispatch: a seat's code proves role seat; a seat on an instructor route gets 403 with the reason") {
+  Services services;  // no live session: a handler that ran would crash (role and seats need none)
+  services.token = "the-instructor-token";
+  services.seats.set({{"west", "West desk", {"vellmark"}}});
+  Api api(services);
+  const std::string code = services.seats.list()[0].join_code;
+  auto ask = [&](Verb verb, const std::string& target, std::optional<std::string> auth) {
+    Request req;
+    req.verb = verb;
+    req.target = target;
+    req.authorization = std::move(auth);
+    Reply out;
+    out.status = 0;
+    REQUIRE(api.handle(req, [&](Reply r) { out = std::move(r); }));
+    return out;
+  };
+  const Reply role = ask(Verb::get, "/api/v1/role", "Bearer " + code);
+  CHECK(role.status == 200);
+  CHECK(json::parse(role.body)["role"] == "seat");
+  CHECK(json::parse(role.body)["seat"]["id"] == "west");
+  for (const Route& r : api.routes()) {
+    if (r.role != Role::instructor) continue;
+    std::string target = r.pattern;
+    if (auto at = target.find("{id}"); at != std::string::npos) target.replace(at, 4, "1");
+    INFO(target);
+    const Reply reply = ask(r.verb, target, "Bearer " + code);
+    CHECK(reply.status == 403);
+    CHECK(reply.body.find(r.why) != std::string::npos);
+  }
+  const Reply wrong = ask(Verb::get, "/api/v1/role", std::string("Bearer ZZZZZZ"));
+  CHECK(wrong.status == 403);
+  CHECK(wrong.body.find("neither the instructor token nor a seat's join code") != std::string::npos);
+  const Reply seats = ask(Verb::get, "/api/v1/seats", std::string("Bearer the-instructor-token"));
+  CHECK(seats.status == 200);
+  CHECK(json::parse(seats.body)["seats"][0]["join_code"] == code);
+  CHECK(json::parse(seats.body)["seats"][0]["joined"] == true);
 }

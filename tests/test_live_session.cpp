@@ -105,13 +105,13 @@ TEST_CASE("a non-finite state is never streamed: the session keeps the last good
   step.kind = CommandKind::load_step;
   step.area = "oskany";
   step.mw = 10;
-  const LiveSession::Result refused = call([&](auto done) { s.apply({step}, done); });
+  const LiveSession::Result refused = call([&](auto done) { s.apply({step}, std::nullopt, done); });
   CHECK(refused.status == 409);
   CHECK(refused.error.find("stopped being a finite number") != std::string::npos);
   CHECK(call([&](auto done) { s.resume(done); }).status == 409);
   CHECK(call([&](auto done) { s.reset(done); }).status == 200);
   CHECK(call([&](auto done) { s.resume(done); }).status == 200);
-  CHECK(call([&](auto done) { s.apply({step}, done); }).status == 200);
+  CHECK(call([&](auto done) { s.apply({step}, std::nullopt, done); }).status == 200);
   // The reset started a clean log: the halt is gone from what a new client is greeted with.
   std::promise<std::shared_ptr<const HelloSnapshot>> hp;
   s.hello([&](auto snap) { hp.set_value(std::move(snap)); });
@@ -129,7 +129,7 @@ TEST_CASE("the event log keeps each disturbance once, in its latest state") {
   step.kind = CommandKind::load_step;
   step.area = "oskany";
   step.mw = 60;
-  REQUIRE(call([&](auto done) { s.apply({step}, done); }).status == 200);
+  REQUIRE(call([&](auto done) { s.apply({step}, std::nullopt, done); }).status == 200);
   // Wait until the open disturbance has been updated a few times (its nadir has moved).
   REQUIRE(inbox.wait_for([](const json& j) { return j["type"] == "disturbance" && j["seq"].get<int>() > 8; }));
   std::this_thread::sleep_for(std::chrono::milliseconds(1500));
@@ -161,4 +161,38 @@ TEST_CASE("the event log keeps each disturbance once, in its latest state") {
   REQUIRE(after.size() == 1);
   CHECK(after[0]["kind"] == "reset");
   s.stop();
+}
+
+TEST_CASE("a seat may command its own areas' units, secondary control and load, and nothing else") {
+  const LoadResult loaded = load_scenario_file(std::string(DROOPLINE_SOURCE_DIR) + "/scenarios/demo_three_areas.json");
+  REQUIRE(loaded.system);
+  const SeatScope west{"west", {"vellmark"}};
+  auto cmd = [](CommandKind kind, std::string area, std::string unit) {
+    Command c;
+    c.kind = kind;
+    c.area = std::move(area);
+    c.unit = std::move(unit);
+    return c;
+  };
+  // Its own: a setpoint and a start of a vellmark unit, its secondary control.
+  CHECK(outside_scope(*loaded.system,
+                      {cmd(CommandKind::setpoint, "", "V1"), cmd(CommandKind::unit_start, "", "V2"),
+                       cmd(CommandKind::agc, "vellmark", "")},
+                      west)
+            .empty());
+  // Another area's unit and secondary control: named by path, with the area in words.
+  const auto other = outside_scope(
+      *loaded.system, {cmd(CommandKind::setpoint, "", "O1"), cmd(CommandKind::agc, "oskany", "")}, west);
+  REQUIRE(other.size() == 2);
+  CHECK(other[0].path == "commands[0].unit");
+  CHECK(other[0].message.find("unit \"O1\" is in area \"oskany\", which seat \"west\" does not answer for") !=
+        std::string::npos);
+  CHECK(other[1].path == "commands[1].area");
+  // The instructor's kinds, even in its own area.
+  const auto theirs = outside_scope(
+      *loaded.system, {cmd(CommandKind::unit_trip, "", "V1"), cmd(CommandKind::load_step, "vellmark", "")}, west);
+  REQUIRE(theirs.size() == 2);
+  CHECK(theirs[0].message.find("may not send unit_trip") != std::string::npos);
+  // An unknown unit is left to resolve_all, which names it.
+  CHECK(outside_scope(*loaded.system, {cmd(CommandKind::setpoint, "", "nowhere")}, west).empty());
 }

@@ -81,26 +81,49 @@ std::vector<std::string> issue_texts(const std::vector<Issue>& issues) {
   return out;
 }
 
-int check_bearer(std::string_view header, const std::string& token, std::string& why) {
+int read_bearer(std::string_view header, std::string& given, std::string& why) {
   std::size_t sp = header.find(' ');
   std::string scheme(header.substr(0, sp));
   for (char& c : scheme) c = static_cast<char>(std::tolower(static_cast<unsigned char>(c)));
   if (scheme != "bearer") {
-    why = "the instructor token goes in 'Authorization: Bearer TOKEN' (got the scheme " + quote_cut(scheme) + ")";
+    why = "the instructor token or a seat's join code goes in 'Authorization: Bearer TOKEN' (got the scheme " +
+          quote_cut(scheme) + ")";
     return 401;
   }
-  std::string_view given = sp == std::string_view::npos ? std::string_view() : header.substr(sp + 1);
-  while (!given.empty() && given.front() == ' ') given.remove_prefix(1);
-  while (!given.empty() && given.back() == ' ') given.remove_suffix(1);
-  if (given.empty()) {
+  std::string_view rest = sp == std::string_view::npos ? std::string_view() : header.substr(sp + 1);
+  while (!rest.empty() && rest.front() == ' ') rest.remove_prefix(1);
+  while (!rest.empty() && rest.back() == ' ') rest.remove_suffix(1);
+  if (rest.empty()) {
     why = "the Authorization header holds no token after 'Bearer'";
     return 401;
   }
-  if (!token_matches(std::string(given), token)) {
-    why = "wrong instructor token";
-    return 403;
-  }
+  given = std::string(rest);
   return 0;
+}
+
+Proof prove(std::string_view given, const std::string& token, SeatRoster& seats) {
+  Proof p;
+  if (token_matches(std::string(given), token)) {
+    p.role = Role::instructor;
+  } else if ((p.seat = seats.sign_in(given))) {
+    p.role = Role::seat;
+  } else {
+    p.refused_status = 403;
+    p.refused = seats.any() ? "neither the instructor token nor a seat's join code" : "wrong instructor token";
+  }
+  return p;
+}
+
+const char* role_name(Role role) {
+  switch (role) {
+    case Role::viewer:
+      return "viewer";
+    case Role::seat:
+      return "seat";
+    case Role::instructor:
+      return "instructor";
+  }
+  return "viewer";
 }
 
 void Call::reply(int status, std::string json_body) const {
@@ -123,15 +146,26 @@ std::vector<Route> route_table() {
   return routes;
 }
 
-Role role_of(const Request& req, const std::string& token, int& refused_status, std::string& refused) {
-  refused_status = 0;
-  if (!req.authorization) return req.role;
-  refused_status = check_bearer(*req.authorization, token, refused);
-  return refused_status ? req.role : Role::instructor;
+Proof role_of(const Request& req, const std::string& token, SeatRoster& seats) {
+  if (!req.authorization) return Proof{req.role, req.seat, 0, {}};
+  Proof p;
+  std::string given;
+  p.refused_status = read_bearer(*req.authorization, given, p.refused);
+  if (p.refused_status) {
+    p.role = req.role;
+    p.seat = req.seat;
+    return p;
+  }
+  p = prove(given, token, seats);
+  if (p.refused_status) {
+    p.role = req.role;
+    p.seat = req.seat;
+  }
+  return p;
 }
 
 bool Api::handle(const Request& req, Respond respond) {
-  Call call{req, parse_target(req.target), {}, Role::viewer, 0, {}, std::move(respond)};
+  Call call{req, parse_target(req.target), {}, Role::viewer, {}, 0, {}, std::move(respond)};
   if (!call.target.ok) {
     call.error(400, "malformed percent-encoding in the request target");
     return true;
@@ -161,12 +195,20 @@ bool Api::handle(const Request& req, Respond respond) {
     call.error(404, "no API endpoint " + quote_cut(path));
     return true;
   }
-  // The role policy, in one place: an instructor route refuses a viewer with 401 (or the
-  // refused token's own 401/403 and reason).
-  call.role = role_of(req, services_.token, call.refused_status, call.refused);
-  if (route->role == Role::instructor && call.role != Role::instructor) {
+  // The role policy, in one place: a route refuses a caller below its role, a viewer with 401 (or
+  // the refused token's own 401/403 and reason), a seat on an instructor route with 403 and the
+  // route's reason. What a seat may do within a seat route (its own areas) the handler checks.
+  Proof proof = role_of(req, services_.token, services_.seats);
+  call.role = proof.role;
+  call.seat = std::move(proof.seat);
+  call.refused_status = proof.refused_status;
+  call.refused = std::move(proof.refused);
+  if (call.role < route->role) {
     if (call.refused_status)
       call.error(call.refused_status, call.refused);
+    else if (call.role == Role::seat)
+      call.error(403, std::string(route->why) + " (seat " + quote_cut(call.seat ? call.seat->id : "") +
+                          " may act only on its own areas' units, secondary control, schedule and load)");
     else
       call.error(401, std::string(route->why) + ": " + req.token_hint);
     return true;
@@ -180,7 +222,7 @@ std::string Api::table_json() const {
   for (const Route& r : routes_)
     out.push_back({{"verb", verb_name(r.verb)},
                    {"path", r.pattern},
-                   {"role", r.role == Role::instructor ? "instructor" : "viewer"}});
+                   {"role", role_name(r.role)}});
   return out.dump();
 }
 

@@ -10,12 +10,16 @@
 #include <vector>
 
 #include "http_target.hpp"
+#include "seats.hpp"
 #include "services.hpp"
 
 namespace droopline::server {
 
-/// Who is asking: `viewer` needs no token, `instructor` proved the instructor token.
-enum class Role { viewer, instructor };
+/// Who is asking, least first: `viewer` needs no token, `seat` proved a seat's join code (it may act
+/// on its own areas only), `instructor` proved the instructor token.
+enum class Role { viewer, seat, instructor };
+/// "viewer", "seat", "instructor".
+const char* role_name(Role role);
 
 /// The request methods the API routes.
 enum class Verb { get, head, post, put, delete_, other };
@@ -28,7 +32,8 @@ struct Request {
   Verb verb = Verb::get;     ///< the method
   std::string target;        ///< path and query, as sent
   std::string body;          ///< the request body (JSON for every route that reads one)
-  Role role = Role::viewer;  ///< the role already proven (a WebSocket that sent its token)
+  Role role = Role::viewer;  ///< the role already proven (a WebSocket that sent its token or code)
+  std::optional<SeatIdentity> seat;  ///< role seat: which seat (proven on the WebSocket)
   /// The HTTP Authorization header, if any: checked in the dispatch (a refused one answers 401/403).
   std::optional<std::string> authorization;
   /// How a viewer proves the instructor token on this transport (quoted in a 401).
@@ -53,6 +58,7 @@ struct Call {
   Target target;                    ///< the decoded path and query
   std::vector<std::string> params;  ///< the `{...}` segments of the route's pattern, in order
   Role role = Role::viewer;         ///< the caller's role after the token check
+  std::optional<SeatIdentity> seat;  ///< role seat: which seat, its name and areas
   int refused_status = 0;           ///< a token was offered and refused: 401 or 403 (else 0)
   std::string refused;              ///< why it was refused
   Respond respond;                  ///< answers (copy it into work that finishes later)
@@ -67,20 +73,33 @@ struct Route {
   Verb verb;                                      ///< the method it answers
   std::string pattern;                            ///< the path; `{name}` matches one segment
   Role role;                                      ///< the least role allowed
-  const char* why;                                ///< for instructor routes: why, in words a trainee can act on
+  const char* why;                                ///< for seat and instructor routes: why, in words a trainee can act on
   std::function<void(Services&, Call&)> handler;  ///< answers through `Call::respond`, now or later
 };
 
 /// The whole route table, in order (handlers take the services they work on).
 std::vector<Route> route_table();
 
-/// The caller's role: `req.role`, raised to instructor by a valid Authorization header; a header
-/// that is offered and refused sets `refused_status` (401 or 403) and `refused` (why).
-Role role_of(const Request& req, const std::string& token, int& refused_status, std::string& refused);
+/// What a caller proved: a role, the seat for role seat, or why an offered proof was refused.
+struct Proof {
+  Role role = Role::viewer;
+  std::optional<SeatIdentity> seat;
+  int refused_status = 0;  ///< a token or code was offered and refused: 401 or 403 (else 0)
+  std::string refused;     ///< why
+};
 
-/// Reads `Authorization: Bearer TOKEN` (the scheme in any case, RFC 9110): 0 when it carries the
-/// instructor token, else the status (401 not a bearer token, 403 the wrong one) with `why`.
-int check_bearer(std::string_view header, const std::string& token, std::string& why);
+/// Checks a token or join code as given (the WebSocket `auth` message, the bearer of a header):
+/// the instructor token, else a seat's code, else refused with 403.
+Proof prove(std::string_view given, const std::string& token, SeatRoster& seats);
+
+/// The caller's role: `req.role`/`req.seat`, or what a valid Authorization header proves (the
+/// instructor token or a seat's join code); a header that is offered and refused sets
+/// `refused_status` (401 or 403) and `refused` (why).
+Proof role_of(const Request& req, const std::string& token, SeatRoster& seats);
+
+/// Reads `Authorization: Bearer TOKEN` (the scheme in any case, RFC 9110): 0 with the token in
+/// `given`, else 401 with `why` (not a bearer token, or none after the scheme).
+int read_bearer(std::string_view header, std::string& given, std::string& why);
 
 /// The route table and its dispatch (role check included): the API of `droopline serve`.
 class Api {

@@ -15,6 +15,10 @@ using json = nlohmann::ordered_json;
 
 // Why a route needs the instructor token, in words a trainee can act on.
 constexpr const char* kChanges = "only the instructor can change the simulation";
+// Why a route needs a seat's join code (or the instructor token).
+constexpr const char* kOperates = "only an operator seat or the instructor can send commands";
+// Why the seat list is the instructor's: it holds the join codes.
+constexpr const char* kSeats = "only the instructor sees the seats' join codes";
 
 // A number from the query, or an error message naming the parameter.
 bool query_number(const Target& t, const std::string& key, double fallback, double& out, std::string& error) {
@@ -117,7 +121,9 @@ void state(Services& s, Call& c) {
 
 void role(Services&, Call& c) {
   if (c.refused_status) return c.error(c.refused_status, c.refused);
-  c.reply(200, json{{"role", c.role == Role::instructor ? "instructor" : "viewer"}}.dump());
+  json out{{"role", role_name(c.role)}};
+  if (c.seat) out["seat"] = {{"id", c.seat->id}, {"name", c.seat->name}, {"areas", c.seat->areas}};
+  c.reply(200, out.dump());
 }
 
 void get_scenario(Services& s, Call& c) {
@@ -135,7 +141,26 @@ void put_scenario(Services& s, Call& c) {
 void commands(Services& s, Call& c) {
   CommandParse cp = parse_commands(c.request.body);
   if (!cp.issues.empty()) return c.error(400, "invalid command; nothing applied", issue_texts(cp.issues));
-  s.live->apply(std::move(cp.commands), answer(c));
+  std::optional<SeatScope> scope;
+  if (c.role == Role::seat) {
+    // The seat as the roster has it now: a seat dropped by loading another exercise acts no more.
+    const std::optional<SeatIdentity> now = c.seat ? s.seats.find(c.seat->id) : std::nullopt;
+    if (!now) return c.error(403, "this seat is not part of the running exercise: ask the instructor for a new code");
+    scope = SeatScope{now->id, now->areas};
+  }
+  s.live->apply(std::move(cp.commands), std::move(scope), answer(c));
+}
+
+void seats(Services& s, Call& c) {
+  json list = json::array();
+  for (const SeatStatus& seat : s.seats.list())
+    list.push_back({{"id", seat.id},
+                    {"name", seat.name},
+                    {"areas", seat.areas},
+                    {"join_code", seat.join_code},
+                    {"joined", seat.joined},
+                    {"streams", seat.streams}});
+  c.reply(200, json{{"seats", list}}.dump());
 }
 
 void control(Services& s, Call& c) {
@@ -214,7 +239,7 @@ void openapi(Services&, Call& c) {
 }  // namespace
 
 void add_live_routes(std::vector<Route>& routes) {
-  const Role viewer = Role::viewer, instructor = Role::instructor;
+  const Role viewer = Role::viewer, seat = Role::seat, instructor = Role::instructor;
   routes.insert(routes.end(), {
                                   {Verb::get, "/healthz", viewer, "", healthz},
                                   {Verb::get, "/metrics", viewer, "", metrics},
@@ -222,7 +247,8 @@ void add_live_routes(std::vector<Route>& routes) {
                                   {Verb::get, "/api/v1/role", viewer, "", role},
                                   {Verb::get, "/api/v1/scenario", viewer, "", get_scenario},
                                   {Verb::put, "/api/v1/scenario", instructor, kChanges, put_scenario},
-                                  {Verb::post, "/api/v1/commands", instructor, kChanges, commands},
+                                  {Verb::post, "/api/v1/commands", seat, kOperates, commands},
+                                  {Verb::get, "/api/v1/seats", instructor, kSeats, seats},
                                   {Verb::post, "/api/v1/control", instructor, kChanges, control},
                                   {Verb::get, "/api/v1/history", viewer, "", history},
                                   {Verb::get, "/api/v1/events", viewer, "", events},

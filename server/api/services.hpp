@@ -9,6 +9,7 @@
 #include <vector>
 
 #include "live_session.hpp"
+#include "seats.hpp"
 #include "sweep_jobs.hpp"
 
 namespace droopline::server {
@@ -60,6 +61,7 @@ struct Services {
   std::unique_ptr<LiveSession> live;  ///< the live session
   NetCounters counters;               ///< for /metrics
   SweepJobs sweeps;                   ///< sweep jobs submitted over the API
+  SeatRoster seats;                   ///< the running exercise's seats and join codes (none without one)
   /// Runs a job on the worker pool (replays, modes, assessments): never on the loop or I/O threads.
   std::function<void(std::function<void()>)> run_on_workers;
 };

@@ -22,9 +22,9 @@ CommandPipeline::CommandPipeline(std::string journal_path, std::function<void()>
     : journal_(std::move(journal_path), std::move(wake)), applied_(applied), refused_(refused) {}
 
 void CommandPipeline::refuse(const std::vector<Command>& commands, const Done& done, int status,
-                             const std::string& why) {
+                             const std::string& why, std::vector<Issue> issues) {
   refused_.fetch_add(commands.size());
-  done(refused(status, why));
+  done(refused(status, why, std::move(issues)));
 }
 
 bool CommandPipeline::submit(const Engine& engine, std::vector<Command> commands, std::int64_t earliest_step,

@@ -62,7 +62,8 @@ class CommandPipeline {
   /// Refuses every waiting command with `status` and `why`.
   void refuse_all(int status, const std::string& why);
   /// Refuses `commands` before they reach the pipeline (a halted session), counted like the rest.
-  void refuse(const std::vector<Command>& commands, const Done& done, int status, const std::string& why);
+  void refuse(const std::vector<Command>& commands, const Done& done, int status, const std::string& why,
+              std::vector<Issue> issues = {});
 
  private:
   struct Pending {

@@ -260,13 +260,20 @@ void LiveSession::drain_notices() {
 
 // ------------------------------------------------------------------ requests
 
-void LiveSession::apply(std::vector<Command> commands, Done done) {
-  post([this, commands = std::move(commands), done = std::move(done)](Engine& e) mutable {
+void LiveSession::apply(std::vector<Command> commands, std::optional<SeatScope> scope, Done done) {
+  post([this, commands = std::move(commands), scope = std::move(scope), done = std::move(done)](Engine& e) mutable {
     // Check, journal, apply: a command is applied and acknowledged only once its record is on
     // disk, at the step the record names; one refused by either changes nothing. The journal is
     // written on its own thread, so the command is scheduled a little ahead (journal_lead_s of
     // wall time) for the record to get there first.
     if (!halted_.empty()) return pipeline_.refuse(commands, done, 409, "command refused: " + halted_);
+    if (scope) {  // checked against the system running now (a load may have changed it since the request)
+      std::vector<Issue> outside = outside_scope(*system_, commands, *scope);
+      if (!outside.empty())
+        return pipeline_.refuse(commands, done, 403,
+                                "command refused, nothing applied: outside what seat \"" + scope->seat + "\" may do",
+                                std::move(outside));
+    }
     std::int64_t step = e.step_index();
     if (!paused_.load())
       step += static_cast<std::int64_t>(std::ceil(config_.journal_lead_s * speed_.load() / def().step_s));

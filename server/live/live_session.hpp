@@ -23,6 +23,7 @@
 #include "droopline/engine.hpp"
 #include "command_pipeline.hpp"
 #include "history_store.hpp"
+#include "seat_scope.hpp"
 #include "journal.hpp"
 #include "telemetry.hpp"
 
@@ -92,8 +93,9 @@ class LiveSession {
   using Result = LiveResult;
   using Done = std::function<void(Result)>;
 
-  /// Applies commands atomically (all or none), journals them, then answers.
-  void apply(std::vector<Command> commands, Done done);
+  /// Applies commands atomically (all or none), journals them, then answers. From a seat
+  /// (`scope`), commands outside its kinds or areas refuse the whole batch with 403.
+  void apply(std::vector<Command> commands, std::optional<SeatScope> scope, Done done);
   /// Replaces the scenario (checked by the loader) and restarts from t = 0.
   void load(CheckedSystem system, Done done);
   /// Restarts the current scenario from t = 0.

@@ -155,17 +155,15 @@ void HttpSession::upgrade(HttpRequest&& req) {
     for (const auto& a : ctx_.options.allow_origins) allowed = allowed || origin == a;
     if (!allowed) return refuse(403, "WebSocket origin \"" + origin + "\" is not allowed (use --allow-origin)");
   }
-  bool instructor = false;
+  Proof proof;
   if (req.count(http::field::authorization)) {
     Request probe;
     probe.authorization = std::string(req[http::field::authorization]);
-    int status = 0;
-    std::string why;
-    instructor = role_of(probe, ctx_.token, status, why) == Role::instructor;
-    if (status) return refuse(status, why);
+    proof = role_of(probe, ctx_.token, ctx_.seats);
+    if (proof.refused_status) return refuse(proof.refused_status, proof.refused);
   }
   stream_.expires_never();
-  std::make_shared<WebsocketSession>(stream_.release_socket(), ctx_, instructor, slot_)->run(std::move(req));
+  std::make_shared<WebsocketSession>(stream_.release_socket(), ctx_, std::move(proof), slot_)->run(std::move(req));
 }
 
 void HttpSession::handle(HttpRequest&& req) {

@@ -27,15 +27,24 @@ WebsocketSession::Socket WebsocketSession::adopt(net::io_context& ioc, tcp::sock
   return out;
 }
 
-WebsocketSession::WebsocketSession(tcp::socket&& socket, Context& ctx, bool instructor,
-                                   std::shared_ptr<void> slot)
-    : ws_(adopt(*ctx.ioc, std::move(socket))), ctx_(ctx), instructor_(instructor), slot_(std::move(slot)) {
+WebsocketSession::WebsocketSession(tcp::socket&& socket, Context& ctx, Proof proof, std::shared_ptr<void> slot)
+    : ws_(adopt(*ctx.ioc, std::move(socket))), ctx_(ctx), role_(Role::viewer), slot_(std::move(slot)) {
+  become(std::move(proof));
   beast::error_code ec;
   const auto ep = beast::get_lowest_layer(ws_).remote_endpoint(ec);
   peer_ = ec ? "?" : ep.address().to_string() + ":" + std::to_string(ep.port());
 }
 
+void WebsocketSession::become(Proof proof) {
+  if (proof.refused_status) return;
+  if (seat_) ctx_.seats.stream(seat_->id, -1);
+  role_ = proof.role;
+  seat_ = std::move(proof.seat);
+  if (seat_) ctx_.seats.stream(seat_->id, +1);
+}
+
 WebsocketSession::~WebsocketSession() {
+  if (seat_) ctx_.seats.stream(seat_->id, -1);
   ctx_.hub.leave(this);
   if (joined_) {
     ctx_.counters.clients.fetch_sub(1);
@@ -67,7 +76,8 @@ void WebsocketSession::on_accept(beast::error_code ec) {
   if (ec) return fail(ec, "accept");
   joined_ = true;
   ctx_.counters.clients.fetch_add(1);
-  spdlog::info("client {} connected{}", peer_, instructor_ ? " (instructor)" : "");
+  spdlog::info("client {} connected{}", peer_,
+               role_ == Role::instructor ? " (instructor)" : seat_ ? " (seat " + seat_->id + ")" : std::string());
   // The greeting's contents are copied on the loop thread and the hub joined there too, which
   // keeps the order: nothing sent after the greeting's history can be missing from it or come
   // before it. Its JSON is written on this socket's strand, ahead of every frame posted later.
@@ -132,20 +142,23 @@ void WebsocketSession::handle_message(const std::string& text) {
   }
   const std::string type = j["type"].get<std::string>();
   if (type == "auth") {
-    const bool ok = j.contains("token") && j["token"].is_string() &&
-                    token_matches(j["token"].get<std::string>(), ctx_.token);
-    if (ok) instructor_ = true;
-    json answer{{"type", "auth"}, {"id", id}, {"ok", ok}, {"role", instructor_ ? "instructor" : "viewer"}};
-    if (!ok) answer["error"] = j.contains("token") && j["token"].is_string() ? "wrong instructor token" : "token: required, a string";
+    const bool given = j.contains("token") && j["token"].is_string();
+    Proof proof = given ? prove(j["token"].get_ref<const std::string&>(), ctx_.token, ctx_.seats) : Proof{};
+    const bool ok = given && !proof.refused_status;
+    if (ok) become(proof);
+    json answer{{"type", "auth"}, {"id", id}, {"ok", ok}, {"role", role_name(role_)}};
+    if (seat_) answer["seat"] = {{"id", seat_->id}, {"name", seat_->name}, {"areas", seat_->areas}};
+    if (!ok) answer["error"] = given ? proof.refused : "token: required, a string";
     reply(safe_dump(answer));
-    if (ok) spdlog::info("client {} authenticated as instructor", peer_);
+    if (ok) spdlog::info("client {} authenticated as {}", peer_, seat_ ? "seat " + seat_->id : "instructor");
     return;
   }
   // A control message is a request to the API's route table: the same route, role rule and
   // messages as over HTTP; the reply carries the route's status and JSON body.
   Request call;
   call.verb = Verb::post;
-  call.role = instructor_ ? Role::instructor : Role::viewer;
+  call.role = role_;
+  call.seat = seat_;
   call.token_hint = "send {\"type\":\"auth\",\"token\":...} first";
   auto self = shared_from_this();
   auto respond = [self, head = "{\"type\":\"reply\",\"id\":" + safe_dump(id) + ",\"status\":"](Reply r) {

@@ -11,8 +11,8 @@ namespace droopline::server {
 
 class WebsocketSession : public std::enable_shared_from_this<WebsocketSession> {
  public:
-  WebsocketSession(tcp::socket&& socket, Context& ctx, bool instructor,
-                   std::shared_ptr<void> slot);
+  /// `proof`: what the upgrade request's Authorization header proved (viewer when none).
+  WebsocketSession(tcp::socket&& socket, Context& ctx, Proof proof, std::shared_ptr<void> slot);
   ~WebsocketSession();
 
   /// Accepts the upgrade request, then greets the client and joins the hub.
@@ -39,7 +39,9 @@ class WebsocketSession : public std::enable_shared_from_this<WebsocketSession> {
   static Socket adopt(net::io_context& ioc, tcp::socket&& socket);
   websocket::stream<Socket> ws_;
   Context& ctx_;
-  bool instructor_;
+  Role role_;                       // viewer, or what the upgrade or an auth message proved
+  std::optional<SeatIdentity> seat_;  // role seat: which (counted in the roster's streams)
+  void become(Proof proof);         // takes a new role, keeping the roster's stream counts right
   std::shared_ptr<void> slot_;  // holds this connection's place under the limit
   beast::flat_buffer buffer_;
   std::deque<Outgoing> queue_;

@@ -194,7 +194,7 @@ class StreamTests(ThreeAreaServerCase):
                 return r1, a, r2
         r1, a, r2 = run(go())
         self.assertEqual(r1["status"], 401)
-        self.assertIn("only the instructor can change the simulation", r1["body"]["error"])
+        self.assertIn("only an operator seat or the instructor can send commands", r1["body"]["error"])
         self.assertTrue(a["ok"])
         self.assertEqual(r2["status"], 200, r2)
 
@@ -410,7 +410,8 @@ BAD = [
 PROTECTED = [
     # (method, path, body, fragment of the reason)
     ("PUT", "/api/v1/scenario", "{}", "only the instructor can change the simulation"),
-    ("POST", "/api/v1/commands", '{"kind": "load_step", "area": "oskany", "mw": 1}', "only the instructor can change"),
+    ("POST", "/api/v1/commands", '{"kind": "load_step", "area": "oskany", "mw": 1}', "only an operator seat or the instructor"),
+    ("GET", "/api/v1/seats", None, "only the instructor sees the seats' join codes"),
     ("POST", "/api/v1/control", '{"action": "pause"}', "only the instructor can change"),
     ("POST", "/api/v1/replays", "{}", "run on the server's worker pool"),
     ("POST", "/api/v1/sweeps", '{"vary": ["units[0].governor.droop=0.04"]}', "sweeps are for the instructor"),
@@ -450,9 +451,11 @@ class RolePolicyTests(ThreeAreaServerCase):
                     await ws.send(json.dumps({**msg, "id": i}))
                     out.append(await next_of(ws, "reply"))
                 return out
-        for r in run(go()):
+        for r, why in zip(run(go()), ("only an operator seat or the instructor can send commands",
+                                      "only the instructor can change the simulation",
+                                      "only the instructor can change the simulation")):
             self.assertEqual(r["status"], 401, r)
-            self.assertIn("only the instructor can change the simulation", r["body"]["error"])
+            self.assertIn(why, r["body"]["error"])
             self.assertIn('"type":"auth"', r["body"]["error"])
 
     def test_http_and_websocket_give_the_same_messages(self):
