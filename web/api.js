@@ -1,4 +1,4 @@
-// The one way to call the HTTP API: adds the instructor token once it was accepted, sends objects
+// The one way to call the HTTP API: adds the instructor token or seat code once it was accepted, sends objects
 // as JSON, parses the JSON answer and turns any failure into an ApiError with a readable message
 // (the server's `error` and its `issues`, or why the server did not answer).
 import { app, errorOutput } from '/state.js';
@@ -15,7 +15,7 @@ export class ApiError extends Error {
  * `body`: an object (sent as JSON) or a string (sent as it is); `token` replaces the session's.
  */
 export async function api(path, { method = 'GET', body, token } = {}) {
-  const bearer = token ?? (app.instructor ? app.token : '');
+  const bearer = token ?? (app.role === 'viewer' ? '' : app.token);
   const headers = {};
   if (bearer) headers.Authorization = `Bearer ${bearer}`;
   if (body !== undefined) headers['Content-Type'] = 'application/json';

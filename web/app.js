@@ -1,22 +1,42 @@
-// droopline training-room page, the entry module: wires the stream to the charts, tables and
-// panels, and the instructor controls and studies to the HTTP API. Each part is its own module:
-//   state.js       shared state (window.droopline), $, fmt
-//   api.js         the one HTTP API caller (token, JSON, readable errors)
-//   connection.js  the WebSocket stream: hello, frames, events, reconnection
+// droopline training-room page, the entry module: picks the view (overview, wall, seat or
+// instructor, from `?view=`), wires the stream to the charts and panels, and the controls and
+// studies to the HTTP API. Each part is its own module:
+//   state.js       shared state (window.droopline), the view, $, fmt, el, author names
+//   api.js         the one HTTP API caller (token or seat code, JSON, readable errors)
+//   connection.js  the WebSocket stream: hello, frames, events, alarms, reconnection
 //   charts.js      uPlot charts, series from the hello's columns
 //   tables.js      the one table builder (columns and rows)
 //   live.js        clock, area and unit tables, sharing views, disturbances, event log
+//   commands.js    sending commands and changes: confirmation, acknowledgement, words for a command
 //   controls.js    instructor controls and field checks
+//   alarms.js      alarms from the stream, the one alarm list, acknowledging, the alarm tone
+//   exercise.js    the running exercise (briefing, time limit, seat names)
+//   wall.js        the wall view: large frequencies, alarms, tie flows, exercise clock
+//   seat.js        the seat view: join code, briefing, the seat's areas and units with their controls
+//   desk.js        the instructor view's panels: seats, script, save points and rewind, feed, alarms
 //   studies.js     modes, requirement checks, sweeps, COMTRADE records
 //   views.js       droop and power-angle canvases
-import { app } from '/state.js';
+import { app, $ } from '/state.js';
 import { connect, startsRun } from '/connection.js';
 import { buildCharts, loadHistory, addFrame, redrawCharts, resizeCharts } from '/charts.js';
-import { renderStatic, renderLive, renderDisturbance, logEvent, clearRun } from '/live.js';
-import { wireControls, fillChoices } from '/controls.js';
+import { renderStatic, renderLive, renderClock, renderDisturbance, logEvent, clearRun } from '/live.js';
+import { wireControls, fillChoices, unlockWith } from '/controls.js';
 import { wireStudies, clearSweepNote } from '/studies.js';
+import { takeAlarms, alarmMessage, fetchAlarms } from '/alarms.js';
+import { loadExercise } from '/exercise.js';
+import { prepareWall, buildWall, renderWall } from '/wall.js';
+import { wireSeat, buildSeat, renderSeat } from '/seat.js';
+import { makeDesk, refreshDesk, unlockedDesk, feedEvent, clearFeed } from '/desk.js';
 
-// Charts and tables are redrawn at most once per animation frame.
+const view = app.view;
+document.body.dataset.view = view;
+for (const a of document.querySelectorAll('nav.views a')) if (a.dataset.view === view) a.setAttribute('aria-current', 'page');
+if (view === 'wall') $('wall').hidden = false;
+if (view === 'seat') $('seat').hidden = false;
+if (view === 'wall') prepareWall();
+if (view === 'instructor') makeDesk();
+
+// Charts and panels are redrawn at most once per animation frame.
 let redrawPending = false;
 function scheduleRedraw() {
   if (redrawPending) return;
@@ -24,30 +44,62 @@ function scheduleRedraw() {
   requestAnimationFrame(() => {
     redrawPending = false;
     redrawCharts();
-    if (app.last) renderLive(app.last);
+    const f = app.last;
+    if (!f) return;
+    renderClock(f);
+    if (view === 'wall') renderWall(f);
+    else if (view === 'seat') renderSeat(f);
+    else renderLive(f);
   });
 }
 
-function onHello(msg) {
+// An event for the log and, with an author, the instructor's feed. The overview asks for the
+// exercise (its seats' names) only once a seat has acted: without one the route answers 404.
+function takeEvent(e) {
+  if (view === 'overview' && e.by && !['instructor', 'script'].includes(e.by) && !app.exercise) loadExercise();
+  logEvent(e);
+  feedEvent(e);
+}
+
+async function onHello(msg) {
   app.scenario = msg.scenario;
   app.columns = msg.columns;
   clearRun();
+  clearFeed();
   buildCharts();
   renderStatic();
   fillChoices(app.scenario);
   loadHistory(msg.history);
+  takeAlarms(msg.alarms ?? [], { replace: true });
   // The server keeps its event list across resets: only this run's events, from the last reset or
-  // scenario load on.
+  // scenario load on. Alarm changes among them bring the alarms up to date.
   for (const e of msg.events.slice(Math.max(0, msg.events.findLastIndex(startsRun)))) {
+    if (e.type === 'alarm') continue; // the greeting's `alarms` already hold the active ones
     if (e.type === 'disturbance') renderDisturbance(e);
-    logEvent(e);
+    takeEvent(e);
   }
   scheduleRedraw();
+  // The exercise is asked for where it is shown and known to run (a 404 otherwise): the wall's
+  // clock, a seat once joined; the instructor's panels ask once unlocked (refreshDesk).
+  if (view === 'wall') {
+    await loadExercise();
+    buildWall();
+  } else if (view === 'seat' && app.seat) {
+    await loadExercise();
+    buildSeat();
+    fetchAlarms(); // cleared ones too: the greeting has only the active
+  } else if (view === 'instructor' && app.instructor) {
+    refreshDesk();
+    fetchAlarms();
+  }
 }
 
 window.addEventListener('resize', resizeCharts);
-wireControls({ onUnlock: clearSweepNote });
+wireControls({ onUnlock: () => { clearSweepNote(); if (view === 'instructor') unlockedDesk(); } });
 wireStudies();
+if (view === 'seat') wireSeat();
+// The instructor view signs in again with a token kept from before (a reload).
+if (view === 'instructor' && app.token) unlockWith(app.token).then(() => { clearSweepNote(); unlockedDesk(); }, () => {});
 connect({
   hello: onHello,
   frame: (f) => {
@@ -57,10 +109,11 @@ connect({
   },
   event: (e) => {
     if (startsRun(e)) clearRun();
-    logEvent(e);
+    takeEvent(e);
   },
   disturbance: (d) => {
     renderDisturbance(d);
     logEvent(d);
   },
+  alarm: alarmMessage,
 });

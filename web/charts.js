@@ -12,14 +12,24 @@ const PALETTE = ['#0b5cad', '#d9480f', '#1d7a3a', '#7b2cbf', '#a61e4d', '#0c8599
 let plan = { freq: [], units: [], ties: [] };
 let timeColumn = 0;
 
-const chartSize = (el) => ({ width: Math.max(300, el.clientWidth), height: Math.max(180, Math.round(window.innerHeight * 0.22)) });
+// A chart's height is a share of the window's: 0.22, or its container's `data-height-share`.
+const heightShare = (el) => Number(el.closest('[data-height-share]')?.dataset.heightShare) || 0.22;
+const chartSize = (el) => ({ width: Math.max(300, el.clientWidth), height: Math.max(180, Math.round(window.innerHeight * heightShare(el))) });
 const valueText = (digits) => (u, v) => (v == null ? '-' : v.toFixed(digits));
+
+// The axes; on the wall their figures follow the page's size (readable across a room).
+function axes() {
+  if (app.view !== 'wall') return [{ label: 'simulation time, s' }, {}];
+  const px = Math.round(parseFloat(getComputedStyle(document.documentElement).fontSize));
+  const font = `${px}px system-ui, sans-serif`;
+  return [{ label: 'simulation time, s', font, labelFont: `bold ${font}`, size: 2.4 * px, labelSize: 1.6 * px }, { font, size: 4.2 * px }];
+}
 
 function chartOptions(el, series, refLines, yRange) {
   return {
     ...chartSize(el),
     scales: { x: { time: false }, y: yRange ? { range: yRange } : {} },
-    axes: [{ label: 'simulation time, s' }, {}],
+    axes: axes(),
     legend: { live: true },
     cursor: { drag: { x: true, y: false } },
     series: [{ label: 't s' }, ...series],

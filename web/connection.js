@@ -1,6 +1,7 @@
-// The one WebSocket to /api/v1/stream: connect, the hello, frames, events and disturbances handed
-// to the page, the dropped-frames notice, the link indicator, and reconnection with back-off
-// (0.5 s doubling to 8 s; at once when a new run starts, for a fresh hello).
+// The one WebSocket to /api/v1/stream: connect, the hello, frames, events, disturbances and alarms
+// handed to the page, the dropped-frames notice, the link indicator, and reconnection with back-off
+// (0.5 s doubling to 8 s; at once when a new run starts or the session went back in time, for a
+// fresh hello with the history as it now stands).
 import { app, $ } from '/state.js';
 
 /** An event that starts a new run (a reset or another scenario). */
@@ -11,9 +12,9 @@ function setLink(state, text) {
   $('link-text').textContent = text;
 }
 
-/** Proves the instructor token on the open stream. */
+/** Proves the instructor token or the seat's code on the open stream. */
 export function sendAuth() {
-  if (app.ws?.readyState === WebSocket.OPEN) app.ws.send(JSON.stringify({ type: 'auth', token: app.token }));
+  if (app.role !== 'viewer' && app.ws?.readyState === WebSocket.OPEN) app.ws.send(JSON.stringify({ type: 'auth', token: app.token }));
 }
 
 function showDropped(frames) {
@@ -25,8 +26,9 @@ function showDropped(frames) {
 }
 
 /**
- * Opens the stream and keeps it open. `on.hello(msg)`, `on.frame(msg)`, `on.event(msg)` and
- * `on.disturbance(msg)` receive the messages; frames only after a hello.
+ * Opens the stream and keeps it open. `on.hello(msg)`, `on.frame(msg)`, `on.event(msg)`,
+ * `on.disturbance(msg)` and `on.alarm(msg)` receive the messages; frames only after a hello. A
+ * `restored` message (a save point restored, a rewind) goes to `on.event` and brings a new hello.
  */
 export function connect(on) {
   const ws = new WebSocket(`${location.protocol === 'https:' ? 'wss' : 'ws'}://${location.host}/api/v1/stream`);
@@ -40,7 +42,7 @@ export function connect(on) {
         app.connected = true;
         app.retries = 0;
         setLink('up', 'live');
-        if (app.token && app.instructor) sendAuth();
+        sendAuth();
         break;
       case 'frame':
         if (app.scenario) on.frame(msg);
@@ -55,8 +57,16 @@ export function connect(on) {
         }
         on.event(msg);
         break;
+      case 'restored':
+        app.rejoin = true;
+        ws.close(); // the charts and panels as the session now stands: a fresh hello
+        on.event(msg);
+        break;
       case 'disturbance':
         on.disturbance(msg);
+        break;
+      case 'alarm':
+        on.alarm(msg);
         break;
       default:
         break;

@@ -1,11 +1,13 @@
 // The instructor's controls: the token, then session, area, unit and tie controls sent over HTTP
-// (each answer lands beside the control that sent it), and the checks of numeric fields.
+// (each refusal lands beside the control that sent it, each applied action is acknowledged, trips,
+// reset and loading are confirmed first), and the checks of numeric fields.
 import { app, $ } from '/state.js';
 import { api, apiFor, ApiError } from '/api.js';
 import { sendAuth } from '/connection.js';
+import { sendCommand as command, sendChange, confirmAction, AGC_MODE_NAMES } from '/commands.js';
 
-const command = (group, c) => apiFor(group, '/api/v1/commands', { method: 'POST', body: c });
-const control = (body) => apiFor('session', '/api/v1/control', { method: 'POST', body });
+const CONTROL_WORDS = { pause: 'paused', resume: 'resumed', reset: 'reset to t = 0' };
+const control = (body, what) => sendChange('session', '/api/v1/control', body, what ?? CONTROL_WORDS[body.action]);
 
 // Numeric fields are checked here, before anything is sent: a blank or non-numeric field would
 // otherwise reach the server as 0. The problem shows beside the field itself.
@@ -85,42 +87,72 @@ export function fillChoices(sc) {
 async function unlock(ev) {
   ev.preventDefault();
   $('auth-error').textContent = '';
-  const token = $('token').value.trim();
   try {
-    await api('/api/v1/role', { token });
+    await unlockWith($('token').value.trim());
   } catch (e) {
     if (!(e instanceof ApiError)) throw e;
     $('auth-error').textContent = e.status
       ? 'That token was refused: check it with the instructor who started the session.' : e.message;
     return false;
   }
+  return true;
+}
+
+/** Proves the instructor token: the role, the stream's auth, the controls shown. */
+export async function unlockWith(token) {
+  await api('/api/v1/role', { token });
   app.token = token;
+  app.role = 'instructor';
   app.instructor = true;
-  sessionStorage.setItem('droopline.token', token);
+  sessionStorage.setItem(app.tokenKey, token);
   sendAuth();
   $('controls').hidden = false;
   $('auth-form').querySelector('button').textContent = 'Unlocked';
-  return true;
 }
 
 /** Wires the controls; `onUnlock()` runs once the token was accepted. */
 export function wireControls({ onUnlock }) {
+  // A field's problem goes as soon as it is edited (fields made later included).
+  document.addEventListener('input', (ev) => {
+    const input = ev.target;
+    if (input.matches?.('input[type=number][aria-invalid]')) showFieldProblem(input, '');
+  });
   $('auth-form').addEventListener('submit', async (ev) => { if (await unlock(ev)) onUnlock(); });
-  for (const b of document.querySelectorAll('[data-control]'))
-    b.addEventListener('click', () => control({ action: b.dataset.control }));
-  $('speed-select').addEventListener('change', () => control({ action: 'speed', speed: Number($('speed-select').value) }));
+  for (const b of document.querySelectorAll('[data-control]')) {
+    const send = () => control({ action: b.dataset.control });
+    const reset = async () => {
+      if (await confirmAction('Reset the session to t = 0? The run so far, its save points and every seat\'s progress are lost.', 'Reset to t = 0')) send();
+    };
+    b.addEventListener('click', b.dataset.control === 'reset' ? reset : send);
+  }
+  $('speed-select').addEventListener('change', () => control({ action: 'speed', speed: Number($('speed-select').value) }, `speed ${$('speed-select').value}x`));
   $('scenario-file').addEventListener('change', async () => {
     const file = $('scenario-file').files[0];
     if (!file) return;
-    await apiFor('session', '/api/v1/scenario', { method: 'PUT', body: await file.text() });
     $('scenario-file').value = '';
+    if (!await confirmAction(`Load the scenario in "${file.name}"? The running session ends and a new run starts at t = 0.`, 'Load scenario')) return;
+    await sendChange('session', '/api/v1/scenario', await file.text(), `scenario from "${file.name}" loaded`, 'PUT');
   });
+  const modeSelect = $('agc-mode');
+  modeSelect.replaceChildren(new Option('(unchanged)', ''), ...AGC_MODE_NAMES.map(([name, words]) => new Option(words, name)));
+  const agc = (enabled) => () => {
+    const c = { kind: 'agc', area: areaId(), enabled };
+    if (modeSelect.value) c.mode = modeSelect.value;
+    command('area', c);
+  };
+  $('do-schedule').addEventListener('click', numeric(['sched-mw', 'sched-s'], (v) => {
+    const c = { kind: 'schedule', area: areaId(), mw: v['sched-mw'] };
+    if (v['sched-s'] > 0) c.over_s = v['sched-s'];
+    command('area', c);
+  }));
+  $('do-shed').addEventListener('click', numeric(['shed-mw'], (v) => command('area', { kind: 'shed', area: areaId(), mw: v['shed-mw'] })));
+  $('do-restore').addEventListener('click', () => command('area', { kind: 'restore', area: areaId() }));
   $('do-step').addEventListener('click', numeric(['step-mw'], (v) => command('area', { kind: 'load_step', area: areaId(), mw: v['step-mw'] })));
   $('do-ramp').addEventListener('click', numeric(['ramp-mw', 'ramp-s'], (v) => command('area', {
     kind: 'load_ramp', area: areaId(), mw: v['ramp-mw'], over_s: v['ramp-s'],
   })));
-  $('agc-on').addEventListener('click', () => command('area', { kind: 'agc', area: areaId(), enabled: true }));
-  $('agc-off').addEventListener('click', () => command('area', { kind: 'agc', area: areaId(), enabled: false }));
+  $('agc-on').addEventListener('click', agc(true));
+  $('agc-off').addEventListener('click', agc(false));
   $('unit-select').addEventListener('change', syncUnitForm);
   $('do-setpoint').addEventListener('click', numeric(['set-mw', 'set-ramp'], (v) => {
     const c = { kind: 'setpoint', unit: unitId(), mw: v['set-mw'] };
@@ -131,12 +163,20 @@ export function wireControls({ onUnlock }) {
     kind: 'governor', unit: unitId(), droop: v['gov-droop'], deadband_hz: v['gov-db'],
     deadband: $('gov-kind').value, mode: $('gov-mode').value,
   })));
-  $('do-trip').addEventListener('click', () => command('unit', { kind: 'unit_trip', unit: unitId() }));
+  $('do-trip').addEventListener('click', async () => {
+    const unit = unitId();
+    if (await confirmAction(`Trip unit ${unit}? It goes offline at once, without unloading.`, `Trip ${unit}`)) command('unit', { kind: 'unit_trip', unit });
+  });
   $('do-start').addEventListener('click', numeric(['start-mw'], (v) => command('unit', { kind: 'unit_start', unit: unitId(), mw: v['start-mw'] })));
-  // A field's problem goes as soon as it is edited.
-  for (const input of document.querySelectorAll('input[type=number]'))
-    input.addEventListener('input', () => { if (input.hasAttribute('aria-invalid')) showFieldProblem(input, ''); });
-  $('do-tie-trip').addEventListener('click', () => command('tie', { kind: 'tie_trip', tie: $('tie-select').value }));
+  $('do-stop').addEventListener('click', numeric(['set-ramp'], (v) => {
+    const c = { kind: 'unit_stop', unit: unitId() };
+    if (v['set-ramp'] > 0) c.ramp_mw_per_s = v['set-ramp'];
+    command('unit', c);
+  }));
+  $('do-tie-trip').addEventListener('click', async () => {
+    const tie = $('tie-select').value;
+    if (await confirmAction(`Trip tie ${tie}? The areas it joins lose their exchange over it at once.`, `Trip ${tie}`)) command('tie', { kind: 'tie_trip', tie });
+  });
   $('do-tie-close').addEventListener('click', () => command('tie', { kind: 'tie_close', tie: $('tie-select').value }));
   if (app.token) $('token').value = app.token;
 }

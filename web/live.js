@@ -1,6 +1,6 @@
 // What the stream shows besides the charts: the scenario's name, the clock and badges, the area
 // and unit tables, the sharing views, the disturbance panel and the event log.
-import { app, $, fmt } from '/state.js';
+import { app, $, fmt, authorName } from '/state.js';
 import { fillTable } from '/tables.js';
 import { drawDroop, drawPowerAngle } from '/views.js';
 
@@ -44,12 +44,16 @@ const UNIT_COLUMNS = [
   ({ share }) => `${fmt(100 * share, 0)} %`,
 ];
 
-/** A frame: clock, badges, tables and the operating points on the sharing views. */
-export function renderLive(f) {
-  const sc = app.scenario;
+/** A frame's clock and badges (every view). */
+export function renderClock(f) {
   $('sim-time').textContent = f.t_s.toFixed(1);
   $('speed-badge').textContent = `${f.speed}x`;
   $('paused-badge').hidden = !f.paused;
+}
+
+/** A frame: tables and the operating points on the sharing views. */
+export function renderLive(f) {
+  const sc = app.scenario;
   fillTable($('area-table'), AREA_COLUMNS, sc.areas.map((a) => ({ a, s: f.areas[a.id] })));
   // Each unit's share of its area's secondary control, among the units not tripped.
   const running = (u) => f.units[u.id].status !== 'tripped';
@@ -92,6 +96,7 @@ export function logEvent(e) {
   const time = Object.assign(document.createElement('span'), { className: 't', textContent: `${fmt(t, 2)} s` });
   const text = e.type === 'disturbance' ? `disturbance: ${e.cause}${e.open ? ' (being measured)' : ''}` : e.text;
   li.replaceChildren(time, document.createTextNode(text));
+  if (e.by) li.append(Object.assign(document.createElement('span'), { className: 'by', textContent: ` (${authorName(e.by)})` }));
 }
 
 // Each disturbance's label and value pairs: one <div> per pair, so a value always stands under

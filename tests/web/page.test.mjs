@@ -262,6 +262,7 @@ for (const vp of VIEWPORTS) {
       ['step-mw', '#do-step', ''], ['ramp-mw', '#do-ramp', ''], ['ramp-s', '#do-ramp', '-'],
       ['set-mw', '#do-setpoint', ''], ['set-ramp', '#do-setpoint', '-'], ['gov-droop', '#do-governor', ''],
       ['gov-db', '#do-governor', '-'], ['start-mw', '#do-start', ''], ['rec-from', '#rec-cfg', ''], ['rec-to', '#rec-dat', '-'],
+      ['sched-mw', '#do-schedule', ''], ['sched-s', '#do-schedule', '-'], ['shed-mw', '#do-shed', ''],
     ];
     const all = await page.$$eval('input[type=number]', (xs) => xs.map((x) => x.id).sort());
     assert.deepEqual([...new Set(cases.map((c) => c[0]))].sort(), all, 'every number field is covered');
@@ -301,6 +302,9 @@ for (const vp of VIEWPORTS) {
     const mw = 90 + vp.width / 100;
     await loadStep(page, mw);
     await page.click('[data-control="reset"]');
+    // A reset waits for a confirmation that says what will happen.
+    assert.match(await page.locator('#confirm-text').textContent(), /Reset the session to t = 0/);
+    await page.click('#confirm-yes');
     // The page rejoins: the new run's clock starts again from 0.
     await page.waitForFunction(() => window.droopline.connected && window.droopline.last?.t_s < 5 && window.droopline.data.freq[0][0] === 0, null, { timeout: 8000 });
     await page.waitForTimeout(500);

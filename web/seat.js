@@ -1,0 +1,198 @@
+// The seat view: a trainee joins with the seat's code, reads the briefing and runs the seat's own
+// areas: per area its frequency, ACE, schedule (and a ramped change of it), upward reserve, shed
+// load (shed and restore by hand) and secondary control (on/off, mode); per unit its state and its
+// own setpoint (optionally ramped), start and controlled stop. Only the seat's areas are offered;
+// whatever the server refuses shows in its words beside the control that sent it.
+import { app, $, fmt, el } from '/state.js';
+import { api, ApiError } from '/api.js';
+import { sendAuth } from '/connection.js';
+import { sendCommand, AGC_MODE_NAMES, agcModeWords } from '/commands.js';
+import { readNumbers } from '/controls.js';
+import { alarmsNow, renderAlarms, onAlarms, concernsSeat, fetchAlarms, wireTone } from '/alarms.js';
+import { loadExercise } from '/exercise.js';
+
+// A number field in its label; an optional one may stay blank.
+function field(id, label, { optional = false, ...attrs } = {}) {
+  const input = el('input', { id, type: 'number', step: 'any', ...attrs });
+  if (optional) input.dataset.optional = '';
+  return el('label', {}, label, input);
+}
+const button = (text, onClick, className = '') => {
+  const b = el('button', { type: 'button', textContent: text, className });
+  b.addEventListener('click', onClick);
+  return b;
+};
+const errorFor = (group) => {
+  const out = el('output', { className: 'error' });
+  out.dataset.errorFor = group;
+  out.setAttribute('role', 'alert');
+  return out;
+};
+// The figures of an area: label and value, one cell each (the value stays under its label).
+const AREA_FIGURES = [
+  ['frequency', (s) => `${fmt(s.f_hz, 3)} Hz`],
+  ['ACE', (s) => `${fmt(s.ace_mw, 1)} MW`],
+  ['net export (schedule)', (s) => `${fmt(s.export_mw, 1)} (${fmt(s.scheduled_export_mw, 1)}) MW`],
+  ['upward reserve', (s, units) => `${fmt(units.reduce((sum, u) => sum + u.headroom_up_mw, 0), 1)} MW`],
+  ['load shed', (s) => `${fmt(s.shed_mw ?? 0, 1)} MW`],
+  ['secondary control', (s) => (s.agc_enabled ? `on${s.agc_mode ? `, ${agcModeWords(s.agc_mode)}` : ''}, ${fmt(s.agc_mw, 1)} MW` : 'off')],
+];
+const UNIT_FIGURES = [
+  ['state', (s) => s.status.replace('_', ' ')],
+  ['output', (s) => `${fmt(s.p_mw, 1)} MW`],
+  ['setpoint', (s) => `${fmt(s.setpoint_mw, 1)} MW`],
+  ['headroom ↑', (s) => `${fmt(s.headroom_up_mw, 1)} MW`],
+];
+const figures = (list) => el('dl', { className: 'figures' },
+  ...list.map(([label]) => el('div', { className: 'pair' }, el('dt', { textContent: label }), el('dd', { textContent: '-' }))));
+const fillFigures = (dl, list, ...args) => list.forEach(([, value], i) => { dl.children[i].lastChild.textContent = value(...args); });
+
+// The commands of one unit row: the unit is read from the row when sent.
+function unitRow(u) {
+  const row = el('div', { className: 'unit-row' });
+  row.dataset.unit = u.id;
+  const unit = () => row.dataset.unit;
+  const group = `unit:${u.id}`;
+  const ids = { set: `seat-set-${u.id}`, ramp: `seat-ramp-${u.id}` };
+  const send = (c) => sendCommand(group, c);
+  row.append(
+    el('div', { className: 'unit-name' }, el('strong', { textContent: u.id }), el('small', { textContent: ` ${u.turbine.type}, ${fmt(u.rating_mw, 0)} MW` })),
+    figures(UNIT_FIGURES),
+    el('div', { className: 'unit-controls' },
+      field(ids.set, 'setpoint MW', { value: u.setpoint_mw }),
+      field(ids.ramp, 'ramp MW/s', { min: 0, placeholder: 'at once', optional: true }),
+      button('Set', () => {
+        const v = readNumbers(ids.set, ids.ramp);
+        if (!v) return;
+        const c = { kind: 'setpoint', unit: unit(), mw: v[ids.set] };
+        if (v[ids.ramp] > 0) c.ramp_mw_per_s = v[ids.ramp];
+        send(c);
+      }),
+      button('Start', () => {
+        const v = readNumbers(ids.set);
+        if (v) send({ kind: 'unit_start', unit: unit(), mw: v[ids.set] });
+      }, 'start'),
+      button('Stop', () => {
+        const v = readNumbers(ids.ramp);
+        if (!v) return;
+        const c = { kind: 'unit_stop', unit: unit() };
+        if (v[ids.ramp] > 0) c.ramp_mw_per_s = v[ids.ramp];
+        send(c);
+      }, 'stop')),
+    errorFor(group));
+  return row;
+}
+
+function areaCard(a) {
+  const group = `area:${a.id}`;
+  const card = el('section', { className: 'desk-area' });
+  card.dataset.area = a.id;
+  const id = (x) => `seat-${x}-${a.id}`;
+  const send = (c) => sendCommand(group, c);
+  const mode = el('select', { id: id('agc-mode') }, ...AGC_MODE_NAMES.map(([name, words]) => new Option(words, name)));
+  if (a.agc?.mode) mode.value = a.agc.mode;
+  const agc = (enabled) => () => send({ kind: 'agc', area: a.id, enabled, mode: mode.value });
+  const number = (x, label, attrs) => field(id(x), label, attrs);
+  card.append(
+    el('h3', { textContent: `Area ${a.id}` }),
+    figures(AREA_FIGURES),
+    el('div', { className: 'area-controls' },
+      el('fieldset', {}, el('legend', { textContent: 'Secondary control' }),
+        el('label', {}, 'mode', mode), button('On', agc(true)), button('Off', agc(false), 'quiet')),
+      el('fieldset', {}, el('legend', { textContent: 'Scheduled export' }),
+        number('sched', 'new schedule MW', { value: a.scheduled_export_mw ?? 0 }),
+        number('sched-s', 'over s', { min: 0, placeholder: 'at once', optional: true }),
+        button('Change schedule', () => {
+          const v = readNumbers(id('sched'), id('sched-s'));
+          if (!v) return;
+          const c = { kind: 'schedule', area: a.id, mw: v[id('sched')] };
+          if (v[id('sched-s')] > 0) c.over_s = v[id('sched-s')];
+          send(c);
+        })),
+      el('fieldset', {}, el('legend', { textContent: 'Load' }),
+        number('shed', 'shed MW', { min: 0, value: 10 }),
+        button('Shed', () => {
+          const v = readNumbers(id('shed'));
+          if (v) send({ kind: 'shed', area: a.id, mw: v[id('shed')] });
+        }, 'danger'),
+        number('restore', 'restore MW', { min: 0, placeholder: 'all', optional: true }),
+        button('Restore', () => {
+          const v = readNumbers(id('restore'));
+          if (!v) return;
+          const c = { kind: 'restore', area: a.id };
+          if (v[id('restore')] != null) c.mw = v[id('restore')];
+          send(c);
+        })),
+      errorFor(group)),
+    el('div', { className: 'units' }, ...app.scenario.units.filter((u) => u.area === a.id).map(unitRow)));
+  return card;
+}
+
+/** The seat's areas for the scenario of the latest greeting (again after each new greeting). */
+export function buildSeat() {
+  if (!app.seat || !app.scenario) return;
+  $('seat-title').textContent = `${app.seat.name} (${app.seat.areas.join(', ')})`;
+  $('seat-briefing').textContent = app.exercise?.briefing || 'No briefing: no exercise is running.';
+  $('seat-areas').replaceChildren(...app.scenario.areas.filter((a) => app.seat.areas.includes(a.id)).map(areaCard));
+  renderSeatAlarms();
+}
+
+/** A frame on the seat's cards. */
+export function renderSeat(f) {
+  for (const card of $('seat-areas').children) {
+    const units = app.scenario.units.filter((u) => u.area === card.dataset.area).map((u) => f.units[u.id]);
+    fillFigures(card.querySelector('.figures'), AREA_FIGURES, f.areas[card.dataset.area], units);
+    for (const row of card.querySelectorAll('.unit-row')) {
+      const s = f.units[row.dataset.unit];
+      if (!s) continue;
+      fillFigures(row.querySelector('.figures'), UNIT_FIGURES, s);
+      row.dataset.status = s.status;
+    }
+  }
+}
+
+function renderSeatAlarms() {
+  renderAlarms($('seat-alarms'), alarmsNow('open', concernsSeat), { canAck: () => true });
+}
+
+async function join(code) {
+  $('seat-error').textContent = '';
+  let r;
+  try {
+    r = await api('/api/v1/role', { token: code });
+  } catch (e) {
+    if (!(e instanceof ApiError)) throw e;
+    $('seat-error').textContent = e.status
+      ? 'That code was refused: check it with the instructor (codes change when an exercise is loaded).' : e.message;
+    return false;
+  }
+  if (r.role !== 'seat') {
+    $('seat-error').textContent = r.role === 'instructor'
+      ? 'That is the instructor token: open the instructor view instead.' : 'That is no seat\'s code.';
+    return false;
+  }
+  Object.assign(app, { token: code, role: 'seat', seat: r.seat });
+  sessionStorage.setItem(app.tokenKey, code);
+  sendAuth();
+  await loadExercise();
+  $('seat-join').hidden = true;
+  $('seat-desk').hidden = false;
+  buildSeat();
+  await fetchAlarms();
+  return true;
+}
+
+/** Wires the join form, the tone and the leave button; joins at once with a code kept from before. */
+export function wireSeat() {
+  onAlarms(renderSeatAlarms);
+  wireTone($('alarm-tone'));
+  $('seat-join').addEventListener('submit', (ev) => {
+    ev.preventDefault();
+    join($('seat-code').value.trim());
+  });
+  $('seat-leave').addEventListener('click', () => {
+    sessionStorage.removeItem(app.tokenKey);
+    location.reload();
+  });
+  if (app.token) join(app.token);
+}
