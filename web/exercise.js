@@ -14,6 +14,6 @@ export async function loadExercise() {
   }
   const limit = app.exercise?.time_limit_s;
   $('time-limit').hidden = !limit;
-  $('time-limit').textContent = limit ? ` of ${clockText(limit)} (${limit} s)` : '';
+  $('time-limit').textContent = limit ? ` (limit ${limit} s, ${clockText(limit)})` : '';
   return app.exercise;
 }

@@ -32,7 +32,8 @@ const errorFor = (group) => {
 const AREA_FIGURES = [
   ['frequency', (s) => `${fmt(s.f_hz, 3)} Hz`],
   ['ACE', (s) => `${fmt(s.ace_mw, 1)} MW`],
-  ['net export (schedule)', (s) => `${fmt(s.export_mw, 1)} (${fmt(s.scheduled_export_mw, 1)}) MW`],
+  ['net export', (s) => `${fmt(s.export_mw, 1)} MW`],
+  ['scheduled export', (s) => `${fmt(s.scheduled_export_mw, 1)} MW`],
   ['upward reserve', (s, units) => `${fmt(units.reduce((sum, u) => sum + u.headroom_up_mw, 0), 1)} MW`],
   ['load shed', (s) => `${fmt(s.shed_mw ?? 0, 1)} MW`],
   ['secondary control', (s) => (s.agc_enabled ? `on${s.agc_mode ? `, ${agcModeWords(s.agc_mode)}` : ''}, ${fmt(s.agc_mw, 1)} MW` : 'off')],
@@ -100,7 +101,7 @@ function areaCard(a) {
       el('fieldset', {}, el('legend', { textContent: 'Secondary control' }),
         el('label', {}, 'mode', mode), button('On', agc(true)), button('Off', agc(false), 'quiet')),
       el('fieldset', {}, el('legend', { textContent: 'Scheduled export' }),
-        number('sched', 'new schedule MW', { value: a.scheduled_export_mw ?? 0 }),
+        number('sched', 'new schedule MW', { value: 0 }),
         number('sched-s', 'over s', { min: 0, placeholder: 'at once', optional: true }),
         button('Change schedule', () => {
           const v = readNumbers(id('sched'), id('sched-s'));
@@ -137,9 +138,21 @@ export function buildSeat() {
   renderSeatAlarms();
 }
 
+// The fields of a new card start from the live values (the setpoints and schedule as they are now).
+function prefill(card, f) {
+  card.dataset.filled = '1';
+  const a = card.dataset.area;
+  $(`seat-sched-${a}`).value = f.areas[a].scheduled_export_mw.toFixed(1);
+  for (const row of card.querySelectorAll('.unit-row')) {
+    const s = f.units[row.dataset.unit];
+    if (s && s.setpoint_mw > 0) $(`seat-set-${row.dataset.unit}`).value = s.setpoint_mw.toFixed(1);
+  }
+}
+
 /** A frame on the seat's cards. */
 export function renderSeat(f) {
   for (const card of $('seat-areas').children) {
+    if (!card.dataset.filled) prefill(card, f);
     const units = app.scenario.units.filter((u) => u.area === card.dataset.area).map((u) => f.units[u.id]);
     fillFigures(card.querySelector('.figures'), AREA_FIGURES, f.areas[card.dataset.area], units);
     for (const row of card.querySelectorAll('.unit-row')) {

@@ -3,55 +3,18 @@
 //   node --test tests/web/page.test.mjs   (DROOPLINE_BIN, DROOPLINE_SRC, SCREENSHOT_DIR set)
 import { test, before, after } from 'node:test';
 import assert from 'node:assert/strict';
-import { spawn } from 'node:child_process';
-import { mkdtempSync, writeFileSync, mkdirSync } from 'node:fs';
-import { createServer } from 'node:net';
-import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { createRequire } from 'node:module';
+import { SRC, SHOTS, VIEWPORTS, size, freePort, tokenFile, startServer as serve, stopServer, launchBrowser, collectErrors } from './harness.mjs';
 
-const SRC = process.env.DROOPLINE_SRC;
-const BIN = process.env.DROOPLINE_BIN;
-const SHOTS = process.env.SCREENSHOT_DIR || tmpdir();
-const require = createRequire(join(SRC, 'web', 'package.json'));
-const { chromium } = require('playwright-core');
 const TOKEN = 'page-test-token-0123456789abcdef';
-
+const TOKEN_FILE = tokenFile(TOKEN);
 let server, port, browser;
-const dir = mkdtempSync(join(tmpdir(), 'droopline-page-'));
-writeFileSync(join(dir, 'token'), TOKEN + '\n');
 
-function freePort() {
-  return new Promise((resolve) => {
-    const s = createServer();
-    s.listen(0, '127.0.0.1', () => { const p = s.address().port; s.close(() => resolve(p)); });
-  });
-}
-
-function startServer() {
-  return new Promise((resolve, reject) => {
-    const p = spawn(BIN, ['serve', '--scenario', join(SRC, 'scenarios', 'demo_three_areas.json'),
-      '--listen', `127.0.0.1:${port}`, '--token-file', join(dir, 'token'), '--log-level', 'warn'],
-    { stdio: ['ignore', 'pipe', 'inherit'] });
-    const timer = setTimeout(() => reject(new Error('server did not start')), 10000);
-    p.stdout.on('data', (d) => { if (String(d).includes('listening on')) { clearTimeout(timer); resolve(p); } });
-    p.on('exit', (code) => reject(new Error(`server exited ${code}`)));
-  });
-}
-
-function stopServer(p) {
-  return new Promise((resolve) => { p.once('exit', resolve); p.kill('SIGTERM'); });
-}
-
-// The trainee's laptop and the training room's projector.
-const VIEWPORTS = [{ width: 1366, height: 768 }, { width: 1920, height: 1080 }];
-const size = (vp) => `${vp.width}x${vp.height}`;
+const startServer = () => serve(port, ['--scenario', join(SRC, 'scenarios', 'demo_three_areas.json'), '--token-file', TOKEN_FILE]);
 
 async function openPage(viewport = VIEWPORTS[0]) {
   const page = await browser.newPage({ viewport });
-  const errors = [];
-  page.on('console', (m) => { if (m.type() === 'error') errors.push(m.text()); });
-  page.on('pageerror', (e) => errors.push(e.message));
+  const errors = collectErrors(page);
   await page.goto(`http://127.0.0.1:${port}/`);
   await page.waitForFunction(() => window.droopline?.connected && window.droopline.data.freq[0].length > 5, null, { timeout: 10000 });
   return { page, errors };
@@ -67,10 +30,7 @@ async function unlock(page) {
 before(async () => {
   port = await freePort();
   server = await startServer();
-  browser = await chromium.launch({
-    executablePath: '/usr/bin/chromium',
-    args: ['--headless', '--no-sandbox', '--disable-gpu', '--disable-background-networking', '--disable-dev-shm-usage'],
-  });
+  browser = await launchBrowser();
 });
 
 after(async () => {
@@ -87,7 +47,6 @@ test('the page loads with no console error and the frequency chart receives poin
   assert.equal(await page.locator('#link-text').textContent(), 'live');
   assert.equal((await page.locator('#unit-table tbody tr').count()), 9);
   assert.deepEqual(errors, []);
-  mkdirSync(SHOTS, { recursive: true });
   await page.screenshot({ path: join(SHOTS, 'page-live.png'), fullPage: true });
   await page.close();
 });
