@@ -70,7 +70,14 @@ function scriptActions(e) {
   return out;
 }
 
+// The add form starts from an example: a load step a minute from now in the first area.
+function exampleEvent() {
+  if (!$('script-command').value && app.scenario) $('script-command').value = JSON.stringify({ kind: 'load_step', area: app.scenario.areas[0].id, mw: 50 });
+  if (!$('script-at').value && app.last) $('script-at').value = Math.ceil(app.last.t_s / 10) * 10 + 60;
+}
+
 async function refreshScript() {
+  exampleEvent();
   const r = await apiFor('script', '/api/v1/script');
   if (!r) return;
   const text = JSON.stringify(r.events);

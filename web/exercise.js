@@ -2,7 +2,6 @@
 // seats with their names; never the script), kept in app.exercise; null when none runs.
 import { app, $ } from '/state.js';
 import { api, ApiError } from '/api.js';
-import { clockText } from '/wall.js';
 
 /** Fetches the exercise (after each greeting: another may have been loaded). */
 export async function loadExercise() {
@@ -14,6 +13,6 @@ export async function loadExercise() {
   }
   const limit = app.exercise?.time_limit_s;
   $('time-limit').hidden = !limit;
-  $('time-limit').textContent = limit ? ` (limit ${limit} s, ${clockText(limit)})` : '';
+  $('time-limit').textContent = limit ? ` of ${limit} s` : '';
   return app.exercise;
 }

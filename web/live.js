@@ -8,6 +8,7 @@ import { drawDroop, drawPowerAngle } from '/views.js';
 export function renderStatic() {
   const sc = app.scenario;
   $('scenario-name').textContent = sc.name || '(unnamed scenario)';
+  $('scenario-name').title = sc.name || '';
   document.title = `droopline: ${sc.name}`;
   const figure = (caption, canvasData) => {
     const fig = document.createElement('figure');
