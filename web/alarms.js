@@ -1,7 +1,7 @@
 // Alarms as the stream tells them (the greeting's active ones, then each raised, cleared and
 // acknowledged), the one list that shows them (wall, seat and instructor views, each with its own
 // choice of alarms), acknowledging, and the optional alarm tone (Web Audio, off until asked for).
-import { app, fmt, el, authorName } from '/state.js';
+import { app, fmt, el, button, authorName } from '/state.js';
 import { api, ApiError } from '/api.js';
 
 const listeners = [];
@@ -87,9 +87,7 @@ export function renderAlarms(list, alarms, { canAck = () => false, brief = false
     if (!a.acked_by && canAck(a)) {
       const out = el('output', { className: 'error' });
       out.setAttribute('role', 'alert');
-      const b = el('button', { type: 'button', className: 'ack', textContent: 'Acknowledge' });
-      b.addEventListener('click', () => acknowledge(a, out));
-      li.append(b, out);
+      li.append(button('Acknowledge', () => acknowledge(a, out), 'ack'), out);
     }
     return li;
   }));

@@ -2,8 +2,9 @@
 // with their join codes and who has joined, the hidden script's timeline (fire now, skip, shift,
 // add), save points (save, restore) and rewind, the action feed with each author's name and every
 // alarm. Seats, script and save points are read again every few seconds while unlocked: their
-// changes (a seat joining, a script event firing) are not all on the stream.
-import { app, $, fmt, el, authorName } from '/state.js';
+// changes (a seat joining, a script event firing) are not all on the stream. A failed read shows
+// in its panel's `-read` output, apart from the answers to the instructor's own actions.
+import { app, $, fmt, el, button, authorName } from '/state.js';
 import { apiFor } from '/api.js';
 import { sendChange, confirmAction, describeCommand } from '/commands.js';
 import { readNumbers } from '/controls.js';
@@ -11,17 +12,12 @@ import { alarmsNow, renderAlarms, onAlarms, fetchAlarms } from '/alarms.js';
 import { loadExercise } from '/exercise.js';
 
 const POLL_MS = 2000;
-const button = (text, onClick, className = '') => {
-  const b = el('button', { type: 'button', textContent: text, className });
-  b.addEventListener('click', onClick);
-  return b;
-};
 
 // ------------------------------------------------------------------ seats
 
 // Also whether an exercise runs (it has seats): only then is there one to ask for.
 async function refreshSeats() {
-  const r = await apiFor('exercise', '/api/v1/seats');
+  const r = await apiFor('seats-read', '/api/v1/seats');
   if (!r) return;
   if (r.seats.length) await loadExercise();
   else app.exercise = null;
@@ -78,7 +74,7 @@ function exampleEvent() {
 
 async function refreshScript() {
   exampleEvent();
-  const r = await apiFor('script', '/api/v1/script');
+  const r = await apiFor('script-read', '/api/v1/script');
   if (!r) return;
   const text = JSON.stringify(r.events);
   if (text === scriptSeen) return; // unchanged: typed shift times stay as they are
@@ -125,7 +121,7 @@ async function addScriptEvent() {
 // ------------------------------------------------------------------ save points and rewind
 
 async function refreshSavepoints() {
-  const r = await apiFor('timeline', '/api/v1/savepoints');
+  const r = await apiFor('timeline-read', '/api/v1/savepoints');
   if (!r) return;
   $('rewind-range').textContent = r.rewind_from_s != null ? `from ${fmt(r.rewind_from_s, 1)} s to ${fmt(r.t_s, 1)} s` : '';
   $('rewind-s').min = r.rewind_from_s ?? 0;

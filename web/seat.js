@@ -3,7 +3,7 @@
 // load (shed and restore by hand) and secondary control (on/off, mode); per unit its state and its
 // own setpoint (optionally ramped), start and controlled stop. Only the seat's areas are offered;
 // whatever the server refuses shows in its words beside the control that sent it.
-import { app, $, fmt, el } from '/state.js';
+import { app, $, fmt, el, button } from '/state.js';
 import { api, ApiError } from '/api.js';
 import { sendAuth } from '/connection.js';
 import { sendCommand, AGC_MODE_NAMES, agcModeWords } from '/commands.js';
@@ -17,11 +17,6 @@ function field(id, label, { optional = false, ...attrs } = {}) {
   if (optional) input.dataset.optional = '';
   return el('label', {}, label, input);
 }
-const button = (text, onClick, className = '') => {
-  const b = el('button', { type: 'button', textContent: text, className });
-  b.addEventListener('click', onClick);
-  return b;
-};
 const errorFor = (group) => {
   const out = el('output', { className: 'error' });
   out.dataset.errorFor = group;
@@ -47,6 +42,8 @@ const UNIT_FIGURES = [
 const figures = (list) => el('dl', { className: 'figures' },
   ...list.map(([label]) => el('div', { className: 'pair' }, el('dt', { textContent: label }), el('dd', { textContent: '-' }))));
 const fillFigures = (dl, list, ...args) => list.forEach(([, value], i) => { dl.children[i].lastChild.textContent = value(...args); });
+
+const OFF = ['offline', 'tripped'];
 
 // The commands of one unit row: the unit is read from the row when sent.
 function unitRow(u) {
@@ -129,9 +126,16 @@ function areaCard(a) {
   return card;
 }
 
-/** The seat's areas for the scenario of the latest greeting (again after each new greeting). */
-export function buildSeat() {
+/**
+ * The seat's areas for the scenario of the latest greeting (again after each new greeting). Another
+ * exercise may have been loaded meanwhile: a seat that is no longer in it is asked for a new code.
+ */
+export async function buildSeat() {
   if (!app.seat || !app.scenario) return;
+  if (!app.exercise?.seats?.some((x) => x.id === app.seat.id)) {
+    leave('The instructor loaded another exercise: join with your new code.');
+    return;
+  }
   $('seat-title').textContent = `${app.seat.name} (${app.seat.areas.join(', ')})`;
   $('seat-briefing').textContent = app.exercise?.briefing || 'No briefing: no exercise is running.';
   $('seat-areas').replaceChildren(...app.scenario.areas.filter((a) => app.seat.areas.includes(a.id)).map(areaCard));
@@ -160,6 +164,9 @@ export function renderSeat(f) {
       if (!s) continue;
       fillFigures(row.querySelector('.figures'), UNIT_FIGURES, s);
       row.dataset.status = s.status;
+      // Start is for a unit that is off, stop for one that runs; the server checks again.
+      row.querySelector('button.start').disabled = !OFF.includes(s.status);
+      row.querySelector('button.stop').disabled = OFF.includes(s.status) || s.status === 'stopping';
     }
   }
 }
@@ -195,6 +202,18 @@ async function join(code) {
   return true;
 }
 
+// Back to the join form (the code forgotten), with a reason when there is one.
+function leave(why = '') {
+  sessionStorage.removeItem(app.tokenKey);
+  Object.assign(app, { token: '', role: 'viewer', seat: null });
+  $('seat-desk').hidden = true;
+  $('seat-join').hidden = false;
+  $('seat-error').textContent = why;
+  $('seat-code').value = '';
+  app.rejoin = true;
+  app.ws?.close(); // the stream as a viewer again
+}
+
 /** Wires the join form, the tone and the leave button; joins at once with a code kept from before. */
 export function wireSeat() {
   onAlarms(renderSeatAlarms);
@@ -203,9 +222,6 @@ export function wireSeat() {
     ev.preventDefault();
     join($('seat-code').value.trim());
   });
-  $('seat-leave').addEventListener('click', () => {
-    sessionStorage.removeItem(app.tokenKey);
-    location.reload();
-  });
+  $('seat-leave').addEventListener('click', () => leave());
   if (app.token) join(app.token);
 }

@@ -50,6 +50,13 @@ export function el(tag, props = {}, ...children) {
   return e;
 }
 
+/** A button with its words and what a click does. */
+export function button(text, onClick, className = '') {
+  const b = el('button', { type: 'button', textContent: text, className });
+  b.addEventListener('click', onClick);
+  return b;
+}
+
 /** A seat's display name from its id ("instructor" and "script" as they are). */
 export function authorName(by) {
   if (!by) return '';

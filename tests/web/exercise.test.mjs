@@ -119,6 +119,7 @@ test('an alarm acknowledged by a seat shows as acknowledged for the instructor',
   const there = pages.instructor.page.locator(`#desk-alarms li[data-alarm="${id}"] .state`);
   await there.filter({ hasText: 'acknowledged by East desk' }).waitFor({ timeout: 8000 });
   assert.equal(await pages.instructor.page.locator(`#desk-alarms li[data-alarm="${id}"] button.ack`).count(), 0);
+  assert.equal(await east.locator('#alarm-tone').isChecked(), false, 'the alarm tone is off until asked for');
   await shot(east, `exercise-seat-east-${size(LAPTOP)}`);
   assert.deepEqual(pages.east.errors, []);
 });
