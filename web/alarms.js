@@ -39,10 +39,15 @@ export function concernsSeat(a) {
   return areas.some((x) => app.seat.areas.includes(x));
 }
 
-/** Alarms newest first: `which` is 'active' (not cleared), 'open' (active or not acknowledged) or 'all'. */
+/**
+ * Alarms, those of severity alarm before warnings, each newest first: `which` is 'active' (not
+ * cleared), 'open' (active or not acknowledged) or 'all'.
+ */
 export function alarmsNow(which, filter = () => true) {
   const keep = { active: (a) => a.cleared_s == null, open: (a) => a.cleared_s == null || !a.acked_by, all: () => true }[which];
-  return [...app.alarms.values()].filter((a) => keep(a) && filter(a)).sort((a, b) => b.raised_s - a.raised_s || b.id - a.id);
+  const rank = (a) => (a.severity === 'alarm' ? 0 : 1);
+  return [...app.alarms.values()].filter((a) => keep(a) && filter(a))
+    .sort((a, b) => rank(a) - rank(b) || b.raised_s - a.raised_s || b.id - a.id);
 }
 
 function stateWords(a) {
@@ -75,7 +80,7 @@ export function renderAlarms(list, alarms, { canAck = () => false, brief = false
     return;
   }
   list.replaceChildren(...alarms.map((a) => {
-    const li = el('li', { className: `alarm ${a.severity}${a.cleared_s == null ? '' : ' cleared'}${a.acked_by ? ' acked' : ''}` });
+    const li = el('li', { className: `alarm sev-${a.severity}${a.cleared_s == null ? '' : ' cleared'}${a.acked_by ? ' acked' : ''}` });
     li.dataset.alarm = a.id;
     li.append(
       el('span', { className: 'level', textContent: a.severity }),

@@ -30,7 +30,7 @@ function chartOptions(el, series, refLines, yRange) {
     ...chartSize(el),
     scales: { x: { time: false }, y: yRange ? { range: yRange } : {} },
     axes: axes(),
-    legend: { live: true },
+    legend: { live: app.view !== 'wall' }, // no pointer on a projected wall: names only
     cursor: { drag: { x: true, y: false } },
     series: [{ label: 't s' }, ...series],
     // Drawn with the axes, before the series: the reference lines and labels never hide the data.

@@ -14,7 +14,28 @@ export function prepareWall() {
   const figure = $('chart-freq').closest('figure');
   figure.classList.add('wall-freq');
   $('wall-chart-slot').append(figure);
-  onAlarms(() => renderAlarms($('wall-alarms'), alarmsNow('active'), { brief: true }));
+  onAlarms(showAlarms);
+  window.addEventListener('resize', showAlarms);
+}
+
+// The active alarms and how many. The list ends at the foot of the screen: the alarms that do
+// not fit whole are left out and counted in a last line.
+function showAlarms() {
+  const active = alarmsNow('active');
+  const list = $('wall-alarms');
+  $('wall-alarm-count').textContent = active.length ? `(${active.length})` : '';
+  renderAlarms(list, active, { brief: true });
+  const bottom = list.getBoundingClientRect().bottom;
+  const items = [...list.children];
+  const fits = (li) => li.getBoundingClientRect().bottom <= bottom + 0.5;
+  if (items.every(fits)) return;
+  const more = el('li', { className: 'more' });
+  list.append(more);
+  for (let shown = items.length; shown > 0; shown--) {
+    more.textContent = `and ${items.length - shown + 1} more`;
+    items[shown - 1].hidden = true;
+    if (fits(more)) break;
+  }
 }
 
 // A tile per area: its name over its frequency; filled again for each scenario.
@@ -29,7 +50,7 @@ export function buildWall() {
     tile.dataset.area = a.id;
     return tile;
   }));
-  renderAlarms($('wall-alarms'), alarmsNow('active'), { brief: true });
+  showAlarms();
   document.querySelector('.wall-label').textContent = app.exercise ? `exercise: ${app.exercise.name}` : 'simulation time';
 }
 
