@@ -82,17 +82,23 @@ export function renderAlarms(list, alarms, { canAck = () => false, brief = false
   list.replaceChildren(...alarms.map((a) => {
     const li = el('li', { className: `alarm sev-${a.severity}${a.cleared_s == null ? '' : ' cleared'}${a.acked_by ? ' acked' : ''}` });
     li.dataset.alarm = a.id;
+    // The area stands in its own column: a message that begins with it does not say it twice.
+    const prefix = `area ${a.area}: `;
+    const message = a.area && a.message.startsWith(prefix) ? a.message.slice(prefix.length) : a.message;
     li.append(
       el('span', { className: 'level', textContent: a.severity }),
       el('span', { className: 't', textContent: `${fmt(a.raised_s, 1)} s` }),
       el('span', { className: 'area', textContent: a.area ?? '' }),
-      el('span', { className: 'message', textContent: a.message }),
+      el('span', { className: 'message', textContent: message }),
     );
-    if (!brief) li.append(el('span', { className: 'state', textContent: stateWords(a) }));
+    if (brief) return li;
+    const foot = el('div', { className: 'foot' }, el('span', { className: 'state', textContent: stateWords(a) }));
+    li.append(foot);
     if (!a.acked_by && canAck(a)) {
       const out = el('output', { className: 'error' });
       out.setAttribute('role', 'alert');
-      li.append(button('Acknowledge', () => acknowledge(a, out), 'ack'), out);
+      foot.append(button('Acknowledge', () => acknowledge(a, out), 'ack'));
+      li.append(out);
     }
     return li;
   }));
