@@ -161,17 +161,30 @@ async function loadExerciseFile() {
 
 // ------------------------------------------------------------------ feed
 
-/** An event with an author goes to the action feed, newest first, with the author's name. */
+/**
+ * An event with an author goes to the action feed with the author's name, newest first in the
+ * order they happened (the server's `seq`: after a rewind simulation time runs again). A restore
+ * marks the actions it undid: those before it in order but after it in simulation time.
+ */
 export function feedEvent(e) {
   if (!e.by || app.view !== 'instructor') return;
   const feed = $('action-feed');
   const t = e.t_s ?? 0;
+  const seq = e.seq ?? Number.MAX_SAFE_INTEGER;
+  if (feed.querySelector(`li[data-seq="${seq}"]`)) return; // seen already (a greeting after a message)
   const li = el('li', {}, el('span', { className: 't', textContent: `${fmt(t, 2)} s` }),
     el('strong', { className: 'by', textContent: authorName(e.by) }), document.createTextNode(` ${e.text}`));
-  li.dataset.t = t;
-  li.dataset.by = e.by;
-  const after = [...feed.children].find((x) => Number(x.dataset.t) <= t);
+  Object.assign(li.dataset, { t, seq, by: e.by });
+  const after = [...feed.children].find((x) => Number(x.dataset.seq) <= seq);
   feed.insertBefore(li, after ?? null);
+  if (e.type === 'restored') {
+    for (const x of feed.children) {
+      if (Number(x.dataset.seq) < seq && Number(x.dataset.t) > t + 1e-9 && !x.classList.contains('undone')) {
+        x.classList.add('undone');
+        x.append(el('small', { textContent: ' (undone)' }));
+      }
+    }
+  }
   while (feed.children.length > 200) feed.lastChild.remove();
 }
 
