@@ -103,6 +103,7 @@ struct UnitRt {
   std::int64_t sync_step = 0;   // starting: the step at which it synchronises
   double start_mw = 0.0;        // starting: the setpoint it then loads to (MW)
   std::int64_t stop_at_zero = -1;  // stopping: the step its setpoint reached zero (-1: not yet)
+  double stop_last_p = 0.0;        // stopping: its output a whole second ago (MW)
   double droop = 0.05, deadband_hz = 0.0;
   DeadbandKind deadband = DeadbandKind::offset;
   GovernorMode mode = GovernorMode::droop;

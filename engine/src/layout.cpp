@@ -261,11 +261,13 @@ void Engine::Impl::begin_stop(std::size_t u, double rate_mw_per_s) {
 }
 
 // Between steps, after the setpoint ramps: starting units whose start-up time has passed
-// synchronise; stopping units whose setpoint reached zero open their breaker once their output
-// is within 1 % of rating of zero, or kStopHoldS after, whatever it is then.
+// synchronise; a stopping unit whose setpoint reached zero opens its breaker once its output is
+// within 1 % of rating of zero, or has settled (moved less than 0.1 % of rating in a second: what
+// is left is its governor's answer to the frequency), or kStopHoldS after, whatever it is then.
 void Engine::Impl::advance_units() {
   if (changing_units == 0) return;
-  constexpr double kStopHoldS = 30.0;
+  constexpr double kStopHoldS = 600.0;
+  const std::int64_t second = std::max<std::int64_t>(1, std::llround(1.0 / h));
   for (std::size_t u = 0; u < nu && changing_units > 0; ++u) {
     UnitRt& ur = units[u];
     const std::size_t a = ur.area;
@@ -280,11 +282,19 @@ void Engine::Impl::advance_units() {
       open_disturbance(a, -mw, CommandKind::unit_start, note);
       notices.push_back(std::move(note));
     } else if (ur.stopping && ur.target_rate <= 0.0) {
-      if (ur.stop_at_zero < 0) ur.stop_at_zero = n;
       ensure_outputs();
-      const double p = pm[ur.slot];
-      if (!(std::fabs(p) <= 0.01 * def.units[u].rating_mw) && n - ur.stop_at_zero < std::llround(kStopHoldS / h))
-        continue;
+      const double p = pm[ur.slot], rating = def.units[u].rating_mw;
+      if (ur.stop_at_zero < 0) {
+        ur.stop_at_zero = n;
+        ur.stop_last_p = p;
+      }
+      const std::int64_t waited = n - ur.stop_at_zero;
+      bool open = std::fabs(p) <= 0.01 * rating || waited >= std::llround(kStopHoldS / h);
+      if (!open && waited > 0 && waited % second == 0) {
+        open = std::fabs(p - ur.stop_last_p) <= 0.001 * rating;
+        ur.stop_last_p = p;
+      }
+      if (!open) continue;
       take_offline(u);
       ur.stopped = true;
       update_inertia();
