@@ -105,8 +105,8 @@ json command_to_json(const Command& c) {
   if (c.deadband_hz) j["deadband_hz"] = *c.deadband_hz;
   if (c.deadband) j["deadband"] = to_string(*c.deadband);
   if (c.mode) j["mode"] = to_string(*c.mode);
-  if (c.agc_mode) j["mode"] = to_string(*c.agc_mode);
   if (has("enabled")) j["enabled"] = c.enabled;
+  if (c.agc_mode) j["mode"] = to_string(*c.agc_mode);
   if (has("sigma_mw")) {
     j["sigma_mw"] = c.sigma_mw;
     j["tau_s"] = c.tau_s;
