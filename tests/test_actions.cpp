@@ -48,32 +48,28 @@ SystemDef one_area_two_units() {
   return d;
 }
 
-// Two equal areas over one tie: 1000 MW units at 600, demand 600 each: kd = 400, dmp = 12 MW/Hz.
+// Two equal areas over one tie, secondary control tuned but off: kd = 400, dmp = 12 MW/Hz each.
 SystemDef two_areas() {
-  SystemDef d = test::one_area(50.0, 1000.0, 600.0);
+  SystemDef d = test::two_areas(2000.0, 400.0);
   d.duration_s = 600.0;
-  d.areas[0].id = "west";
-  d.units[0].area = "west";
-  d.units[0].id = "Gw";
-  d.units[0].agc_share = 1.0;
-  AreaDef east = d.areas[0];
-  east.id = "east";
-  d.areas.push_back(east);
-  UnitDef ge = d.units[0];
-  ge.id = "Ge";
-  ge.area = "east";
-  d.units.push_back(ge);
-  TieDef t;
-  t.id = "link";
-  t.from = "west";
-  t.to = "east";
-  t.pmax_mw = 2000.0;
-  t.damping_mw_per_hz = 400.0;
-  d.ties.push_back(t);
+  for (UnitDef& u : d.units) u.agc_share = 1.0;
   for (AreaDef& a : d.areas) {
     a.agc.ki_per_s = 0.1;
     a.agc.period_s = 1.0;
   }
+  return d;
+}
+
+// One area, G1 500 MW at 300, and G2 200 MW offline with this start-up time.
+SystemDef with_offline_g2(double start_up_s) {
+  SystemDef d = test::one_area(50.0, 500.0, 300.0);
+  UnitDef g2 = d.units[0];
+  g2.id = "G2";
+  g2.rating_mw = 200.0;
+  g2.setpoint_mw = 0.0;
+  g2.online = false;
+  g2.start_up_s = start_up_s;
+  d.units.push_back(g2);
   return d;
 }
 
@@ -95,14 +91,7 @@ std::string issue_text(const ApplyResult& r) { return r.issues.empty() ? std::st
 }  // namespace
 
 TEST_CASE("start-up time: starting adds nothing until it synchronises, then the droop law holds") {
-  SystemDef d = test::one_area(50.0, 500.0, 300.0);
-  UnitDef g2 = d.units[0];
-  g2.id = "G2";
-  g2.rating_mw = 200.0;
-  g2.setpoint_mw = 0.0;
-  g2.online = false;
-  g2.start_up_s = 20.0;
-  d.units.push_back(g2);
+  SystemDef d = with_offline_g2(20.0);
   d.events.push_back({1.0, unit_cmd(CommandKind::unit_start, "G2", 100.0)});
   auto e = test::make(d);
   const double m0 = e->area(AreaId{0}).inertia_mws_per_hz;
@@ -139,14 +128,7 @@ TEST_CASE("start-up time: starting adds nothing until it synchronises, then the 
 }
 
 TEST_CASE("start-up time 0 starts at once, as before") {
-  SystemDef d = test::one_area(50.0, 500.0, 300.0);
-  UnitDef g2 = d.units[0];
-  g2.id = "G2";
-  g2.rating_mw = 200.0;
-  g2.setpoint_mw = 0.0;
-  g2.online = false;
-  d.units.push_back(g2);
-  auto e = test::make(d);
+  auto e = test::make(with_offline_g2(0.0));
   REQUIRE(test::apply(*e, {unit_cmd(CommandKind::unit_start, "G2", 100.0)}).ok);
   CHECK(is_synchronised(e->unit(*e->find_unit("G2")).status));
   CHECK(e->disturbances().size() == 1);
@@ -221,9 +203,10 @@ TEST_CASE("controlled stop: shallower than a trip of the same unit, and clean un
 TEST_CASE("controlled stop: the last synchronous unit of an area is refused, the default rate is 1 % of rating") {
   SystemDef d = test::one_area(50.0, 500.0, 300.0);
   auto e = test::make(d);
-  CHECK(issue_text(test::apply(*e, {unit_cmd(CommandKind::unit_stop, "G1")})) ==
-        "command.unit: unit \"G1\" is the last synchronous unit running in area \"A\": stopping it would leave the area "
-        "without inertia");
+  CHECK(
+      issue_text(test::apply(*e, {unit_cmd(CommandKind::unit_stop, "G1")})) ==
+      "command.unit: unit \"G1\" is the last synchronous unit running in area \"A\": stopping it would leave the area "
+      "without inertia");
   auto f = test::make(one_area_two_units());
   REQUIRE(test::apply(*f, {unit_cmd(CommandKind::unit_stop, "G2")}).ok);
   CHECK(texts(*f) == "unit G2 stopping: unloading at 2 MW/s, then offline\n");  // 1 % of 200 MW per second

@@ -130,7 +130,8 @@ TEST_CASE("run: the operator actions end to end, in the series and the summary")
   CHECK(has("165 command: secondary control on in area hollin, mode constant_interchange"));
   CHECK(has("240 command: shed load restored: 60.0 MW in area hollin"));
   bool stopped = false;
-  for (const std::string& n : notices) stopped = stopped || n.find("unit_stopped: unit HH2 offline after a stop") != std::string::npos;
+  for (const std::string& n : notices)
+    stopped = stopped || n.find("unit_stopped: unit HH2 offline after a stop") != std::string::npos;
   CHECK(stopped);
   // The start opened a disturbance when the unit synchronised; the stop opened none.
   REQUIRE(summary["disturbances"].size() == 2);

@@ -202,8 +202,9 @@ TEST_CASE("start_up_s and the agc mode round-trip; typical start-up ranges warn"
   CHECK(r.system->def().areas[0].agc.mode == AgcMode::constant_interchange);
   bool warned = false;
   for (const Issue& i : r.issues)
-    warned = warned || (i.warning && i.text() == "units[1].start_up_s: 600 is outside the typical range 3600-14400 of "
-                                                 "hot steam unit start-up (s)");
+    warned = warned || (i.warning && i.text() ==
+                                         "units[1].start_up_s: 600 is outside the typical range 3600-14400 of "
+                                         "hot steam unit start-up (s)");
   CHECK(warned);
   const std::string once = scenario_to_json(r.system->def()).dump();
   LoadResult again = parse_scenario(once);

@@ -33,8 +33,8 @@ void Engine::Impl::advance_schedules() {
       ar.sched_export = ar.sched_to;
       ar.sched_ramping = false;
     } else {
-      ar.sched_export =
-          ar.sched_from + (ar.sched_to - ar.sched_from) * static_cast<double>(done) / static_cast<double>(ar.sched_steps);
+      ar.sched_export = ar.sched_from +
+                        (ar.sched_to - ar.sched_from) * static_cast<double>(done) / static_cast<double>(ar.sched_steps);
       sched_ramps = true;
     }
   }

@@ -147,8 +147,8 @@ std::optional<Issue> Engine::Impl::dynamic_error(const Action& action, Shadow& s
         if (!(sh.shed[a] > 0.0)) return Issue{path + ".area", area + " has no shed load to restore"};
         const double mw = c->mw.value_or(sh.shed[a]);
         if (mw > sh.shed[a] + 1e-9)
-          return Issue{path + ".mw", "cannot restore " + fmt_num(mw) + " MW: " + area + " has " +
-                                         fmt_num(sh.shed[a]) + " MW of shed load"};
+          return Issue{path + ".mw", "cannot restore " + fmt_num(mw) + " MW: " + area + " has " + fmt_num(sh.shed[a]) +
+                                         " MW of shed load"};
         sh.connected[a] += mw;
         sh.shed[a] -= mw;
       }

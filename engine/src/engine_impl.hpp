@@ -100,8 +100,8 @@ struct UnitRt {
   std::size_t slot = 0, block = 0, j = 0, area = 0;
   bool online = true, tripped = false;
   bool starting = false, stopping = false, stopped = false;  // start-up, controlled stop, ended by one
-  std::int64_t sync_step = 0;   // starting: the step at which it synchronises
-  double start_mw = 0.0;        // starting: the setpoint it then loads to (MW)
+  std::int64_t sync_step = 0;                                // starting: the step at which it synchronises
+  double start_mw = 0.0;                                     // starting: the setpoint it then loads to (MW)
   std::int64_t stop_at_zero = -1;  // stopping: the step its setpoint reached zero (-1: not yet)
   double stop_last_p = 0.0;        // stopping: its output a whole second ago (MW)
   double droop = 0.05, deadband_hz = 0.0;
@@ -246,7 +246,7 @@ struct Engine::Impl : detail::EngineState {
   // commands.cpp
   struct Shadow {
     std::vector<bool> unit_online, unit_starting, unit_stopping, tie_in;
-    std::vector<double> droop;         // as the commands checked so far would leave them
+    std::vector<double> droop;            // as the commands checked so far would leave them
     std::vector<double> shed, connected;  // per area (MW)
   };
   std::optional<Issue> dynamic_error(const Action& a, Shadow& sh, const std::string& path) const;

@@ -35,7 +35,8 @@ void Engine::Impl::update_topology() {
   // The initial exchange over the ties in service, for areas whose schedule no command has set.
   for (int t : active_ties) {
     if (detail::AreaRt& sender = areas[ties[t].from]; !sender.sched_manual) sender.sched_export += ties[t].scheduled;
-    if (detail::AreaRt& receiver = areas[ties[t].to]; !receiver.sched_manual) receiver.sched_export -= ties[t].scheduled;
+    if (detail::AreaRt& receiver = areas[ties[t].to]; !receiver.sched_manual)
+      receiver.sched_export -= ties[t].scheduled;
   }
 }
 

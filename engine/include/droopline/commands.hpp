@@ -85,8 +85,8 @@ struct Shed {
 };
 /// Shed load (by hand or by the under-frequency stages) reconnected.
 struct Restore {
-  AreaId area;                ///< where
-  std::optional<double> mw;   ///< load to reconnect (MW); absent = all shed load of the area
+  AreaId area;               ///< where
+  std::optional<double> mw;  ///< load to reconnect (MW); absent = all shed load of the area
 };
 
 /// One command with its targets resolved: what the engine applies. The alternatives are in

@@ -102,7 +102,7 @@ struct UnitDef {
   std::optional<double> ramp_mw_per_s;   ///< valve / power rate limit (MW/s); absent = none
   double agc_share = 0.0;                ///< participation share in secondary control (>= 0)
   bool online = true;
-  double start_up_s = 0.0;               ///< time from a start command to synchronisation (s); 0 = at once
+  double start_up_s = 0.0;  ///< time from a start command to synchronisation (s); 0 = at once
   GovernorDef governor;
   TurbineDef turbine;
 };

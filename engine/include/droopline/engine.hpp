@@ -76,13 +76,13 @@ struct TieState {
 
 /// What a notice reports.
 enum class NoticeKind {
-  command,          ///< a command took effect (`action`, `value`)
-  command_refused,  ///< a scenario event was refused by the state checks (`action`, `issues`)
-  out_of_step,      ///< a tie tripped out of step (`tie`, `value`: angle in deg)
-  shedding,         ///< an under-frequency stage shed load (`area`, `stage`, `value`: MW shed)
-  collapse,         ///< an area lost all synchronous inertia (`area`)
-  islanded,         ///< a disturbance cause only: a tie trip split the system (`tie`, `area`: the island's
-                    ///< area; `action` set when a command tripped it, absent when out of step)
+  command,            ///< a command took effect (`action`, `value`)
+  command_refused,    ///< a scenario event was refused by the state checks (`action`, `issues`)
+  out_of_step,        ///< a tie tripped out of step (`tie`, `value`: angle in deg)
+  shedding,           ///< an under-frequency stage shed load (`area`, `stage`, `value`: MW shed)
+  collapse,           ///< an area lost all synchronous inertia (`area`)
+  islanded,           ///< a disturbance cause only: a tie trip split the system (`tie`, `area`: the island's
+                      ///< area; `action` set when a command tripped it, absent when out of step)
   unit_synchronised,  ///< a starting unit's start-up time passed: it is online (`action`: its UnitStart)
   unit_stopped        ///< a controlled stop ended: the unit is offline (`action`: its UnitStop, `value`: MW
                       ///< it gave when its breaker opened)
@@ -99,9 +99,9 @@ struct Notice {
   std::uint32_t area = 0;        ///< shedding, collapse: the area; islanded: the island's area
   std::uint32_t tie = 0;         ///< out_of_step, islanded: the tie
   std::uint32_t stage = 0;       ///< shedding: the stage (0-based); command restore: stages re-armed
-  double value = 0.0;  ///< command unit_trip: MW lost, tie_trip: MW carried, tie_close: angle (deg),
-                       ///< unit_stop: unloading rate (MW/s), schedule: the schedule before (MW),
-                       ///< restore: MW reconnected; out_of_step: angle (deg); shedding: MW shed
+  double value = 0.0;            ///< command unit_trip: MW lost, tie_trip: MW carried, tie_close: angle (deg),
+                                 ///< unit_stop: unloading rate (MW/s), schedule: the schedule before (MW),
+                                 ///< restore: MW reconnected; out_of_step: angle (deg); shedding: MW shed
   std::vector<Issue> issues;  ///< command_refused: why
 };
 
