@@ -99,4 +99,28 @@ inline droopline::SystemDef one_area(double f0 = 50.0, double rating = 500.0, do
   return d;
 }
 
+/// Two areas, `west` and `east`, joined by the tie `link`: one steam unit of 1000 MW at 600 MW
+/// (`Gw`, `Ge`) and 600 MW of demand each.
+inline droopline::SystemDef two_areas(double pmax_mw, double damping_mw_per_hz) {
+  droopline::SystemDef d = one_area(50.0, 1000.0, 600.0);
+  d.areas[0].id = "west";
+  d.units[0].area = "west";
+  d.units[0].id = "Gw";
+  droopline::AreaDef east = d.areas[0];
+  east.id = "east";
+  d.areas.push_back(east);
+  droopline::UnitDef ge = d.units[0];
+  ge.id = "Ge";
+  ge.area = "east";
+  d.units.push_back(ge);
+  droopline::TieDef t;
+  t.id = "link";
+  t.from = "west";
+  t.to = "east";
+  t.pmax_mw = pmax_mw;
+  t.damping_mw_per_hz = damping_mw_per_hz;
+  d.ties.push_back(t);
+  return d;
+}
+
 }  // namespace test

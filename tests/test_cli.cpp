@@ -3,6 +3,7 @@
 // `merge` equal the whole sweep.
 #include <unistd.h>
 
+#include <algorithm>
 #include <filesystem>
 #include <fstream>
 #include <nlohmann/json.hpp>
@@ -12,6 +13,7 @@
 #include "cli_run.hpp"
 #include "cli_sweep.hpp"
 #include "droopline/batch.hpp"
+#include "droopline/format.hpp"
 #include "support.hpp"
 
 using namespace droopline;
@@ -108,4 +110,56 @@ TEST_CASE("three shards merged equal the whole sweep, and merge refuses what doe
   REQUIRE(cli::sweep(a) == 0);
   CHECK(cli::merge({shards[0], shards[1], a.out_dir}, out, "nadir_hz", true) == 2);
   CHECK_FALSE(fs::exists(fs::path(out) / "sweep.csv"));  // nothing half-written
+}
+
+TEST_CASE("run: the operator actions end to end, in the series and the summary") {
+  const fs::path out = temp_dir("actions");
+  REQUIRE(cli::run(test::source_path("tests/data/operator_actions.json"), out.string(), true) == 0);
+  const json summary = json::parse(slurp(out / "summary.json"));
+  std::vector<std::string> notices;
+  for (const json& n : summary["notices"])
+    notices.push_back(fmt_num(n["t_s"].get<double>()) + " " + n["kind"].get<std::string>() + ": " +
+                      n["text"].get<std::string>());
+  auto has = [&](const std::string& line) { return std::find(notices.begin(), notices.end(), line) != notices.end(); };
+  INFO(summary["notices"].dump(1));
+  CHECK(has("5 command: unit HG3 starting: synchronises in 30 s, then loads to 150 MW"));
+  CHECK(has("35 unit_synchronised: unit HG3 synchronised, loading to 150 MW"));
+  CHECK(has("40 command: unit HH2 stopping: unloading at 10 MW/s, then offline"));
+  CHECK(has("80 command: scheduled export of area marsh from 150.0 to 250 MW over 60 s"));
+  CHECK(has("161 command: load shed by hand: 60 MW in area hollin"));
+  CHECK(has("165 command: secondary control on in area hollin, mode constant_interchange"));
+  CHECK(has("240 command: shed load restored: 60.0 MW in area hollin"));
+  bool stopped = false;
+  for (const std::string& n : notices)
+    stopped = stopped || n.find("unit_stopped: unit HH2 offline after a stop") != std::string::npos;
+  CHECK(stopped);
+  // The start opened a disturbance when the unit synchronised; the stop opened none.
+  REQUIRE(summary["disturbances"].size() == 2);
+  CHECK(summary["disturbances"][0]["kind"] == "unit_start");
+  CHECK(summary["disturbances"][0]["at_s"] == 35.0);
+  const json& fin = summary["final"];
+  CHECK(fin["units"]["HH2"]["status"] == "offline");
+  CHECK(fin["units"]["HG3"]["status"] == "online");
+  CHECK(fin["areas"]["hollin"]["shed_mw"] == 0.0);
+  // The new schedule is met again after the step, the shedding and the restoration.
+  CHECK(fin["ties"]["hm"]["flow_mw"].get<double>() == Approx(-250.0).margin(3.0));
+  CHECK(fin["areas"]["hollin"]["f_hz"].get<double>() == Approx(50.0).margin(2e-3));
+  // Series: HG3 gives nothing while starting, then loads; HH2 is at zero once off.
+  std::istringstream series(slurp(out / "series.csv"));
+  std::string line;
+  std::getline(series, line);
+  CHECK(line == "t_s,hollin.f_hz,marsh.f_hz,HR1.p_mw,HH2.p_mw,HG3.p_mw,MS1.p_mw,MH2.p_mw,hm.flow_mw");
+  double hg3_before = -1.0, hg3_after = -1.0, hh2_end = -1.0;
+  while (std::getline(series, line)) {
+    std::vector<double> v;
+    std::istringstream cells(line);
+    for (std::string cell; std::getline(cells, cell, ',');) v.push_back(std::stod(cell));
+    if (v[0] == 34.9) hg3_before = v[5];
+    if (v[0] == 70.0) hg3_after = v[5];
+    hh2_end = v[4];
+  }
+  CHECK(hg3_before == 0.0);
+  CHECK(hg3_after == Approx(150.0).margin(5.0));
+  CHECK(hh2_end == 0.0);
+  fs::remove_all(out);
 }

@@ -25,28 +25,6 @@ UnitDef unit_of(const char* id, const char* area, TurbineType type, double ratin
   return u;
 }
 
-// Two areas joined by one tie, one steam unit each.
-SystemDef two_areas(double pmax_mw, double damping) {
-  SystemDef d = test::one_area(50.0, 1000.0, 600.0);
-  d.areas[0].id = "west";
-  d.units[0].area = "west";
-  d.units[0].id = "Gw";
-  AreaDef east = d.areas[0];
-  east.id = "east";
-  d.areas.push_back(east);
-  UnitDef ge = d.units[0];
-  ge.id = "Ge";
-  ge.area = "east";
-  d.units.push_back(ge);
-  TieDef t;
-  t.id = "link";
-  t.from = "west";
-  t.to = "east";
-  t.pmax_mw = pmax_mw;
-  t.damping_mw_per_hz = damping;
-  d.ties.push_back(t);
-  return d;
-}
 
 }  // namespace
 
@@ -254,7 +232,7 @@ TEST_CASE("under-frequency shedding: stages pick up after their delay, once each
 }
 
 TEST_CASE("out-of-step: a tie pushed past pull-out slips, trips and leaves two islands") {
-  SystemDef d = two_areas(150.0, 50.0);
+  SystemDef d = test::two_areas(150.0, 50.0);
   d.ties[0].trip_angle_deg = 180.0;
   d.events.push_back({1.0, load_step("east", 400.0)});  // half of it would cross: above 150 MW
   d.duration_s = 30.0;
@@ -280,7 +258,7 @@ TEST_CASE("out-of-step: a tie pushed past pull-out slips, trips and leaves two i
 }
 
 TEST_CASE("tie trip and re-close: the swing is damped and the exchange returns") {
-  SystemDef d = two_areas(1000.0, 300.0);
+  SystemDef d = test::two_areas(1000.0, 300.0);
   d.units[0].setpoint_mw = 700.0;
   d.units[1].setpoint_mw = 500.0;
   d.duration_s = 60.0;

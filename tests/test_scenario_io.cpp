@@ -144,6 +144,75 @@ TEST_CASE("commands: one object or an array, at_s refused, types checked") {
   CHECK(bad.issues[1].text() == "commands[1].area: must be a string, got a number");
 }
 
+TEST_CASE("operator commands: read, written back the same, restore without mw means all") {
+  const char* text = R"([{"kind": "unit_stop", "unit": "G1"},
+    {"kind": "unit_stop", "unit": "G1", "ramp_mw_per_s": 4},
+    {"kind": "schedule", "area": "west", "mw": -120, "over_s": 30},
+    {"kind": "schedule", "area": "west", "mw": 80},
+    {"kind": "shed", "area": "west", "mw": 25},
+    {"kind": "restore", "area": "west", "mw": 10},
+    {"kind": "restore", "area": "west"},
+    {"kind": "agc", "area": "west", "enabled": true, "mode": "constant_frequency"},
+    {"kind": "agc", "area": "west", "enabled": false}])";
+  auto parsed = parse_commands(text);
+  REQUIRE(parsed.issues.empty());
+  REQUIRE(parsed.commands.size() == 9);
+  CHECK_FALSE(parsed.commands[0].ramp_mw_per_s);
+  CHECK(parsed.commands[2].over_s == 30.0);
+  CHECK(parsed.commands[3].over_s == 0.0);
+  CHECK_FALSE(parsed.commands[5].all_shed);
+  CHECK(parsed.commands[6].all_shed);
+  CHECK(parsed.commands[7].agc_mode == AgcMode::constant_frequency);
+  CHECK_FALSE(parsed.commands[8].agc_mode);
+  CHECK_FALSE(parsed.commands[7].mode);  // the governor's mode is not touched
+  const std::vector<std::string> expected = {
+      R"({"kind":"unit_stop","unit":"G1"})",
+      R"({"kind":"unit_stop","unit":"G1","ramp_mw_per_s":4.0})",
+      R"({"kind":"schedule","area":"west","mw":-120.0,"over_s":30.0})",
+      R"({"kind":"schedule","area":"west","mw":80.0,"over_s":0.0})",
+      R"({"kind":"shed","area":"west","mw":25.0})",
+      R"({"kind":"restore","area":"west","mw":10.0})",
+      R"({"kind":"restore","area":"west"})",
+      R"({"kind":"agc","area":"west","enabled":true,"mode":"constant_frequency"})",
+      R"({"kind":"agc","area":"west","enabled":false})"};
+  for (std::size_t i = 0; i < expected.size(); ++i) {
+    const std::string written = command_to_json(parsed.commands[i]).dump();
+    CHECK(written == expected[i]);
+    auto back = parse_commands(written);
+    REQUIRE(back.commands.size() == 1);
+    CHECK(command_to_json(back.commands[0]).dump() == written);
+  }
+  // Against the base scenario: ids and bounds resolve (the state checks are the engine's).
+  LoadResult r = parse_scenario(kBase);
+  REQUIRE(r.system);
+  Resolved res = resolve_all(*r.system, parsed.commands);
+  CHECK(res.issues.empty());
+  REQUIRE(res.actions.size() == 9);
+  CHECK_FALSE(std::get<Restore>(res.actions[6]).mw);
+  CHECK(std::get<Restore>(res.actions[5]).mw == 10.0);
+}
+
+TEST_CASE("start_up_s and the agc mode round-trip; typical start-up ranges warn") {
+  nlohmann::ordered_json j = nlohmann::ordered_json::parse(kBase);
+  j["units"][1]["start_up_s"] = 600;  // reheat: typical 1-4 h
+  j["areas"][0]["agc"] = {{"enabled", true}, {"mode", "constant_interchange"}};
+  LoadResult r = parse_scenario(j.dump());
+  REQUIRE(r.system);
+  CHECK(r.system->def().units[1].start_up_s == 600.0);
+  CHECK(r.system->def().areas[0].agc.mode == AgcMode::constant_interchange);
+  bool warned = false;
+  for (const Issue& i : r.issues)
+    warned = warned || (i.warning && i.text() ==
+                                         "units[1].start_up_s: 600 is outside the typical range 3600-14400 of "
+                                         "hot steam unit start-up (s)");
+  CHECK(warned);
+  const std::string once = scenario_to_json(r.system->def()).dump();
+  LoadResult again = parse_scenario(once);
+  REQUIRE(again.system);
+  CHECK(again.system->def().units[1].start_up_s == 600.0);
+  CHECK(again.system->def().areas[0].agc.mode == AgcMode::constant_interchange);
+}
+
 TEST_CASE("the scenario round-trips through its JSON form") {
   LoadResult r = parse_scenario(kBase);
   REQUIRE(r.system);

@@ -55,3 +55,15 @@ TEST_CASE("a step allocates nothing while secondary control, noise and metric wi
   CHECK(allocations_stepping_to(*e, 21.0) > 0);   // the trip: a notice and a record (the counter counts)
   CHECK(allocations_stepping_to(*e, 60.0) == 0);  // the disturbance's windows open and closing
 }
+
+TEST_CASE("a step allocates nothing while a unit starts, a unit stops and schedules ramp") {
+  if (!DL_COUNT_NEW) return;
+  auto e = test::make(test::load("tests/data/operator_actions.json"));
+  test::run_until(*e, 6.0);
+  CHECK(allocations_stepping_to(*e, 34.0) == 0);  // HG3 starting (synchronises at 35 s)
+  CHECK(allocations_stepping_to(*e, 36.0) > 0);   // synchronised: a notice and a record
+  test::run_until(*e, 41.0);
+  CHECK(allocations_stepping_to(*e, 79.0) == 0);  // HH2 unloading
+  test::run_until(*e, 81.0);
+  CHECK(allocations_stepping_to(*e, 139.0) == 0);  // both schedules ramping
+}

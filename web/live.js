@@ -21,6 +21,9 @@ export function renderStatic() {
     figure(`${t.id} <small>${t.from} → ${t.to}, pull-out ${t.pmax_mw} MW</small>`, `data-tie="${t.id}"`)));
 }
 
+// Secondary control in a mode other than tie-line bias is marked beside its correction.
+const AGC_MODE_MARK = { constant_frequency: ' (f)', constant_interchange: ' (tie)' };
+
 const AREA_COLUMNS = [
   ({ a, s }) => `${a.id}${s.collapsed ? ' (collapsed)' : ''}`,
   ({ s }) => fmt(s.f_hz, 4),
@@ -29,7 +32,7 @@ const AREA_COLUMNS = [
   ({ s }) => fmt(s.generation_mw),
   ({ s }) => `${fmt(s.export_mw)} (${fmt(s.scheduled_export_mw)})`,
   ({ s }) => fmt(s.ace_mw),
-  ({ s }) => (s.agc_enabled ? fmt(s.agc_mw) : 'off'),
+  ({ s }) => (s.agc_enabled ? `${fmt(s.agc_mw)}${AGC_MODE_MARK[s.agc_mode] ?? ''}` : 'off'),
 ];
 
 const UNIT_COLUMNS = [
@@ -56,8 +59,8 @@ export function renderClock(f) {
 export function renderLive(f) {
   const sc = app.scenario;
   fillTable($('area-table'), AREA_COLUMNS, sc.areas.map((a) => ({ a, s: f.areas[a.id] })));
-  // Each unit's share of its area's secondary control, among the units not tripped.
-  const running = (u) => f.units[u.id].status !== 'tripped';
+  // Each unit's share of its area's secondary control, among the units in it (a stopping unit has left it).
+  const running = (u) => ['online', 'at_max', 'at_min'].includes(f.units[u.id].status);
   const totals = {};
   for (const u of sc.units) if (running(u)) totals[u.area] = (totals[u.area] ?? 0) + u.agc_share;
   fillTable($('unit-table'), UNIT_COLUMNS, sc.units.map((u) => ({

@@ -7,9 +7,37 @@
 
 namespace droopline {
 
+// The three modes of the trade (model notes, section 12).
 double Engine::Impl::ace(std::size_t a) {
   ensure_outputs();
-  return (out_net[a] - areas[a].sched_export) + areas[a].bias * y[a];
+  const detail::AreaRt& ar = areas[a];
+  switch (ar.agc_mode) {
+    case AgcMode::constant_frequency:
+      return ar.bias * y[a];
+    case AgcMode::constant_interchange:
+      return out_net[a] - ar.sched_export;
+    case AgcMode::tie_line_bias:
+      break;
+  }
+  return (out_net[a] - ar.sched_export) + ar.bias * y[a];
+}
+
+// Schedules set with a ramp move linearly, step by step, from where they were to the new value.
+void Engine::Impl::advance_schedules() {
+  if (!sched_ramps) return;
+  sched_ramps = false;
+  for (detail::AreaRt& ar : areas) {
+    if (!ar.sched_ramping) continue;
+    const std::int64_t done = n - ar.sched_n0;
+    if (done >= ar.sched_steps) {
+      ar.sched_export = ar.sched_to;
+      ar.sched_ramping = false;
+    } else {
+      ar.sched_export = ar.sched_from +
+                        (ar.sched_to - ar.sched_from) * static_cast<double>(done) / static_cast<double>(ar.sched_steps);
+      sched_ramps = true;
+    }
+  }
 }
 
 void Engine::Impl::run_agc(std::size_t a) {

@@ -109,6 +109,21 @@ void check_command(Checker& ck, const SystemDef& def, const Command& c, const st
     case CommandKind::agc:
       ref(areas, "area", c.area, "area");
       break;
+    case CommandKind::unit_stop:
+      ref(units, "unit", c.unit, "unit");
+      if (c.ramp_mw_per_s) ck.positive_at_most(at(p, ".ramp_mw_per_s"), *c.ramp_mw_per_s, bound::kRampMwPerS, " MW/s");
+      break;
+    case CommandKind::schedule:
+      area_load(ref(areas, "area", c.area, "area"), "mw", c.mw, false);
+      ck.non_negative_at_most(at(p, ".over_s"), c.over_s, bound::kDurationS, " s");
+      break;
+    case CommandKind::shed:
+    case CommandKind::restore:
+      if (const std::size_t* ai = ref(areas, "area", c.area, "area"); !c.all_shed || c.kind == CommandKind::shed) {
+        ck.positive(at(p, ".mw"), c.mw);
+        if (c.mw > 0.0) area_load(ai, "mw", c.mw, false);
+      }
+      break;
     case CommandKind::fluctuation:
       if (const std::size_t* ai = ref(areas, "area", c.area, "area"); ai && c.sigma_mw > 0.0)
         area_load(ai, "sigma_mw", c.sigma_mw, true);
@@ -131,8 +146,12 @@ Action to_action(const SystemIndex& index, const Command& c) {
     case CommandKind::governor: return GovernorChange{unit(), c.droop, c.deadband_hz, c.deadband, c.mode};
     case CommandKind::tie_trip: return TieTrip{tie()};
     case CommandKind::tie_close: return TieClose{tie()};
-    case CommandKind::agc: return AgcSwitch{area(), c.enabled};
+    case CommandKind::agc: return AgcSwitch{area(), c.enabled, c.agc_mode};
     case CommandKind::fluctuation: return Fluctuation{area(), c.sigma_mw, c.tau_s};
+    case CommandKind::unit_stop: return UnitStop{unit(), c.ramp_mw_per_s};
+    case CommandKind::schedule: return Schedule{area(), c.mw, c.over_s};
+    case CommandKind::shed: return Shed{area(), c.mw};
+    case CommandKind::restore: return Restore{area(), c.all_shed ? std::nullopt : std::optional<double>(c.mw)};
   }
   return LoadStep{area(), c.mw};
 }

@@ -33,6 +33,7 @@ constexpr double kGainPerPu = 100.0;      // secondary-control gains, load dampi
 constexpr double kMwPerHz = 1e7;          // bias and tie damping
 constexpr double kEnergyMwh = 1e6;        // battery energy
 constexpr double kAreaStepFactor = 10.0;  // a load step or ramp within ten times the area's size
+constexpr double kStartUpS = 1e5;         // about 28 h: past a cold start of a large steam unit
 }  // namespace bound
 
 // A path made of a prefix and a field, joined only when a message needs it: validating a large

@@ -5,6 +5,7 @@
 #include <optional>
 #include <variant>
 
+#include "droopline/format.hpp"
 #include "engine_impl.hpp"
 
 namespace droopline {
@@ -45,30 +46,58 @@ std::optional<Issue> Engine::Impl::dynamic_error(const Action& action, Shadow& s
     return Issue{path + ".unit", "unit \"" + def.units[u].id + "\" " + what};
   };
   auto tie_issue = [&](const std::string& message) { return Issue{path + ".tie", message}; };
+  auto sync_time = [&](std::size_t u) {
+    return units[u].starting ? " (it synchronises at " + fmt_num(static_cast<double>(units[u].sync_step) * h) + " s)"
+                             : std::string();
+  };
+  auto not_online = [&](std::size_t u) -> std::optional<Issue> {
+    if (sh.unit_starting[u]) return unit_issue(u, "is starting, not yet online" + sync_time(u));
+    if (!sh.unit_online[u]) return unit_issue(u, "is not online");
+    return std::nullopt;
+  };
   switch (kind_of(action)) {
     case CommandKind::unit_trip: {
       const std::size_t u = std::get<UnitTrip>(action).unit.index;
-      if (!sh.unit_online[u]) return unit_issue(u, "is not online");
-      sh.unit_online[u] = false;
+      if (std::optional<Issue> off = not_online(u)) return off;
+      sh.unit_online[u] = sh.unit_stopping[u] = false;
       break;
     }
     case CommandKind::unit_start: {
       const std::size_t u = std::get<UnitStart>(action).unit.index;
+      if (sh.unit_starting[u]) return unit_issue(u, "is already starting" + sync_time(u));
+      if (sh.unit_stopping[u]) return unit_issue(u, "is stopping: start it again once it is offline");
       if (sh.unit_online[u]) return unit_issue(u, "is already online");
       if (areas[units[u].area].collapsed)
         return Issue{path + ".unit", "area \"" + def.areas[units[u].area].id + "\" has collapsed"};
-      sh.unit_online[u] = true;
+      (def.units[u].start_up_s > 0.0 ? sh.unit_starting : sh.unit_online)[u] = true;
       break;
     }
     case CommandKind::setpoint: {
       const std::size_t u = std::get<Setpoint>(action).unit.index;
-      if (!sh.unit_online[u]) return unit_issue(u, "is not online");
+      if (std::optional<Issue> off = not_online(u)) return off;
+      if (sh.unit_stopping[u]) return unit_issue(u, "is stopping: its setpoint is ramping to zero");
+      break;
+    }
+    case CommandKind::unit_stop: {
+      const std::size_t u = std::get<UnitStop>(action).unit.index;
+      if (std::optional<Issue> off = not_online(u)) return off;
+      if (sh.unit_stopping[u]) return unit_issue(u, "is already stopping");
+      // A controlled stop is planned: it may not leave the area without inertia (a trip may).
+      const std::size_t a = units[u].area;
+      bool other = false;
+      for (std::size_t v = 0; v < nu && !other; ++v)
+        other = v != u && units[v].area == a && sh.unit_online[v] && !sh.unit_stopping[v] &&
+                is_synchronous(def.units[v]) && def.units[v].inertia_s > 0.0;
+      if (!other && is_synchronous(def.units[u]) && def.units[u].inertia_s > 0.0)
+        return unit_issue(u, "is the last synchronous unit running in area \"" + def.areas[a].id +
+                                 "\": stopping it would leave the area without inertia");
+      sh.unit_stopping[u] = true;
       break;
     }
     case CommandKind::governor: {
       const GovernorChange& c = std::get<GovernorChange>(action);
       const std::size_t u = c.unit.index;
-      if (!sh.unit_online[u]) return unit_issue(u, "is not online");
+      if (std::optional<Issue> off = not_online(u)) return off;
       if (c.droop) {
         // With the droops as they are now (earlier commands included), the area's frequency
         // loop must stay slow enough for the fixed step: M/beta at least five steps.
@@ -100,9 +129,29 @@ std::optional<Issue> Engine::Impl::dynamic_error(const Action& action, Shadow& s
     case CommandKind::load_step:
     case CommandKind::load_ramp:
     case CommandKind::agc:
-    case CommandKind::fluctuation: {
+    case CommandKind::fluctuation:
+    case CommandKind::schedule:
+    case CommandKind::shed:
+    case CommandKind::restore: {
       const std::size_t a = area_of(action);
-      if (areas[a].collapsed) return Issue{path + ".area", "area \"" + def.areas[a].id + "\" has collapsed"};
+      const std::string area = "area \"" + def.areas[a].id + "\"";
+      if (areas[a].collapsed) return Issue{path + ".area", area + " has collapsed"};
+      if (const Shed* c = std::get_if<Shed>(&action)) {
+        if (c->mw > sh.connected[a] + 1e-9)
+          return Issue{path + ".mw", "cannot shed " + fmt_num(c->mw) + " MW: " + area + " has " +
+                                         fmt_num(std::max(0.0, sh.connected[a])) + " MW of load connected"};
+        sh.connected[a] -= c->mw;
+        sh.shed[a] += c->mw;
+      }
+      if (const Restore* c = std::get_if<Restore>(&action)) {
+        if (!(sh.shed[a] > 0.0)) return Issue{path + ".area", area + " has no shed load to restore"};
+        const double mw = c->mw.value_or(sh.shed[a]);
+        if (mw > sh.shed[a] + 1e-9)
+          return Issue{path + ".mw", "cannot restore " + fmt_num(mw) + " MW: " + area + " has " + fmt_num(sh.shed[a]) +
+                                         " MW of shed load"};
+        sh.connected[a] += mw;
+        sh.shed[a] -= mw;
+      }
       break;
     }
   }
@@ -113,7 +162,13 @@ Engine::Impl::Shadow Engine::Impl::shadow() const {
   Shadow sh;
   for (const detail::UnitRt& u : units) {
     sh.unit_online.push_back(u.online);
+    sh.unit_starting.push_back(u.starting);
+    sh.unit_stopping.push_back(u.stopping);
     sh.droop.push_back(u.droop);
+  }
+  for (std::size_t a = 0; a < na; ++a) {
+    sh.shed.push_back(areas[a].shed_mw);
+    sh.connected.push_back(connected_load(a));
   }
   for (const detail::TieRt& t : ties) sh.tie_in.push_back(t.in_service);
   return sh;
@@ -174,6 +229,10 @@ void Engine::Impl::perform(const Action& action) {
     case CommandKind::unit_start: {
       const UnitStart& c = std::get<UnitStart>(action);
       const std::size_t u = c.unit.index;
+      if (def.units[u].start_up_s > 0.0) {  // synchronises later (advance_units)
+        begin_start(u, c.mw);
+        break;
+      }
       bring_online(u, c.mw, false);
       update_inertia();
       refresh_participants(units[u].area);
@@ -249,6 +308,7 @@ void Engine::Impl::perform(const Action& action) {
       const AgcSwitch& c = std::get<AgcSwitch>(action);
       const std::size_t a = c.area.index;
       areas[a].agc_on = c.enabled;
+      if (c.mode) areas[a].agc_mode = *c.mode;  // the integral carries on under the new ACE
       break;
     }
     case CommandKind::fluctuation: {
@@ -257,6 +317,44 @@ void Engine::Impl::perform(const Action& action) {
       ar.noise_sigma = c.sigma_mw;
       ar.noise_tau = c.tau_s;
       if (c.sigma_mw <= 0.0) ar.noise_mw = 0.0;
+      break;
+    }
+    case CommandKind::unit_stop: {
+      const UnitStop& c = std::get<UnitStop>(action);
+      const std::size_t u = c.unit.index;
+      notice.value = c.ramp_mw_per_s.value_or(unit_stop_rate_mw_per_s(def.units[u]));
+      begin_stop(u, notice.value);
+      break;
+    }
+    case CommandKind::schedule: {
+      const Schedule& c = std::get<Schedule>(action);
+      detail::AreaRt& ar = areas[c.area.index];
+      notice.value = ar.sched_export;
+      ar.sched_manual = true;
+      ar.sched_ramping = c.over_s > 0.0;
+      if (ar.sched_ramping) {
+        ar.sched_from = ar.sched_export;
+        ar.sched_to = c.mw;
+        ar.sched_n0 = n;
+        ar.sched_steps = std::max<std::int64_t>(1, std::llround(c.over_s / h));
+        sched_ramps = true;
+      } else {
+        ar.sched_export = c.mw;
+      }
+      break;
+    }
+    case CommandKind::shed: {
+      const Shed& c = std::get<Shed>(action);
+      detail::AreaRt& ar = areas[c.area.index];
+      ar.manual_shed_mw += c.mw;
+      ar.shed_mw += c.mw;
+      break;
+    }
+    case CommandKind::restore: {
+      const Restore& c = std::get<Restore>(action);
+      const std::size_t a = c.area.index;
+      notice.value = c.mw.value_or(areas[a].shed_mw);
+      notice.stage = restore_load(a, notice.value);
       break;
     }
   }

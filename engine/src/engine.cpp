@@ -17,6 +17,9 @@ const char* to_string(UnitStatus s) {
     case UnitStatus::at_max: return "at_max";
     case UnitStatus::at_min: return "at_min";
     case UnitStatus::tripped: return "tripped";
+    case UnitStatus::starting: return "starting";
+    case UnitStatus::stopping: return "stopping";
+    case UnitStatus::offline: return "offline";
   }
   return "?";
 }
@@ -29,6 +32,8 @@ const char* to_string(NoticeKind k) {
     case NoticeKind::shedding: return "shedding";
     case NoticeKind::collapse: return "collapse";
     case NoticeKind::islanded: return "islanded";
+    case NoticeKind::unit_synchronised: return "unit_synchronised";
+    case NoticeKind::unit_stopped: return "unit_stopped";
   }
   return "?";
 }
@@ -91,6 +96,7 @@ AreaState Engine::area(AreaId id) const {
   s.shed_mw = ar.shed_mw;
   s.inertia_mws_per_hz = ar.m;
   s.agc_enabled = ar.agc_on;
+  s.agc_mode = ar.agc_mode;
   s.collapsed = ar.collapsed;
   s.island = ar.island;
   return s;

@@ -62,7 +62,8 @@ struct Ramp {
 struct ShedTimer {
   double timer_s = 0.0;  // time spent below the threshold since it was first seen below
   bool below = false;
-  bool done = false;
+  bool done = false;     // picked up; re-armed once all its load is restored
+  double shed_mw = 0.0;  // its load still disconnected (MW)
 };
 
 /// An area's load, protection, secondary control and topology.
@@ -73,8 +74,9 @@ struct AreaRt {
   std::vector<Ramp> ramps;
   double noise_sigma = 0.0, noise_tau = 1.0, noise_mw = 0.0, noise_next = 0.0;
   NormalSource rng;
-  // Protection
-  double shed_mw = 0.0;
+  // Protection and shedding by hand
+  double shed_mw = 0.0;         // all load disconnected now (MW): the stages' and by hand
+  double manual_shed_mw = 0.0;  // the part shed by hand (MW)
   std::vector<ShedTimer> stages;
   // Topology
   double m = 0.0;  // 2*sum(H S)/f0 (MW s/Hz)
@@ -84,14 +86,24 @@ struct AreaRt {
   bool agc_on = false;
   double bias = 0.0, kp = 0.0, ki = 0.0;
   std::int64_t period_steps = 1;
+  AgcMode agc_mode = AgcMode::tie_line_bias;
   double integral = 0.0, agc_total = 0.0, sched_export = 0.0;
   std::vector<std::size_t> participants;  // slots
+  // A schedule set by command overrides the tie-based one; it may be ramping
+  bool sched_manual = false, sched_ramping = false;
+  double sched_from = 0.0, sched_to = 0.0;
+  std::int64_t sched_n0 = 0, sched_steps = 1;
 };
 
 /// A unit's place in the layout and its governor settings now.
 struct UnitRt {
   std::size_t slot = 0, block = 0, j = 0, area = 0;
   bool online = true, tripped = false;
+  bool starting = false, stopping = false, stopped = false;  // start-up, controlled stop, ended by one
+  std::int64_t sync_step = 0;                                // starting: the step at which it synchronises
+  double start_mw = 0.0;                                     // starting: the setpoint it then loads to (MW)
+  std::int64_t stop_at_zero = -1;  // stopping: the step its setpoint reached zero (-1: not yet)
+  double stop_last_p = 0.0;        // stopping: its output a whole second ago (MW)
   double droop = 0.05, deadband_hz = 0.0;
   DeadbandKind deadband = DeadbandKind::offset;
   GovernorMode mode = GovernorMode::droop;
@@ -140,6 +152,8 @@ struct EngineState {
   std::vector<double> out_gen, out_net, rocof;
   bool outputs_valid = false;
   std::vector<std::size_t> ramping;  // units whose setpoint is moving
+  std::size_t changing_units = 0;    // units starting or stopping (post_step scans them when > 0)
+  bool sched_ramps = false;          // some area's schedule is ramping
 
   // Work pieces of a stage and the task runner
   std::vector<Piece> pieces;
@@ -190,6 +204,10 @@ struct Engine::Impl : detail::EngineState {
   void set_governor_gains(std::size_t u);
   void bring_online(std::size_t u, double mw, bool steady);
   void take_offline(std::size_t u);
+  void begin_start(std::size_t u, double mw);
+  void begin_stop(std::size_t u, double rate_mw_per_s);
+  void advance_units();
+  void advance_schedules();
 
   // topology.cpp
   void update_inertia();
@@ -222,11 +240,14 @@ struct Engine::Impl : detail::EngineState {
   void check_shedding(std::size_t a);
   void trip_tie(std::size_t t, const std::optional<Action>& by);
   void collapse_area_if_dead(std::size_t a);
+  double connected_load(std::size_t a) const;
+  std::uint32_t restore_load(std::size_t a, double mw);
 
   // commands.cpp
   struct Shadow {
-    std::vector<bool> unit_online, tie_in;
-    std::vector<double> droop;  // as the commands checked so far would leave them
+    std::vector<bool> unit_online, unit_starting, unit_stopping, tie_in;
+    std::vector<double> droop;            // as the commands checked so far would leave them
+    std::vector<double> shed, connected;  // per area (MW)
   };
   std::optional<Issue> dynamic_error(const Action& a, Shadow& sh, const std::string& path) const;
   Shadow shadow() const;

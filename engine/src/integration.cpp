@@ -145,10 +145,12 @@ void Engine::Impl::step_state(std::span<const double> x, std::span<double> next)
   invalidate_outputs();
 }
 
-// Between steps: protection, secondary control on its cycle, setpoint ramps, then the metrics.
+// Between steps: protection, schedule ramps, secondary control on its cycle, setpoint ramps,
+// units synchronising or ending a stop, then the metrics.
 void Engine::Impl::post_step() {
   invalidate_outputs();
   check_out_of_step();
+  advance_schedules();
   for (std::size_t a = 0; a < na; ++a) {
     if (areas[a].collapsed) continue;
     check_shedding(a);
@@ -168,6 +170,7 @@ void Engine::Impl::post_step() {
     }
     pref0[s] = pset[s] + pagc[s];
   }
+  advance_units();
   if (metrics.wants_outputs(n)) ensure_outputs();
   metrics.after_step(*this);
 }

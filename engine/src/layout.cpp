@@ -41,6 +41,7 @@ Engine::Impl::Impl(const CheckedSystem& checked) : EngineState(checked) {
     ar.kp = ad.agc.kp;
     ar.ki = ad.agc.ki_per_s;
     ar.period_steps = ad.agc.period_s > 0.0 ? steps_of(ad.agc.period_s) : 1;
+    ar.agc_mode = ad.agc.mode;
   }
   ties.resize(nt);
   for (std::size_t t = 0; t < nt; ++t) {
@@ -189,8 +190,9 @@ void Engine::Impl::set_governor_gains(std::size_t u) {
 void Engine::Impl::bring_online(std::size_t u, double mw, bool steady) {
   UnitRt& ur = units[u];
   const std::size_t s = ur.slot;
+  if (ur.starting) --changing_units;
   ur.online = true;
-  ur.tripped = false;
+  ur.tripped = ur.starting = ur.stopped = false;
   ur.target_mw = mw;
   ur.target_rate = 0.0;
   pset[s] = mw;
@@ -216,7 +218,8 @@ void Engine::Impl::bring_online(std::size_t u, double mw, bool steady) {
 void Engine::Impl::take_offline(std::size_t u) {
   UnitRt& ur = units[u];
   const std::size_t s = ur.slot;
-  ur.online = false;
+  if (ur.starting || ur.stopping) --changing_units;
+  ur.online = ur.starting = ur.stopping = false;
   ur.target_rate = 0.0;
   pset[s] = pagc[s] = pref0[s] = kd[s] = kiso[s] = pmin[s] = pmax[s] = dbs[s] = 0.0;
   ramp[s] = kNoRamp;
@@ -226,6 +229,84 @@ void Engine::Impl::take_offline(std::size_t u) {
       if (i != M::kCarried) state(u, i) = 0.0;
   });
   pm[s] = 0.0;
+}
+
+// A start with a start-up time: the unit is `starting` (no output, no inertia) until its
+// synchronisation step, when advance_units brings it online as a start without one would.
+void Engine::Impl::begin_start(std::size_t u, double mw) {
+  UnitRt& ur = units[u];
+  ur.starting = true;
+  ur.stopped = false;
+  ur.sync_step = n + std::max<std::int64_t>(1, std::llround(def.units[u].start_up_s / h));
+  ur.start_mw = mw;
+  ++changing_units;
+}
+
+// A controlled stop: the secondary-control share is folded into the setpoint (the unit leaves
+// secondary control), the lower limit is relaxed to zero, and the setpoint ramps to zero.
+void Engine::Impl::begin_stop(std::size_t u, double rate_mw_per_s) {
+  UnitRt& ur = units[u];
+  const std::size_t s = ur.slot;
+  pset[s] += pagc[s];
+  pagc[s] = 0.0;
+  pref0[s] = pset[s];
+  pmin[s] = std::min(def_pmin[s], 0.0);
+  ur.stopping = true;
+  ur.stop_at_zero = -1;
+  ur.target_mw = 0.0;
+  if (ur.target_rate <= 0.0) ramping.push_back(u);
+  ur.target_rate = rate_mw_per_s;
+  ++changing_units;
+  refresh_participants(ur.area);
+}
+
+// Between steps, after the setpoint ramps: starting units whose start-up time has passed
+// synchronise; a stopping unit whose setpoint reached zero opens its breaker once its output is
+// within 1 % of rating of zero, or has settled (moved less than 0.1 % of rating in a second: what
+// is left is its governor's answer to the frequency), or kStopHoldS after, whatever it is then.
+void Engine::Impl::advance_units() {
+  if (changing_units == 0) return;
+  constexpr double kStopHoldS = 600.0;
+  const std::int64_t second = std::max<std::int64_t>(1, std::llround(1.0 / h));
+  for (std::size_t u = 0; u < nu && changing_units > 0; ++u) {
+    UnitRt& ur = units[u];
+    const std::size_t a = ur.area;
+    if (ur.starting && n >= ur.sync_step) {
+      const double mw = ur.start_mw;
+      bring_online(u, mw, false);
+      update_inertia();
+      refresh_participants(a);
+      invalidate_outputs();
+      Notice note = detail::notice_at(time(), NoticeKind::unit_synchronised,
+                                      UnitStart{UnitId{static_cast<std::uint32_t>(u)}, mw});
+      open_disturbance(a, -mw, CommandKind::unit_start, note);
+      notices.push_back(std::move(note));
+    } else if (ur.stopping && ur.target_rate <= 0.0) {
+      ensure_outputs();
+      const double p = pm[ur.slot], rating = def.units[u].rating_mw;
+      if (ur.stop_at_zero < 0) {
+        ur.stop_at_zero = n;
+        ur.stop_last_p = p;
+      }
+      const std::int64_t waited = n - ur.stop_at_zero;
+      bool open = std::fabs(p) <= 0.01 * rating || waited >= std::llround(kStopHoldS / h);
+      if (!open && waited > 0 && waited % second == 0) {
+        open = std::fabs(p - ur.stop_last_p) <= 0.001 * rating;
+        ur.stop_last_p = p;
+      }
+      if (!open) continue;
+      take_offline(u);
+      ur.stopped = true;
+      update_inertia();
+      refresh_participants(a);
+      invalidate_outputs();
+      Notice note = detail::notice_at(time(), NoticeKind::unit_stopped,
+                                      UnitStop{UnitId{static_cast<std::uint32_t>(u)}, std::nullopt});
+      note.value = p;
+      notices.push_back(std::move(note));
+      collapse_area_if_dead(a);
+    }
+  }
 }
 
 }  // namespace droopline

@@ -83,8 +83,12 @@ UnitState Engine::Impl::unit_state(std::size_t u) {
     st.headroom_up_mw = ur.online ? std::max(0.0, hi - st.p_mw) : 0.0;
     st.headroom_down_mw = ur.online ? std::max(0.0, st.p_mw - def_pmin[s]) : 0.0;
     const double tol = 1e-6 * std::max(1.0, std::fabs(hi));
-    if (!ur.online)
-      st.status = UnitStatus::tripped;
+    if (ur.starting)
+      st.status = UnitStatus::starting;
+    else if (!ur.online)
+      st.status = ur.stopped ? UnitStatus::offline : UnitStatus::tripped;
+    else if (ur.stopping)
+      st.status = UnitStatus::stopping;
     else if (st.valve_mw >= hi - tol || M::cannot_raise(x, p, tol))
       st.status = UnitStatus::at_max;
     else if (st.valve_mw <= def_pmin[s] + tol || M::cannot_lower(x, p, tol))

@@ -39,6 +39,7 @@ void Engine::Impl::check_shedding(std::size_t a) {
       if (st.timer_s >= stages[s].delay_s - 1e-9) {
         st.done = true;
         const double mw = stages[s].shed_pct / 100.0 * ar.pd0;
+        st.shed_mw = mw;
         ar.shed_mw += mw;
         Notice note = detail::notice_at(time(), NoticeKind::shedding);
         note.area = static_cast<std::uint32_t>(a);
@@ -83,10 +84,45 @@ void Engine::Impl::collapse_area_if_dead(std::size_t a) {
       ties[t].in_service = false;
       ties[t].flow = 0.0;
     }
-  for (std::size_t u = 0; u < nu; ++u)
-    if (units[u].area == a && units[u].online) take_offline(u);
+  for (std::size_t u = 0; u < nu; ++u) {
+    if (units[u].area != a) continue;
+    if (units[u].online) take_offline(u);
+    if (units[u].starting) {  // a unit starting in a dead area has nothing to synchronise with
+      units[u].starting = false;
+      --changing_units;
+    }
+  }
   update_topology();
   refresh_participants(a);
+}
+
+// Load connected now, leaving out its frequency dependence and noise (MW): what can be shed.
+double Engine::Impl::connected_load(std::size_t a) const {
+  const detail::AreaRt& ar = areas[a];
+  return ar.pd0 - ar.shed_mw + extra_load(ar, time());
+}
+
+// Reconnects `mw` of shed load: first what was shed by hand, then the stages from the last one
+// back. A stage whose load is all back is re-armed (it can pick up again); returns how many were.
+std::uint32_t Engine::Impl::restore_load(std::size_t a, double mw) {
+  detail::AreaRt& ar = areas[a];
+  const bool all = mw >= ar.shed_mw;
+  double left = mw - std::min(mw, ar.manual_shed_mw);
+  ar.manual_shed_mw = all ? 0.0 : ar.manual_shed_mw - std::min(mw, ar.manual_shed_mw);
+  std::uint32_t rearmed = 0;
+  for (std::size_t s = ar.stages.size(); s-- > 0;) {
+    detail::ShedTimer& st = ar.stages[s];
+    if (!st.done) continue;
+    const double take = std::min(left, st.shed_mw);
+    left -= take;
+    st.shed_mw = all ? 0.0 : st.shed_mw - take;
+    if (st.shed_mw <= 1e-9 * std::max(1.0, ar.pd0)) {
+      st = detail::ShedTimer{};
+      ++rearmed;
+    }
+  }
+  ar.shed_mw = all ? 0.0 : ar.shed_mw - mw;
+  return rearmed;
 }
 
 }  // namespace droopline

@@ -20,6 +20,10 @@ std::string droop_step_problem(double droop, const std::string& area, double m, 
          " s) than the fixed step can follow: step_s (" + fmt_num(step_s) + " s) must be at most a fifth of it";
 }
 
+// Our choice for exercises (about 100 s from full output): real units unload slower, a few % of
+// rating per minute (common practice, from memory).
+double unit_stop_rate_mw_per_s(const UnitDef& u) { return u.ramp_mw_per_s ? *u.ramp_mw_per_s : 0.01 * u.rating_mw; }
+
 bool is_synchronous(const UnitDef& unit) { return unit.turbine.type != TurbineType::battery; }
 
 double unit_min_mw(const UnitDef& u) {
@@ -95,6 +99,26 @@ const char* to_string(CommandKind k) {
       return "agc";
     case CommandKind::fluctuation:
       return "fluctuation";
+    case CommandKind::unit_stop:
+      return "unit_stop";
+    case CommandKind::schedule:
+      return "schedule";
+    case CommandKind::shed:
+      return "shed";
+    case CommandKind::restore:
+      return "restore";
+  }
+  return "?";
+}
+
+const char* to_string(AgcMode m) {
+  switch (m) {
+    case AgcMode::tie_line_bias:
+      return "tie_line_bias";
+    case AgcMode::constant_frequency:
+      return "constant_frequency";
+    case AgcMode::constant_interchange:
+      return "constant_interchange";
   }
   return "?";
 }

@@ -30,11 +30,13 @@ void Engine::Impl::update_topology() {
   const std::vector<int> isl = islands_of(na, from, to, in);
   for (std::size_t a = 0; a < na; ++a) {
     areas[a].island = isl[a];
-    areas[a].sched_export = 0.0;
+    if (!areas[a].sched_manual) areas[a].sched_export = 0.0;
   }
+  // The initial exchange over the ties in service, for areas whose schedule no command has set.
   for (int t : active_ties) {
-    areas[ties[t].from].sched_export += ties[t].scheduled;
-    areas[ties[t].to].sched_export -= ties[t].scheduled;
+    if (detail::AreaRt& sender = areas[ties[t].from]; !sender.sched_manual) sender.sched_export += ties[t].scheduled;
+    if (detail::AreaRt& receiver = areas[ties[t].to]; !receiver.sched_manual)
+      receiver.sched_export -= ties[t].scheduled;
   }
 }
 
@@ -42,7 +44,8 @@ void Engine::Impl::refresh_participants(std::size_t a) {
   areas[a].participants.clear();
   for (std::size_t s = 0; s < nu; ++s) {
     const std::size_t u = unit_of_slot[s];
-    if (units[u].area == a && units[u].online && def.units[u].agc_share > 0.0) areas[a].participants.push_back(s);
+    if (units[u].area == a && units[u].online && !units[u].stopping && def.units[u].agc_share > 0.0)
+      areas[a].participants.push_back(s);
   }
 }
 

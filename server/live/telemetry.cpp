@@ -28,7 +28,8 @@ std::string frame_json(const Engine& e, double wall_s, bool paused, double speed
                                {"demand_mw", s.demand_mw}, {"generation_mw", s.generation_mw},
                                {"export_mw", s.export_mw}, {"scheduled_export_mw", s.scheduled_export_mw},
                                {"ace_mw", s.ace_mw},       {"agc_mw", s.agc_mw},
-                               {"agc_enabled", s.agc_enabled}, {"shed_mw", s.shed_mw},
+                               {"agc_enabled", s.agc_enabled}, {"agc_mode", to_string(s.agc_mode)},
+                               {"shed_mw", s.shed_mw},
                                {"collapsed", s.collapsed}, {"island", s.island}};
   }
   for (std::size_t u = 0; u < def_.units.size(); ++u) {

@@ -54,10 +54,11 @@ struct TieTrip {
 struct TieClose {
   TieId tie;  ///< which
 };
-/// Secondary control of an area switched on or off.
+/// Secondary control of an area switched on or off, and optionally its mode changed.
 struct AgcSwitch {
-  AreaId area;           ///< where
-  bool enabled = false;  ///< on or off
+  AreaId area;                  ///< where
+  bool enabled = false;         ///< on or off
+  std::optional<AgcMode> mode;  ///< new mode; absent = unchanged
 };
 /// Random load fluctuation of an area (Ornstein-Uhlenbeck), or off.
 struct Fluctuation {
@@ -66,18 +67,43 @@ struct Fluctuation {
   double tau_s = 1.0;     ///< correlation time (s)
 };
 
+/// A controlled stop: the setpoint ramps down to zero, then the unit goes offline (not a trip).
+struct UnitStop {
+  UnitId unit;                          ///< which
+  std::optional<double> ramp_mw_per_s;  ///< unloading rate (MW/s); absent = the unit's default (unit_stop_rate)
+};
+/// A new scheduled net export of an area, at once or along a ramp.
+struct Schedule {
+  AreaId area;          ///< where
+  double mw = 0.0;      ///< new scheduled net export (MW, positive = export)
+  double over_s = 0.0;  ///< ramp duration (s); 0 = at once
+};
+/// Load disconnected by hand.
+struct Shed {
+  AreaId area;      ///< where
+  double mw = 0.0;  ///< load to disconnect (MW, > 0)
+};
+/// Shed load (by hand or by the under-frequency stages) reconnected.
+struct Restore {
+  AreaId area;               ///< where
+  std::optional<double> mw;  ///< load to reconnect (MW); absent = all shed load of the area
+};
+
 /// One command with its targets resolved: what the engine applies. The alternatives are in
 /// CommandKind's order.
 using Action = std::variant<LoadStep, LoadRamp, UnitTrip, UnitStart, Setpoint, GovernorChange, TieTrip, TieClose,
-                            AgcSwitch, Fluctuation>;
+                            AgcSwitch, Fluctuation, UnitStop, Schedule, Shed, Restore>;
 
 /// The kind of an action (CommandKind's enumerator of the same position).
 inline CommandKind kind_of(const Action& action) { return static_cast<CommandKind>(action.index()); }
 
-static_assert(std::variant_size_v<Action> == static_cast<std::size_t>(CommandKind::fluctuation) + 1,
+static_assert(std::variant_size_v<Action> == static_cast<std::size_t>(CommandKind::restore) + 1,
               "Action lists one struct per CommandKind, in its order");
 static_assert(
     std::is_same_v<std::variant_alternative_t<static_cast<std::size_t>(CommandKind::governor), Action>, GovernorChange>,
+    "Action's alternatives follow CommandKind's order");
+static_assert(
+    std::is_same_v<std::variant_alternative_t<static_cast<std::size_t>(CommandKind::restore), Action>, Restore>,
     "Action's alternatives follow CommandKind's order");
 
 /// A scenario event resolved at load: an action at a simulation time.

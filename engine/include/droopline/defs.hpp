@@ -12,6 +12,12 @@ namespace droopline {
 enum class TurbineType { steam, reheat, hydro, gas, battery };
 /// Governor control law.
 enum class GovernorMode { droop, isochronous };
+/// What the area control error of secondary control compares (model notes, section 12).
+enum class AgcMode {
+  tie_line_bias,        ///< ACE = (net export - schedule) + B*df: each area answers for its own imbalance
+  constant_frequency,   ///< ACE = B*df: ties ignored (an island, or the area holding frequency)
+  constant_interchange  ///< ACE = net export - schedule: frequency ignored
+};
 /// How the governor treats speed errors inside its deadband.
 enum class DeadbandKind {
   offset,  ///< error reduced by the half-width: sign(e)*max(|e|-db, 0)
@@ -25,6 +31,7 @@ struct AgcDef {
   double kp = 0.0;                       ///< proportional gain on ACE (MW/MW), typical 0
   double ki_per_s = 0.05;                ///< integral gain on ACE (1/s), typical 0.01-0.2
   double period_s = 2.0;                 ///< sampling cycle (s); 0 = every step
+  AgcMode mode = AgcMode::tie_line_bias;  ///< what the ACE compares
 };
 
 /// One under-frequency load-shedding stage.
@@ -95,6 +102,7 @@ struct UnitDef {
   std::optional<double> ramp_mw_per_s;   ///< valve / power rate limit (MW/s); absent = none
   double agc_share = 0.0;                ///< participation share in secondary control (>= 0)
   bool online = true;
+  double start_up_s = 0.0;  ///< time from a start command to synchronisation (s); 0 = at once
   GovernorDef governor;
   TurbineDef turbine;
 };
@@ -102,23 +110,26 @@ struct UnitDef {
 /// The vocabulary of timed events and live commands.
 enum class CommandKind {
   load_step, load_ramp, unit_trip, unit_start, setpoint, governor, tie_trip, tie_close, agc,
-  fluctuation
+  fluctuation, unit_stop, schedule, shed, restore
 };
 
 /// One command: scenario events without their time, and live commands to the service.
 struct Command {
   CommandKind kind = CommandKind::load_step;
-  std::string area;                      ///< load_step, load_ramp, agc, fluctuation
-  std::string unit;                      ///< unit_trip, unit_start, setpoint, governor
+  std::string area;                      ///< load_step, load_ramp, agc, fluctuation, schedule, shed, restore
+  std::string unit;                      ///< unit_trip, unit_start, setpoint, governor, unit_stop
   std::string tie;                       ///< tie_trip, tie_close
-  double mw = 0.0;                       ///< load_step, load_ramp, unit_start, setpoint (MW)
-  double over_s = 0.0;                   ///< load_ramp duration (s)
-  std::optional<double> ramp_mw_per_s;   ///< setpoint: move at this rate (MW/s); absent = at once
+  double mw = 0.0;                       ///< load_step, load_ramp, unit_start, setpoint, schedule, shed, restore (MW)
+  bool all_shed = false;                 ///< restore without `mw`: reconnect all shed load of the area
+  double over_s = 0.0;                   ///< load_ramp duration (s); schedule: ramp time, 0 = at once
+  std::optional<double> ramp_mw_per_s;   ///< setpoint: move at this rate (MW/s), absent = at once;
+                                         ///< unit_stop: unload at this rate, absent = the unit's default
   std::optional<double> droop;           ///< governor: new R (pu)
   std::optional<double> deadband_hz;     ///< governor: new half-width (Hz)
   std::optional<DeadbandKind> deadband;  ///< governor: new deadband kind
   std::optional<GovernorMode> mode;      ///< governor: new mode
   bool enabled = false;                  ///< agc
+  std::optional<AgcMode> agc_mode;       ///< agc: new mode (JSON `mode`); absent = unchanged
   double sigma_mw = 0.0;                 ///< fluctuation: stationary standard deviation (MW); 0 = off
   double tau_s = 1.0;                    ///< fluctuation: correlation time (s)
 };
@@ -148,5 +159,6 @@ const char* to_string(TurbineType t);
 const char* to_string(GovernorMode m);
 const char* to_string(DeadbandKind k);
 const char* to_string(CommandKind k);
+const char* to_string(AgcMode m);
 
 }  // namespace droopline

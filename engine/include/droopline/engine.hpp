@@ -16,9 +16,21 @@
 namespace droopline {
 
 /// Operating state of a unit.
-enum class UnitStatus { online, at_max, at_min, tripped };
+enum class UnitStatus {
+  online,
+  at_max,
+  at_min,
+  tripped,   ///< out of service by a trip (or offline from the start)
+  starting,  ///< started, not yet synchronised: no output, no inertia (start_up_s)
+  stopping,  ///< online, unloading towards zero before it goes offline (unit_stop)
+  offline    ///< out of service after a controlled stop
+};
 /// File and message name of a UnitStatus.
 const char* to_string(UnitStatus s);
+/// True while the unit is synchronised (online, at a limit, or stopping): it gives power and inertia.
+inline bool is_synchronised(UnitStatus s) {
+  return s == UnitStatus::online || s == UnitStatus::at_max || s == UnitStatus::at_min || s == UnitStatus::stopping;
+}
 
 /// Snapshot of one area after the last step.
 struct AreaState {
@@ -30,9 +42,10 @@ struct AreaState {
   double scheduled_export_mw = 0.0; ///< exchange schedule the ACE compares against (MW)
   double ace_mw = 0.0;         ///< area control error (MW), computed whether or not AGC runs
   double agc_mw = 0.0;         ///< total secondary-control correction now applied (MW)
-  double shed_mw = 0.0;        ///< load disconnected by under-frequency shedding (MW)
+  double shed_mw = 0.0;        ///< load disconnected now, by the under-frequency stages and by hand (MW)
   double inertia_mws_per_hz = 0.0; ///< M = 2*sum(H*S)/f0 of online synchronous units
   bool agc_enabled = false;
+  AgcMode agc_mode = AgcMode::tie_line_bias;  ///< what the ACE compares
   bool collapsed = false;      ///< lost all synchronous inertia: no longer integrated
   int island = 0;              ///< index of the island the area belongs to
 };
@@ -63,13 +76,16 @@ struct TieState {
 
 /// What a notice reports.
 enum class NoticeKind {
-  command,          ///< a command took effect (`action`, `value`)
-  command_refused,  ///< a scenario event was refused by the state checks (`action`, `issues`)
-  out_of_step,      ///< a tie tripped out of step (`tie`, `value`: angle in deg)
-  shedding,         ///< an under-frequency stage shed load (`area`, `stage`, `value`: MW shed)
-  collapse,         ///< an area lost all synchronous inertia (`area`)
-  islanded          ///< a disturbance cause only: a tie trip split the system (`tie`, `area`: the island's
-                    ///< area; `action` set when a command tripped it, absent when out of step)
+  command,            ///< a command took effect (`action`, `value`)
+  command_refused,    ///< a scenario event was refused by the state checks (`action`, `issues`)
+  out_of_step,        ///< a tie tripped out of step (`tie`, `value`: angle in deg)
+  shedding,           ///< an under-frequency stage shed load (`area`, `stage`, `value`: MW shed)
+  collapse,           ///< an area lost all synchronous inertia (`area`)
+  islanded,           ///< a disturbance cause only: a tie trip split the system (`tie`, `area`: the island's
+                      ///< area; `action` set when a command tripped it, absent when out of step)
+  unit_synchronised,  ///< a starting unit's start-up time passed: it is online (`action`: its UnitStart)
+  unit_stopped        ///< a controlled stop ended: the unit is offline (`action`: its UnitStop, `value`: MW
+                      ///< it gave when its breaker opened)
 };
 /// File and message name of a NoticeKind.
 const char* to_string(NoticeKind k);
@@ -82,9 +98,10 @@ struct Notice {
   std::optional<Action> action;  ///< command, command_refused: the action (governor: every setting as it now stands)
   std::uint32_t area = 0;        ///< shedding, collapse: the area; islanded: the island's area
   std::uint32_t tie = 0;         ///< out_of_step, islanded: the tie
-  std::uint32_t stage = 0;       ///< shedding: the stage (0-based)
-  double value = 0.0;  ///< command unit_trip: MW lost, tie_trip: MW carried, tie_close: angle (deg);
-                       ///< out_of_step: angle (deg); shedding: MW shed
+  std::uint32_t stage = 0;       ///< shedding: the stage (0-based); command restore: stages re-armed
+  double value = 0.0;            ///< command unit_trip: MW lost, tie_trip: MW carried, tie_close: angle (deg),
+                                 ///< unit_stop: unloading rate (MW/s), schedule: the schedule before (MW),
+                                 ///< restore: MW reconnected; out_of_step: angle (deg); shedding: MW shed
   std::vector<Issue> issues;  ///< command_refused: why
 };
 

@@ -47,6 +47,9 @@ double natural_response_mw_per_hz(const SystemDef& def, std::size_t area_index);
 /// response beta, both with the new droop) faster than the fixed step can follow (M/beta under
 /// five steps); empty when it is fine. Shared by the loader's and the live check.
 std::string droop_step_problem(double droop, const std::string& area, double m, double beta, double step_s);
+/// Unloading rate of a controlled stop without its own (MW/s): the unit's ramp_mw_per_s, else 1 % of
+/// its rating per second.
+double unit_stop_rate_mw_per_s(const UnitDef& unit);
 /// True for units that add rotating inertia to their area.
 bool is_synchronous(const UnitDef& unit);
 

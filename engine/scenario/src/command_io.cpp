@@ -9,7 +9,7 @@ namespace detail {
 
 const KindFields& fields_of(CommandKind k) {
   static const std::vector<KindFields> table = [] {
-    std::vector<KindFields> t(10);
+    std::vector<KindFields> t(static_cast<std::size_t>(CommandKind::restore) + 1);
     t[static_cast<int>(CommandKind::load_step)] = {{"area", "mw"}, {"area", "mw"}};
     t[static_cast<int>(CommandKind::load_ramp)] = {{"area", "mw", "over_s"}, {"area", "mw", "over_s"}};
     t[static_cast<int>(CommandKind::unit_trip)] = {{"unit"}, {"unit"}};
@@ -18,8 +18,12 @@ const KindFields& fields_of(CommandKind k) {
     t[static_cast<int>(CommandKind::governor)] = {{"unit", "droop", "deadband_hz", "deadband", "mode"}, {"unit"}};
     t[static_cast<int>(CommandKind::tie_trip)] = {{"tie"}, {"tie"}};
     t[static_cast<int>(CommandKind::tie_close)] = {{"tie"}, {"tie"}};
-    t[static_cast<int>(CommandKind::agc)] = {{"area", "enabled"}, {"area", "enabled"}};
+    t[static_cast<int>(CommandKind::agc)] = {{"area", "enabled", "mode"}, {"area", "enabled"}};
     t[static_cast<int>(CommandKind::fluctuation)] = {{"area", "sigma_mw", "tau_s"}, {"area", "sigma_mw"}};
+    t[static_cast<int>(CommandKind::unit_stop)] = {{"unit", "ramp_mw_per_s"}, {"unit"}};
+    t[static_cast<int>(CommandKind::schedule)] = {{"area", "mw", "over_s"}, {"area", "mw"}};
+    t[static_cast<int>(CommandKind::shed)] = {{"area", "mw"}, {"area", "mw"}};
+    t[static_cast<int>(CommandKind::restore)] = {{"area", "mw"}, {"area"}};
     return t;
   }();
   return table[static_cast<int>(k)];
@@ -43,6 +47,7 @@ std::optional<Command> read_command(Reader& r, const ijson& j, const std::string
   if (kf.allowed.count("unit")) r.string(j, "unit", path, c.unit, req("unit"));
   if (kf.allowed.count("tie")) r.string(j, "tie", path, c.tie, req("tie"));
   if (kf.allowed.count("mw")) r.number(j, "mw", path, c.mw, req("mw"));
+  c.all_shed = c.kind == CommandKind::restore && !j.contains("mw");
   if (kf.allowed.count("over_s")) r.number(j, "over_s", path, c.over_s, req("over_s"));
   if (kf.allowed.count("ramp_mw_per_s")) r.number(j, "ramp_mw_per_s", path, c.ramp_mw_per_s);
   if (kf.allowed.count("droop")) r.number(j, "droop", path, c.droop);
@@ -51,7 +56,10 @@ std::optional<Command> read_command(Reader& r, const ijson& j, const std::string
     DeadbandKind k{};
     if (r.choice(j, "deadband", path, kDeadbandNames, k)) c.deadband = k;
   }
-  if (kf.allowed.count("mode")) {
+  if (kf.allowed.count("mode") && c.kind == CommandKind::agc) {
+    AgcMode m{};
+    if (r.choice(j, "mode", path, kAgcModeNames, m)) c.agc_mode = m;
+  } else if (kf.allowed.count("mode")) {
     GovernorMode m{};
     if (r.choice(j, "mode", path, kModeNames, m)) c.mode = m;
   }
@@ -90,7 +98,7 @@ json command_to_json(const Command& c) {
   if (has("area")) j["area"] = c.area;
   if (has("unit")) j["unit"] = c.unit;
   if (has("tie")) j["tie"] = c.tie;
-  if (has("mw")) j["mw"] = c.mw;
+  if (has("mw") && !c.all_shed) j["mw"] = c.mw;
   if (has("over_s")) j["over_s"] = c.over_s;
   if (c.ramp_mw_per_s) j["ramp_mw_per_s"] = *c.ramp_mw_per_s;
   if (c.droop) j["droop"] = *c.droop;
@@ -98,6 +106,7 @@ json command_to_json(const Command& c) {
   if (c.deadband) j["deadband"] = to_string(*c.deadband);
   if (c.mode) j["mode"] = to_string(*c.mode);
   if (has("enabled")) j["enabled"] = c.enabled;
+  if (c.agc_mode) j["mode"] = to_string(*c.agc_mode);
   if (has("sigma_mw")) {
     j["sigma_mw"] = c.sigma_mw;
     j["tau_s"] = c.tau_s;

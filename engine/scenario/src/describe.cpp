@@ -9,7 +9,7 @@
 namespace droopline {
 namespace {
 
-std::string describe_command(const SystemDef& def, const Action& action, double value) {
+std::string describe_command(const SystemDef& def, const Action& action, double value, std::uint32_t stage) {
   auto area = [&](AreaId a) -> const std::string& { return def.areas[a.index].id; };
   auto unit = [&](UnitId u) -> const std::string& { return def.units[u.index].id; };
   auto tie = [&](TieId t) -> const std::string& { return def.ties[t.index].id; };
@@ -26,6 +26,9 @@ std::string describe_command(const SystemDef& def, const Action& action, double 
       return "unit " + unit(std::get<UnitTrip>(action).unit) + " tripped from " + fmt_fixed(value, 1) + " MW";
     case CommandKind::unit_start: {
       const auto& c = std::get<UnitStart>(action);
+      if (const double s = def.units[c.unit.index].start_up_s; s > 0.0)
+        return "unit " + unit(c.unit) + " starting: synchronises in " + fmt_num(s) + " s, then loads to " +
+               fmt_num(c.mw) + " MW";
       return "unit " + unit(c.unit) + " started, loading to " + fmt_num(c.mw) + " MW";
     }
     case CommandKind::setpoint: {
@@ -45,13 +48,31 @@ std::string describe_command(const SystemDef& def, const Action& action, double 
       return "tie " + tie(std::get<TieClose>(action).tie) + " closed at " + fmt_fixed(value, 1) + " deg";
     case CommandKind::agc: {
       const auto& c = std::get<AgcSwitch>(action);
-      return std::string("secondary control ") + (c.enabled ? "on" : "off") + " in area " + area(c.area);
+      return std::string("secondary control ") + (c.enabled ? "on" : "off") + " in area " + area(c.area) +
+             (c.mode ? std::string(", mode ") + to_string(*c.mode) : "");
     }
     case CommandKind::fluctuation: {
       const auto& c = std::get<Fluctuation>(action);
       return c.sigma_mw > 0.0 ? "load fluctuation " + fmt_num(c.sigma_mw) + " MW (tau " + fmt_num(c.tau_s) +
                                     " s) in area " + area(c.area)
                               : "load fluctuation off in area " + area(c.area);
+    }
+    case CommandKind::unit_stop:
+      return "unit " + unit(std::get<UnitStop>(action).unit) + " stopping: unloading at " + fmt_num(value) +
+             " MW/s, then offline";
+    case CommandKind::schedule: {
+      const auto& c = std::get<Schedule>(action);
+      return "scheduled export of area " + area(c.area) + " from " + fmt_fixed(value, 1) + " to " + fmt_num(c.mw) +
+             " MW" + (c.over_s > 0.0 ? " over " + fmt_num(c.over_s) + " s" : "");
+    }
+    case CommandKind::shed: {
+      const auto& c = std::get<Shed>(action);
+      return "load shed by hand: " + fmt_num(c.mw) + " MW in area " + area(c.area);
+    }
+    case CommandKind::restore: {
+      const auto& c = std::get<Restore>(action);
+      return "shed load restored: " + fmt_fixed(value, 1) + " MW in area " + area(c.area) +
+             (stage > 0 ? " (" + std::to_string(stage) + (stage == 1 ? " stage" : " stages") + " re-armed)" : "");
     }
   }
   return {};
@@ -62,7 +83,7 @@ std::string describe_command(const SystemDef& def, const Action& action, double 
 std::string describe(const SystemDef& def, const Notice& n) {
   switch (n.kind) {
     case NoticeKind::command:
-      return n.action ? describe_command(def, *n.action, n.value) : std::string();
+      return n.action ? describe_command(def, *n.action, n.value, n.stage) : std::string();
     case NoticeKind::command_refused: {
       std::string out;
       for (const Issue& i : n.issues) out += (out.empty() ? "" : "; ") + i.text();
@@ -75,6 +96,14 @@ std::string describe(const SystemDef& def, const Notice& n) {
              fmt_fixed(n.value, 1) + " MW below " + fmt_num(def.areas[n.area].shedding[n.stage].below_hz) + " Hz";
     case NoticeKind::collapse:
       return "area " + def.areas[n.area].id + " lost all synchronous inertia and collapsed; its ties are opened";
+    case NoticeKind::unit_synchronised:
+      return n.action ? "unit " + def.units[std::get<UnitStart>(*n.action).unit.index].id +
+                            " synchronised, loading to " + fmt_num(std::get<UnitStart>(*n.action).mw) + " MW"
+                      : std::string();
+    case NoticeKind::unit_stopped:
+      return n.action ? "unit " + def.units[std::get<UnitStop>(*n.action).unit.index].id + " offline after a stop (" +
+                            fmt_fixed(n.value, 1) + " MW when its breaker opened)"
+                      : std::string();
     case NoticeKind::islanded:
       return (n.action ? "trip of tie " : "out-of-step trip of tie ") + def.ties[n.tie].id + " (island of " +
              def.areas[n.area].id + ")";

@@ -161,7 +161,15 @@ inline const std::vector<std::pair<const char*, CommandKind>> kCommandNames = {
     {"tie_trip", CommandKind::tie_trip},
     {"tie_close", CommandKind::tie_close},
     {"agc", CommandKind::agc},
-    {"fluctuation", CommandKind::fluctuation}};
+    {"fluctuation", CommandKind::fluctuation},
+    {"unit_stop", CommandKind::unit_stop},
+    {"schedule", CommandKind::schedule},
+    {"shed", CommandKind::shed},
+    {"restore", CommandKind::restore}};
+inline const std::vector<std::pair<const char*, AgcMode>> kAgcModeNames = {
+    {"tie_line_bias", AgcMode::tie_line_bias},
+    {"constant_frequency", AgcMode::constant_frequency},
+    {"constant_interchange", AgcMode::constant_interchange}};
 
 // Fields each command kind takes (besides "kind" and, for events, "at_s"), and which are required.
 struct KindFields {

@@ -91,7 +91,8 @@ SystemDef read_system(Reader& r, const ijson& j) {
       r.number(a, "load_damping", p, ad.load_damping);
       if (const ijson* agc = r.field(a, "agc", p, false)) {
         const std::string ap = join(p, "agc");
-        if (r.object(*agc, ap, {"enabled", "bias_mw_per_hz", "kp", "ki_per_s", "period_s"})) {
+        if (r.object(*agc, ap, {"enabled", "bias_mw_per_hz", "kp", "ki_per_s", "period_s", "mode"})) {
+          r.choice(*agc, "mode", ap, kAgcModeNames, ad.agc.mode);
           r.boolean(*agc, "enabled", ap, ad.agc.enabled);
           r.number(*agc, "bias_mw_per_hz", ap, ad.agc.bias_mw_per_hz);
           r.number(*agc, "kp", ap, ad.agc.kp);
@@ -130,7 +131,7 @@ SystemDef read_system(Reader& r, const ijson& j) {
     UnitDef ud;
     if (r.object(u, p,
                  {"id", "area", "rating_mw", "inertia_s", "setpoint_mw", "min_mw", "max_mw", "ramp_mw_per_s",
-                  "agc_share", "online", "governor", "turbine"})) {
+                  "agc_share", "online", "start_up_s", "governor", "turbine"})) {
       r.string(u, "id", p, ud.id, true);
       r.string(u, "area", p, ud.area, true);
       r.number(u, "rating_mw", p, ud.rating_mw, true);
@@ -140,6 +141,7 @@ SystemDef read_system(Reader& r, const ijson& j) {
       r.number(u, "ramp_mw_per_s", p, ud.ramp_mw_per_s);
       r.number(u, "agc_share", p, ud.agc_share);
       r.boolean(u, "online", p, ud.online);
+      r.number(u, "start_up_s", p, ud.start_up_s);
       if (const ijson* g = r.field(u, "governor", p, false)) read_governor(r, *g, join(p, "governor"), ud.governor);
       if (const ijson* t = r.field(u, "turbine", p, true)) read_turbine(r, *t, join(p, "turbine"), ud.turbine);
       const bool battery = ud.turbine.type == TurbineType::battery;

@@ -31,7 +31,11 @@ json scenario_to_json(const SystemDef& d) {
   for (std::size_t i = 0; i < d.areas.size(); ++i) {
     const AreaDef& a = d.areas[i];
     json ja{{"id", a.id}, {"demand_mw", a.demand_mw}, {"load_damping", a.load_damping}};
-    json agc{{"enabled", a.agc.enabled}, {"kp", a.agc.kp}, {"ki_per_s", a.agc.ki_per_s}, {"period_s", a.agc.period_s}};
+    json agc{{"enabled", a.agc.enabled},
+             {"kp", a.agc.kp},
+             {"ki_per_s", a.agc.ki_per_s},
+             {"period_s", a.agc.period_s},
+             {"mode", to_string(a.agc.mode)}};
     agc["bias_mw_per_hz"] = a.agc.bias_mw_per_hz ? *a.agc.bias_mw_per_hz : natural_response_mw_per_hz(d, i);
     ja["agc"] = agc;
     ja["shedding"] = json::array();
@@ -60,7 +64,8 @@ json scenario_to_json(const SystemDef& d) {
             {"min_mw", unit_min_mw(u)},
             {"max_mw", unit_max_mw(u)},
             {"agc_share", u.agc_share},
-            {"online", u.online}};
+            {"online", u.online},
+            {"start_up_s", u.start_up_s}};
     if (u.ramp_mw_per_s) ju["ramp_mw_per_s"] = *u.ramp_mw_per_s;
     const GovernorDef& g = u.governor;
     ju["governor"] = {{"mode", to_string(g.mode)},         {"droop", g.droop}, {"deadband_hz", g.deadband_hz},

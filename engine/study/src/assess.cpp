@@ -122,7 +122,7 @@ namespace {
 struct Trace {
   std::vector<double> t, f, p;  // p: output less the dispatch setpoint (MW)
   std::vector<double> raw;      // output (MW)
-  std::vector<char> online;     // not tripped
+  std::vector<char> online;     // synchronised
   std::vector<Disturbance> disturbances;
   double lowest = INFINITY, highest = -INFINITY;
 };
@@ -146,7 +146,7 @@ std::optional<Trace> simulate(const SystemDef& def) {
       const UnitState s = at.unit(UnitId{u});
       tr.p.push_back(s.p_mw - s.setpoint_mw);
       tr.raw.push_back(s.p_mw);
-      tr.online.push_back(s.status != UnitStatus::tripped);
+      tr.online.push_back(is_synchronised(s.status));
     }
   };
   BatchOptions every_step;
