@@ -78,7 +78,7 @@ test('a seat is offered only its own area and units; a forged command for anothe
   // Forged: the w1 row made to send for e1 (as a hand-made request would).
   await page.$eval('.unit-row[data-unit="w1"]', (row) => { row.dataset.unit = 'e1'; });
   const answer = page.waitForResponse((r) => r.url().endsWith('/api/v1/commands'), { timeout: 5000 });
-  await page.locator('#seat-areas .unit-row').first().getByRole('button', { name: 'Set' }).click();
+  await page.locator('#seat-areas .unit-row').first().getByRole('button', { name: 'Set', exact: true }).click();
   assert.equal((await answer).status(), 403);
   const out = page.locator('[data-error-for="unit:w1"]');
   await out.filter({ hasText: 'does not answer for' }).waitFor({ timeout: 5000 });
@@ -94,7 +94,7 @@ test("a seat's action is acknowledged on the seat and shows in the instructor's 
   const west = pages.west.page;
   await west.fill('#seat-set-w2', '160');
   await west.fill('#seat-ramp-w2', '5');
-  await west.locator('.unit-row[data-unit="w2"]').getByRole('button', { name: 'Set' }).click();
+  await west.locator('.unit-row[data-unit="w2"]').getByRole('button', { name: 'Set', exact: true }).click();
   await west.locator('#applied .note', { hasText: 'setpoint of w2 to 160.0 MW at 5.0 MW/s' }).waitFor({ timeout: 5000 });
   assert.equal(await west.locator('[data-error-for="unit:w2"]').textContent(), '');
   const feed = pages.instructor.page.locator('#action-feed li', { hasText: 'w2' });
@@ -103,6 +103,20 @@ test("a seat's action is acknowledged on the seat and shows in the instructor's 
   assert.equal(await feed.first().getAttribute('data-by'), 'west-desk');
   // Others see it with the name too: the east desk's event log.
   await pages.east.page.locator('#event-log li', { hasText: 'w2' }).locator('.by', { hasText: 'West desk' }).waitFor({ timeout: 8000 });
+  assert.deepEqual(pages.west.errors, []);
+});
+
+test("a seat's area controls: load shed by hand shows in its figures and is restored", async () => {
+  const west = pages.west.page;
+  const shed = west.locator('.desk-area[data-area="west"] .figures .pair', { hasText: 'load shed' }).locator('dd');
+  await west.fill('#seat-shed-west', '15');
+  await west.locator('.desk-area[data-area="west"]').getByRole('button', { name: 'Shed', exact: true }).click();
+  await west.locator('#applied .note', { hasText: 'shed 15.0 MW of load in area west' }).waitFor({ timeout: 5000 });
+  await west.waitForFunction((el) => el.textContent === '15.0 MW', await shed.elementHandle(), { timeout: 5000 });
+  await west.locator('.desk-area[data-area="west"]').getByRole('button', { name: 'Restore', exact: true }).click();
+  await west.locator('#applied .note', { hasText: 'restore all shed load in area west' }).waitFor({ timeout: 5000 });
+  await west.waitForFunction((el) => el.textContent === '0.0 MW', await shed.elementHandle(), { timeout: 5000 });
+  assert.equal(await west.locator('[data-error-for="area:west"]').textContent(), '');
   assert.deepEqual(pages.west.errors, []);
 });
 
@@ -115,7 +129,12 @@ test('an alarm acknowledged by a seat shows as acknowledged for the instructor',
   // It is the east's alone: the west desk does not list it.
   assert.equal(await pages.west.page.locator(`#seat-alarms li[data-alarm="${id}"]`).count(), 0);
   await alarm.locator('button.ack').click();
-  await east.locator(`#seat-alarms li[data-alarm="${id}"] .state`, { hasText: 'acknowledged by East desk' }).waitFor({ timeout: 5000 });
+  // On the seat it is acknowledged (or gone: a trip's alarm clears once acknowledged).
+  await east.waitForFunction((x) => {
+    const li = document.querySelector(`#seat-alarms li[data-alarm="${x}"]`);
+    return !li || (!li.querySelector('button.ack') && li.textContent.includes('acknowledged by East desk'));
+  }, id, { timeout: 5000 });
+  assert.equal(await east.locator('#seat-alarms .error').filter({ hasText: /./ }).count(), 0, 'no refusal shown');
   const there = pages.instructor.page.locator(`#desk-alarms li[data-alarm="${id}"] .state`);
   await there.filter({ hasText: 'acknowledged by East desk' }).waitFor({ timeout: 8000 });
   assert.equal(await pages.instructor.page.locator(`#desk-alarms li[data-alarm="${id}"] button.ack`).count(), 0);
