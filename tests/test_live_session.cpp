@@ -174,10 +174,12 @@ TEST_CASE("a seat may command its own areas' units, secondary control and load, 
     c.unit = std::move(unit);
     return c;
   };
-  // Its own: a setpoint and a start of a vellmark unit, its secondary control.
+  // Its own: a setpoint, a start and a stop of a vellmark unit, its secondary control, schedule and load.
   CHECK(outside_scope(*loaded.system,
                       {cmd(CommandKind::setpoint, "", "V1"), cmd(CommandKind::unit_start, "", "V2"),
-                       cmd(CommandKind::agc, "vellmark", "")},
+                       cmd(CommandKind::unit_stop, "", "V3"), cmd(CommandKind::agc, "vellmark", ""),
+                       cmd(CommandKind::schedule, "vellmark", ""), cmd(CommandKind::shed, "vellmark", ""),
+                       cmd(CommandKind::restore, "vellmark", "")},
                       west)
             .empty());
   // Another area's unit and secondary control: named by path, with the area in words.
@@ -189,9 +191,11 @@ TEST_CASE("a seat may command its own areas' units, secondary control and load, 
         std::string::npos);
   CHECK(other[1].path == "commands[1].area");
   // The instructor's kinds, even in its own area.
-  const auto theirs = outside_scope(
-      *loaded.system, {cmd(CommandKind::unit_trip, "", "V1"), cmd(CommandKind::load_step, "vellmark", "")}, west);
-  REQUIRE(theirs.size() == 2);
+  const auto theirs = outside_scope(*loaded.system,
+                                    {cmd(CommandKind::unit_trip, "", "V1"), cmd(CommandKind::load_step, "vellmark", ""),
+                                     cmd(CommandKind::governor, "", "V1"), cmd(CommandKind::fluctuation, "vellmark", "")},
+                                    west);
+  REQUIRE(theirs.size() == 4);
   CHECK(theirs[0].message.find("may not send unit_trip") != std::string::npos);
   // An unknown unit is left to resolve_all, which names it.
   CHECK(outside_scope(*loaded.system, {cmd(CommandKind::setpoint, "", "nowhere")}, west).empty());
