@@ -286,11 +286,11 @@ TEST_CASE("script: fire now, skip, shift, add, and rewound") {
   add.command.area = "west";
   add.command.mw = 10.0;
   REQUIRE(s.add(add, "instructor", e->time_s(), why));
-  CHECK(s.entries().back().def.id == "s4");
+  CHECK(s.entries().back().def.id == "s3");  // the first unused sN
   CHECK(s.entries().back().added_by == "instructor");
-  add.id = "s4";
+  add.id = "s3";
   CHECK_FALSE(s.add(add, "instructor", e->time_s(), why));
-  CHECK(why == "id: duplicate id \"s4\"");
+  CHECK(why == "id: duplicate id \"s3\"");
 
   // Parsed from JSON as the API receives it.
   std::vector<Issue> issues;

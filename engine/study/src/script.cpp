@@ -152,7 +152,7 @@ bool ScriptRunner::add(ScriptEventDef event, const std::string& by, double now_s
     for (const Issue& i : issues) why += (why.empty() ? "" : "; ") + i.text();
     return false;
   }
-  for (std::size_t n = entries_.size() + 1; event.id.empty(); ++n)
+  for (std::size_t n = 1; event.id.empty(); ++n)
     if (!taken("s" + std::to_string(n))) event.id = "s" + std::to_string(n);
   ScriptEntry e;
   e.def = std::move(event);
