@@ -10,6 +10,9 @@
 //   {"type":"commands","step":N,"commands":[...],"by":"instructor"}
 //                                                     commands applied before step N, and who sent
 //                                                     them (absent in older journals: the instructor)
+//   {"type":"script","step":N,"edit":"add"|"fire"|"skip"|"shift","id":...,"by":...}
+//                                                     an exercise's script edited (for the record:
+//                                                     its firings are command records, by "script")
 //   {"type":"stop","step":N}                          graceful shutdown after N steps
 #include <atomic>
 #include <condition_variable>
