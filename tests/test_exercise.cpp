@@ -181,6 +181,15 @@ TEST_CASE("exercise file: bad inputs, each as path: message") {
        "alarms.limit_band_hz: must be at least standard_band_hz (0.05), got 0.01"},
       {"alarm pct", [](json& j) { j["alarms"]["tie_loading_pct"] = 0; },
        "alarms.tie_loading_pct: must lie within (0, 100], got 0"},
+      {"too many areas",
+       [](json& j) {
+         j["seats"][0]["areas"] = json::array();
+         for (int i = 0; i < 1001; ++i) j["seats"][0]["areas"].push_back("west");
+       },
+       "seats[0].areas: at most 1000 areas, got 1001"},
+      {"seat area type", [](json& j) { j["seats"][0]["areas"] = {1}; },
+       "seats[0].areas[0]: must be a string, got a number"},
+      {"missing command", [](json& j) { j["script"][0].erase("command"); }, "script[0].command: required"},
       {"too many seats",
        [](json& j) {
          j["seats"] = json::array();

@@ -61,7 +61,8 @@ class ExerciseCase(unittest.TestCase):
         out = {}
         for path in ["/api/v1/state", "/api/v1/scenario", "/api/v1/history", "/api/v1/events", "/api/v1/exercise",
                      "/api/v1/alarms", "/api/v1/role", "/healthz", "/metrics", "/api/v1/openapi.json",
-                     "/api/v1/record?from_s=0&to_s=1", "/api/v1/record?from_s=0&to_s=1&part=dat", "/"]:
+                     "/api/v1/record?from_s=0&to_s=1", "/api/v1/record?from_s=0&to_s=1&part=dat", "/api/v1/sweeps/1",
+                     "/api/v1/sweeps/1/result", "/"]:
             s, body, r = self.srv.request("GET", path)
             out[path] = body if isinstance(body, (bytes, bytearray)) else json.dumps(body, separators=(",", ":"))
             if isinstance(out[path], (bytes, bytearray)):
@@ -161,6 +162,11 @@ class ExerciseCase(unittest.TestCase):
         self.assertNotIn(trip["alarm"]["id"], [a["id"] for a in active["alarms"]])
         s, body, _ = self.srv.request("GET", "/api/v1/alarms?active=yes")
         self.assertEqual(s, 400)
+        # What has not happened yet stays hidden after the rest fired.
+        for where, text in self.viewer_texts().items():
+            for hidden in ("late help", "secret-note-7", '"over_s":77', '"enabled":true'):
+                with self.subTest(where=where, hidden=hidden):
+                    self.assertNotIn(hidden, text)
 
     def test_3_fire_skip_shift_add(self):
         s, state, _ = self.srv.request("GET", "/api/v1/state")

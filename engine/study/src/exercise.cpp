@@ -24,6 +24,7 @@ namespace {
 // Bounds of an exercise file: what a training session can use, generously. Everything a client
 // sends over HTTP passes through them.
 constexpr std::size_t kMaxSeats = 32;
+constexpr std::size_t kMaxSeatAreas = 1000;
 constexpr std::size_t kMaxNameChars = 200;
 constexpr std::size_t kMaxBriefingChars = 20000;
 constexpr std::size_t kMaxNoteChars = 1000;
@@ -259,7 +260,10 @@ ExerciseLoad parse_exercise(std::string_view json_text, const std::string& base_
           r.string(s, "id", p, seat.id, true);
           text_field(r, s, "name", p, seat.name, kMaxNameChars, true);
           if (const ijson* areas = r.array(s, "areas", p, true)) {
-            for (std::size_t k = 0; k < areas->size() && k < 1000; ++k) {
+            if (areas->size() > kMaxSeatAreas)
+              r.error(p + ".areas",
+                      "at most " + std::to_string(kMaxSeatAreas) + " areas, got " + std::to_string(areas->size()));
+            for (std::size_t k = 0; k < areas->size() && k < kMaxSeatAreas; ++k) {
               if ((*areas)[k].is_string())
                 seat.areas.push_back((*areas)[k].get<std::string>());
               else
