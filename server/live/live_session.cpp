@@ -314,6 +314,7 @@ bool LiveSession::guard_step() {
             fmt_fixed(engine_->time_s(), 2) + " s) is kept and the session is paused: the instructor can reset it (then resume) or load a scenario";
   spdlog::error("{}", halted_);
   pipeline_.refuse_all(409, "command refused: " + halted_);
+  if (script_) script_->rewound(engine_->step_index());  // its refused firings are to come again
   push_event(json{{"type", "event"}, {"t_s", engine_->time_s()}, {"kind", "halted"}, {"text", halted_}});
   return false;
 }
