@@ -58,6 +58,9 @@ export function connect(on) {
       case 'disturbance':
         on.disturbance(msg);
         break;
+      case 'alarm': // an exercise's alarm raised, cleared or acknowledged: into the log
+        on.event(msg);
+        break;
       default:
         break;
     }
