@@ -62,7 +62,7 @@ case "${1:-}" in
     setup
     build fuzz
     seconds="${2:-60}"
-    for target in scenario commands target; do
+    for target in scenario commands target exercise; do
       work="$(mktemp -d)"
       cp -r "tests/fuzz/corpus/$target/." "$work/"
       (cd "$work" && "$OLDPWD/build/fuzz/tests/fuzz/fuzz_$target" "$work" -max_total_time="$seconds" \

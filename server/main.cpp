@@ -150,7 +150,16 @@ Command serve_command(CLI::App& root) {
   auto a = std::make_shared<Args>();
   auto& o = a->o;
   o.web_root = DROOPLINE_WEB_ROOT;
-  sub->add_option("--scenario", o.scenario_file, "the scenario (JSON)")->type_name("FILE")->required()->check(kFileExists);
+  auto* scenario =
+      sub->add_option("--scenario", o.scenario_file, "the scenario (JSON)")->type_name("FILE")->check(kFileExists);
+  auto* exercise = sub->add_option("--exercise", o.exercise_file, "run a training exercise (scenario, seats, script)")
+                       ->type_name("FILE")
+                       ->check(kFileExists)
+                       ->excludes(scenario);
+  scenario->excludes(exercise);
+  sub->callback([scenario, exercise] {
+    if (scenario->count() + exercise->count() == 0) throw CLI::RequiredError("--scenario or --exercise");
+  });
   sub->add_option("--listen", a->listen, "0.0.0.0:PORT for a LAN (default 127.0.0.1:8080)")
       ->type_name("HOST:PORT")
       ->check([&o](const std::string& v) { return split_listen(v, o.host, o.port); });

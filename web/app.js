@@ -74,7 +74,7 @@ async function onHello(msg) {
   // The server keeps its event list across resets: only this run's events, from the last reset or
   // scenario load on. Alarm changes among them bring the alarms up to date.
   for (const e of msg.events.slice(Math.max(0, msg.events.findLastIndex(startsRun)))) {
-    if (e.type === 'alarm') continue; // the greeting's `alarms` already hold the active ones
+    // (alarm changes go to the log only: the greeting's `alarms` already hold the active ones)
     if (e.type === 'disturbance') renderDisturbance(e);
     takeEvent(e);
   }
@@ -115,5 +115,8 @@ connect({
     renderDisturbance(d);
     logEvent(d);
   },
-  alarm: alarmMessage,
+  alarm: (m) => {
+    alarmMessage(m);
+    logEvent(m);
+  },
 });

@@ -65,7 +65,7 @@ export function connect(on) {
       case 'disturbance':
         on.disturbance(msg);
         break;
-      case 'alarm':
+      case 'alarm': // an exercise's alarm raised, cleared or acknowledged: the alarm lists and the log
         on.alarm(msg);
         break;
       default:

@@ -82,7 +82,8 @@ export function renderLive(f) {
 export function logEvent(e) {
   const log = $('event-log');
   const key = e.type === 'disturbance' ? `disturbance ${e.index ?? e.at_s}` : '';
-  const t = e.t_s ?? e.at_s;
+  const alarmAt = { raised: 'raised_s', cleared: 'cleared_s', acknowledged: 'acked_s' };
+  const t = e.type === 'alarm' ? e.alarm[alarmAt[e.change]] : e.t_s ?? e.at_s;
   let li = key ? app.logged.get(key) : null;
   if (!li) {
     li = document.createElement('li');
@@ -98,7 +99,12 @@ export function logEvent(e) {
     }
   }
   const time = Object.assign(document.createElement('span'), { className: 't', textContent: `${fmt(t, 2)} s` });
-  const text = e.type === 'disturbance' ? `disturbance: ${e.cause}${e.open ? ' (being measured)' : ''}` : e.text;
+  const text =
+    e.type === 'disturbance'
+      ? `disturbance: ${e.cause}${e.open ? ' (being measured)' : ''}`
+      : e.type === 'alarm'
+        ? `${e.alarm.severity} ${e.change}${e.change === 'acknowledged' ? ` by ${authorName(e.alarm.acked_by)}` : ''}: ${e.alarm.message}`
+        : e.text;
   li.replaceChildren(time, document.createTextNode(text));
   if (e.by) li.append(Object.assign(document.createElement('span'), { className: 'by', textContent: ` (${authorName(e.by)})` }));
 }

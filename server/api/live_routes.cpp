@@ -4,6 +4,7 @@
 #include <sstream>
 
 #include "api.hpp"
+#include "droopline/exercise.hpp"
 #include "droopline/format.hpp"
 #include "droopline/json_input.hpp"
 #include "droopline/scenario_io.hpp"
@@ -19,6 +20,8 @@ constexpr const char* kChanges = "only the instructor can change the simulation"
 constexpr const char* kOperates = "only an operator seat or the instructor can send commands";
 // Why the seat list is the instructor's: it holds the join codes.
 constexpr const char* kSeats = "only the instructor sees the seats' join codes";
+constexpr const char* kScript = "only the instructor sees and changes the exercise's script";
+constexpr const char* kAck = "only an operator seat or the instructor can acknowledge alarms";
 
 // A number from the query, or an error message naming the parameter.
 bool query_number(const Target& t, const std::string& key, double fallback, double& out, std::string& error) {
@@ -127,15 +130,81 @@ void role(Services&, Call& c) {
 }
 
 void get_scenario(Services& s, Call& c) {
-  s.live->scenario([respond = c.respond](std::string text) {
-    respond(Reply{200, "application/json", std::move(text), {}, {}});
+  // An exercise's own events are what is to come: only the instructor sees them.
+  s.live->scenario(
+      [respond = c.respond](std::string text) { respond(Reply{200, "application/json", std::move(text), {}, {}}); },
+      c.role == Role::instructor);
+}
+
+// ------------------------------------------------------------------ exercise, script, alarms
+
+void get_exercise(Services& s, Call& c) { s.live->exercise(answer(c)); }
+
+void put_exercise(Services& s, Call& c) {
+  // Over HTTP only an inline scenario: a path would reach the server's disk.
+  study::ExerciseLoad x = study::parse_exercise(c.request.body, "");
+  if (!x.exercise) return c.error(400, "invalid exercise; nothing changed", issue_texts(x.issues));
+  // Once loaded, the new exercise's seats get new join codes (the old codes stop working).
+  std::vector<study::SeatDef> seats = x.exercise->def.seats;
+  s.live->load_exercise(std::move(*x.exercise), [&s, seats = std::move(seats), done = answer(c)](LiveSession::Result r) {
+    if (r.status == 200) s.seats.set(seats);
+    done(std::move(r));
   });
+}
+
+void get_script(Services& s, Call& c) { s.live->script(answer(c)); }
+
+void add_script(Services& s, Call& c) {
+  std::vector<Issue> issues;
+  auto ev = study::parse_script_event(c.request.body, issues);
+  if (!ev) return c.error(400, "invalid script event; nothing changed", issue_texts(issues));
+  s.live->script_add(std::move(*ev), "instructor", answer(c));
+}
+
+void fire_script(Services& s, Call& c) { s.live->script_fire(c.params[0], "instructor", answer(c)); }
+
+void skip_script(Services& s, Call& c) { s.live->script_skip(c.params[0], "instructor", answer(c)); }
+
+void shift_script(Services& s, Call& c) {
+  std::string bad;
+  const auto parsed = parse_untrusted_json(c.request.body, bad);
+  if (!parsed) return c.error(400, bad);
+  const json& j = *parsed;
+  if (!j.is_object() || j.size() != 1 || !j.contains("at_s") || !j["at_s"].is_number())
+    return c.error(400, "body must be {\"at_s\": a time in seconds}");
+  s.live->script_shift(c.params[0], j["at_s"].get<double>(), "instructor", answer(c));
+}
+
+void get_alarms(Services& s, Call& c) {
+  const std::string active = c.target.get("active", "0");
+  if (active != "0" && active != "1")
+    return c.error(400, "query parameter active: must be 0 or 1, got " + quote_cut(active));
+  s.live->alarms(active == "1", answer(c));
+}
+
+void ack_alarm(Services& s, Call& c) {
+  const std::string& id = c.params[0];
+  if (id.empty() || id.size() > 15 || id.find_first_not_of("0123456789") != std::string::npos)
+    return c.error(400, "alarm id: must be a whole number, got " + quote_cut(id));
+  // Who acknowledges: the instructor, or a seat (then only alarms of its own areas).
+  std::optional<SeatScope> scope;
+  if (c.role == Role::seat) {
+    const std::optional<SeatIdentity> now = c.seat ? s.seats.find(c.seat->id) : std::nullopt;
+    if (!now) return c.error(403, "this seat is not part of the running exercise: ask the instructor for a new code");
+    scope = SeatScope{now->id, now->areas};
+  }
+  const std::string author = scope ? scope->seat : "instructor";
+  s.live->ack_alarm(std::stoull(id), author, std::move(scope), answer(c));
 }
 
 void put_scenario(Services& s, Call& c) {
   LoadResult r = parse_scenario(c.request.body);
   if (!r.system) return c.error(400, "invalid scenario; nothing changed", issue_texts(r.issues));
-  s.live->load(std::move(*r.system), answer(c));
+  // A plain scenario ends the exercise, and with it the seats.
+  s.live->load(std::move(*r.system), [&s, done = answer(c)](LiveSession::Result result) {
+    if (result.status == 200) s.seats.set({});
+    done(std::move(result));
+  });
 }
 
 void commands(Services& s, Call& c) {
@@ -148,7 +217,8 @@ void commands(Services& s, Call& c) {
     if (!now) return c.error(403, "this seat is not part of the running exercise: ask the instructor for a new code");
     scope = SeatScope{now->id, now->areas};
   }
-  s.live->apply(std::move(cp.commands), std::move(scope), answer(c));
+  std::string author = scope ? scope->seat : "instructor";
+  s.live->apply(std::move(cp.commands), std::move(author), std::move(scope), answer(c));
 }
 
 void seats(Services& s, Call& c) {
@@ -254,6 +324,15 @@ void add_live_routes(std::vector<Route>& routes) {
                                   {Verb::get, "/api/v1/events", viewer, "", events},
                                   {Verb::get, "/api/v1/record", viewer, "", record},
                                   {Verb::get, "/api/v1/stream", viewer, "", stream},
+                                  {Verb::get, "/api/v1/exercise", viewer, "", get_exercise},
+                                  {Verb::put, "/api/v1/exercise", instructor, kChanges, put_exercise},
+                                  {Verb::get, "/api/v1/script", instructor, kScript, get_script},
+                                  {Verb::post, "/api/v1/script", instructor, kScript, add_script},
+                                  {Verb::post, "/api/v1/script/{id}/fire", instructor, kScript, fire_script},
+                                  {Verb::post, "/api/v1/script/{id}/skip", instructor, kScript, skip_script},
+                                  {Verb::post, "/api/v1/script/{id}/shift", instructor, kScript, shift_script},
+                                  {Verb::get, "/api/v1/alarms", viewer, "", get_alarms},
+                                  {Verb::post, "/api/v1/alarms/{id}/ack", seat, kAck, ack_alarm},
                                   {Verb::get, "/api/v1/openapi.json", viewer, "", openapi},
                               });
 }

@@ -16,7 +16,8 @@ namespace droopline::server {
 
 /// Everything `droopline serve` can be told.
 struct Options {
-  std::string scenario_file;
+  std::string scenario_file;               ///< --scenario (or else --exercise)
+  std::string exercise_file;               ///< --exercise: a training exercise
   std::string host = "127.0.0.1";
   unsigned short port = 8080;
   std::string token_file;

@@ -13,6 +13,7 @@
 #include <nlohmann/json.hpp>
 
 #include "droopline/batch.hpp"
+#include "droopline/exercise.hpp"
 #include "droopline/format.hpp"
 #include "droopline/journal_read.hpp"
 #include "droopline/scenario_io.hpp"
@@ -44,6 +45,19 @@ std::string opt_text(const std::optional<double>& v, int decimals, const char* u
 }  // namespace
 
 int check(const std::string& file) {
+  std::string text;
+  if (std::ifstream in(file, std::ios::binary); in && fs::is_regular_file(file))
+    text.assign(std::istreambuf_iterator<char>(in), std::istreambuf_iterator<char>());
+  if (study::looks_like_exercise(text)) {
+    study::ExerciseLoad x = study::load_exercise_file(file);
+    print_issues(x.issues, file);
+    if (!x.exercise) return 2;
+    const study::ExerciseDef& e = x.exercise->def;
+    std::cout << file << ": ok: exercise \"" << e.name << "\": " << e.seats.size() << " seat(s), "
+              << e.script.size() << " script event(s), " << fmt_num(e.time_limit_s) << " s; scenario \""
+              << x.exercise->system.def().name << "\"\n";
+    return 0;
+  }
   LoadResult r = load_scenario_file(file);
   print_issues(r.issues, file);
   if (!r.system) return 2;
@@ -169,8 +183,8 @@ int replay(const std::string& journal, const std::string& out_dir, int run_numbe
   std::vector<Notice> notices;
   std::size_t next = 0;
   auto apply_due = [&] {
-    while (next < run.commands.size() && run.commands[next].first <= engine.step_index()) {
-      const auto& [step, batch] = run.commands[next];
+    while (next < run.commands.size() && run.commands[next].step <= engine.step_index()) {
+      const auto& [step, batch, by] = run.commands[next];
       // Resolved (ids, static checks) and applied (state checks) as the live pipeline did.
       const Resolved resolved = resolve_all(engine.system(), batch);
       const ApplyResult r = resolved.issues.empty() ? engine.apply_all(resolved.actions) : ApplyResult{};
@@ -180,7 +194,8 @@ int replay(const std::string& journal, const std::string& out_dir, int run_numbe
       } else {
         nlohmann::ordered_json cmds = nlohmann::ordered_json::array();
         for (const Command& c : batch) cmds.push_back(command_to_json(c));
-        applied.stream() << nlohmann::ordered_json{{"step", step}, {"t_s", r.at_s}, {"commands", cmds}}.dump() << '\n';
+        applied.stream() << nlohmann::ordered_json{{"step", step}, {"t_s", r.at_s}, {"commands", cmds}, {"by", by}}.dump()
+                         << '\n';
       }
       ++next;
     }

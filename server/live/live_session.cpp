@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <map>
 
 #include <pthread.h>
 #include <sched.h>
@@ -25,7 +26,8 @@ double wall_now_s() {
 
 }  // namespace
 
-LiveSession::LiveSession(const CheckedSystem& system, LiveConfig config, Sink sink)
+LiveSession::LiveSession(const CheckedSystem& system, LiveConfig config, Sink sink,
+                         std::optional<study::Exercise> exercise)
     : config_(std::move(config)),
       sink_(std::move(sink)),
       pipeline_(
@@ -37,6 +39,7 @@ LiveSession::LiveSession(const CheckedSystem& system, LiveConfig config, Sink si
           counters_.commands, counters_.commands_refused) {
   speed_ = std::clamp(config_.speed, 0.1, 100.0);
   if (pipeline_.journal().ok() && !journal_scenario(system.def())) journal_failed_ = true;
+  exercise_ = std::move(exercise);
   start_engine(system);
   thread_ = std::thread([this] { run(); });
 }
@@ -78,9 +81,78 @@ void LiveSession::start_engine(const CheckedSystem& system) {
   checkpoint_ = engine_->clone();
   checkpoint_every_ = std::max<std::int64_t>(1, std::llround(1.0 / def().step_s));
   halted_.clear();
-  store_.start(*engine_, def(), config_.history_s);
+  if (exercise_) {  // what everyone sees of the scenario: not the exercise's own events to come
+    SystemDef shown = def();
+    shown.events.clear();
+    store_.start(*engine_, shown, config_.history_s);
+  } else {
+    store_.start(*engine_, def(), config_.history_s);
+  }
   record_history();
   rebase();
+  start_exercise();
+}
+
+void LiveSession::start_exercise() {
+  alarm_notices_.clear();
+  if (!exercise_) {
+    script_.reset();
+    alarms_.reset();
+    return;
+  }
+  script_.emplace(exercise_->system, exercise_->def.script);
+  alarms_.emplace(exercise_->system, exercise_->def.alarms);
+}
+
+std::int64_t LiveSession::lead_steps() const {
+  if (paused_.load()) return 0;
+  return static_cast<std::int64_t>(std::ceil(config_.journal_lead_s * speed_.load() / def().step_s));
+}
+
+void LiveSession::exercise_after_step() {
+  if (alarms_) push_alarm_changes(alarms_->update(*engine_, alarm_notices_));
+  alarm_notices_.clear();
+  if (!script_ || !halted_.empty()) return;
+  for (const study::ScriptFiring& f : script_->due(*engine_, lead_steps())) submit_firing(f);
+}
+
+void LiveSession::submit_firing(const study::ScriptFiring& f) {
+  // The same way as anyone's command: checked, journaled (by "script"), applied at its step.
+  pipeline_.submit(*engine_, {f.command}, "script", std::max(f.at_step, engine_->step_index()),
+                   [id = f.id](LiveResult r) {
+                     if (r.status != 200)
+                       spdlog::warn("script event {} refused: {} {}", id, r.error,
+                                    r.issues.empty() ? std::string() : r.issues.front().text());
+                   });
+}
+
+void LiveSession::push_alarm_changes(const std::vector<study::AlarmChange>& changes) {
+  for (const study::AlarmChange& c : changes) {
+    const study::Alarm* a = alarms_->find(c.id);
+    if (!a) continue;
+    const char* what = c.what == study::AlarmChange::What::raised    ? "raised"
+                       : c.what == study::AlarmChange::What::cleared ? "cleared"
+                                                                     : "acknowledged";
+    push_event(json{{"type", "alarm"}, {"change", what}, {"alarm", study::alarm_to_json(def(), *a)}});
+  }
+}
+
+void LiveSession::record_script_edit(const std::string& edit, const std::string& id, const std::string& author,
+                                     json detail) {
+  // For the record only: replay runs the script's firings from their command records.
+  json rec{{"type", "script"}, {"step", engine_->step_index()}, {"edit", edit}, {"id", id}, {"by", author}};
+  for (auto it = detail.begin(); it != detail.end(); ++it) rec[it.key()] = it.value();
+  if (pipeline_.journal().ok() && !journal_failed_) pipeline_.journal().submit(rec.dump());
+  // Everyone's log says that the script changed, never what it holds.
+  static const std::map<std::string, std::string> kWords = {{"add", "added an event to the script"},
+                                                            {"fire", "fired a script event now"},
+                                                            {"skip", "skipped a script event"},
+                                                            {"shift", "moved a script event"}};
+  push_event(json{{"type", "event"},
+                  {"t_s", engine_->time_s()},
+                  {"kind", "script"},
+                  {"by", author},
+                  {"text", author + " " + kWords.at(edit)}});
 }
 
 void LiveSession::rebase() {
@@ -171,6 +243,7 @@ void LiveSession::run() {
       }
       if (engine_->step_index() % output_every_ == 0) record_history();
       drain_notices();
+      exercise_after_step();
     }
     if (clock::now() >= deadline(engine_->step_index() + 1) + std::chrono::duration_cast<clock::duration>(
                                                              std::chrono::duration<double>(step_wall))) {
@@ -241,16 +314,21 @@ bool LiveSession::guard_step() {
             fmt_fixed(engine_->time_s(), 2) + " s) is kept and the session is paused: the instructor can reset it (then resume) or load a scenario";
   spdlog::error("{}", halted_);
   pipeline_.refuse_all(409, "command refused: " + halted_);
+  if (script_) script_->rewound(engine_->step_index());  // its refused firings are to come again
   push_event(json{{"type", "event"}, {"t_s", engine_->time_s()}, {"kind", "halted"}, {"text", halted_}});
   return false;
 }
 
-void LiveSession::drain_notices() {
-  for (const Notice& n : engine_->take_notices()) {
+void LiveSession::drain_notices(const std::string& by) {
+  std::vector<Notice> notices = engine_->take_notices();
+  for (const Notice& n : notices) {
     const std::string text = describe(engine_->def(), n);
     if (n.kind != NoticeKind::command) spdlog::info("t = {:.2f} s: {}", n.t_s, text);
-    push_event(json{{"type", "event"}, {"t_s", n.t_s}, {"kind", to_string(n.kind)}, {"text", text}});
+    json event{{"type", "event"}, {"t_s", n.t_s}, {"kind", to_string(n.kind)}, {"text", text}};
+    if (!by.empty() && n.kind == NoticeKind::command) event["by"] = by;
+    push_event(std::move(event));
   }
+  if (alarms_) alarm_notices_.insert(alarm_notices_.end(), notices.begin(), notices.end());
   // Each disturbance is announced when it begins (metrics still filling in, "open": true) and
   // again, complete, when its window ends.
   const auto& d = engine_->disturbances();
@@ -260,8 +338,10 @@ void LiveSession::drain_notices() {
 
 // ------------------------------------------------------------------ requests
 
-void LiveSession::apply(std::vector<Command> commands, std::optional<SeatScope> scope, Done done) {
-  post([this, commands = std::move(commands), scope = std::move(scope), done = std::move(done)](Engine& e) mutable {
+void LiveSession::apply(std::vector<Command> commands, std::string author, std::optional<SeatScope> scope,
+                        Done done) {
+  post([this, commands = std::move(commands), author = std::move(author), scope = std::move(scope),
+        done = std::move(done)](Engine& e) mutable {
     // Check, journal, apply: a command is applied and acknowledged only once its record is on
     // disk, at the step the record names; one refused by either changes nothing. The journal is
     // written on its own thread, so the command is scheduled a little ahead (journal_lead_s of
@@ -274,10 +354,7 @@ void LiveSession::apply(std::vector<Command> commands, std::optional<SeatScope> 
                                 "command refused, nothing applied: outside what seat \"" + scope->seat + "\" may do",
                                 std::move(outside));
     }
-    std::int64_t step = e.step_index();
-    if (!paused_.load())
-      step += static_cast<std::int64_t>(std::ceil(config_.journal_lead_s * speed_.load() / def().step_s));
-    pipeline_.submit(e, std::move(commands), step, std::move(done));
+    pipeline_.submit(e, std::move(commands), std::move(author), e.step_index() + lead_steps(), std::move(done));
   });
 }
 
@@ -285,7 +362,11 @@ bool LiveSession::due_unwritten() const { return pipeline_.due_unwritten(engine_
 
 bool LiveSession::pending_ready() const { return pipeline_.ready(engine_->step_index()); }
 
-void LiveSession::apply_due() { pipeline_.apply_due(*engine_, [this] { drain_notices(); }); }
+void LiveSession::apply_due() {
+  // The notices the engine holds right after apply_all are the batch's own: the loop takes them
+  // after every step, so none from a step can be waiting here.
+  pipeline_.apply_due(*engine_, [this](const CommandPipeline::Applied& a) { drain_notices(a.author); });
+}
 
 void LiveSession::settle_pending() {
   // Before a new scenario, a reset or the stop record: every durable command is applied at its
@@ -312,6 +393,7 @@ void LiveSession::load(CheckedSystem system, Done done) {
       done(refused(pipeline_.journal().http_status(), "scenario refused, the session goes on unchanged: " + pipeline_.journal().error()));
       return;
     }
+    exercise_.reset();  // a plain scenario ends the exercise
     start_engine(system);
     push_event(json{{"type", "event"}, {"t_s", 0.0}, {"kind", "scenario"}, {"text", "scenario \"" + def.name + "\" loaded"}});
     done(accepted(json{{"ok", true}, {"scenario", def.name}}));
@@ -364,6 +446,12 @@ void LiveSession::hello(std::function<void(std::shared_ptr<const HelloSnapshot>)
     snap->speed = speed_.load();
     snap->paused = paused_.load();
     store_.fill(*snap);
+    if (alarms_) {
+      json active = json::array();
+      for (const study::Alarm& a : alarms_->alarms())
+        if (!a.cleared_s) active.push_back(study::alarm_to_json(def(), a));
+      snap->alarms_json = active.dump();
+    }
     done(std::move(snap));
   });
 }
@@ -375,8 +463,141 @@ void LiveSession::state(std::function<void(std::string)> done) {
   });
 }
 
-void LiveSession::scenario(std::function<void(std::string)> done) {
-  post([this, done = std::move(done)](Engine&) { done(scenario_to_json(def()).dump()); });
+void LiveSession::scenario(std::function<void(std::string)> done, bool with_hidden) {
+  post([this, done = std::move(done), with_hidden](Engine&) {
+    json j = scenario_to_json(def());
+    if (exercise_ && !with_hidden) j["events"] = json::array();
+    done(j.dump());
+  });
+}
+
+// ------------------------------------------------------------------ exercise
+
+namespace {
+const char* const kNoExercise = "no exercise is running";
+// A refusal of the script runner in words: 404 for an unknown id, 409 for one already done.
+LiveResult script_refusal(const std::string& why) {
+  if (why.rfind("no script event", 0) == 0) return refused(404, why);
+  if (why.find("has already") != std::string::npos) return refused(409, why);
+  return refused(400, why);
+}
+}  // namespace
+
+void LiveSession::load_exercise(study::Exercise exercise, Done done) {
+  post([this, exercise = std::move(exercise), done = std::move(done)](Engine&) mutable {
+    settle_pending();
+    const std::string name = exercise.def.name;
+    if (!journal_scenario(exercise.system.def())) {
+      done(refused(pipeline_.journal().http_status(),
+                   "exercise refused, the session goes on unchanged: " + pipeline_.journal().error()));
+      return;
+    }
+    exercise_ = std::move(exercise);
+    start_engine(exercise_->system);
+    push_event(
+        json{{"type", "event"}, {"t_s", 0.0}, {"kind", "exercise"}, {"text", "exercise \"" + name + "\" loaded"}});
+    done(accepted(json{{"ok", true}, {"exercise", name}}));
+  });
+}
+
+void LiveSession::exercise(Done done) {
+  post([this, done = std::move(done)](Engine&) {
+    if (!exercise_) return done(refused(404, kNoExercise));
+    const study::ExerciseDef& d = exercise_->def;
+    json seats = json::array();
+    for (const study::SeatDef& seat : d.seats)
+      seats.push_back(json{{"id", seat.id}, {"name", seat.name}, {"areas", seat.areas}});
+    done(accepted(
+        json{{"name", d.name}, {"briefing", d.briefing}, {"time_limit_s", d.time_limit_s}, {"seats", seats}}));
+  });
+}
+
+void LiveSession::script(Done done) {
+  post([this, done = std::move(done)](Engine&) {
+    if (!script_) return done(refused(404, kNoExercise));
+    done(accepted(study::script_to_json(script_->entries())));
+  });
+}
+
+void LiveSession::script_add(study::ScriptEventDef event, std::string author, Done done) {
+  post([this, event = std::move(event), author = std::move(author), done = std::move(done)](Engine& e) mutable {
+    if (!script_) return done(refused(404, kNoExercise));
+    std::string why;
+    if (!script_->add(std::move(event), author, e.time_s(), why))
+      return done(refused(400, "script event refused: " + why));
+    const study::ScriptEntry& added = script_->entries().back();
+    json detail = study::script_to_json({added})["events"][0];
+    detail.erase("id");
+    record_script_edit("add", added.def.id, author, json{{"event", detail}});
+    done(accepted(json{{"ok", true}, {"id", added.def.id}}));
+  });
+}
+
+void LiveSession::script_fire(std::string id, std::string author, Done done) {
+  post([this, id = std::move(id), author = std::move(author), done = std::move(done)](Engine& e) {
+    if (!script_) return done(refused(404, kNoExercise));
+    if (!halted_.empty()) return done(refused(409, "command refused: " + halted_));
+    std::string why;
+    auto firing = script_->fire_now(id, e, why);
+    if (!firing) return done(script_refusal(why));
+    firing->at_step = e.step_index() + lead_steps();
+    record_script_edit("fire", id, author, json::object());
+    pipeline_.submit(e, {firing->command}, "script", firing->at_step, [id, done](LiveResult r) {
+      if (r.status == 200) r.data["id"] = id;
+      done(std::move(r));
+    });
+  });
+}
+
+void LiveSession::script_skip(std::string id, std::string author, Done done) {
+  post([this, id = std::move(id), author = std::move(author), done = std::move(done)](Engine&) {
+    if (!script_) return done(refused(404, kNoExercise));
+    std::string why;
+    if (!script_->skip(id, why)) return done(script_refusal(why));
+    record_script_edit("skip", id, author, json::object());
+    done(accepted(json{{"ok", true}, {"id", id}, {"state", "skipped"}}));
+  });
+}
+
+void LiveSession::script_shift(std::string id, double at_s, std::string author, Done done) {
+  post([this, id = std::move(id), at_s, author = std::move(author), done = std::move(done)](Engine& e) {
+    if (!script_) return done(refused(404, kNoExercise));
+    std::string why;
+    if (!script_->shift(id, at_s, e.time_s(), why)) return done(script_refusal(why));
+    record_script_edit("shift", id, author, json{{"at_s", at_s}});
+    done(accepted(json{{"ok", true}, {"id", id}, {"at_s", at_s}}));
+  });
+}
+
+void LiveSession::alarms(bool active_only, Done done) {
+  post([this, active_only, done = std::move(done)](Engine&) {
+    json list = json::array();
+    if (alarms_)
+      for (const study::Alarm& a : alarms_->alarms())
+        if (!active_only || !a.cleared_s) list.push_back(study::alarm_to_json(def(), a));
+    done(accepted(json{{"alarms", list}}));
+  });
+}
+
+void LiveSession::ack_alarm(std::uint64_t id, std::string author, std::optional<SeatScope> scope, Done done) {
+  post([this, id, author = std::move(author), scope = std::move(scope), done = std::move(done)](Engine& e) {
+    if (!alarms_) return done(refused(404, kNoExercise));
+    const study::Alarm* a = alarms_->find(id);
+    if (!a) return done(refused(404, "no alarm " + std::to_string(id)));
+    if (scope) {
+      bool own = false;
+      for (std::uint32_t area : a->areas)
+        own = own || std::find(scope->areas.begin(), scope->areas.end(), def().areas[area].id) != scope->areas.end();
+      if (!own)
+        return done(refused(403, "alarm " + std::to_string(id) + " (" + a->message + ") is not about an area seat \"" +
+                                     scope->seat + "\" answers for"));
+    }
+    if (!alarms_->acknowledge(id, author, e.time_s()))
+      return done(refused(
+          409, "alarm " + std::to_string(id) + " was already acknowledged by " + a->acked_by.value_or("?")));
+    push_alarm_changes({{study::AlarmChange::What::acknowledged, id}});
+    done(accepted(json{{"ok", true}, {"alarm", study::alarm_to_json(def(), *alarms_->find(id))}}));
+  });
 }
 
 std::string LiveSession::history(double from_s, double to_s, double every_s, bool csv) const {

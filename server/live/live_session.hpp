@@ -13,14 +13,18 @@
 #include <functional>
 #include <memory>
 #include <mutex>
+#include <optional>
 #include <string>
 #include <thread>
 #include <vector>
 
 #include <nlohmann/json_fwd.hpp>
 
+#include "droopline/alarms.hpp"
 #include "droopline/comtrade.hpp"
 #include "droopline/engine.hpp"
+#include "droopline/exercise.hpp"
+#include "droopline/script.hpp"
 #include "command_pipeline.hpp"
 #include "history_store.hpp"
 #include "seat_scope.hpp"
@@ -75,8 +79,10 @@ class LiveSession {
   using Sink = std::function<void(const Outgoing&)>;
   using Task = std::function<void(Engine&)>;
 
-  /// Starts the loop thread on a checked system. `sink` is called on the loop thread.
-  LiveSession(const CheckedSystem& system, LiveConfig config, Sink sink);
+  /// Starts the loop thread on a checked system, or on an exercise's (its script and alarms run
+  /// after each step). `sink` is called on the loop thread.
+  LiveSession(const CheckedSystem& system, LiveConfig config, Sink sink,
+              std::optional<study::Exercise> exercise = std::nullopt);
   ~LiveSession();
   LiveSession(const LiveSession&) = delete;
   LiveSession& operator=(const LiveSession&) = delete;
@@ -93,9 +99,11 @@ class LiveSession {
   using Result = LiveResult;
   using Done = std::function<void(Result)>;
 
-  /// Applies commands atomically (all or none), journals them, then answers. From a seat
-  /// (`scope`), commands outside its kinds or areas refuse the whole batch with 403.
-  void apply(std::vector<Command> commands, std::optional<SeatScope> scope, Done done);
+  /// Applies commands atomically (all or none), journals them with `author` (who sent them:
+  /// "instructor", a seat id or "script"; in the journal, the command's event and the reply as
+  /// "by"), then answers. From a seat (`scope`), commands outside its kinds or areas refuse the
+  /// whole batch with 403.
+  void apply(std::vector<Command> commands, std::string author, std::optional<SeatScope> scope, Done done);
   /// Replaces the scenario (checked by the loader) and restarts from t = 0.
   void load(CheckedSystem system, Done done);
   /// Restarts the current scenario from t = 0.
@@ -108,10 +116,33 @@ class LiveSession {
   /// The greeting a new client gets (scenario, columns, history, recent events), handed to `done`
   /// on the loop thread between two steps, so that nothing broadcast after it is missing from it.
   void hello(std::function<void(std::shared_ptr<const HelloSnapshot>)> done);
+  /// Replaces the running scenario with an exercise (its scenario, script and alarms), from t = 0.
+  void load_exercise(study::Exercise exercise, Done done);
+  /// The running exercise for everyone: name, briefing, time_limit_s, seats (id, name, areas);
+  /// 404 without one. Never the script.
+  void exercise(Done done);
+  /// The hidden script for the instructor (`script_to_json`); 404 without an exercise.
+  void script(Done done);
+  /// Adds a script event by `author` (answers `{"id"}`); journaled and logged without its content.
+  void script_add(study::ScriptEventDef event, std::string author, Done done);
+  /// Fires a pending script event now (through the command pipeline, author "script").
+  void script_fire(std::string id, std::string author, Done done);
+  /// Skips a pending script event.
+  void script_skip(std::string id, std::string author, Done done);
+  /// Gives a pending timed script event a new time.
+  void script_shift(std::string id, double at_s, std::string author, Done done);
+  /// The alarms (`{"alarms": [...]}`, oldest first; only active ones with `active_only`); empty
+  /// without an exercise.
+  void alarms(bool active_only, Done done);
+  /// Acknowledges alarm `id` on behalf of `author` (404 no such alarm, 409 already acknowledged).
+  /// A seat (`scope`) acknowledges only alarms that concern one of its areas (else 403).
+  void ack_alarm(std::uint64_t id, std::string author, std::optional<SeatScope> scope, Done done);
+
   /// Current state as JSON (t_s, areas, units, ties, ...).
   void state(std::function<void(std::string)> done);
-  /// The current scenario as JSON.
-  void scenario(std::function<void(std::string)> done);
+  /// The current scenario as JSON; without `with_hidden`, an exercise's own events are left out
+  /// (viewers and seats must not see what is to come).
+  void scenario(std::function<void(std::string)> done, bool with_hidden = true);
 
   /// History rows within [from_s, to_s], every `every_s` (0 = all), as CSV or JSON (thread-safe).
   std::string history(double from_s, double to_s, double every_s, bool csv) const;
@@ -139,7 +170,9 @@ class LiveSession {
   void settle_pending();        ///< waits for the writer and runs the engine to every pending step
   void rebase();
   void emit_frame(double wall_s);
-  void drain_notices();
+  /// Logs and sends the engine's notices and disturbances; `by`: the author of the commands just
+  /// applied (their command notices carry it), empty after a step.
+  void drain_notices(const std::string& by = {});
   void record_history();
   std::string state_json(double wall_s) const;
   /// Logs an event (a JSON object; "seq" is added) and sends it to every client.
@@ -150,6 +183,19 @@ class LiveSession {
   /// After each step: keeps a checkpoint of the last good state every simulated second and, should
   /// anything turn non-finite, goes back to it, pauses and tells every client why.
   bool guard_step();  ///< false when it had to stop the session
+
+  /// Simulation steps a command is scheduled ahead so that its journal record gets there first.
+  std::int64_t lead_steps() const;
+  /// After each step: the script's due events into the pipeline, the alarm monitor fed.
+  void exercise_after_step();
+  /// A script event handed out by the runner, submitted as a command by "script".
+  void submit_firing(const study::ScriptFiring& firing);
+  /// The script and alarm monitor of the running exercise made afresh (none without one).
+  void start_exercise();
+  /// A script edit: journaled (record type "script") and logged with its author, not its content.
+  void record_script_edit(const std::string& edit, const std::string& id, const std::string& author,
+                          nlohmann::ordered_json detail);
+  void push_alarm_changes(const std::vector<study::AlarmChange>& changes);
 
   LiveConfig config_;
   Sink sink_;
@@ -182,6 +228,13 @@ class LiveSession {
   std::mutex tasks_mutex_;
   std::condition_variable tasks_cv_;
   std::vector<Task> tasks_;
+
+  // The running exercise (loop thread only): the script and the alarm monitor are values, so a
+  // save point can copy them with the engine.
+  std::optional<study::Exercise> exercise_;
+  std::optional<study::ScriptRunner> script_;
+  std::optional<study::AlarmMonitor> alarms_;
+  std::vector<Notice> alarm_notices_;  // notices since the monitor's last update
 
   HistoryStore store_;              // rows, columns, scenario and event log for other threads
   std::vector<double> sample_row_;  // loop thread only

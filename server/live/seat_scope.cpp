@@ -17,7 +17,11 @@ bool seat_may_send(CommandKind kind) {
   switch (kind) {
     case CommandKind::setpoint:
     case CommandKind::unit_start:
+    case CommandKind::unit_stop:
     case CommandKind::agc:
+    case CommandKind::schedule:
+    case CommandKind::shed:
+    case CommandKind::restore:
       return true;
     default:
       return false;

@@ -84,7 +84,7 @@ std::string HelloSnapshot::to_json() const {
     if (i) out += ',';
     out += events[i];
   }
-  out += "]}";
+  out += "],\"alarms\":" + alarms_json + "}";
   return out;
 }
 

@@ -43,6 +43,7 @@ struct HelloSnapshot {
   std::vector<std::string> events;
   double speed = 1.0;
   bool paused = false;
+  std::string alarms_json = "[]";  ///< the alarms active now (a JSON array; empty without an exercise)
   std::string to_json() const;
 };
 

@@ -9,6 +9,7 @@
 #include <spdlog/spdlog.h>
 
 #include "droopline/scenario_io.hpp"
+#include "droopline/exercise.hpp"
 #include "http_session.hpp"
 #include "listener.hpp"
 #include "server.hpp"
@@ -50,9 +51,19 @@ int serve(Options options) {
   const Options& opt = ctx.options;
   ctx.files = std::make_unique<StaticFiles>(opt.web_root);
 
-  LoadResult r = load_scenario_file(opt.scenario_file);
+  const std::string& file = opt.exercise_file.empty() ? opt.scenario_file : opt.exercise_file;
+  std::optional<study::Exercise> exercise;
+  LoadResult r;
+  if (!opt.exercise_file.empty()) {
+    study::ExerciseLoad x = study::load_exercise_file(opt.exercise_file);
+    r.issues = std::move(x.issues);
+    if (x.exercise) r.system = x.exercise->system;
+    exercise = std::move(x.exercise);
+  } else {
+    r = load_scenario_file(opt.scenario_file);
+  }
   for (const Issue& i : r.issues)
-    (i.warning ? spdlog::warn("{}: {}", opt.scenario_file, i.text()) : spdlog::error("{}: {}", opt.scenario_file, i.text()));
+    (i.warning ? spdlog::warn("{}: {}", file, i.text()) : spdlog::error("{}: {}", file, i.text()));
   if (!r.system) return 2;
 
   if (!opt.token_file.empty()) {
@@ -89,7 +100,14 @@ int serve(Options options) {
   lc.frame_hz = opt.frame_hz;
   lc.history_s = opt.history_s;
   lc.journal_path = opt.journal;
-  ctx.live = std::make_unique<LiveSession>(*r.system, lc, [&ctx](const Outgoing& m) { ctx.hub.broadcast(m); });
+  if (exercise) {
+    ctx.seats.set(exercise->def.seats);
+    for (const SeatStatus& seat : ctx.seats.list())
+      std::printf("seat %s (%s): join code %s\n", seat.id.c_str(), seat.name.c_str(), seat.join_code.c_str());
+    std::fflush(stdout);
+  }
+  ctx.live = std::make_unique<LiveSession>(
+      *r.system, lc, [&ctx](const Outgoing& m) { ctx.hub.broadcast(m); }, std::move(exercise));
   if (!ctx.live->journal_ok()) {
     spdlog::error("{}", ctx.live->journal_error());
     return 1;

@@ -16,6 +16,7 @@ SCENARIO = os.path.join(SRC, "scenarios", "demo_island.json")
 REQ = os.path.join(SRC, "scenarios", "requirements", "grid_code_example.json")
 OUT = os.path.join(tempfile.mkdtemp(prefix="droopline-cli-"), "out")
 MISSING = os.path.join(SRC, "no-such-file.json")
+EXERCISE = os.path.join(SRC, "tests", "data", "exercise_two_areas.json")
 
 RUN = ["run", SCENARIO, "--out", OUT]
 # Port 0: if a bad value were ever accepted, the server would start on a free port and the
@@ -58,6 +59,9 @@ CASES = [
     (SERVE + ["--listen", "127.0.0.1:http"], "--listen"),
     (SERVE + ["--token-file", MISSING], "--token-file"),
     (SERVE + ["--log-level", "loud"], "--log-level"),
+    (SERVE + ["--exercise", EXERCISE], "--exercise"),
+    (["serve", "--listen", "127.0.0.1:0"], "--scenario or --exercise"),
+    (["serve", "--exercise", MISSING, "--listen", "127.0.0.1:0"], "--exercise"),
     (SERVE + ["--bogus", "1"], "--bogus"),
     (["serve", "--listen", "127.0.0.1:0"], "--scenario"),
     (["serve", "--scenario", MISSING, "--listen", "127.0.0.1:0"], "--scenario"),
@@ -154,6 +158,9 @@ class BadCommandLines(unittest.TestCase):
         # (a leading zero is not octal), repeated options (the last wins).
         p = droopline(["check", SCENARIO])
         self.assertEqual(p.returncode, 0, p.stderr)
+        p = droopline(["check", EXERCISE])  # an exercise, told apart by its seats and script
+        self.assertEqual(p.returncode, 0, p.stderr)
+        self.assertIn("ok: exercise", p.stdout)
         p = droopline(["modes", SCENARIO, "--damping-threshold", "0.1", "--json"])
         self.assertEqual(p.returncode, 0, p.stderr)
         p = droopline(RUN + ["--threads", "010", "--threads", "2", "--quiet"])

@@ -32,7 +32,7 @@ def free_port():
 class Server:
     """One `droopline serve` process on a free loopback port."""
 
-    def __init__(self, scenario, extra=(), frame_rate=20, journal=None):
+    def __init__(self, scenario, extra=(), frame_rate=20, journal=None, option="--scenario"):
         self.dir = tempfile.mkdtemp(prefix="droopline-it-")
         self.port = free_port()
         self.journal = journal or os.path.join(self.dir, "journal.jsonl")
@@ -40,7 +40,7 @@ class Server:
         with open(token_file, "w") as fh:
             fh.write(TOKEN + "\n")
         self.proc = subprocess.Popen(
-            [BIN, "serve", "--scenario", scenario, "--listen", f"127.0.0.1:{self.port}",
+            [BIN, "serve", option, scenario, "--listen", f"127.0.0.1:{self.port}",
              "--token-file", token_file, "--journal", self.journal, "--frame-rate", str(frame_rate),
              "--log-level", "warn", *extra],
             stdout=subprocess.PIPE, stderr=subprocess.STDOUT, text=True)
@@ -419,9 +419,17 @@ PROTECTED = [
     ("GET", "/api/v1/modes", None, "run on the server's worker pool"),
     ("POST", "/api/v1/modes", "{}", "run on the server's worker pool"),
     ("POST", "/api/v1/assess", "{}", "run on the server's worker pool"),
+    ("PUT", "/api/v1/exercise", "{}", "only the instructor can change the simulation"),
+    ("GET", "/api/v1/script", None, "only the instructor sees and changes the exercise's script"),
+    ("POST", "/api/v1/script", "{}", "only the instructor sees and changes the exercise's script"),
+    ("POST", "/api/v1/script/s1/fire", None, "only the instructor sees"),
+    ("POST", "/api/v1/script/s1/skip", None, "only the instructor sees"),
+    ("POST", "/api/v1/script/s1/shift", '{"at_s": 5}', "only the instructor sees"),
+    ("POST", "/api/v1/alarms/1/ack", None, "only an operator seat or the instructor can acknowledge alarms"),
 ]
 OPEN_TO_VIEWERS = ["/healthz", "/metrics", "/api/v1/state", "/api/v1/role", "/api/v1/scenario", "/api/v1/history",
-                   "/api/v1/events", "/api/v1/record?from_s=0&to_s=1", "/api/v1/openapi.json"]
+                   "/api/v1/events", "/api/v1/record?from_s=0&to_s=1", "/api/v1/openapi.json",
+                   "/api/v1/exercise", "/api/v1/alarms"]
 
 
 class RolePolicyTests(ThreeAreaServerCase):

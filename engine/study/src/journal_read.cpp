@@ -52,9 +52,20 @@ JournalRead read_journal(const std::string& path) {
           out.issues.push_back({where, cp.issues.front().text(), false});
           return out;
         }
-        run.commands.emplace_back(step, cp.commands);
+        JournalBatch batch{step, std::move(cp.commands), "instructor"};
+        if (j.contains("by")) {
+          if (!j["by"].is_string() || j["by"].get<std::string>().empty() || j["by"].get<std::string>().size() > 64) {
+            out.issues.push_back({where, "by: must be a non-empty string of at most 64 characters", false});
+            return out;
+          }
+          batch.by = j["by"].get<std::string>();
+        }
+        run.commands.push_back(std::move(batch));
       }
       run.last_step = std::max(run.last_step, step);
+    } else if (type == "script") {
+      // An instructor's edit of an exercise's script, for the record: what the script fired is in
+      // the command records (by "script"), so replay has nothing to do here.
     } else {
       out.issues.push_back({where, "unknown record type \"" + type + "\"", false});
       return out;

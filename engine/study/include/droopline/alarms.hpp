@@ -68,10 +68,36 @@ class AlarmMonitor {
   const Alarm* find(std::uint64_t id) const;
   const AlarmLimits& limits() const { return limits_; }
 
+  /// How long a level condition must hold before its alarm is raised (s), and how long its value
+  /// must stay back inside the clear threshold before it is cleared (s).
+  static constexpr double kRaiseDwellS = 0.5;
+  static constexpr double kClearDwellS = 2.0;
+  /// A level alarm clears only once its value is this share of the way back inside the threshold
+  /// (a deviation under 0.9 x its limit; a low reserve or battery above 1.1 x its threshold).
+  static constexpr double kClearMargin = 0.1;
+
  private:
+  // One condition watched every update (kind, subject), with its hold timers.
+  struct Watch {
+    int kind = 0;                       // index into the level kinds (alarms.cpp)
+    std::uint32_t subject = 0;          // area, tie or unit index
+    std::optional<double> beyond_since_s;  // the condition has held since
+    std::optional<double> calm_since_s;    // the value has been back inside the clear threshold since
+    std::optional<std::size_t> active;     // index into alarms_ of its active alarm
+  };
+  void level(Watch& w, bool beyond, bool calm, double t_s, double raise_dwell_s, std::vector<AlarmChange>& changes,
+             const std::string& message);
+  std::uint64_t raise(std::string kind, std::uint32_t subject, const std::string& message, double t_s);
+
   // implementation state (value types only: the monitor is copied into save points)
   AlarmLimits limits_;
   std::vector<Alarm> alarms_;
+  std::vector<Watch> watches_;
+  double f0_hz_ = 50.0;
+  std::vector<std::string> area_ids_, tie_ids_, unit_ids_;
+  std::vector<std::uint32_t> tie_from_, tie_to_, unit_area_;
+  std::vector<double> tie_pmax_mw_, battery_mwh_;  // battery_mwh_: 0 for other units
+  std::vector<double> ace_limit_mw_;               // per area
 };
 
 /// One alarm as JSON (`id`, `kind`, `severity`, `area` (id), `areas`, `subject`, `message`, `raised_s`,

@@ -2,6 +2,7 @@
 // A training exercise: a scenario, a briefing, operator seats with the areas each answers for, a
 // hidden script of instructor events (timed or conditional), alarm thresholds and a time limit.
 // Parsed and checked like a scenario: every problem as `path: message`.
+#include <cstddef>
 #include <optional>
 #include <string>
 #include <string_view>
@@ -60,11 +61,21 @@ struct ExerciseLoad {
   std::vector<Issue> issues;         ///< errors first, then warnings
 };
 
+/// Most events a script may hold (file and additions together).
+inline constexpr std::size_t kMaxScriptEvents = 1000;
+
 /// Parses an exercise; a scenario given as a path is read relative to `base_dir`, and its problems
 /// are reported under `scenario.` + their path.
 ExerciseLoad parse_exercise(std::string_view json_text, const std::string& base_dir);
 /// Reads a file and parses it (the scenario path is relative to the file's folder).
 ExerciseLoad load_exercise_file(const std::string& path);
+/// Static checks of one script event against a system (time, condition's ids and thresholds, its
+/// command through `resolve`), each problem appended under `path` (`script[2].when.below_hz`).
+void check_script_event(const CheckedSystem& system, const ScriptEventDef& event, const std::string& path,
+                        std::vector<Issue>& issues);
+/// Reads one script event from untrusted JSON (`{"id"?, "at_s" | "when", "command", "note"?}`): shape
+/// and types only (check_script_event does the rest); nothing, with the problems, on error.
+std::optional<ScriptEventDef> parse_script_event(std::string_view json_text, std::vector<Issue>& issues);
 /// True when the JSON text looks like an exercise (an object with `seats` or `script`): lets
 /// `droopline check` take either kind of file.
 bool looks_like_exercise(std::string_view json_text);

@@ -23,6 +23,7 @@ struct ScriptEntry {
   ScriptState state = ScriptState::pending;
   std::optional<double> fired_at_s;   ///< the time it was scheduled to apply
   double held_s = 0.0;                ///< frequency_below: how long the condition has held so far
+  bool holding = false;               ///< frequency_below: the condition held at the last update
   std::string added_by;               ///< "" from the file, else who added it
 };
 
@@ -47,10 +48,16 @@ class ScriptRunner {
   /// Adds an event (checked against the system: ids and bounds); its id is made when empty.
   bool add(ScriptEventDef event, const std::string& by, double now_s, std::string& why);
   const std::vector<ScriptEntry>& entries() const { return entries_; }
+  /// After a restore to `step`: entries that fired for a later step are pending again (their
+  /// conditions start holding afresh).
+  void rewound(std::int64_t step);
 
  private:
-  // value types only
+  ScriptEntry* find(const std::string& id, std::string& why);
+  // value types only (CheckedSystem shares an immutable definition)
+  CheckedSystem system_;
   std::vector<ScriptEntry> entries_;
+  std::optional<double> last_t_s_;  // time of the last due(): conditions hold for the time between
 };
 
 /// The script as JSON for the instructor (`GET /api/v1/script`): each event's id, time or

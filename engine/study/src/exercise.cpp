@@ -1,0 +1,362 @@
+// Reading an exercise file: the JSON shape with `path: message` errors (the scenario reader's
+// field Reader), the scenario (inline, or a file beside the exercise), seats, the hidden script
+// (each command through the one static checker, `resolve`), alarm thresholds and the time limit.
+#include "droopline/exercise.hpp"
+
+#include <algorithm>
+#include <cmath>
+#include <filesystem>
+#include <fstream>
+#include <map>
+#include <set>
+
+#include "droopline/format.hpp"
+#include "droopline/json_input.hpp"
+#include "droopline/scenario_io.hpp"
+#include "json_fields.hpp"
+
+namespace droopline::study {
+
+using namespace droopline::detail;  // the JSON field Reader (json_fields.hpp)
+
+namespace {
+
+// Bounds of an exercise file: what a training session can use, generously. Everything a client
+// sends over HTTP passes through them.
+constexpr std::size_t kMaxSeats = 32;
+constexpr std::size_t kMaxSeatAreas = 1000;
+constexpr std::size_t kMaxNameChars = 200;
+constexpr std::size_t kMaxBriefingChars = 20000;
+constexpr std::size_t kMaxNoteChars = 1000;
+constexpr double kMaxTimeS = 1e7;  // the scenario loader's bound on duration_s (about 115 days)
+constexpr double kMaxHoldS = 1e4;  // the loader's bound on any delay
+
+bool valid_short_id(const std::string& id) {
+  if (id.empty() || id.size() > 32) return false;
+  return std::all_of(id.begin(), id.end(), [](char c) {
+    return (c >= 'a' && c <= 'z') || (c >= 'A' && c <= 'Z') || (c >= '0' && c <= '9') || c == '_' || c == '-';
+  });
+}
+
+std::string quote_id(const std::string& s) { return "\"" + clip_text(s, 64) + "\""; }
+
+void text_field(Reader& r, const ijson& j, const std::string& key, const std::string& path, std::string& out,
+                std::size_t max_chars, bool required) {
+  r.string(j, key, path, out, required);
+  if (out.size() > max_chars) {
+    r.error(join(path, key),
+            "must be at most " + std::to_string(max_chars) + " characters, got " + std::to_string(out.size()));
+    out.clear();
+  }
+}
+
+void read_condition(Reader& r, const ijson& j, const std::string& p, ScriptCondition& c) {
+  if (!j.is_object()) {
+    r.error(p, std::string("must be an object, got ") + type_name(j));
+    return;
+  }
+  static const std::vector<std::pair<const char*, ScriptCondition::Kind>> kKinds = {
+      {"frequency_below", ScriptCondition::Kind::frequency_below}, {"tie_above", ScriptCondition::Kind::tie_above}};
+  if (!r.choice(j, "kind", p, kKinds, c.kind, true)) return;
+  if (c.kind == ScriptCondition::Kind::frequency_below) {
+    if (!r.object(j, p, {"kind", "area", "below_hz", "for_s"})) return;
+    r.string(j, "area", p, c.area, true);
+    r.number(j, "below_hz", p, c.below_hz, true);
+    r.number(j, "for_s", p, c.for_s);
+  } else {
+    if (!r.object(j, p, {"kind", "tie", "above_pct"})) return;
+    r.string(j, "tie", p, c.tie, true);
+    r.number(j, "above_pct", p, c.above_pct, true);
+  }
+}
+
+// One script event's fields (shape and types; references and bounds: check_script_event).
+ScriptEventDef read_event(Reader& r, const ijson& j, const std::string& p, bool with_id) {
+  ScriptEventDef ev;
+  if (with_id ? !r.object(j, p, {"id", "at_s", "when", "command", "note"})
+              : !r.object(j, p, {"at_s", "when", "command", "note"}))
+    return ev;
+  if (with_id) r.string(j, "id", p, ev.id);
+  r.number(j, "at_s", p, ev.at_s);
+  if (const ijson* w = r.field(j, "when", p, false)) {
+    ScriptCondition c;
+    read_condition(r, *w, join(p, "when"), c);
+    ev.when = c;
+  }
+  if (j.contains("at_s") == j.contains("when"))
+    r.error(p, "needs exactly one of \"at_s\" (a time) and \"when\" (a condition)");
+  if (const ijson* c = r.field(j, "command", p, true))
+    if (auto cmd = read_command(r, *c, join(p, "command"), false, nullptr)) ev.command = *cmd;
+  text_field(r, j, "note", p, ev.note, kMaxNoteChars, false);
+  return ev;
+}
+
+void read_alarms(Reader& r, const ijson& j, const std::string& p, AlarmLimits& a) {
+  if (!r.object(j, p,
+                {"standard_band_hz", "limit_band_hz", "rocof_hz_per_s", "tie_loading_pct", "reserve_mw", "ace_mw",
+                 "ace_for_s", "battery_energy_pct"}))
+    return;
+  r.number(j, "standard_band_hz", p, a.standard_band_hz);
+  r.number(j, "limit_band_hz", p, a.limit_band_hz);
+  r.number(j, "rocof_hz_per_s", p, a.rocof_hz_per_s);
+  r.number(j, "tie_loading_pct", p, a.tie_loading_pct);
+  r.number(j, "reserve_mw", p, a.reserve_mw);
+  r.number(j, "ace_mw", p, a.ace_mw);
+  r.number(j, "ace_for_s", p, a.ace_for_s);
+  r.number(j, "battery_energy_pct", p, a.battery_energy_pct);
+}
+
+void within(std::vector<Issue>& out, const std::string& path, double v, double lo, double hi, bool lo_open) {
+  const bool ok = std::isfinite(v) && (lo_open ? v > lo : v >= lo) && v <= hi;
+  if (!ok)
+    out.push_back({path,
+                   std::string("must lie within ") + (lo_open ? "(" : "[") + fmt_num(lo) + ", " + fmt_num(hi) +
+                       "], got " + fmt_num(v),
+                   false});
+}
+
+void check_alarms(const AlarmLimits& a, double f0, std::vector<Issue>& out) {
+  within(out, "alarms.standard_band_hz", a.standard_band_hz, 0.0, 0.2 * f0, true);
+  within(out, "alarms.limit_band_hz", a.limit_band_hz, 0.0, 0.2 * f0, true);
+  if (std::isfinite(a.standard_band_hz) && std::isfinite(a.limit_band_hz) && a.limit_band_hz < a.standard_band_hz)
+    out.push_back(
+        {"alarms.limit_band_hz",
+         "must be at least standard_band_hz (" + fmt_num(a.standard_band_hz) + "), got " + fmt_num(a.limit_band_hz),
+         false});
+  within(out, "alarms.rocof_hz_per_s", a.rocof_hz_per_s, 0.0, 100.0, true);
+  within(out, "alarms.tie_loading_pct", a.tie_loading_pct, 0.0, 100.0, true);
+  within(out, "alarms.reserve_mw", a.reserve_mw, 0.0, 2e6, false);
+  within(out, "alarms.ace_mw", a.ace_mw, 0.0, 2e6, false);
+  within(out, "alarms.ace_for_s", a.ace_for_s, 0.0, kMaxHoldS, false);
+  within(out, "alarms.battery_energy_pct", a.battery_energy_pct, 0.0, 100.0, false);
+}
+
+void check_seats(const std::vector<SeatDef>& seats, const SystemIndex& index, std::vector<Issue>& out) {
+  std::map<std::string, std::size_t> ids;
+  std::map<std::string, std::size_t> owner;  // area -> seat
+  for (std::size_t i = 0; i < seats.size(); ++i) {
+    const std::string p = "seats[" + std::to_string(i) + "]";
+    const SeatDef& s = seats[i];
+    if (!valid_short_id(s.id))
+      out.push_back({p + ".id", "must be 1-32 letters, digits, '_' or '-', got " + quote_id(s.id), false});
+    else if (auto [it, fresh] = ids.emplace(s.id, i); !fresh)
+      out.push_back(
+          {p + ".id", "duplicate id " + quote_id(s.id) + " (also seats[" + std::to_string(it->second) + "])", false});
+    if (s.areas.empty()) out.push_back({p + ".areas", "must name at least one area", false});
+    for (std::size_t k = 0; k < s.areas.size(); ++k) {
+      const std::string ap = p + ".areas[" + std::to_string(k) + "]";
+      if (!index.area(s.areas[k])) {
+        out.push_back({ap, "no area " + quote_id(s.areas[k]) + " in the scenario", false});
+        continue;
+      }
+      auto [it, fresh] = owner.emplace(s.areas[k], i);
+      if (!fresh)
+        out.push_back({ap,
+                       it->second == i ? "area " + quote_id(s.areas[k]) + " is listed twice"
+                                       : "area " + quote_id(s.areas[k]) + " already belongs to seats[" +
+                                             std::to_string(it->second) + "]",
+                       false});
+    }
+  }
+}
+
+// The scenario: inline, or a path relative to `base_dir` that stays within it (no absolute path,
+// no `..`): an exercise folder can be handed around whole, and a file cannot reach elsewhere.
+std::optional<CheckedSystem> read_scenario(const ijson& j, const std::string& base_dir, ExerciseDef& def,
+                                           std::vector<Issue>& out) {
+  const ijson* s = nullptr;
+  if (auto it = j.find("scenario"); it != j.end()) s = &*it;
+  if (!s) {
+    out.push_back({"scenario", "required", false});
+    return std::nullopt;
+  }
+  LoadResult loaded;
+  if (s->is_object()) {
+    loaded = parse_scenario(s->dump());  // passed the gate already: depth and size are bounded
+  } else if (s->is_string()) {
+    def.scenario_path = s->get<std::string>();
+    const std::filesystem::path rel(def.scenario_path);
+    if (base_dir.empty()) {
+      out.push_back({"scenario", "must be given inline (an object) here, not as a path", false});
+      return std::nullopt;
+    }
+    const bool escapes = std::any_of(rel.begin(), rel.end(), [](const auto& part) { return part == ".."; });
+    if (def.scenario_path.empty() || rel.is_absolute() || rel.has_root_name() || escapes) {
+      out.push_back(
+          {"scenario",
+           "must be a path relative to the exercise file's folder, without \"..\", got " + quote_id(def.scenario_path),
+           false});
+      return std::nullopt;
+    }
+    loaded = load_scenario_file((std::filesystem::path(base_dir) / rel).string());
+  } else {
+    out.push_back({"scenario", std::string("must be an object or a path, got ") + type_name(*s), false});
+    return std::nullopt;
+  }
+  for (Issue& i : loaded.issues) {
+    i.path = i.path.empty() || i.path == "file" || i.path == "json" ? "scenario" : "scenario." + i.path;
+    out.push_back(std::move(i));
+  }
+  return loaded.system;
+}
+
+}  // namespace
+
+void check_script_event(const CheckedSystem& system, const ScriptEventDef& ev, const std::string& path,
+                        std::vector<Issue>& issues) {
+  const SystemDef& def = system.def();
+  if (ev.at_s) within(issues, join(path, "at_s"), *ev.at_s, 0.0, kMaxTimeS, false);
+  if (ev.when) {
+    const ScriptCondition& c = *ev.when;
+    const std::string wp = join(path, "when");
+    if (c.kind == ScriptCondition::Kind::frequency_below) {
+      if (!system.index().area(c.area)) issues.push_back({wp + ".area", "no area " + quote_id(c.area), false});
+      // The same range as a shedding stage's pickup: below nominal, above zero.
+      if (!(std::isfinite(c.below_hz) && c.below_hz > 0.0 && c.below_hz < def.nominal_hz))
+        issues.push_back(
+            {wp + ".below_hz",
+             "must lie between 0 and nominal_hz (" + fmt_num(def.nominal_hz) + "), got " + fmt_num(c.below_hz), false});
+      within(issues, wp + ".for_s", c.for_s, 0.0, kMaxHoldS, false);
+    } else {
+      if (!system.index().tie(c.tie)) issues.push_back({wp + ".tie", "no tie " + quote_id(c.tie), false});
+      within(issues, wp + ".above_pct", c.above_pct, 0.0, 100.0, true);
+    }
+  }
+  resolve(system, ev.command, join(path, "command"), issues);
+}
+
+std::optional<ScriptEventDef> parse_script_event(std::string_view json_text, std::vector<Issue>& issues) {
+  auto j = parse_untrusted_json(json_text, issues, JsonLimits{16, 64u << 10});
+  if (!j) return std::nullopt;
+  const std::size_t before = issues.size();
+  Reader r(issues);
+  ScriptEventDef ev = read_event(r, *j, "", true);
+  if (issues.size() != before) return std::nullopt;
+  return ev;
+}
+
+ExerciseLoad parse_exercise(std::string_view json_text, const std::string& base_dir) {
+  ExerciseLoad out;
+  auto j = parse_untrusted_json(json_text, out.issues);
+  if (!j) return out;
+  Reader r(out.issues);
+  ExerciseDef def;
+  if (!r.object(*j, "", {"name", "briefing", "scenario", "seats", "script", "alarms", "time_limit_s", "description"}))
+    return out;
+  text_field(r, *j, "name", "", def.name, kMaxNameChars, true);
+  text_field(r, *j, "briefing", "", def.briefing, kMaxBriefingChars, true);
+  std::string description;
+  text_field(r, *j, "description", "", description, kMaxBriefingChars, false);
+  r.number(*j, "time_limit_s", "", def.time_limit_s, true);
+  if (const ijson* seats = r.array(*j, "seats", "", true)) {
+    if (seats->size() > kMaxSeats)
+      r.error("seats", "at most " + std::to_string(kMaxSeats) + " seats, got " + std::to_string(seats->size()));
+    else
+      for (std::size_t i = 0; i < seats->size(); ++i) {
+        const std::string p = "seats[" + std::to_string(i) + "]";
+        const ijson& s = (*seats)[i];
+        SeatDef seat;
+        if (r.object(s, p, {"id", "name", "areas"})) {
+          r.string(s, "id", p, seat.id, true);
+          text_field(r, s, "name", p, seat.name, kMaxNameChars, true);
+          if (const ijson* areas = r.array(s, "areas", p, true)) {
+            if (areas->size() > kMaxSeatAreas)
+              r.error(p + ".areas",
+                      "at most " + std::to_string(kMaxSeatAreas) + " areas, got " + std::to_string(areas->size()));
+            for (std::size_t k = 0; k < areas->size() && k < kMaxSeatAreas; ++k) {
+              if ((*areas)[k].is_string())
+                seat.areas.push_back((*areas)[k].get<std::string>());
+              else
+                r.error(p + ".areas[" + std::to_string(k) + "]",
+                        std::string("must be a string, got ") + type_name((*areas)[k]));
+            }
+          }
+        }
+        def.seats.push_back(std::move(seat));
+      }
+  }
+  if (const ijson* script = r.array(*j, "script", "", false)) {
+    if (script->size() > kMaxScriptEvents)
+      r.error("script",
+              "at most " + std::to_string(kMaxScriptEvents) + " events, got " + std::to_string(script->size()));
+    else
+      for (std::size_t i = 0; i < script->size(); ++i)
+        def.script.push_back(read_event(r, (*script)[i], "script[" + std::to_string(i) + "]", true));
+  }
+  AlarmLimits file_alarms;  // zero: left out
+  bool has_alarms = false;
+  if (const ijson* a = r.field(*j, "alarms", "", false)) {
+    read_alarms(r, *a, "alarms", file_alarms);
+    has_alarms = a->is_object();
+  }
+  std::optional<CheckedSystem> system = read_scenario(*j, base_dir, def, out.issues);
+  if (has_errors(out.issues)) return out;  // shape errors first: the checks below would only echo them
+
+  std::vector<Issue>& issues = out.issues;
+  within(issues, "time_limit_s", def.time_limit_s, 0.0, kMaxTimeS, true);
+  check_seats(def.seats, system->index(), issues);
+  def.alarms = alarm_limits_for(system->def().nominal_hz);
+  if (has_alarms) {
+    const ijson& a = (*j)["alarms"];
+    auto over = [&](const char* key, double from, double& into) {
+      if (a.contains(key)) into = from;
+    };
+    over("standard_band_hz", file_alarms.standard_band_hz, def.alarms.standard_band_hz);
+    over("limit_band_hz", file_alarms.limit_band_hz, def.alarms.limit_band_hz);
+    over("rocof_hz_per_s", file_alarms.rocof_hz_per_s, def.alarms.rocof_hz_per_s);
+    over("tie_loading_pct", file_alarms.tie_loading_pct, def.alarms.tie_loading_pct);
+    over("reserve_mw", file_alarms.reserve_mw, def.alarms.reserve_mw);
+    over("ace_mw", file_alarms.ace_mw, def.alarms.ace_mw);
+    over("ace_for_s", file_alarms.ace_for_s, def.alarms.ace_for_s);
+    over("battery_energy_pct", file_alarms.battery_energy_pct, def.alarms.battery_energy_pct);
+  }
+  check_alarms(def.alarms, system->def().nominal_hz, issues);
+  std::set<std::string> script_ids;
+  for (std::size_t i = 0; i < def.script.size(); ++i) {
+    const std::string p = "script[" + std::to_string(i) + "]";
+    ScriptEventDef& ev = def.script[i];
+    if (!ev.id.empty()) {
+      if (!valid_short_id(ev.id))
+        issues.push_back({p + ".id", "must be 1-32 letters, digits, '_' or '-', got " + quote_id(ev.id), false});
+      else if (!script_ids.insert(ev.id).second)
+        issues.push_back({p + ".id", "duplicate id " + quote_id(ev.id), false});
+    }
+    check_script_event(*system, ev, p, issues);
+  }
+  for (std::size_t i = 0, n = 1; i < def.script.size(); ++i) {  // ids for those without: s1, s2, ... unused ones
+    if (!def.script[i].id.empty()) continue;
+    while (script_ids.count("s" + std::to_string(n))) ++n;
+    def.script[i].id = "s" + std::to_string(n);
+    script_ids.insert(def.script[i].id);
+  }
+  std::stable_partition(issues.begin(), issues.end(), [](const Issue& i) { return !i.warning; });
+  if (has_errors(issues)) return out;
+  out.exercise = Exercise{std::move(def), std::move(*system)};
+  return out;
+}
+
+ExerciseLoad load_exercise_file(const std::string& path) {
+  ExerciseLoad out;
+  std::error_code ec;
+  if (!std::filesystem::is_regular_file(path, ec)) {
+    out.issues.push_back({"file", "\"" + path + "\" is not a readable file", false});
+    return out;
+  }
+  std::ifstream in(path, std::ios::binary);
+  std::string text((std::istreambuf_iterator<char>(in)), std::istreambuf_iterator<char>());
+  if (!in && !in.eof()) {
+    out.issues.push_back({"file", "cannot read \"" + path + "\"", false});
+    return out;
+  }
+  std::string base = std::filesystem::path(path).parent_path().string();
+  if (base.empty()) base = ".";
+  return parse_exercise(text, base);
+}
+
+bool looks_like_exercise(std::string_view json_text) {
+  std::vector<Issue> ignored;
+  auto j = parse_untrusted_json(json_text, ignored);
+  return j && j->is_object() && (j->contains("seats") || j->contains("script"));
+}
+
+}  // namespace droopline::study

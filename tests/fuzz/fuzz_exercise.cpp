@@ -1,0 +1,28 @@
+// libFuzzer target: exercise JSON text (scenario inline: no folder is given) to a checked exercise
+// or an error list. Any crash, sanitizer report, hang or leak is a finding; every input must give
+// an exercise or issues, and a valid one must run its script and alarm monitor for a few steps.
+#include <cstdint>
+#include <cstdlib>
+#include <string_view>
+
+#include "droopline/alarms.hpp"
+#include "droopline/engine.hpp"
+#include "droopline/exercise.hpp"
+#include "droopline/script.hpp"
+
+extern "C" int LLVMFuzzerTestOneInput(const std::uint8_t* data, std::size_t size) {
+  const std::string_view text(reinterpret_cast<const char*>(data), size);
+  droopline::study::ExerciseLoad r = droopline::study::parse_exercise(text, "");
+  if (!r.exercise && r.issues.empty()) std::abort();  // refused without saying why
+  if (r.exercise) {
+    auto engine = droopline::Engine::create(r.exercise->system);
+    droopline::study::ScriptRunner script(r.exercise->system, r.exercise->def.script);
+    droopline::study::AlarmMonitor alarms(r.exercise->system, r.exercise->def.alarms);
+    for (int i = 0; i < 20; ++i) {
+      engine->step();
+      alarms.update(*engine, engine->take_notices());
+      script.due(*engine, 2);
+    }
+  }
+  return 0;
+}
