@@ -27,7 +27,7 @@ async function open(view, viewport = LAPTOP) {
 }
 
 // A seat joins with the code the instructor's page shows.
-async function join(seat) {
+async function joinSeat(seat) {
   const code = (await pages.instructor.page.locator(`#seats-table tr[data-seat="${seat}"] td.code`).textContent()).trim();
   const p = await open('seat');
   await p.page.fill('#seat-code', code.toLowerCase()); // typed as a trainee might
@@ -46,8 +46,8 @@ before(async () => {
   await pages.instructor.page.fill('#token', TOKEN);
   await pages.instructor.page.click('#auth-form button');
   await pages.instructor.page.waitForSelector('#seats-table tbody tr[data-seat="east-desk"]', { timeout: 8000 });
-  pages.west = await join('west-desk');
-  pages.east = await join('east-desk');
+  pages.west = await joinSeat('west-desk');
+  pages.east = await joinSeat('east-desk');
 });
 
 after(async () => {
