@@ -2,17 +2,21 @@
 // The session goes back to its last good checkpoint, pauses, refuses commands and resume, tells
 // every client why, and comes back clean on a reset. Also: the event log keeps one entry per
 // disturbance with its latest state, and a reset empties it.
+#include <unistd.h>
+
 #include <chrono>
 #include <cmath>
 #include <condition_variable>
+#include <filesystem>
+#include <fstream>
 #include <future>
 #include <limits>
 #include <map>
 #include <mutex>
+#include <nlohmann/json.hpp>
 #include <thread>
 
-#include <nlohmann/json.hpp>
-
+#include "droopline/journal_read.hpp"
 #include "droopline/scenario_io.hpp"
 #include "live_session.hpp"
 #include "support.hpp"
@@ -61,6 +65,15 @@ T on_loop(LiveSession& s, std::function<T(Engine&)> fn) {
   return p.get_future().get();
 }
 
+// A load step in the demo's area "oskany" (MW).
+Command load_step(double mw) {
+  Command c;
+  c.kind = CommandKind::load_step;
+  c.area = "oskany";
+  c.mw = mw;
+  return c;
+}
+
 LiveSession::Result call(std::function<void(LiveSession::Done)> fn) {
   std::promise<LiveSession::Result> p;
   fn([&](LiveSession::Result r) { p.set_value(std::move(r)); });
@@ -89,7 +102,9 @@ TEST_CASE("a non-finite state is never streamed: the session keeps the last good
   CHECK(why.find("the instructor can reset it") != std::string::npos);
   CHECK(s.paused());
   // The state kept is a real one from before the poison, at most a second back.
-  const auto [t, finite] = on_loop<std::pair<double, bool>>(s, [](Engine& e) { return std::pair{e.time_s(), e.finite()}; });
+  const auto [t, finite] = on_loop<std::pair<double, bool>>(s, [](Engine& e) {
+    return std::pair{e.time_s(), e.finite()};
+  });
   CHECK(finite);
   CHECK(t <= poisoned_at);
   CHECK(t >= poisoned_at - 1.0 - 1e-9);
@@ -101,17 +116,14 @@ TEST_CASE("a non-finite state is never streamed: the session keeps the last good
         for (auto& [id, a] : j["areas"].items()) CHECK(a["f_hz"].is_number());
   }
   // Commands and resume are refused with the reason; a reset brings it back.
-  Command step;
-  step.kind = CommandKind::load_step;
-  step.area = "oskany";
-  step.mw = 10;
-  const LiveSession::Result refused = call([&](auto done) { s.apply({step}, done); });
+  Command step = load_step(10);
+  const LiveSession::Result refused = call([&](auto done) { s.apply({step}, "instructor", done); });
   CHECK(refused.status == 409);
   CHECK(refused.error.find("stopped being a finite number") != std::string::npos);
   CHECK(call([&](auto done) { s.resume(done); }).status == 409);
   CHECK(call([&](auto done) { s.reset(done); }).status == 200);
   CHECK(call([&](auto done) { s.resume(done); }).status == 200);
-  CHECK(call([&](auto done) { s.apply({step}, done); }).status == 200);
+  CHECK(call([&](auto done) { s.apply({step}, "instructor", done); }).status == 200);
   // The reset started a clean log: the halt is gone from what a new client is greeted with.
   std::promise<std::shared_ptr<const HelloSnapshot>> hp;
   s.hello([&](auto snap) { hp.set_value(std::move(snap)); });
@@ -125,11 +137,8 @@ TEST_CASE("the event log keeps each disturbance once, in its latest state") {
   LiveConfig cfg;
   cfg.speed = 10.0;
   LiveSession s(demo(), cfg, [&](const Outgoing& o) { inbox.put(o); });
-  Command step;
-  step.kind = CommandKind::load_step;
-  step.area = "oskany";
-  step.mw = 60;
-  REQUIRE(call([&](auto done) { s.apply({step}, done); }).status == 200);
+  Command step = load_step(60);
+  REQUIRE(call([&](auto done) { s.apply({step}, "instructor", done); }).status == 200);
   // Wait until the open disturbance has been updated a few times (its nadir has moved).
   REQUIRE(inbox.wait_for([](const json& j) { return j["type"] == "disturbance" && j["seq"].get<int>() > 8; }));
   std::this_thread::sleep_for(std::chrono::milliseconds(1500));
@@ -161,4 +170,68 @@ TEST_CASE("the event log keeps each disturbance once, in its latest state") {
   REQUIRE(after.size() == 1);
   CHECK(after[0]["kind"] == "reset");
   s.stop();
+}
+
+TEST_CASE("every applied command carries its author in the reply and the event log and the stream and the journal") {
+  const std::string journal =
+      (std::filesystem::temp_directory_path() / ("droopline-test-authors-" + std::to_string(::getpid()) + ".jsonl"))
+          .string();
+  std::filesystem::remove(journal);
+  Inbox inbox;
+  LiveConfig cfg;
+  cfg.speed = 10.0;
+  cfg.journal_path = journal;
+  LiveSession s(demo(), cfg, [&](const Outgoing& o) { inbox.put(o); });
+  Command step = load_step(20);
+  const LiveSession::Result by_seat = call([&](auto done) { s.apply({step}, "seat-west", done); });
+  REQUIRE(by_seat.status == 200);
+  CHECK(by_seat.data["by"] == "seat-west");
+  step.mw = -20;
+  const LiveSession::Result by_instructor = call([&](auto done) { s.apply({step}, "instructor", done); });
+  REQUIRE(by_instructor.status == 200);
+  CHECK(by_instructor.data["by"] == "instructor");
+  // The stream and the log: each command's notice names its author.
+  auto streamed = inbox.wait_for(
+      [](const json& j) { return j.value("kind", "") == "command" && j.value("by", "") == "seat-west"; });
+  CHECK(streamed);
+  std::vector<std::string> authors;
+  const json log = json::parse(s.events(0))["events"];
+  for (const json& e : log)
+    if (e.value("kind", "") == "command") authors.push_back(e.value("by", "(none)"));
+  CHECK(authors == std::vector<std::string>{"seat-west", "instructor"});
+  s.stop();
+  // The journal: each commands record has "by", and it reads back.
+  std::ifstream in(journal);
+  std::vector<std::string> journalled;
+  for (std::string line; std::getline(in, line);)
+    if (json j = json::parse(line); j["type"] == "commands") journalled.push_back(j["by"]);
+  CHECK(journalled == std::vector<std::string>{"seat-west", "instructor"});
+  const JournalRead back = read_journal(journal);
+  REQUIRE(back.issues.empty());
+  REQUIRE(back.runs.size() == 1);
+  REQUIRE(back.runs[0].commands.size() == 2);
+  CHECK(back.runs[0].commands[0].by == "seat-west");
+  CHECK(back.runs[0].commands[1].by == "instructor");
+  std::filesystem::remove(journal);
+}
+
+TEST_CASE("a journal from before authors reads back with the instructor as the author and a bad author is refused") {
+  const auto path =
+      std::filesystem::temp_directory_path() / ("droopline-test-old-journal-" + std::to_string(::getpid()));
+  const json scenario = json::parse(scenario_to_json(demo().def()).dump());
+  auto write = [&](const std::string& commands_line) {
+    std::ofstream out(path, std::ios::trunc);
+    out << json{{"type", "scenario"}, {"step", 0}, {"scenario", scenario}}.dump() << '\n' << commands_line << '\n';
+  };
+  write(R"({"type":"commands","step":5,"commands":[{"kind":"load_step","area":"oskany","mw":10}]})");
+  JournalRead old = read_journal(path.string());
+  REQUIRE(old.issues.empty());
+  REQUIRE(old.runs.at(0).commands.size() == 1);
+  CHECK(old.runs[0].commands[0].by == "instructor");
+  CHECK(old.runs[0].commands[0].step == 5);
+  write(R"({"type":"commands","step":5,"commands":[{"kind":"load_step","area":"oskany","mw":10}],"by":7})");
+  JournalRead bad = read_journal(path.string());
+  REQUIRE(bad.issues.size() == 1);
+  CHECK(bad.issues[0].text() == "journal line 2: by: must be a non-empty string of at most 64 characters");
+  std::filesystem::remove(path);
 }

@@ -169,8 +169,8 @@ int replay(const std::string& journal, const std::string& out_dir, int run_numbe
   std::vector<Notice> notices;
   std::size_t next = 0;
   auto apply_due = [&] {
-    while (next < run.commands.size() && run.commands[next].first <= engine.step_index()) {
-      const auto& [step, batch] = run.commands[next];
+    while (next < run.commands.size() && run.commands[next].step <= engine.step_index()) {
+      const auto& [step, batch, by] = run.commands[next];
       // Resolved (ids, static checks) and applied (state checks) as the live pipeline did.
       const Resolved resolved = resolve_all(engine.system(), batch);
       const ApplyResult r = resolved.issues.empty() ? engine.apply_all(resolved.actions) : ApplyResult{};
@@ -180,7 +180,8 @@ int replay(const std::string& journal, const std::string& out_dir, int run_numbe
       } else {
         nlohmann::ordered_json cmds = nlohmann::ordered_json::array();
         for (const Command& c : batch) cmds.push_back(command_to_json(c));
-        applied.stream() << nlohmann::ordered_json{{"step", step}, {"t_s", r.at_s}, {"commands", cmds}}.dump() << '\n';
+        applied.stream() << nlohmann::ordered_json{{"step", step}, {"t_s", r.at_s}, {"commands", cmds}, {"by", by}}.dump()
+                         << '\n';
       }
       ++next;
     }

@@ -27,8 +27,8 @@ void CommandPipeline::refuse(const std::vector<Command>& commands, const Done& d
   done(refused(status, why));
 }
 
-bool CommandPipeline::submit(const Engine& engine, std::vector<Command> commands, std::int64_t earliest_step,
-                             Done done) {
+bool CommandPipeline::submit(const Engine& engine, std::vector<Command> commands, std::string author,
+                             std::int64_t earliest_step, Done done) {
   Resolved resolved = resolve_all(engine.system(), commands);
   if (!resolved.issues.empty()) {
     refused_.fetch_add(commands.size());
@@ -45,8 +45,9 @@ bool CommandPipeline::submit(const Engine& engine, std::vector<Command> commands
   if (!pending_.empty()) step = std::max(step, pending_.back().step);
   json cmds = json::array();
   for (const Command& c : commands) cmds.push_back(command_to_json(c));
-  auto outcome = journal_.submit(json{{"type", "commands"}, {"step", step}, {"commands", cmds}}.dump());
-  pending_.push_back({step, std::move(resolved.actions), std::move(done), std::move(outcome)});
+  auto outcome =
+      journal_.submit(json{{"type", "commands"}, {"step", step}, {"commands", cmds}, {"by", author}}.dump());
+  pending_.push_back({step, std::move(resolved.actions), std::move(author), std::move(done), std::move(outcome)});
   return true;
 }
 
@@ -64,7 +65,7 @@ bool CommandPipeline::ready(std::int64_t step) const {
   return false;
 }
 
-void CommandPipeline::apply_due(Engine& engine, const std::function<void()>& applied) {
+void CommandPipeline::apply_due(Engine& engine, const std::function<void(const Applied&)>& applied) {
   if (pending_.empty()) return;
   for (auto it = pending_.begin(); it != pending_.end();) {
     if (it->outcome->state.load(std::memory_order_acquire) != JournalWriter::failed) {
@@ -87,9 +88,12 @@ void CommandPipeline::apply_due(Engine& engine, const std::function<void()>& app
       continue;
     }
     applied_.fetch_add(p.actions.size());
-    applied();
-    p.done(
-        accepted(json{{"ok", true}, {"applied", p.actions.size()}, {"t_s", r.at_s}, {"step", engine.step_index()}}));
+    applied({engine.step_index(), p.actions, p.author});
+    p.done(accepted(json{{"ok", true},
+                         {"applied", p.actions.size()},
+                         {"t_s", r.at_s},
+                         {"step", engine.step_index()},
+                         {"by", p.author}}));
   }
 }
 

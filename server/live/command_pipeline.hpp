@@ -48,15 +48,25 @@ class CommandPipeline {
 
   /// Resolves `commands` against `engine`'s system (ids, static checks), checks them against its
   /// state, schedules them for `earliest_step` or later (never before one already waiting) and
-  /// submits their record; false (nothing kept) with `done` answered when a check refuses them.
-  bool submit(const Engine& engine, std::vector<Command> commands, std::int64_t earliest_step, Done done);
+  /// submits their record with `author` (who sent them: "instructor", a seat id, "script"); false
+  /// (nothing kept) with `done` answered when a check refuses them.
+  bool submit(const Engine& engine, std::vector<Command> commands, std::string author, std::int64_t earliest_step,
+              Done done);
   /// The next command is due at `step` but its record is not on disk yet (the loop waits).
   bool due_unwritten(std::int64_t step) const;
   /// apply_due() has something to do at `step`.
   bool ready(std::int64_t step) const;
+  /// What was applied, told to the caller right after `Engine::apply_all` and before the answer:
+  /// the notices the engine holds then are this batch's (the loop takes them after every step).
+  struct Applied {
+    std::int64_t step;                   ///< the step it was applied at
+    const std::vector<Action>& actions;  ///< the resolved actions
+    const std::string& author;           ///< who sent them
+  };
   /// Answers the commands whose record failed; applies the durable ones whose step has come,
-  /// calling `applied` after each (for the notices), and answers them.
-  void apply_due(Engine& engine, const std::function<void()>& applied);
+  /// calling `applied` after each (for the notices, their author and the save points' log), and
+  /// answers them.
+  void apply_due(Engine& engine, const std::function<void(const Applied&)>& applied);
   /// The step of the next waiting command, or -1.
   std::int64_t next_step() const { return pending_.empty() ? -1 : pending_.front().step; }
   /// Refuses every waiting command with `status` and `why`.
@@ -68,6 +78,7 @@ class CommandPipeline {
   struct Pending {
     std::int64_t step;
     std::vector<Action> actions;  // resolved once, applied at `step`
+    std::string author;           // who sent them
     Done done;
     std::shared_ptr<const JournalWriter::Outcome> outcome;
   };

@@ -7,7 +7,9 @@
 // ahead of later records. The reader (`droopline replay`) is droopline/journal_read.hpp.
 //
 //   {"type":"scenario","step":0,"scenario":{...}}     a scenario was loaded (or the session reset)
-//   {"type":"commands","step":N,"commands":[...]}     commands applied before step N
+//   {"type":"commands","step":N,"commands":[...],"by":"instructor"}
+//                                                     commands applied before step N, and who sent
+//                                                     them (absent in older journals: the instructor)
 //   {"type":"stop","step":N}                          graceful shutdown after N steps
 #include <atomic>
 #include <condition_variable>

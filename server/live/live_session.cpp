@@ -245,11 +245,13 @@ bool LiveSession::guard_step() {
   return false;
 }
 
-void LiveSession::drain_notices() {
+void LiveSession::drain_notices(const std::string& by) {
   for (const Notice& n : engine_->take_notices()) {
     const std::string text = describe(engine_->def(), n);
     if (n.kind != NoticeKind::command) spdlog::info("t = {:.2f} s: {}", n.t_s, text);
-    push_event(json{{"type", "event"}, {"t_s", n.t_s}, {"kind", to_string(n.kind)}, {"text", text}});
+    json event{{"type", "event"}, {"t_s", n.t_s}, {"kind", to_string(n.kind)}, {"text", text}};
+    if (!by.empty() && n.kind == NoticeKind::command) event["by"] = by;
+    push_event(std::move(event));
   }
   // Each disturbance is announced when it begins (metrics still filling in, "open": true) and
   // again, complete, when its window ends.
@@ -260,8 +262,8 @@ void LiveSession::drain_notices() {
 
 // ------------------------------------------------------------------ requests
 
-void LiveSession::apply(std::vector<Command> commands, Done done) {
-  post([this, commands = std::move(commands), done = std::move(done)](Engine& e) mutable {
+void LiveSession::apply(std::vector<Command> commands, std::string author, Done done) {
+  post([this, commands = std::move(commands), author = std::move(author), done = std::move(done)](Engine& e) mutable {
     // Check, journal, apply: a command is applied and acknowledged only once its record is on
     // disk, at the step the record names; one refused by either changes nothing. The journal is
     // written on its own thread, so the command is scheduled a little ahead (journal_lead_s of
@@ -270,7 +272,7 @@ void LiveSession::apply(std::vector<Command> commands, Done done) {
     std::int64_t step = e.step_index();
     if (!paused_.load())
       step += static_cast<std::int64_t>(std::ceil(config_.journal_lead_s * speed_.load() / def().step_s));
-    pipeline_.submit(e, std::move(commands), step, std::move(done));
+    pipeline_.submit(e, std::move(commands), std::move(author), step, std::move(done));
   });
 }
 
@@ -278,7 +280,11 @@ bool LiveSession::due_unwritten() const { return pipeline_.due_unwritten(engine_
 
 bool LiveSession::pending_ready() const { return pipeline_.ready(engine_->step_index()); }
 
-void LiveSession::apply_due() { pipeline_.apply_due(*engine_, [this] { drain_notices(); }); }
+void LiveSession::apply_due() {
+  // The notices the engine holds right after apply_all are the batch's own: the loop takes them
+  // after every step, so none from a step can be waiting here.
+  pipeline_.apply_due(*engine_, [this](const CommandPipeline::Applied& a) { drain_notices(a.author); });
+}
 
 void LiveSession::settle_pending() {
   // Before a new scenario, a reset or the stop record: every durable command is applied at its

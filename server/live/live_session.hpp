@@ -92,8 +92,10 @@ class LiveSession {
   using Result = LiveResult;
   using Done = std::function<void(Result)>;
 
-  /// Applies commands atomically (all or none), journals them, then answers.
-  void apply(std::vector<Command> commands, Done done);
+  /// Applies commands atomically (all or none), journals them with `author` (who sent them:
+  /// "instructor", a seat id or "script"; in the journal, the command's event and the reply as
+  /// "by"), then answers.
+  void apply(std::vector<Command> commands, std::string author, Done done);
   /// Replaces the scenario (checked by the loader) and restarts from t = 0.
   void load(CheckedSystem system, Done done);
   /// Restarts the current scenario from t = 0.
@@ -137,7 +139,9 @@ class LiveSession {
   void settle_pending();        ///< waits for the writer and runs the engine to every pending step
   void rebase();
   void emit_frame(double wall_s);
-  void drain_notices();
+  /// Logs and sends the engine's notices and disturbances; `by`: the author of the commands just
+  /// applied (their command notices carry it), empty after a step.
+  void drain_notices(const std::string& by = {});
   void record_history();
   std::string state_json(double wall_s) const;
   /// Logs an event (a JSON object; "seq" is added) and sends it to every client.

@@ -52,7 +52,15 @@ JournalRead read_journal(const std::string& path) {
           out.issues.push_back({where, cp.issues.front().text(), false});
           return out;
         }
-        run.commands.emplace_back(step, cp.commands);
+        JournalBatch batch{step, std::move(cp.commands), "instructor"};
+        if (j.contains("by")) {
+          if (!j["by"].is_string() || j["by"].get<std::string>().empty() || j["by"].get<std::string>().size() > 64) {
+            out.issues.push_back({where, "by: must be a non-empty string of at most 64 characters", false});
+            return out;
+          }
+          batch.by = j["by"].get<std::string>();
+        }
+        run.commands.push_back(std::move(batch));
       }
       run.last_step = std::max(run.last_step, step);
     } else {

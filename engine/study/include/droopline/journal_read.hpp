@@ -3,7 +3,9 @@
 // one JSON object per line, a scenario record opening each run, then its commands and stop.
 //
 //   {"type":"scenario","step":0,"scenario":{...}}     a scenario was loaded (or the session reset)
-//   {"type":"commands","step":N,"commands":[...]}     commands applied before step N
+//   {"type":"commands","step":N,"commands":[...],"by":"instructor"}
+//                                                     commands applied before step N, and who sent
+//                                                     them (absent in older journals: the instructor)
 //   {"type":"stop","step":N}                          graceful shutdown after N steps
 #include <cstdint>
 #include <string>
@@ -15,10 +17,17 @@
 
 namespace droopline {
 
+/// One batch of commands as journalled.
+struct JournalBatch {
+  std::int64_t step = 0;          ///< applied before this step
+  std::vector<Command> commands;  ///< in the string form
+  std::string by = "instructor";  ///< who sent them ("by"; journals before authors were kept: the instructor)
+};
+
 /// One scenario-long stretch of a journal: the scenario and the commands applied to it.
 struct JournalRun {
   CheckedSystem system;  ///< the scenario as the loader checked it
-  std::vector<std::pair<std::int64_t, std::vector<Command>>> commands;  ///< (step, commands)
+  std::vector<JournalBatch> commands;  ///< in the order journalled
   std::int64_t last_step = 0;  ///< the stop record's step, else the last command's step
 };
 
