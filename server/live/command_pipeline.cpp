@@ -81,6 +81,7 @@ void CommandPipeline::apply_due(Engine& engine, const std::function<void(const A
          pending_.front().outcome->state.load(std::memory_order_acquire) == JournalWriter::durable) {
     Pending p = std::move(pending_.front());
     pending_.pop_front();
+    ++taken_;
     ApplyResult r = engine.apply_all(p.actions);
     if (!r.ok) {  // replay refuses it the same way
       refused_.fetch_add(p.actions.size());
