@@ -238,6 +238,18 @@ TEST_CASE("a journal from before authors reads back with the instructor as the a
   JournalRead bad = read_journal(path.string());
   REQUIRE(bad.issues.size() == 1);
   CHECK(bad.issues[0].text() == "journal line 2: by: must be a non-empty string of at most 64 characters");
+  // Save point, restore and rewind records are checked too.
+  write(R"({"type":"rewind","step":50,"taken":0,"to_step":60,"by":"instructor"})");
+  CHECK(read_journal(path.string()).issues.at(0).text() ==
+        "journal line 2: to_step: must not lie after the record's step");
+  write(R"({"type":"restore","step":50,"taken":0,"to_step":10})");
+  CHECK(read_journal(path.string()).issues.at(0).text() == "journal line 2: savepoint: must be a whole number from 0 to 2^53");
+  write(R"({"type":"savepoint","step":50,"taken":0,"id":1,"name":"a"})");
+  const JournalRead marked = read_journal(path.string());
+  REQUIRE(marked.issues.empty());
+  REQUIRE(marked.runs.at(0).marks.size() == 1);
+  CHECK(marked.runs[0].marks[0].name == "a");
+  CHECK(marked.runs[0].marks[0].line == 2);
   std::filesystem::remove(path);
 }
 
