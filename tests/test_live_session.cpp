@@ -272,7 +272,7 @@ double run_past(LiveSession& s, double t_s) {
 
 }  // namespace
 
-TEST_CASE("a live restore followed by the same commands gives the first branch bit for bit; a rewind goes back") {
+TEST_CASE("a live restore followed by the same commands gives the first branch bit for bit and a rewind goes back") {
   Inbox inbox;
   LiveConfig cfg;
   cfg.speed = 20.0;
