@@ -12,11 +12,12 @@
 // the actions applied at k; a rewind to step k gives that same state. A save point is the state as
 // it is when saved (actions already applied at its step included).
 //
-// Memory: each checkpoint is a full copy of the engine (about 0.4 kB per unit, a few kB per area;
-// `Timeline::copy_bytes` is the estimate used). The ring holds at most `keep_s / every_s + 2`
-// copies; for a large fleet the interval grows so that the ring stays within `budget_bytes`
-// (at least 4 copies: a 100,000-unit fleet keeps 4 copies 200 s apart, rewinds then simulate up
-// to 200 s). A save point shares its ring's copies with the present lineage where they are the
+// Memory: each checkpoint is a full copy of the engine (measured: 0.24 kB per unit of a mixed
+// fleet, 4.8 MB for 20,000 units; `Timeline::copy_bytes`, the estimate used, is about twice
+// that). The ring holds at most `keep_s / every_s + 2` copies; for a large fleet the interval
+// grows so that the estimate stays within `budget_bytes` (at least 4 copies: 20,000 units keep
+// 26 copies 25 s apart, 100,000 units 5 copies 200 s apart, and a rewind then simulates up to
+// 200 s). A save point shares its ring's copies with the present lineage where they are the
 // same; at most `kMaxSavePoints` are kept.
 #include <cstdint>
 #include <deque>
