@@ -189,7 +189,8 @@ void restore_savepoint(Services& s, Call& c) {
   const std::string& id = c.params.at(0);
   // Ids are 1, 2, ... : at most 15 digits keeps the number exact.
   if (id.empty() || id.size() > 15 || id.find_first_not_of("0123456789") != std::string::npos)
-    return c.error(404, "no save point " + quote_cut(id) + " (ids are whole numbers: GET /api/v1/savepoints lists them)");
+    return c.error(404,
+                   "no save point " + quote_cut(id) + " (ids are whole numbers: GET /api/v1/savepoints lists them)");
   s.live->restore(std::stoull(id), "instructor", answer(c));
 }
 

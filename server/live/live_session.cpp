@@ -441,8 +441,9 @@ void LiveSession::restore(std::uint64_t id, std::string author, Done done) {
   post([this, id, author = std::move(author), done = std::move(done)](Engine& e) {
     const study::SavePoint* sp = timeline_.find(id);
     if (!sp)
-      return done(refused(404, "no save point " + std::to_string(id) +
-                                   " in this run (GET /api/v1/savepoints lists them; a reset or a new scenario drops them)"));
+      return done(
+          refused(404, "no save point " + std::to_string(id) +
+                           " in this run (GET /api/v1/savepoints lists them; a reset or a new scenario drops them)"));
     if (!journal_mark(json{{"type", "restore"},
                            {"step", e.step_index()},
                            {"taken", pipeline_.taken()},
@@ -467,12 +468,9 @@ void LiveSession::rewind(double to_s, std::string author, Done done) {
                                    " s of this lineage and not ahead of now, from " + fmt_fixed(time_of(earliest), 2) +
                                    " s to " + fmt_fixed(e.time_s(), 2) + " s; got " + fmt_num(to_s) + " s"));
     const auto to = static_cast<std::int64_t>(to_steps);
-    if (!journal_mark(json{{"type", "rewind"},
-                           {"step", now},
-                           {"taken", pipeline_.taken()},
-                           {"to_step", to},
-                           {"by", author}},
-                      "rewind", done))
+    if (!journal_mark(
+            json{{"type", "rewind"}, {"step", now}, {"taken", pipeline_.taken()}, {"to_step", to}, {"by", author}},
+            "rewind", done))
       return;
     const double from_t_s = e.time_s();
     study::Resimulation hooks;
@@ -507,20 +505,18 @@ void LiveSession::go_back(study::SavedState state, double from_t_s, const study:
   store_.drop_after(t_s);
   rebase();
   const json which = savepoint ? json{{"id", savepoint->id}, {"name", savepoint->name}} : json(nullptr);
-  const std::string text = savepoint ? "save point \"" + savepoint->name + "\" restored: back from t = " +
-                                           fmt_fixed(from_t_s, 2) + " s to t = " + fmt_fixed(t_s, 2) + " s"
-                                     : "rewound from t = " + fmt_fixed(from_t_s, 2) + " s to t = " + fmt_fixed(t_s, 2) + " s";
+  const std::string text =
+      savepoint ? "save point \"" + savepoint->name + "\" restored: back from t = " + fmt_fixed(from_t_s, 2) +
+                      " s to t = " + fmt_fixed(t_s, 2) + " s"
+                : "rewound from t = " + fmt_fixed(from_t_s, 2) + " s to t = " + fmt_fixed(t_s, 2) + " s";
   push_event(json{{"type", "restored"},
                   {"t_s", t_s},
                   {"from_t_s", from_t_s},
                   {"by", author},
                   {"savepoint", which},
                   {"text", text}});
-  done(accepted(json{{"ok", true},
-                     {"t_s", t_s},
-                     {"from_t_s", from_t_s},
-                     {"savepoint", which},
-                     {"refused_commands", waiting}}));
+  done(accepted(
+      json{{"ok", true}, {"t_s", t_s}, {"from_t_s", from_t_s}, {"savepoint", which}, {"refused_commands", waiting}}));
 }
 
 void LiveSession::hello(std::function<void(std::shared_ptr<const HelloSnapshot>)> done) {
