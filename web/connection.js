@@ -1,6 +1,6 @@
 // The one WebSocket to /api/v1/stream: connect, the hello, frames, events and disturbances handed
 // to the page, the dropped-frames notice, the link indicator, and reconnection with back-off
-// (0.5 s doubling to 8 s; at once when a new run starts, for a fresh hello).
+// (0.5 s doubling to 8 s; at once when a new run starts or the run went back, for a fresh hello).
 import { app, $ } from '/state.js';
 
 /** An event that starts a new run (a reset or another scenario). */
@@ -60,6 +60,12 @@ export function connect(on) {
         break;
       case 'alarm': // an exercise's alarm raised, cleared or acknowledged: into the log
         on.event(msg);
+        break;
+      case 'restored':
+        // The instructor went back to a save point or rewound: a fresh hello carries the history
+        // of the restored lineage (and the event log, this entry included).
+        app.rejoin = true;
+        ws.close();
         break;
       default:
         break;
