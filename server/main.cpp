@@ -120,6 +120,7 @@ Command replay_command(CLI::App& root) {
     std::string journal, out;
     int run = 0;  // 0: the last
     bool quiet = false;
+    bool final_lineage = false;
   };
   auto* sub = root.add_subcommand("replay", "rebuild a live session's series from its journal");
   auto a = std::make_shared<Args>();
@@ -127,7 +128,10 @@ Command replay_command(CLI::App& root) {
   add_out(*sub, a->out, "the output folder");
   add_count(*sub, "--run", a->run, 0, 999999, "the Nth scenario of a journal with loads or resets (default: the last)");
   add_quiet(*sub, a->quiet);
-  return {sub, [a] { return droopline::cli::replay(a->journal, a->out, a->run, a->quiet); }};
+  sub->add_flag("--final-lineage", a->final_lineage,
+                "series.csv: only the rows of the lineage the run ended on (default: every branch as streamed, time "
+                "going back at each restore or rewind)");
+  return {sub, [a] { return droopline::cli::replay(a->journal, a->out, a->run, a->quiet, a->final_lineage); }};
 }
 
 /// `--listen HOST:PORT` (an IPv6 host in brackets); an empty message when valid. The host is

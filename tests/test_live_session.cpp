@@ -74,6 +74,14 @@ Command load_step(double mw) {
   return c;
 }
 
+// A journal path in the temporary folder, no file there yet.
+std::string fresh_journal(const std::string& name) {
+  const auto path = std::filesystem::temp_directory_path() /
+                    ("droopline-test-" + name + "-" + std::to_string(::getpid()) + ".jsonl");
+  std::filesystem::remove(path);
+  return path.string();
+}
+
 LiveSession::Result call(std::function<void(LiveSession::Done)> fn) {
   std::promise<LiveSession::Result> p;
   fn([&](LiveSession::Result r) { p.set_value(std::move(r)); });
@@ -211,10 +219,7 @@ TEST_CASE("a seat may command its own areas' units, secondary control and load, 
 }
 
 TEST_CASE("every applied command carries its author in the reply and the event log and the stream and the journal") {
-  const std::string journal =
-      (std::filesystem::temp_directory_path() / ("droopline-test-authors-" + std::to_string(::getpid()) + ".jsonl"))
-          .string();
-  std::filesystem::remove(journal);
+  const std::string journal = fresh_journal("authors");
   Inbox inbox;
   LiveConfig cfg;
   cfg.speed = 10.0;
@@ -271,5 +276,128 @@ TEST_CASE("a journal from before authors reads back with the instructor as the a
   JournalRead bad = read_journal(path.string());
   REQUIRE(bad.issues.size() == 1);
   CHECK(bad.issues[0].text() == "journal line 2: by: must be a non-empty string of at most 64 characters");
+  // Save point, restore and rewind records are checked too.
+  write(R"({"type":"rewind","step":50,"taken":0,"to_step":60,"by":"instructor"})");
+  CHECK(read_journal(path.string()).issues.at(0).text() ==
+        "journal line 2: to_step: must not lie after the record's step");
+  write(R"({"type":"restore","step":50,"taken":0,"to_step":10})");
+  CHECK(read_journal(path.string()).issues.at(0).text() == "journal line 2: savepoint: must be a whole number from 0 to 2^53");
+  write(R"({"type":"savepoint","step":50,"taken":0,"id":1,"name":"a"})");
+  const JournalRead marked = read_journal(path.string());
+  REQUIRE(marked.issues.empty());
+  REQUIRE(marked.runs.at(0).marks.size() == 1);
+  CHECK(marked.runs[0].marks[0].name == "a");
+  CHECK(marked.runs[0].marks[0].line == 2);
   std::filesystem::remove(path);
+}
+
+namespace {
+
+// The session's rows within [from_s, to_s] as JSON (exact numbers: compared as text, bit for bit).
+json rows_between(const LiveSession& s, double from_s, double to_s) {
+  return json::parse(s.history(from_s, to_s, 0, false))["rows"];
+}
+
+// Runs the session until its time has passed `t_s`, then pauses it; the time it paused at.
+double run_past(LiveSession& s, double t_s) {
+  REQUIRE(call([&](auto done) { s.resume(done); }).status == 200);
+  while (on_loop<double>(s, [](Engine& e) { return e.time_s(); }) <= t_s)
+    std::this_thread::sleep_for(std::chrono::milliseconds(20));
+  const LiveSession::Result paused = call([&](auto done) { s.pause(done); });
+  REQUIRE(paused.status == 200);
+  return paused.data["t_s"].get<double>();
+}
+
+}  // namespace
+
+TEST_CASE("a live restore followed by the same commands gives the first branch bit for bit and a rewind goes back") {
+  Inbox inbox;
+  LiveConfig cfg;
+  cfg.speed = 20.0;
+  LiveSession s(demo(), cfg, [&](const Outgoing& o) { inbox.put(o); });
+  const double t0 = run_past(s, 3.0);
+  const LiveSession::Result saved = call([&](auto done) { s.save("before the step", "instructor", std::nullopt, done); });
+  REQUIRE(saved.status == 200);
+  CHECK(saved.data["t_s"].get<double>() == t0);
+  CHECK(saved.data["name"] == "before the step");
+  const std::uint64_t id = saved.data["id"];
+  // Paused: the command applies at the step it was sent at, on each branch alike.
+  REQUIRE(call([&](auto done) { s.apply({load_step(40)}, "instructor", std::nullopt, done); }).status == 200);
+  const double t1 = run_past(s, t0 + 6.0);
+  const json first = rows_between(s, t0, t1);
+  REQUIRE(first.size() > 50);
+
+  // Another branch, then back: the rows after the save point are gone, the log keeps the branch.
+  REQUIRE(call([&](auto done) { s.apply({load_step(-70)}, "instructor", std::nullopt, done); }).status == 200);
+  run_past(s, t1 + 1.0);
+  const LiveSession::Result restored = call([&](auto done) { s.restore(id, "instructor", std::nullopt, done); });
+  REQUIRE(restored.status == 200);
+  CHECK(restored.data["t_s"].get<double>() == t0);
+  CHECK(restored.data["savepoint"]["name"] == "before the step");
+  CHECK(rows_between(s, t0 + 1e-6, 1e9).empty());
+  auto event = inbox.wait_for([](const json& j) { return j["type"] == "restored"; });
+  REQUIRE(event);
+  CHECK((*event)["by"] == "instructor");
+  CHECK((*event)["t_s"].get<double>() == t0);
+  REQUIRE(call([&](auto done) { s.apply({load_step(40)}, "instructor", std::nullopt, done); }).status == 200);
+  run_past(s, t1);
+  CHECK(rows_between(s, t0, t1) == first);
+
+  // A rewind to between the two: the state the lineage had there, and on from it the same rows.
+  const double to = t0 + 2.5;
+  const LiveSession::Result back = call([&](auto done) { s.rewind(to, "instructor", std::nullopt, done); });
+  REQUIRE(back.status == 200);
+  CHECK(back.data["savepoint"].is_null());
+  CHECK(rows_between(s, to + 1e-6, 1e9).empty());
+  run_past(s, t1);
+  CHECK(rows_between(s, t0, t1) == first);
+
+  // Out of reach: ahead of now, before the start.
+  const double now = on_loop<double>(s, [](Engine& e) { return e.time_s(); });
+  const LiveSession::Result ahead = call([&](auto done) { s.rewind(now + 1.0, "instructor", std::nullopt, done); });
+  CHECK(ahead.status == 400);
+  CHECK(ahead.error.find("to_s: must lie within the last 600 s of this lineage and not ahead of now") == 0);
+  CHECK(call([&](auto done) { s.rewind(-1.0, "instructor", std::nullopt, done); }).status == 400);
+  CHECK(call([&](auto done) { s.restore(id + 7, "instructor", std::nullopt, done); }).status == 404);
+  const LiveSession::Result list = call([&](auto done) { s.save_points(done); });
+  REQUIRE(list.status == 200);
+  REQUIRE(list.data["savepoints"].size() == 1);
+  CHECK(list.data["savepoints"][0]["id"] == id);
+  CHECK(list.data["rewind_from_s"].get<double>() == 0.0);
+  s.stop();
+}
+
+TEST_CASE("a restore refuses the commands still waiting and journals what replay needs") {
+  const std::string journal = fresh_journal("restore");
+  LiveConfig cfg;
+  cfg.speed = 1.0;
+  cfg.journal_path = journal;
+  cfg.journal_lead_s = 30.0;  // a command waits 30 s for its step: the restore comes first
+  LiveSession s(demo(), cfg, [](const Outgoing&) {});
+  const LiveSession::Result saved = call([&](auto done) { s.save(std::string(200, 'x'), "instructor", std::nullopt, done); });
+  REQUIRE(saved.status == 200);
+  CHECK(saved.data["name"].get<std::string>().size() == LiveSession::kMaxNameBytes);
+  std::promise<LiveSession::Result> waiting;
+  s.apply({load_step(10)}, "seat-east", std::nullopt, [&](LiveSession::Result r) { waiting.set_value(std::move(r)); });
+  const LiveSession::Result restored = call([&](auto done) { s.restore(saved.data["id"], "instructor", std::nullopt, done); });
+  REQUIRE(restored.status == 200);
+  CHECK(restored.data["refused_commands"] == 1);
+  const LiveSession::Result refused = waiting.get_future().get();
+  CHECK(refused.status == 409);
+  CHECK(refused.error.find("the instructor went back to t = ") != std::string::npos);
+  s.stop();
+  std::ifstream in(journal);
+  std::vector<std::string> types;
+  for (std::string line; std::getline(in, line);) {
+    const json j = json::parse(line);
+    types.push_back(j["type"]);
+    if (j["type"] == "restore") {
+      CHECK(j["taken"] == 0);
+      CHECK(j["savepoint"] == saved.data["id"]);
+      CHECK(j["to_step"] == saved.data["step"]);
+      CHECK(j["by"] == "instructor");
+    }
+  }
+  CHECK(types == std::vector<std::string>{"scenario", "savepoint", "commands", "restore", "stop"});
+  std::filesystem::remove(journal);
 }

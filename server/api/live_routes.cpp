@@ -22,6 +22,7 @@ constexpr const char* kOperates = "only an operator seat or the instructor can s
 constexpr const char* kSeats = "only the instructor sees the seats' join codes";
 constexpr const char* kScript = "only the instructor sees and changes the exercise's script";
 constexpr const char* kAck = "only an operator seat or the instructor can acknowledge alarms";
+constexpr const char* kSavePoints = "only the instructor sees the save points";
 
 // A number from the query, or an error message naming the parameter.
 bool query_number(const Target& t, const std::string& key, double fallback, double& out, std::string& error) {
@@ -239,14 +240,22 @@ void control(Services& s, Call& c) {
   if (!parsed) return c.error(400, bad);
   const json& j = *parsed;
   if (!j.is_object())
-    return c.error(400, "body must be {\"action\": \"pause\" | \"resume\" | \"reset\" | \"speed\", \"speed\": x}");
+    return c.error(400,
+                   "body must be {\"action\": \"pause\" | \"resume\" | \"reset\" | \"speed\" | \"rewind\", "
+                   "\"speed\": x, \"to_s\": t}");
   const std::string action = j.contains("action") && j["action"].is_string() ? j["action"].get<std::string>() : "";
   if (action == "pause") return s.live->pause(answer(c));
   if (action == "resume") return s.live->resume(answer(c));
   if (action == "reset") return s.live->reset(answer(c));
+  if (action == "rewind") {
+    // JSON numbers are finite; the session checks the range against its lineage.
+    if (!j.contains("to_s") || !j["to_s"].is_number())
+      return c.error(400, "to_s: required, the simulation time to go back to (s), a number");
+    return s.live->rewind(j["to_s"].get<double>(), "instructor", answer(c));
+  }
   if (action != "speed")
     return c.error(
-        400, "action: must be one of \"pause\", \"resume\", \"reset\", \"speed\", got " +
+        400, "action: must be one of \"pause\", \"resume\", \"reset\", \"speed\", \"rewind\", got " +
                  (j.contains("action") ? clip_text(j["action"].dump(-1, ' ', false, json::error_handler_t::replace), 64)
                                        : std::string("nothing")));
   if (!j.contains("speed") || !j["speed"].is_number()) return c.error(400, "speed: required, a number from 0.1 to 100");
@@ -254,6 +263,30 @@ void control(Services& s, Call& c) {
   if (!(speed >= 0.1 && speed <= 100.0))
     return c.error(400, "speed: must lie within [0.1, 100], got " + fmt_num(speed));
   s.live->set_speed(speed, answer(c));
+}
+
+void post_savepoint(Services& s, Call& c) {
+  std::string bad;
+  const auto parsed = parse_untrusted_json(c.request.body, bad);
+  if (!parsed) return c.error(400, bad);
+  const json& j = *parsed;
+  if (!j.is_object()) return c.error(400, "body must be {\"name\": \"...\"}");
+  for (const auto& [key, value] : j.items())
+    if (key != "name") return c.error(400, quote_cut(key) + ": unknown field (a save point has only \"name\")");
+  if (j.contains("name") && !j["name"].is_string())
+    return c.error(400, "name: must be a string (cut to " + std::to_string(LiveSession::kMaxNameBytes) + " bytes)");
+  s.live->save(j.value("name", std::string()), "instructor", answer(c));
+}
+
+void get_savepoints(Services& s, Call& c) { s.live->save_points(answer(c)); }
+
+void restore_savepoint(Services& s, Call& c) {
+  const std::string& id = c.params.at(0);
+  // Ids are 1, 2, ... : at most 15 digits keeps the number exact.
+  if (id.empty() || id.size() > 15 || id.find_first_not_of("0123456789") != std::string::npos)
+    return c.error(404,
+                   "no save point " + quote_cut(id) + " (ids are whole numbers: GET /api/v1/savepoints lists them)");
+  s.live->restore(std::stoull(id), "instructor", answer(c));
 }
 
 void history(Services& s, Call& c) {
@@ -320,6 +353,10 @@ void add_live_routes(std::vector<Route>& routes) {
                                   {Verb::post, "/api/v1/commands", seat, kOperates, commands},
                                   {Verb::get, "/api/v1/seats", instructor, kSeats, seats},
                                   {Verb::post, "/api/v1/control", instructor, kChanges, control},
+                                  {Verb::post, "/api/v1/savepoints", instructor, kChanges, post_savepoint},
+                                  {Verb::get, "/api/v1/savepoints", instructor, kSavePoints, get_savepoints},
+                                  {Verb::post, "/api/v1/savepoints/{id}/restore", instructor, kChanges,
+                                   restore_savepoint},
                                   {Verb::get, "/api/v1/history", viewer, "", history},
                                   {Verb::get, "/api/v1/events", viewer, "", events},
                                   {Verb::get, "/api/v1/record", viewer, "", record},

@@ -18,6 +18,7 @@
 #include "droopline/journal_read.hpp"
 #include "droopline/scenario_io.hpp"
 #include "droopline/task_pool.hpp"
+#include "droopline/timeline.hpp"
 #include "cli_files.hpp"
 
 namespace droopline::cli {
@@ -152,7 +153,7 @@ int run(const std::string& file, const std::string& out_dir, bool quiet, unsigne
   return 0;
 }
 
-int replay(const std::string& journal, const std::string& out_dir, int run_number, bool quiet) {
+int replay(const std::string& journal, const std::string& out_dir, int run_number, bool quiet, bool final_lineage) {
   JournalRead jr = read_journal(journal);
   print_issues(jr.issues, journal);
   if (!jr.issues.empty()) return 2;
@@ -167,8 +168,7 @@ int replay(const std::string& journal, const std::string& out_dir, int run_numbe
     return 2;
   }
   const JournalRun& run = jr.runs[static_cast<std::size_t>(pick - 1)];
-  const std::unique_ptr<Engine> created = Engine::create(run.system);
-  Engine& engine = *created;
+  std::unique_ptr<Engine> engine = Engine::create(run.system);
   std::error_code ec;
   fs::create_directories(out_dir, ec);
   AtomicFile series(fs::path(out_dir) / "series.csv");
@@ -179,48 +179,118 @@ int replay(const std::string& journal, const std::string& out_dir, int run_numbe
     return 1;
   }
   SeriesCsv csv;
-  std::string buf = SeriesCsv::header(engine);
+  std::string buf = SeriesCsv::header(*engine);
   std::vector<Notice> notices;
-  std::size_t next = 0;
-  auto apply_due = [&] {
-    while (next < run.commands.size() && run.commands[next].step <= engine.step_index()) {
-      const auto& [step, batch, by] = run.commands[next];
-      // Resolved (ids, static checks) and applied (state checks) as the live pipeline did.
-      const Resolved resolved = resolve_all(engine.system(), batch);
-      const ApplyResult r = resolved.issues.empty() ? engine.apply_all(resolved.actions) : ApplyResult{};
-      if (!r.ok) {
-        std::cerr << journal << ": warning: commands at step " << step << " refused on replay: "
-                  << joined_texts(resolved.issues.empty() ? r.issues : resolved.issues) << "\n";
-      } else {
-        nlohmann::ordered_json cmds = nlohmann::ordered_json::array();
-        for (const Command& c : batch) cmds.push_back(command_to_json(c));
-        applied.stream() << nlohmann::ordered_json{{"step", step}, {"t_s", r.at_s}, {"commands", cmds}, {"by", by}}.dump()
-                         << '\n';
-      }
-      ++next;
-    }
+  // final_lineage: where each row ends in `buf`, to drop the rows a restore or rewind undid.
+  std::vector<std::pair<std::int64_t, std::size_t>> row_ends{{-1, buf.size()}};
+  auto row = [&] {
+    csv.append_row(*engine, buf);
+    if (final_lineage) row_ends.emplace_back(engine->step_index(), buf.size());
   };
-  study::BatchObservers obs;
-  obs.before_step = [&](Engine&) { apply_due(); };
-  obs.row = [&](const Engine& e) { csv.append_row(e, buf); };
-  obs.notice = [&](const Notice& n) { notices.push_back(n); };
-  study::BatchOptions to_last;
-  to_last.end_step = run.last_step;
-  to_last.close_disturbances = false;  // the commands of the last step first
-  run_batch(engine, to_last, obs);
-  apply_due();
-  auto n = engine.take_notices();
+  // Save points, restores and rewinds go through the live session's own Timeline.
+  study::Timeline timeline;
+  auto saved_now = [&] { return study::SavedState{engine->clone(), {0, 0, 0, notices.size()}, {}, {}}; };
+  if (!run.marks.empty()) timeline.start(saved_now());
+  const std::int64_t every = study::output_every(run.system.def());
+  std::size_t next = 0, m = 0;
+  std::uint64_t taken = 0;  // batches taken at their step, as the live pipeline counted them
+  auto apply_batch = [&](const JournalBatch& b) {
+    // Resolved (ids, static checks) and applied (state checks) as the live pipeline did.
+    Resolved resolved = resolve_all(engine->system(), b.commands);
+    const ApplyResult r = resolved.issues.empty() ? engine->apply_all(resolved.actions) : ApplyResult{};
+    if (!r.ok) {
+      std::cerr << journal << ": warning: commands at step " << b.step
+                << " refused on replay: " << joined_texts(resolved.issues.empty() ? r.issues : resolved.issues) << "\n";
+      return;
+    }
+    if (!run.marks.empty()) timeline.applied(engine->step_index(), std::move(resolved.actions));
+    nlohmann::ordered_json cmds = nlohmann::ordered_json::array();
+    for (const Command& c : b.commands) cmds.push_back(command_to_json(c));
+    applied.stream()
+        << nlohmann::ordered_json{{"step", b.step}, {"t_s", r.at_s}, {"commands", cmds}, {"by", b.by}}.dump() << '\n';
+  };
+  // A restore or rewind: go on from `st`; the batches journalled before it and not taken were
+  // refused by it.
+  auto go_back = [&](study::SavedState st, const JournalMark& mark) {
+    engine = std::move(st.engine);
+    notices.resize(st.counters.notices);
+    next = mark.batches_before;
+    while (final_lineage && row_ends.back().first > mark.to_step) row_ends.pop_back();
+    if (final_lineage) buf.resize(row_ends.back().second);
+  };
+  auto take_mark = [&](const JournalMark& mark) -> std::string {
+    using Kind = JournalMark::Kind;
+    if (mark.kind == Kind::savepoint) {
+      if (!timeline.can_save() || timeline.next_id() != mark.id)
+        return "save point id " + std::to_string(mark.id) + " out of order";
+      timeline.save(mark.name, saved_now());
+      return "";
+    }
+    if (mark.kind == Kind::restore) {
+      std::optional<study::SavedState> st = timeline.restore(mark.id);
+      if (!st) return "no save point " + std::to_string(mark.id) + " before it";
+      if (st->step() != mark.to_step)
+        return "save point " + std::to_string(mark.id) + " is not at step " + std::to_string(mark.to_step);
+      go_back(std::move(*st), mark);
+      return "";
+    }
+    if (mark.to_step < timeline.earliest_step(engine->step_index()))
+      return "a rewind further back than the live session reaches";
+    study::Resimulation hooks;  // the notices of the lineage on the way, for the summary
+    hooks.begin = [&](study::SavedState& st) { notices.resize(st.counters.notices); };
+    auto keep_notices = [&](study::SavedState& st) {
+      for (Notice& n : st.engine->take_notices()) notices.push_back(std::move(n));
+      st.counters.notices = notices.size();
+    };
+    hooks.applied = [&](study::SavedState& st, const study::LoggedActions&) { keep_notices(st); };
+    hooks.stepped = keep_notices;
+    go_back(timeline.rewind(mark.to_step, hooks), mark);
+    return "";
+  };
+  row();
+  for (;;) {
+    // What the journal says happened at this step, in its order: a mark comes when as many
+    // batches were taken as it says, the batches before it first.
+    for (;;) {
+      if (m < run.marks.size() && run.marks[m].step == engine->step_index() && taken == run.marks[m].taken) {
+        if (const std::string bad = take_mark(run.marks[m]); !bad.empty()) {
+          std::cerr << journal << ": error: journal line " << run.marks[m].line << ": " << bad << "\n";
+          return 2;
+        }
+        ++m;
+      } else if (next < run.commands.size() && run.commands[next].step <= engine->step_index() &&
+                 (m == run.marks.size() || taken < run.marks[m].taken)) {
+        apply_batch(run.commands[next++]);
+        ++taken;
+      } else {
+        break;
+      }
+    }
+    if (m < run.marks.size() && engine->step_index() >= run.marks[m].step) {  // nothing more can happen here
+      std::cerr << journal << ": error: journal line " << run.marks[m].line << ": never reached on replay (step "
+                << run.marks[m].step << " after " << run.marks[m].taken << " command batch(es))\n";
+      return 2;
+    }
+    if (m == run.marks.size() && engine->step_index() >= run.last_step) break;
+    engine->step();
+    if (engine->step_index() % every == 0) row();
+    for (Notice& n : engine->take_notices()) notices.push_back(std::move(n));
+    if (!run.marks.empty() && timeline.due(engine->step_index())) timeline.checkpoint(saved_now());
+  }
+  auto n = engine->take_notices();
   notices.insert(notices.end(), n.begin(), n.end());
-  engine.close_disturbances();
+  engine->close_disturbances();
   series.stream().write(buf.data(), static_cast<std::streamsize>(buf.size()));
-  summary.stream() << to_text(summary_to_json(engine, notices, {}));
+  summary.stream() << to_text(summary_to_json(*engine, notices, {}));
   if (!series.commit() || !summary.commit() || !applied.commit()) {
     std::cerr << "droopline: writing the results in \"" << out_dir << "\" failed\n";
     return 1;
   }
   if (!quiet)
     std::cout << "droopline: replayed run " << pick << " of " << count << " (\"" << run.system.def().name << "\", "
-              << run.commands.size() << " command batch(es), " << fmt_num(engine.time_s()) << " s) into " << out_dir << "\n";
+              << run.commands.size() << " command batch(es), " << run.marks.size()
+              << " save point(s), restore(s) and rewind(s), " << fmt_num(engine->time_s()) << " s) into " << out_dir
+              << "\n";
   return 0;
 }
 

@@ -45,8 +45,7 @@ bool CommandPipeline::submit(const Engine& engine, std::vector<Command> commands
   if (!pending_.empty()) step = std::max(step, pending_.back().step);
   json cmds = json::array();
   for (const Command& c : commands) cmds.push_back(command_to_json(c));
-  auto outcome =
-      journal_.submit(json{{"type", "commands"}, {"step", step}, {"commands", cmds}, {"by", author}}.dump());
+  auto outcome = journal_.submit(json{{"type", "commands"}, {"step", step}, {"commands", cmds}, {"by", author}}.dump());
   pending_.push_back({step, std::move(resolved.actions), std::move(author), std::move(done), std::move(outcome)});
   return true;
 }
@@ -81,6 +80,7 @@ void CommandPipeline::apply_due(Engine& engine, const std::function<void(const A
          pending_.front().outcome->state.load(std::memory_order_acquire) == JournalWriter::durable) {
     Pending p = std::move(pending_.front());
     pending_.pop_front();
+    ++taken_;
     ApplyResult r = engine.apply_all(p.actions);
     if (!r.ok) {  // replay refuses it the same way
       refused_.fetch_add(p.actions.size());

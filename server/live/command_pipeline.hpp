@@ -67,6 +67,18 @@ class CommandPipeline {
   /// calling `applied` after each (for the notices, their author and the save points' log), and
   /// answers them.
   void apply_due(Engine& engine, const std::function<void(const Applied&)>& applied);
+  /// Batches taken at their step (applied, or refused by the state checks there) since the last
+  /// reset_taken(): save point and restore records name it, so that replay knows which of the
+  /// batches journalled before them came first.
+  std::uint64_t taken() const { return taken_; }
+  /// Counts taken batches from 0 again (a new run).
+  void reset_taken() { taken_ = 0; }
+  /// Commands waiting (scheduled, not yet applied or refused).
+  std::size_t waiting_commands() const {
+    std::size_t n = 0;
+    for (const Pending& p : pending_) n += p.actions.size();
+    return n;
+  }
   /// The step of the next waiting command, or -1.
   std::int64_t next_step() const { return pending_.empty() ? -1 : pending_.front().step; }
   /// Refuses every waiting command with `status` and `why`.
@@ -85,6 +97,7 @@ class CommandPipeline {
   };
   JournalWriter journal_;
   std::deque<Pending> pending_;
+  std::uint64_t taken_ = 0;
   std::atomic<std::uint64_t>& applied_;
   std::atomic<std::uint64_t>& refused_;
 };

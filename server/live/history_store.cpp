@@ -24,6 +24,11 @@ void HistoryStore::push(const std::vector<double>& row) {
   rows_.push(row);
 }
 
+void HistoryStore::drop_after(double t_s) {
+  std::lock_guard lock(mutex_);
+  rows_.drop_after(t_s);
+}
+
 void HistoryStore::fill(HelloSnapshot& snap) const {
   std::lock_guard lock(mutex_);
   snap.scenario_json = scenario_json_;

@@ -22,6 +22,8 @@ class HistoryStore {
   void start(const Engine& engine, const SystemDef& def, double history_s);
   /// Appends one sampled row (the loop thread).
   void push(const std::vector<double>& row);
+  /// Drops the rows after `t_s` (a restore or rewind went back there; the event log stays).
+  void drop_after(double t_s);
   /// The greeting's copy of the scenario, columns, rows and events.
   void fill(HelloSnapshot& snap) const;
   /// Rows within [from_s, to_s], every `every_s` (0 = all), as CSV or JSON.

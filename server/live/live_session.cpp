@@ -24,6 +24,15 @@ double wall_now_s() {
   return std::chrono::duration<double>(std::chrono::system_clock::now().time_since_epoch()).count();
 }
 
+// `text` cut to at most `max` bytes, never inside a UTF-8 character.
+std::string cut_utf8(std::string text, std::size_t max) {
+  if (text.size() <= max) return text;
+  std::size_t end = max;
+  while (end > 0 && (static_cast<unsigned char>(text[end]) & 0xC0) == 0x80) --end;
+  text.resize(end);
+  return text;
+}
+
 }  // namespace
 
 LiveSession::LiveSession(const CheckedSystem& system, LiveConfig config, Sink sink,
@@ -89,6 +98,8 @@ void LiveSession::start_engine(const CheckedSystem& system) {
     store_.start(*engine_, def(), config_.history_s);
   }
   record_history();
+  pipeline_.reset_taken();
+  timeline_.start(saved_now(), {kRewindS, 10.0});
   rebase();
   start_exercise();
 }
@@ -153,6 +164,20 @@ void LiveSession::record_script_edit(const std::string& edit, const std::string&
                   {"kind", "script"},
                   {"by", author},
                   {"text", author + " " + kWords.at(edit)}});
+}
+
+study::SavedState LiveSession::saved_now() const {
+  return {engine_->clone(), {announced_, reported_, frame_count_, 0}, script_, alarms_};
+}
+
+bool LiveSession::after_step() {
+  counters_.steps.fetch_add(1);
+  if (!guard_step()) return false;
+  if (engine_->step_index() % output_every_ == 0) record_history();
+  drain_notices();
+  exercise_after_step();  // the alarm monitor and the script, before the checkpoint that keeps them
+  if (timeline_.due(engine_->step_index())) timeline_.checkpoint(saved_now());
+  return true;
 }
 
 void LiveSession::rebase() {
@@ -236,14 +261,10 @@ void LiveSession::run() {
       if (due_unwritten()) break;
       engine_->step();
       ++ran;
-      counters_.steps.fetch_add(1);
-      if (!guard_step()) {
+      if (!after_step()) {
         rebase();  // the schedule starts again from the state kept: not a slip
         break;
       }
-      if (engine_->step_index() % output_every_ == 0) record_history();
-      drain_notices();
-      exercise_after_step();
     }
     if (clock::now() >= deadline(engine_->step_index() + 1) + std::chrono::duration_cast<clock::duration>(
                                                              std::chrono::duration<double>(step_wall))) {
@@ -309,6 +330,7 @@ bool LiveSession::guard_step() {
   }
   const double bad_t = engine_->time_s();
   engine_ = checkpoint_->clone();
+  timeline_.truncate(engine_->step_index());  // what came after the state kept never happened
   paused_ = true;
   halted_ = "at t = " + fmt_fixed(bad_t, 2) + " s a value of the simulation stopped being a finite number; the last good state (t = " +
             fmt_fixed(engine_->time_s(), 2) + " s) is kept and the session is paused: the instructor can reset it (then resume) or load a scenario";
@@ -365,7 +387,10 @@ bool LiveSession::pending_ready() const { return pipeline_.ready(engine_->step_i
 void LiveSession::apply_due() {
   // The notices the engine holds right after apply_all are the batch's own: the loop takes them
   // after every step, so none from a step can be waiting here.
-  pipeline_.apply_due(*engine_, [this](const CommandPipeline::Applied& a) { drain_notices(a.author); });
+  pipeline_.apply_due(*engine_, [this](const CommandPipeline::Applied& a) {
+    drain_notices(a.author);
+    timeline_.applied(a.step, a.actions);  // a rewind applies them again on the way
+  });
 }
 
 void LiveSession::settle_pending() {
@@ -376,10 +401,7 @@ void LiveSession::settle_pending() {
   while (pipeline_.next_step() >= 0) {
     while (engine_->step_index() < pipeline_.next_step()) {
       engine_->step();
-      counters_.steps.fetch_add(1);
-      if (!guard_step()) return;  // the pending commands were refused
-      if (engine_->step_index() % output_every_ == 0) record_history();
-      drain_notices();
+      if (!after_step()) return;  // the pending commands were refused
     }
     apply_due();
   }
@@ -438,6 +460,155 @@ void LiveSession::set_speed(double speed, Done done) {
     push_event(json{{"type", "event"}, {"t_s", e.time_s()}, {"kind", "speed"}, {"text", "speed " + fmt_num(speed) + "x"}});
     done(accepted(json{{"ok", true}, {"speed", speed}}));
   });
+}
+
+// ------------------------------------------------------------------ save points and rewind
+
+double LiveSession::time_of(std::int64_t step) const {
+  // As Engine::time_s does: exact decimals when the steps per second are a whole number.
+  const double per_s = 1.0 / def().step_s;
+  return std::abs(per_s - std::round(per_s)) < 1e-9 ? static_cast<double>(step) / std::round(per_s)
+                                                    : static_cast<double>(step) * def().step_s;
+}
+
+bool LiveSession::journal_mark(json record, const char* what, const Done& done) {
+  if (pipeline_.journal().append_now(record.dump())) return true;
+  spdlog::error("{}", pipeline_.journal().error());
+  done(refused(pipeline_.journal().http_status(),
+               std::string(what) + " refused, the session goes on unchanged: " + pipeline_.journal().error()));
+  return false;
+}
+
+void LiveSession::save(std::string name, std::string author, Done done) {
+  post([this, name = std::move(name), author = std::move(author), done = std::move(done)](Engine& e) mutable {
+    if (!timeline_.can_save())
+      return done(refused(409, "save point refused: this run holds " + std::to_string(study::Timeline::kMaxSavePoints) +
+                                   " save points, the most it keeps (a reset or a new scenario starts a new run)"));
+    const std::uint64_t id = timeline_.next_id();
+    name = cut_utf8(std::move(name), kMaxNameBytes);
+    if (name.empty()) name = "save point " + std::to_string(id);
+    if (!journal_mark(json{{"type", "savepoint"},
+                           {"step", e.step_index()},
+                           {"taken", pipeline_.taken()},
+                           {"id", id},
+                           {"name", name},
+                           {"by", author}},
+                      "save point", done))
+      return;
+    const study::SavePoint& sp = timeline_.save(name, saved_now());
+    const json which{{"id", id}, {"name", name}};
+    push_event(json{{"type", "event"},
+                    {"t_s", sp.t_s},
+                    {"kind", "savepoint"},
+                    {"text", "save point \"" + name + "\" kept at t = " + fmt_fixed(sp.t_s, 2) + " s"},
+                    {"by", author},
+                    {"savepoint", which}});
+    done(accepted(json{{"id", id}, {"name", name}, {"t_s", sp.t_s}, {"step", sp.step}}));
+  });
+}
+
+void LiveSession::save_points(Done done) {
+  post([this, done = std::move(done)](Engine& e) {
+    json list = json::array();
+    for (const study::SavePoint& sp : timeline_.save_points())
+      list.push_back(json{{"id", sp.id}, {"name", sp.name}, {"t_s", sp.t_s}, {"step", sp.step}});
+    done(accepted(json{{"t_s", e.time_s()},
+                       {"rewind_from_s", time_of(timeline_.earliest_step(e.step_index()))},
+                       {"max_savepoints", study::Timeline::kMaxSavePoints},
+                       {"savepoints", std::move(list)}}));
+  });
+}
+
+void LiveSession::restore(std::uint64_t id, std::string author, Done done) {
+  post([this, id, author = std::move(author), done = std::move(done)](Engine& e) {
+    const study::SavePoint* sp = timeline_.find(id);
+    if (!sp)
+      return done(
+          refused(404, "no save point " + std::to_string(id) +
+                           " in this run (GET /api/v1/savepoints lists them; a reset or a new scenario drops them)"));
+    if (!journal_mark(json{{"type", "restore"},
+                           {"step", e.step_index()},
+                           {"taken", pipeline_.taken()},
+                           {"savepoint", id},
+                           {"to_step", sp->step},
+                           {"by", author}},
+                      "restore", done))
+      return;
+    const double from_t_s = e.time_s();
+    std::optional<study::SavedState> state = timeline_.restore(id);
+    go_back(std::move(*state), from_t_s, timeline_.find(id), author, done);
+  });
+}
+
+void LiveSession::rewind(double to_s, std::string author, Done done) {
+  post([this, to_s, author = std::move(author), done = std::move(done)](Engine& e) {
+    const std::int64_t now = e.step_index();
+    const std::int64_t earliest = timeline_.earliest_step(now);
+    const double to_steps = std::round(to_s / def().step_s);
+    if (!(to_steps >= static_cast<double>(earliest) && to_steps <= static_cast<double>(now)))
+      return done(refused(400, "to_s: must lie within the last " + fmt_num(kRewindS) +
+                                   " s of this lineage and not ahead of now, from " + fmt_fixed(time_of(earliest), 2) +
+                                   " s to " + fmt_fixed(e.time_s(), 2) + " s; got " + fmt_num(to_s) + " s"));
+    const auto to = static_cast<std::int64_t>(to_steps);
+    if (!journal_mark(
+            json{{"type", "rewind"}, {"step", now}, {"taken", pipeline_.taken()}, {"to_step", to}, {"by", author}},
+            "rewind", done))
+      return;
+    const double from_t_s = e.time_s();
+    study::Resimulation hooks;
+    // The notices on the way were sent when the lineage first went there. An exercise's alarm
+    // monitor and script, in the state being rebuilt, are fed as after a live step (the script's
+    // firings on the way are in the logged actions already; those handed out for a step after the
+    // target go back to pending in go_back).
+    auto pending = std::make_shared<std::vector<Notice>>();
+    hooks.applied = [pending](study::SavedState& s, const study::LoggedActions&) {
+      for (Notice& n : s.engine->take_notices()) pending->push_back(std::move(n));
+    };
+    hooks.stepped = [this, pending](study::SavedState& s) {
+      for (Notice& n : s.engine->take_notices()) pending->push_back(std::move(n));
+      if (s.alarms) s.alarms->update(*s.engine, *pending);
+      pending->clear();
+      if (s.script) s.script->due(*s.engine, lead_steps());
+    };
+    study::SavedState state = timeline_.rewind(to, hooks);
+    const auto& d = state.engine->disturbances();
+    state.counters.announced = d.size();  // every one was announced on the way
+    state.counters.reported = 0;
+    while (state.counters.reported < d.size() && !d[state.counters.reported].open) ++state.counters.reported;
+    go_back(std::move(state), from_t_s, nullptr, author, done);
+  });
+}
+
+void LiveSession::go_back(study::SavedState state, double from_t_s, const study::SavePoint* savepoint,
+                          const std::string& author, const Done& done) {
+  const double t_s = state.engine->time_s();
+  const std::size_t waiting = pipeline_.waiting_commands();
+  pipeline_.refuse_all(409, "command refused, nothing applied: the instructor went back to t = " + fmt_fixed(t_s, 2) +
+                                " s before its step came");
+  engine_ = std::move(state.engine);
+  announced_ = state.counters.announced;
+  reported_ = state.counters.reported;
+  frame_count_ = state.counters.frames;
+  script_ = std::move(state.script);
+  alarms_ = std::move(state.alarms);
+  if (script_) script_->rewound(engine_->step_index());  // its firings refused above are due again
+  checkpoint_ = engine_->clone();
+  halted_.clear();  // the state gone back to is a good one
+  store_.drop_after(t_s);
+  rebase();
+  const json which = savepoint ? json{{"id", savepoint->id}, {"name", savepoint->name}} : json(nullptr);
+  const std::string text =
+      savepoint ? "save point \"" + savepoint->name + "\" restored: back from t = " + fmt_fixed(from_t_s, 2) +
+                      " s to t = " + fmt_fixed(t_s, 2) + " s"
+                : "rewound from t = " + fmt_fixed(from_t_s, 2) + " s to t = " + fmt_fixed(t_s, 2) + " s";
+  push_event(json{{"type", "restored"},
+                  {"t_s", t_s},
+                  {"from_t_s", from_t_s},
+                  {"by", author},
+                  {"savepoint", which},
+                  {"text", text}});
+  done(accepted(
+      json{{"ok", true}, {"t_s", t_s}, {"from_t_s", from_t_s}, {"savepoint", which}, {"refused_commands", waiting}}));
 }
 
 void LiveSession::hello(std::function<void(std::shared_ptr<const HelloSnapshot>)> done) {

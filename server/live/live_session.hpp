@@ -25,6 +25,7 @@
 #include "droopline/engine.hpp"
 #include "droopline/exercise.hpp"
 #include "droopline/script.hpp"
+#include "droopline/timeline.hpp"
 #include "command_pipeline.hpp"
 #include "history_store.hpp"
 #include "seat_scope.hpp"
@@ -113,6 +114,28 @@ class LiveSession {
   /// Sets the speed factor (0.1 .. 100).
   void set_speed(double speed, Done done);
 
+  // Save points and rewind (study::Timeline): the run's state can be saved under a name and
+  // restored exactly, or rewound to any time within the last `kRewindS` simulated seconds. Both
+  // are journalled; commands still waiting in the pipeline are refused (409); the history after
+  // the point gone back to is dropped, the event log kept, and every client is told with a
+  // `restored` event. A reset or a new scenario starts a new run without save points.
+
+  /// How far back a rewind reaches (simulated s).
+  static constexpr double kRewindS = 600.0;
+  /// A save point's name is cut to this many bytes (at a UTF-8 character's start).
+  static constexpr std::size_t kMaxNameBytes = 64;
+  /// Saves the state now as `name` (empty: "save point N"); answers {"id", "name", "t_s", "step"}
+  /// (409 when the run holds Timeline::kMaxSavePoints already).
+  void save(std::string name, std::string author, Done done);
+  /// Answers {"t_s", "rewind_from_s", "savepoints": [{"id", "name", "t_s", "step"}, ...]}.
+  void save_points(Done done);
+  /// Goes back to save point `id` (404 when this run has none such); answers {"ok", "t_s",
+  /// "from_t_s", "savepoint": {"id", "name"}, "refused_commands"}.
+  void restore(std::uint64_t id, std::string author, Done done);
+  /// Goes back to `to_s` on this lineage (400 unless it lies within the last kRewindS and not
+  /// ahead of now); answers as restore() with "savepoint": null.
+  void rewind(double to_s, std::string author, Done done);
+
   /// The greeting a new client gets (scenario, columns, history, recent events), handed to `done`
   /// on the loop thread between two steps, so that nothing broadcast after it is missing from it.
   void hello(std::function<void(std::shared_ptr<const HelloSnapshot>)> done);
@@ -174,6 +197,19 @@ class LiveSession {
   /// applied (their command notices carry it), empty after a step.
   void drain_notices(const std::string& by = {});
   void record_history();
+  /// After each step the loop keeps: the guard, the history row, the notices, the checkpoint.
+  bool after_step();  ///< false when the guard had to stop the session
+  /// The simulation time of `step` (as the engine writes it).
+  double time_of(std::int64_t step) const;
+  /// The state now, as a save point or checkpoint keeps it.
+  study::SavedState saved_now() const;
+  /// Writes a save point, restore or rewind record before it happens; false with `done`
+  /// answered when the journal refused it (nothing changed).
+  bool journal_mark(nlohmann::ordered_json record, const char* what, const Done& done);
+  /// Goes on from `state` (a restore or rewind), from time `from_t_s`: refuses what waits in
+  /// the pipeline, drops the history after it, tells every client and answers.
+  void go_back(study::SavedState state, double from_t_s, const study::SavePoint* savepoint, const std::string& author,
+               const Done& done);
   std::string state_json(double wall_s) const;
   /// Logs an event (a JSON object; "seq" is added) and sends it to every client.
   void push_event(nlohmann::ordered_json event);
@@ -211,6 +247,7 @@ class LiveSession {
   std::size_t reported_ = 0;   // disturbances already sent complete
   std::size_t announced_ = 0;  // disturbances already sent as begun
   std::uint64_t frame_count_ = 0;
+  study::Timeline timeline_;  // save points, checkpoints and the actions since (the run's lineage)
   std::unique_ptr<Engine> checkpoint_;  // the last state found finite, about a second back
   std::int64_t checkpoint_every_ = 100;  // steps
   std::string halted_;                   // why the session stopped on a non-finite state ("": running)

@@ -104,6 +104,10 @@ void HistoryRing::push(const std::vector<double>& row) {
   std::copy_n(row.begin(), std::min(row.size(), width_), data_.begin() + static_cast<std::ptrdiff_t>(slot * width_));
 }
 
+void HistoryRing::drop_after(double t_s) {
+  while (count_ > 0 && data_[((start_ + count_ - 1) % cap_) * width_] > t_s + 1e-9) --count_;
+}
+
 std::vector<double> HistoryRing::flat() const {
   std::vector<double> out;
   out.reserve(count_ * width_);

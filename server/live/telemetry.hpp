@@ -23,6 +23,8 @@ class HistoryRing {
  public:
   void reset(std::size_t width, std::size_t capacity);
   void push(const std::vector<double>& row);  ///< row.size() == width(); the oldest row gives way
+  /// Drops the newest rows whose time (the first value) lies after `t_s` (a restore went back).
+  void drop_after(double t_s);
   std::size_t width() const { return width_; }
   std::size_t size() const { return count_; }
   /// All rows, oldest first, concatenated.

@@ -306,6 +306,16 @@ BAD_STUDY = [
     ("GET", "/api/v1/history?from_s=30&to_s=10", None, 400, "from_s must not lie after to_s"),
     ("POST", "/api/v1/control", {"action": "speed", "speed": 1e308}, 400, "speed: must lie within [0.1, 100]"),
     ("POST", "/api/v1/control", {"action": 5}, 400, "action"),
+    ("POST", "/api/v1/control", {"action": "rewind", "to_s": 1e300}, 400,
+     "to_s: must lie within the last 600 s of this lineage and not ahead of now"),
+    ("POST", "/api/v1/control", {"action": "rewind", "to_s": -0.01}, 400, "to_s: must lie within the last 600 s"),
+    ("POST", "/api/v1/control", {"action": "rewind", "to_s": "5"}, 400, "to_s: required, the simulation time"),
+    ("POST", "/api/v1/savepoints", [1], 400, "body must be {\\\"name\\\""),
+    ("POST", "/api/v1/savepoints", {"name": ["a"]}, 400, "name: must be a string (cut to 64 bytes)"),
+    ("POST", "/api/v1/savepoints", {"nam": "a"}, 400, "\\\"nam\\\": unknown field"),
+    ("POST", "/api/v1/savepoints/" + "9" * 300 + "/restore", None, 404, "no save point"),
+    ("POST", "/api/v1/savepoints/-1/restore", None, 404, "ids are whole numbers"),
+    ("POST", "/api/v1/savepoints/5/restore", None, 404, "no save point 5 in this run"),
 ]
 
 
@@ -452,7 +462,7 @@ class AttackFindingsTests(DemoServerCase):
         self.assertFalse(out["auth"]["ok"])
         self.assertEqual(out["auth"]["error"], "wrong instructor token")
         self.assertEqual(out["speed"]["body"]["error"], "speed: must lie within [0.1, 100], got 500")
-        self.assertIn('action: must be one of "pause", "resume", "reset", "speed", got "fly"', out["action"]["body"]["error"])
+        self.assertIn('action: must be one of "pause", "resume", "reset", "speed", "rewind", got "fly"', out["action"]["body"]["error"])
         self.assertIn("commands: required", out["commands"]["body"]["error"])
 
 

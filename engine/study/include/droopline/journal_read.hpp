@@ -6,7 +6,17 @@
 //   {"type":"commands","step":N,"commands":[...],"by":"instructor"}
 //                                                     commands applied before step N, and who sent
 //                                                     them (absent in older journals: the instructor)
+//   {"type":"savepoint","step":N,"taken":K,"id":I,"name":"...","by":"instructor"}
+//                                                     save point I kept at step N
+//   {"type":"restore","step":N,"taken":K,"savepoint":I,"to_step":S,"by":"instructor"}
+//                                                     back to save point I (its step S) from step N
+//   {"type":"rewind","step":N,"taken":K,"to_step":S,"by":"instructor"}
+//                                                     back to step S of the lineage from step N
 //   {"type":"stop","step":N}                          graceful shutdown after N steps
+//
+// `taken`: how many of the run's command batches had been taken at their step (applied, or
+// refused there) when it happened; the batches journalled before a restore or rewind and not yet
+// taken were refused by it.
 #include <cstdint>
 #include <string>
 #include <utility>
@@ -24,11 +34,26 @@ struct JournalBatch {
   std::string by = "instructor";  ///< who sent them ("by"; journals before authors were kept: the instructor)
 };
 
+/// A save point, restore or rewind as journalled.
+struct JournalMark {
+  enum class Kind { savepoint, restore, rewind };
+  Kind kind = Kind::savepoint;
+  int line = 0;                    ///< its journal line (for messages)
+  std::int64_t step = 0;           ///< the step it happened at
+  std::uint64_t taken = 0;         ///< command batches taken at their step before it
+  std::size_t batches_before = 0;  ///< command batches journalled before it in this run
+  std::uint64_t id = 0;            ///< savepoint: its id; restore: the save point's
+  std::string name;                ///< savepoint: its name
+  std::int64_t to_step = 0;        ///< restore, rewind: the step gone back to
+  std::string by;                  ///< who did it
+};
+
 /// One scenario-long stretch of a journal: the scenario and the commands applied to it.
 struct JournalRun {
-  CheckedSystem system;  ///< the scenario as the loader checked it
+  CheckedSystem system;                ///< the scenario as the loader checked it
   std::vector<JournalBatch> commands;  ///< in the order journalled
-  std::int64_t last_step = 0;  ///< the stop record's step, else the last command's step
+  std::vector<JournalMark> marks;      ///< save points, restores and rewinds, in the order journalled
+  std::int64_t last_step = 0;          ///< the stop record's step, else the last command's step (on the last lineage)
 };
 
 /// A journal read back: its runs, or what is wrong with it.

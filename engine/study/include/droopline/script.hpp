@@ -48,8 +48,9 @@ class ScriptRunner {
   /// Adds an event (checked against the system: ids and bounds); its id is made when empty.
   bool add(ScriptEventDef event, const std::string& by, double now_s, std::string& why);
   const std::vector<ScriptEntry>& entries() const { return entries_; }
-  /// After a restore to `step`: entries that fired for a later step are pending again (their
-  /// conditions start holding afresh).
+  /// After the session went back to `step` (a restore or rewind) with this runner as it was then:
+  /// events it had handed out to apply after `step` were refused with the pipeline, so they are
+  /// due again.
   void rewound(std::int64_t step);
 
  private:
