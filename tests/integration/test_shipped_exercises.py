@@ -83,6 +83,19 @@ class ShippedExercises(unittest.TestCase):
             self.assertEqual((auth["role"], auth["seat"]["id"]), ("seat", b["id"]))
             self.assertEqual(reply["status"], 200, reply)
             self.assertEqual(reply["body"]["by"], b["id"])
+            # A seat sees nothing of what is to come: the script is the instructor's, the scenario has no events.
+            s, reply, _ = srv.request("GET", "/api/v1/script", token=a["join_code"])
+            self.assertEqual(s, 403, reply)
+            self.assertIn("only the instructor sees and changes the exercise's script", reply["error"])
+            s, scen, _ = srv.request("GET", "/api/v1/scenario", token=a["join_code"])
+            self.assertEqual(s, 200)
+            text = json.dumps(scen)
+            for event in ex["script"]:
+                self.assertNotIn(event["note"], text)
+            self.assertEqual(scen.get("events", []), [])
+            # Acknowledging is a seat's right (an unknown alarm: 404, not a role refusal).
+            s, reply, _ = srv.request("POST", "/api/v1/alarms/999/ack", token=a["join_code"])
+            self.assertEqual(s, 404, reply)
             # Viewers see the briefing but no join codes.
             s, body, _ = srv.request("GET", "/api/v1/exercise")
             self.assertEqual(s, 200)
