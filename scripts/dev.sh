@@ -2,6 +2,7 @@
 # droopline developer entry point: one script for set-up, build, tests, the demo and benchmarks.
 #   bash scripts/dev.sh demo    install what is missing, build, serve the bundled demo scenario live
 #   bash scripts/dev.sh test    install what is missing, build with warnings as errors, run all tests
+#   bash scripts/dev.sh exercise [NAME]   serve a shipped exercise (scenarios/exercises/NAME.json; default peak_unit_loss)
 #   bash scripts/dev.sh setup | build | sanitize | fuzz [SECONDS] | bench | stream-bench | soak [--minutes M]
 set -euo pipefail
 cd "$(dirname "$0")/.."
@@ -79,6 +80,16 @@ case "${1:-}" in
     exec ./build/release/server/droopline serve --scenario "$scenario" --listen 127.0.0.1:8080 \
       --journal out/demo-journal.jsonl
     ;;
+  exercise)
+    setup
+    build release
+    exercise="scenarios/exercises/${2:-peak_unit_loss}.json"
+    mkdir -p out
+    echo "exercise: instructor http://127.0.0.1:8080/?view=instructor, seats /?view=seat, wall /?view=wall"
+    echo "          (the instructor token and each seat's join code are printed below; Ctrl-C stops)"
+    exec ./build/release/server/droopline serve --exercise "$exercise" --listen 127.0.0.1:8080 \
+      --journal out/exercise-journal.jsonl
+    ;;
   bench)
     setup
     build release
@@ -100,7 +111,7 @@ case "${1:-}" in
     ./build/release/tests/bench/droopline-soak "${@:2}"
     ;;
   *)
-    sed -n '2,6p' "$0" | sed 's/^# \{0,1\}//'
+    sed -n '2,7p' "$0" | sed 's/^# \{0,1\}//'
     exit 2
     ;;
 esac

@@ -316,7 +316,7 @@ TEST_CASE("a live restore followed by the same commands gives the first branch b
   cfg.speed = 20.0;
   LiveSession s(demo(), cfg, [&](const Outgoing& o) { inbox.put(o); });
   const double t0 = run_past(s, 3.0);
-  const LiveSession::Result saved = call([&](auto done) { s.save("before the step", "instructor", std::nullopt, done); });
+  const LiveSession::Result saved = call([&](auto done) { s.save("before the step", "instructor", done); });
   REQUIRE(saved.status == 200);
   CHECK(saved.data["t_s"].get<double>() == t0);
   CHECK(saved.data["name"] == "before the step");
@@ -330,7 +330,7 @@ TEST_CASE("a live restore followed by the same commands gives the first branch b
   // Another branch, then back: the rows after the save point are gone, the log keeps the branch.
   REQUIRE(call([&](auto done) { s.apply({load_step(-70)}, "instructor", std::nullopt, done); }).status == 200);
   run_past(s, t1 + 1.0);
-  const LiveSession::Result restored = call([&](auto done) { s.restore(id, "instructor", std::nullopt, done); });
+  const LiveSession::Result restored = call([&](auto done) { s.restore(id, "instructor", done); });
   REQUIRE(restored.status == 200);
   CHECK(restored.data["t_s"].get<double>() == t0);
   CHECK(restored.data["savepoint"]["name"] == "before the step");
@@ -345,7 +345,7 @@ TEST_CASE("a live restore followed by the same commands gives the first branch b
 
   // A rewind to between the two: the state the lineage had there, and on from it the same rows.
   const double to = t0 + 2.5;
-  const LiveSession::Result back = call([&](auto done) { s.rewind(to, "instructor", std::nullopt, done); });
+  const LiveSession::Result back = call([&](auto done) { s.rewind(to, "instructor", done); });
   REQUIRE(back.status == 200);
   CHECK(back.data["savepoint"].is_null());
   CHECK(rows_between(s, to + 1e-6, 1e9).empty());
@@ -354,11 +354,11 @@ TEST_CASE("a live restore followed by the same commands gives the first branch b
 
   // Out of reach: ahead of now, before the start.
   const double now = on_loop<double>(s, [](Engine& e) { return e.time_s(); });
-  const LiveSession::Result ahead = call([&](auto done) { s.rewind(now + 1.0, "instructor", std::nullopt, done); });
+  const LiveSession::Result ahead = call([&](auto done) { s.rewind(now + 1.0, "instructor", done); });
   CHECK(ahead.status == 400);
   CHECK(ahead.error.find("to_s: must lie within the last 600 s of this lineage and not ahead of now") == 0);
-  CHECK(call([&](auto done) { s.rewind(-1.0, "instructor", std::nullopt, done); }).status == 400);
-  CHECK(call([&](auto done) { s.restore(id + 7, "instructor", std::nullopt, done); }).status == 404);
+  CHECK(call([&](auto done) { s.rewind(-1.0, "instructor", done); }).status == 400);
+  CHECK(call([&](auto done) { s.restore(id + 7, "instructor", done); }).status == 404);
   const LiveSession::Result list = call([&](auto done) { s.save_points(done); });
   REQUIRE(list.status == 200);
   REQUIRE(list.data["savepoints"].size() == 1);
@@ -374,12 +374,12 @@ TEST_CASE("a restore refuses the commands still waiting and journals what replay
   cfg.journal_path = journal;
   cfg.journal_lead_s = 30.0;  // a command waits 30 s for its step: the restore comes first
   LiveSession s(demo(), cfg, [](const Outgoing&) {});
-  const LiveSession::Result saved = call([&](auto done) { s.save(std::string(200, 'x'), "instructor", std::nullopt, done); });
+  const LiveSession::Result saved = call([&](auto done) { s.save(std::string(200, 'x'), "instructor", done); });
   REQUIRE(saved.status == 200);
   CHECK(saved.data["name"].get<std::string>().size() == LiveSession::kMaxNameBytes);
   std::promise<LiveSession::Result> waiting;
   s.apply({load_step(10)}, "seat-east", std::nullopt, [&](LiveSession::Result r) { waiting.set_value(std::move(r)); });
-  const LiveSession::Result restored = call([&](auto done) { s.restore(saved.data["id"], "instructor", std::nullopt, done); });
+  const LiveSession::Result restored = call([&](auto done) { s.restore(saved.data["id"], "instructor", done); });
   REQUIRE(restored.status == 200);
   CHECK(restored.data["refused_commands"] == 1);
   const LiveSession::Result refused = waiting.get_future().get();

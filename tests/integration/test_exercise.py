@@ -125,10 +125,18 @@ class ExerciseCase(unittest.TestCase):
                 self.assertEqual(trip["change"], "raised")
                 self.assertEqual(trip["alarm"]["severity"], "alarm")
                 self.assertEqual(trip["alarm"]["areas"], ["east"])
-                # Acknowledged through the API: the change streams, and an event alarm clears with it.
-                s, body, _ = self.srv.request("POST", f"/api/v1/alarms/{trip['alarm']['id']}/ack", None, TOKEN)
+                # A seat acknowledges the alarms of its own areas only: the west desk is refused in
+                # words, the east desk's acknowledgement streams (an event alarm clears with it).
+                s, seats, _ = self.srv.request("GET", "/api/v1/seats", None, TOKEN)
+                code = {x["id"]: x["join_code"] for x in seats["seats"]}
+                s, body, _ = self.srv.request("POST", f"/api/v1/alarms/{trip['alarm']['id']}/ack", None,
+                                              code["west-desk"])
+                self.assertEqual(s, 403, body)
+                self.assertIn('is not about an area seat "west-desk" answers for', body["error"])
+                s, body, _ = self.srv.request("POST", f"/api/v1/alarms/{trip['alarm']['id']}/ack", None,
+                                              code["east-desk"])
                 self.assertEqual(s, 200, body)
-                self.assertEqual(body["alarm"]["acked_by"], "instructor")
+                self.assertEqual(body["alarm"]["acked_by"], "east-desk")
                 ack = await next_of(ws, "alarm", 10)
                 while ack["change"] != "acknowledged":
                     ack = await next_of(ws, "alarm", 10)
@@ -138,7 +146,7 @@ class ExerciseCase(unittest.TestCase):
         trip = run(go(), 60)
         s, body, _ = self.srv.request("POST", f"/api/v1/alarms/{trip['alarm']['id']}/ack", None, TOKEN)
         self.assertEqual(s, 409)
-        self.assertIn("already acknowledged by instructor", body["error"])
+        self.assertIn("already acknowledged by east-desk", body["error"])
         s, body, _ = self.srv.request("POST", "/api/v1/alarms/99999/ack", None, TOKEN)
         self.assertEqual(s, 404)
         s, body, _ = self.srv.request("POST", "/api/v1/alarms/x1/ack", None, TOKEN)
