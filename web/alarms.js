@@ -88,7 +88,8 @@ export function renderAlarms(list, alarms, { canAck = () => false, brief = false
     li.append(
       el('span', { className: 'level', textContent: a.severity }),
       el('span', { className: 't', textContent: `${fmt(a.raised_s, 1)} s` }),
-      el('span', { className: 'area', textContent: a.area ?? '' }),
+      // A tie's alarm concerns both its areas: both are named (the east desk sees it is its own too).
+      el('span', { className: 'area', textContent: a.areas?.length > 1 ? a.areas.join(' / ') : a.area ?? '' }),
       el('span', { className: 'message', textContent: message }),
     );
     if (brief) return li;
