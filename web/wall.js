@@ -15,7 +15,7 @@ export function prepareWall() {
   figure.classList.add('wall-freq');
   $('wall-chart-slot').append(figure);
   onAlarms(showAlarms);
-  window.addEventListener('resize', showAlarms);
+  new ResizeObserver(showAlarms).observe(document.querySelector('.wall-side')); // its height is the chart row's
 }
 
 // The active alarms and how many. The list ends at the foot of the screen: the alarms that do
@@ -50,8 +50,9 @@ export function buildWall() {
     tile.dataset.area = a.id;
     return tile;
   }));
-  showAlarms();
+  // The label first: a long exercise name takes two lines and moves the alarm list down.
   document.querySelector('.wall-label').textContent = app.exercise ? `exercise: ${app.exercise.name}` : 'simulation time';
+  showAlarms();
 }
 
 /** A frame on the wall. */

@@ -174,6 +174,12 @@ for (const vp of VIEWPORTS) {
       const b = await page.locator(sel).boundingBox();
       assert.ok(b && b.y >= 0 && b.y + b.height <= vp.height && b.x + b.width <= vp.width, `${sel} within the screen: ${JSON.stringify(b)}`);
     }
+    // The alarm list ends at the foot of the screen: every line shown is whole (the rest are counted).
+    const cut = await page.$eval('#wall-alarms', (list) => {
+      const bottom = list.getBoundingClientRect().bottom;
+      return [...list.children].filter((li) => !li.hidden && li.getBoundingClientRect().bottom > bottom + 0.5).map((li) => li.textContent);
+    });
+    assert.deepEqual(cut, [], 'no alarm line cut off');
     const clock = await page.locator('#wall-time').evaluate((e) => parseFloat(getComputedStyle(e).fontSize));
     assert.ok(clock >= vp.height / 16, `clock in ${clock}px type`);
     assert.match(await page.locator('#wall-limit').textContent(), /^of 10:00/);
