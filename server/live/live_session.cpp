@@ -99,9 +99,9 @@ void LiveSession::start_engine(const CheckedSystem& system) {
   }
   record_history();
   pipeline_.reset_taken();
+  start_exercise();  // before the first checkpoint, which keeps the script and the alarms
   timeline_.start(saved_now(), {kRewindS, 10.0});
   rebase();
-  start_exercise();
 }
 
 void LiveSession::start_exercise() {
