@@ -309,6 +309,9 @@ class ReplayTests(unittest.TestCase):
             s, body, _ = srv.request("POST", "/api/v1/control", {"action": "rewind", "to_s": 3.0}, TOKEN)
             self.assertEqual(s, 200, body)
             self.assertEqual(state()["s1"], "pending")
+            # ... with the script as edited before the rewind's target (the shift to 9 s).
+            script = {e["id"]: e for e in srv.request("GET", "/api/v1/script", token=TOKEN)[1]["events"]}
+            self.assertEqual(script["s2"]["at_s"], 9)
             self.assertTrue(wait_for(lambda: srv.request("GET", "/api/v1/state")[1]["t_s"] > 12, 30))
             self.assertEqual(state()["s1"], "fired")
             s, body, _ = srv.request("POST", "/api/v1/control", {"action": "pause"}, TOKEN)
