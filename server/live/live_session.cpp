@@ -99,9 +99,9 @@ void LiveSession::start_engine(const CheckedSystem& system) {
   }
   record_history();
   pipeline_.reset_taken();
+  start_exercise();  // before the first checkpoint, which keeps the script and the alarms
   timeline_.start(saved_now(), {kRewindS, 10.0});
   rebase();
-  start_exercise();
 }
 
 void LiveSession::start_exercise() {
@@ -164,6 +164,9 @@ void LiveSession::record_script_edit(const std::string& edit, const std::string&
                   {"kind", "script"},
                   {"by", author},
                   {"text", author + " " + kWords.at(edit)}});
+  // A checkpoint now (between steps, before the actions of this step: as a save point is taken),
+  // so that a rewind past this moment re-simulates from a script that has the edit.
+  timeline_.checkpoint(saved_now());
 }
 
 study::SavedState LiveSession::saved_now() const {
@@ -767,6 +770,7 @@ void LiveSession::ack_alarm(std::uint64_t id, std::string author, std::optional<
       return done(refused(
           409, "alarm " + std::to_string(id) + " was already acknowledged by " + a->acked_by.value_or("?")));
     push_alarm_changes({{study::AlarmChange::What::acknowledged, id}});
+    timeline_.checkpoint(saved_now());  // a rewind past this moment keeps the acknowledgement
     done(accepted(json{{"ok", true}, {"alarm", study::alarm_to_json(def(), *alarms_->find(id))}}));
   });
 }

@@ -277,6 +277,59 @@ class ReplayTests(unittest.TestCase):
         finally:
             srv.stop()
 
+    def test_seats_save_points_rewinds_and_script_edits_replay_to_the_live_series(self):
+        srv = ts.Server(EXERCISE, option="--exercise", extra=["--speed", "5"])
+        try:
+            s, seats, _ = srv.request("GET", "/api/v1/seats", None, TOKEN)
+            code = {x["id"]: x["join_code"] for x in seats["seats"]}
+            state = lambda: {e["id"]: e["state"] for e in srv.request("GET", "/api/v1/script", token=TOKEN)[1]["events"]}
+            s, saved, _ = srv.request("POST", "/api/v1/savepoints", {"name": "before the trip"}, TOKEN)
+            self.assertEqual(s, 200, saved)
+            self.assertLess(saved["t_s"], 5.0)
+            s, body, _ = srv.request("POST", "/api/v1/commands",
+                                     {"kind": "setpoint", "unit": "w1", "mw": 210, "ramp_mw_per_s": 2},
+                                     code["west-desk"])
+            self.assertEqual((s, body.get("by")), (200, "west-desk"), body)
+            self.assertTrue(wait_for(lambda: state()["s1"] == "fired", 30))
+            # Back to the save point: the trip is to come again, the trip's alarm gone with it.
+            s, body, _ = srv.request("POST", f"/api/v1/savepoints/{saved['id']}/restore", None, TOKEN)
+            self.assertEqual(s, 200, body)
+            self.assertEqual(state()["s1"], "pending")
+            alarms = srv.request("GET", "/api/v1/alarms")[1]["alarms"]
+            self.assertNotIn("unit_tripped", [a["kind"] for a in alarms])
+            # A second try: the east desk acts, the instructor edits the script, the trip comes again.
+            s, body, _ = srv.request("POST", "/api/v1/commands", {"kind": "agc", "area": "east", "enabled": True},
+                                     code["east-desk"])
+            self.assertEqual((s, body.get("by")), (200, "east-desk"), body)
+            s, body, _ = srv.request("POST", "/api/v1/script/s2/shift", {"at_s": 9}, TOKEN)
+            self.assertEqual(s, 200, body)
+            self.assertTrue(wait_for(lambda: srv.request("GET", "/api/v1/state")[1]["t_s"] > 11, 30))
+            self.assertEqual(state()["s1"], "fired")
+            # A rewind to before the trip: the script goes back with it (not lost to the checkpoint).
+            s, body, _ = srv.request("POST", "/api/v1/control", {"action": "rewind", "to_s": 3.0}, TOKEN)
+            self.assertEqual(s, 200, body)
+            self.assertEqual(state()["s1"], "pending")
+            # ... with the script as edited before the rewind's target (the shift to 9 s).
+            script = {e["id"]: e for e in srv.request("GET", "/api/v1/script", token=TOKEN)[1]["events"]}
+            self.assertEqual(script["s2"]["at_s"], 9)
+            self.assertTrue(wait_for(lambda: srv.request("GET", "/api/v1/state")[1]["t_s"] > 12, 30))
+            self.assertEqual(state()["s1"], "fired")
+            s, body, _ = srv.request("POST", "/api/v1/control", {"action": "pause"}, TOKEN)
+            s, live, _ = srv.request("GET", "/api/v1/history?format=csv")
+            self.assertEqual(srv.stop(), 0)
+            with open(srv.journal) as fh:
+                records = [json.loads(line) for line in fh if line.strip()]
+            self.assertEqual([r["type"] for r in records if r["type"] in ("savepoint", "restore", "rewind")],
+                             ["savepoint", "restore", "rewind"])
+            self.assertEqual({r.get("by") for r in records if r["type"] == "commands"},
+                             {"west-desk", "east-desk", "script"})
+            out = tempfile.mkdtemp()
+            subprocess.run([ts.BIN, "replay", srv.journal, "--out", out, "--quiet", "--final-lineage"], check=True)
+            with open(os.path.join(out, "series.csv")) as fh:
+                self.assertEqual(live.decode(), fh.read())
+        finally:
+            srv.stop()
+
 
 def main():
     ts.BIN, ts.SRC = sys.argv[1], sys.argv[2]
