@@ -191,6 +191,29 @@ for (const vp of VIEWPORTS) {
   });
 }
 
+test("the instructor's controls stay in view, a trip waits for a confirmation and is acknowledged", async () => {
+  const { page, errors } = pages.instructor;
+  await page.evaluate(() => window.scrollTo(0, document.body.scrollHeight));
+  const b = await page.locator('#do-tie-trip').boundingBox();
+  assert.ok(b.y >= 0 && b.y + b.height <= LAPTOP.height, `the tie trip button in view at the foot of the page: ${JSON.stringify(b)}`);
+  const sent = [];
+  page.on('request', (r) => { if (r.url().endsWith('/api/v1/commands')) sent.push(r.postData()); });
+  await page.selectOption('#tie-select', 'wx');
+  await page.click('#do-tie-trip');
+  assert.match(await page.locator('#confirm-text').textContent(), /^Trip tie wx\?/);
+  await page.click('#confirm-no');
+  await page.waitForTimeout(300);
+  assert.deepEqual(sent, [], 'cancelled: nothing sent');
+  await page.click('#do-tie-trip');
+  await page.click('#confirm-yes');
+  await page.locator('#applied .note', { hasText: /^Applied at t = [\d.]+ s: trip tie wx$/ }).waitFor({ timeout: 5000 });
+  assert.equal(sent.length, 1);
+  await page.locator('#action-feed li', { hasText: 'wx' }).locator('.by', { hasText: 'instructor' }).first().waitFor({ timeout: 5000 });
+  await shot(page, `exercise-instructor-scrolled-${size(LAPTOP)}`);
+  await page.evaluate(() => window.scrollTo(0, 0));
+  assert.deepEqual(errors, []);
+});
+
 test('screenshots of every view at both sizes', async () => {
   const overview = await open('');
   for (const vp of VIEWPORTS) {
