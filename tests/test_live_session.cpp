@@ -393,8 +393,8 @@ TEST_CASE("a restore refuses the commands still waiting and journals what replay
     types.push_back(j["type"]);
     if (j["type"] == "restore") {
       CHECK(j["taken"] == 0);
-      CHECK(j["savepoint"] == saved.data["id"]);
-      CHECK(j["to_step"] == saved.data["step"]);
+      CHECK(j["savepoint"].get<std::uint64_t>() == saved.data["id"].get<std::uint64_t>());
+      CHECK(j["to_step"].get<std::int64_t>() == saved.data["step"].get<std::int64_t>());
       CHECK(j["by"] == "instructor");
     }
   }
