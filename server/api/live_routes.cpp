@@ -42,6 +42,19 @@ bool query_number(const Target& t, const std::string& key, double fallback, doub
   return true;
 }
 
+// For a seat's call: its areas as the roster has them now, in `scope` (a seat dropped by loading
+// another exercise acts no more: answered 403, false). The instructor's call: no scope.
+bool seat_scope(Services& s, const Call& c, std::optional<SeatScope>& scope) {
+  if (c.role != Role::seat) return true;
+  const std::optional<SeatIdentity> now = c.seat ? s.seats.find(c.seat->id) : std::nullopt;
+  if (!now) {
+    c.error(403, "this seat is not part of the running exercise: ask the instructor for a new code");
+    return false;
+  }
+  scope = SeatScope{now->id, now->areas};
+  return true;
+}
+
 // What the live session's change came to, as a reply (any thread).
 LiveSession::Done answer(const Call& call) {
   return [respond = call.respond](LiveSession::Result r) {
@@ -189,11 +202,7 @@ void ack_alarm(Services& s, Call& c) {
     return c.error(400, "alarm id: must be a whole number, got " + quote_cut(id));
   // Who acknowledges: the instructor, or a seat (then only alarms of its own areas).
   std::optional<SeatScope> scope;
-  if (c.role == Role::seat) {
-    const std::optional<SeatIdentity> now = c.seat ? s.seats.find(c.seat->id) : std::nullopt;
-    if (!now) return c.error(403, "this seat is not part of the running exercise: ask the instructor for a new code");
-    scope = SeatScope{now->id, now->areas};
-  }
+  if (!seat_scope(s, c, scope)) return;
   const std::string author = scope ? scope->seat : "instructor";
   s.live->ack_alarm(std::stoull(id), author, std::move(scope), answer(c));
 }
@@ -212,12 +221,7 @@ void commands(Services& s, Call& c) {
   CommandParse cp = parse_commands(c.request.body);
   if (!cp.issues.empty()) return c.error(400, "invalid command; nothing applied", issue_texts(cp.issues));
   std::optional<SeatScope> scope;
-  if (c.role == Role::seat) {
-    // The seat as the roster has it now: a seat dropped by loading another exercise acts no more.
-    const std::optional<SeatIdentity> now = c.seat ? s.seats.find(c.seat->id) : std::nullopt;
-    if (!now) return c.error(403, "this seat is not part of the running exercise: ask the instructor for a new code");
-    scope = SeatScope{now->id, now->areas};
-  }
+  if (!seat_scope(s, c, scope)) return;
   std::string author = scope ? scope->seat : "instructor";
   s.live->apply(std::move(cp.commands), std::move(author), std::move(scope), answer(c));
 }
