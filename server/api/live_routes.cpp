@@ -199,7 +199,7 @@ void get_alarms(Services& s, Call& c) {
 void ack_alarm(Services& s, Call& c) {
   const std::string& id = c.params[0];
   if (id.empty() || id.size() > 15 || id.find_first_not_of("0123456789") != std::string::npos)
-    return c.error(400, "alarm id: must be a whole number, got " + quote_cut(id));
+    return c.error(400, "alarm id: must be a whole number of at most 15 digits, got " + quote_cut(id));
   // Who acknowledges: the instructor, or a seat (then only alarms of its own areas).
   std::optional<SeatScope> scope;
   if (!seat_scope(s, c, scope)) return;
