@@ -260,6 +260,35 @@ class StreamTests(ThreeAreaServerCase):
         self.assertIn("p_mw", st["units"]["O2"])
         self.assertIn("flow_mw", st["ties"]["osk_dre"])
 
+    def test_operator_actions_over_http(self):
+        """Shedding by hand, restoring, and the secondary-control mode: applied, refused in words by
+        the state check, and seen in the state."""
+        def post(cmd):
+            return self.srv.request("POST", "/api/v1/commands", cmd, TOKEN)
+
+        def state_after(t_s):
+            for _ in range(200):
+                s, st, _ = self.srv.request("GET", "/api/v1/state")
+                if st["t_s"] >= t_s:
+                    return st
+                time.sleep(0.02)
+            self.fail("the state did not reach the command's time")
+
+        s, body, _ = post({"kind": "shed", "area": "oskany", "mw": 20})
+        self.assertEqual(s, 200, body)
+        self.assertGreaterEqual(state_after(body["t_s"])["areas"]["oskany"]["shed_mw"], 20 - 1e-9)
+        s, body, _ = post({"kind": "restore", "area": "oskany", "mw": 5000})
+        self.assertNotEqual(s, 200, body)
+        self.assertIn("cannot restore 5000 MW", json.dumps(body))
+        s, body, _ = post({"kind": "restore", "area": "oskany"})
+        self.assertEqual(s, 200, body)
+        enabled = state_after(body["t_s"])["areas"]["oskany"]["agc_enabled"]
+        s, body, _ = post({"kind": "agc", "area": "oskany", "enabled": enabled, "mode": "constant_frequency"})
+        self.assertEqual(s, 200, body)
+        self.assertEqual(state_after(body["t_s"])["areas"]["oskany"]["agc_mode"], "constant_frequency")
+        s, body, _ = post({"kind": "agc", "area": "oskany", "enabled": enabled, "mode": "tie_line_bias"})
+        self.assertEqual(s, 200, body)
+
     def test_history_and_events(self):
         s, text, r = self.srv.request("GET", "/api/v1/history?format=csv&every_s=0.5&from_s=0&to_s=2")
         self.assertEqual(s, 200)
@@ -388,6 +417,9 @@ BAD = [
     ("POST", "/api/v1/commands", '[{"kind": "load_step", "area": "oskany", "mw": 5}, {"kind": "tie_trip", "tie": "nope"}]', TOKEN, 400, 'commands[1].tie: unknown tie \\"nope\\"'),
     ("POST", "/api/v1/commands", "[]", TOKEN, 400, "commands: must hold at least one command"),
     ("POST", "/api/v1/commands", '{"kind": "governor", "unit": "V1", "droop": -1}', TOKEN, 400, "command.droop: must lie within [0.001, 1], got -1"),
+    ("POST", "/api/v1/commands", '{"kind": "shed", "area": "oskany", "mw": -5}', TOKEN, 400, "command.mw: must be > 0, got -5"),
+    ("POST", "/api/v1/commands", '{"kind": "agc", "area": "oskany", "enabled": true, "mode": "droop"}', TOKEN, 400, "command.mode: must be one of"),
+    ("POST", "/api/v1/commands", '{"kind": "unit_stop", "unit": "V1", "ramp_mw_per_s": 0}', TOKEN, 400, "command.ramp_mw_per_s: must be > 0, got 0"),
     ("POST", "/api/v1/commands", '{"kind": "load_step", "area": "oskany", "mw": 5}', None, 401, "instructor token"),
     ("POST", "/api/v1/commands", '{"kind": "load_step", "area": "oskany", "mw": 5}', "x" * 33, 403, "wrong instructor token"),
     ("POST", "/api/v1/commands", b'{"kind": "load_step", "area": "osk\xff\xfeany", "mw": 5}', TOKEN, 400, "invalid"),
