@@ -120,11 +120,33 @@ std::int64_t LiveSession::lead_steps() const {
   return static_cast<std::int64_t>(std::ceil(config_.journal_lead_s * speed_.load() / def().step_s));
 }
 
+namespace {
+
+// What an exercise does after a step, with its state passed in: the alarm monitor is fed the
+// notices since its last update (then cleared) and the script hands out the events now due. One
+// rule for the live loop (which sends the changes and submits the firings) and for the way back
+// of a rewind (which rebuilds the state and drops both: they were sent when the lineage first ran).
+struct ExerciseStep {
+  std::vector<study::AlarmChange> changes;
+  std::vector<study::ScriptFiring> firings;
+};
+ExerciseStep feed_exercise(const Engine& engine, std::optional<study::AlarmMonitor>& alarms,
+                           std::optional<study::ScriptRunner>& script, std::vector<Notice>& notices,
+                           std::int64_t lead_steps, bool run_script) {
+  ExerciseStep out;
+  if (alarms) out.changes = alarms->update(engine, notices);
+  notices.clear();
+  if (script && run_script) out.firings = script->due(engine, lead_steps);
+  return out;
+}
+
+}  // namespace
+
 void LiveSession::exercise_after_step() {
-  if (alarms_) push_alarm_changes(alarms_->update(*engine_, alarm_notices_));
-  alarm_notices_.clear();
-  if (!script_ || !halted_.empty()) return;
-  for (const study::ScriptFiring& f : script_->due(*engine_, lead_steps())) submit_firing(f);
+  const ExerciseStep step =
+      feed_exercise(*engine_, alarms_, script_, alarm_notices_, lead_steps(), halted_.empty());
+  if (alarms_) push_alarm_changes(step.changes);
+  for (const study::ScriptFiring& f : step.firings) submit_firing(f);
 }
 
 void LiveSession::submit_firing(const study::ScriptFiring& f) {
@@ -569,9 +591,7 @@ void LiveSession::rewind(double to_s, std::string author, Done done) {
     };
     hooks.stepped = [this, pending](study::SavedState& s) {
       for (Notice& n : s.engine->take_notices()) pending->push_back(std::move(n));
-      if (s.alarms) s.alarms->update(*s.engine, *pending);
-      pending->clear();
-      if (s.script) s.script->due(*s.engine, lead_steps());
+      feed_exercise(*s.engine, s.alarms, s.script, *pending, lead_steps(), true);
     };
     study::SavedState state = timeline_.rewind(to, hooks);
     const auto& d = state.engine->disturbances();
@@ -760,8 +780,7 @@ void LiveSession::ack_alarm(std::uint64_t id, std::string author, std::optional<
     if (!a) return done(refused(404, "no alarm " + std::to_string(id)));
     if (scope) {
       bool own = false;
-      for (std::uint32_t area : a->areas)
-        own = own || std::find(scope->areas.begin(), scope->areas.end(), def().areas[area].id) != scope->areas.end();
+      for (std::uint32_t area : a->areas) own = own || answers_for(*scope, def().areas[area].id);
       if (!own)
         return done(refused(403, "alarm " + std::to_string(id) + " (" + a->message + ") is not about an area seat \"" +
                                      scope->seat + "\" answers for"));

@@ -13,6 +13,10 @@ std::string listed(const std::vector<std::string>& ids) {
 
 }  // namespace
 
+bool answers_for(const SeatScope& scope, std::string_view area) {
+  return std::find(scope.areas.begin(), scope.areas.end(), area) != scope.areas.end();
+}
+
 bool seat_may_send(CommandKind kind) {
   switch (kind) {
     case CommandKind::setpoint:
@@ -32,9 +36,6 @@ std::vector<Issue> outside_scope(const CheckedSystem& system, const std::vector<
                                  const SeatScope& scope) {
   std::vector<Issue> issues;
   const SystemDef& def = system.def();
-  const auto own = [&](const std::string& area) {
-    return std::find(scope.areas.begin(), scope.areas.end(), area) != scope.areas.end();
-  };
   const std::string seat = "seat \"" + scope.seat + "\"";
   for (std::size_t i = 0; i < commands.size(); ++i) {
     const Command& c = commands[i];
@@ -48,10 +49,10 @@ std::vector<Issue> outside_scope(const CheckedSystem& system, const std::vector<
       const auto u = system.index().unit(c.unit);
       if (!u) continue;  // resolve_all names it
       const std::string& area = def.units[u->index].area;
-      if (!own(area))
+      if (!answers_for(scope, area))
         issues.push_back({at + ".unit", "unit \"" + c.unit + "\" is in area \"" + area + "\", which " + seat +
                                             " does not answer for (its areas: " + listed(scope.areas) + ")"});
-    } else if (system.index().area(c.area) && !own(c.area)) {
+    } else if (system.index().area(c.area) && !answers_for(scope, c.area)) {
       issues.push_back({at + ".area", "area \"" + c.area + "\" is not one " + seat +
                                           " answers for (its areas: " + listed(scope.areas) + ")"});
     }

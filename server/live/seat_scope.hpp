@@ -3,6 +3,7 @@
 // areas' secondary control, schedule and load (shed, restore). Everything else (load changes,
 // trips, ties, governor settings, fluctuation) is the instructor's, who plays the rest of the world.
 #include <string>
+#include <string_view>
 #include <vector>
 
 #include "droopline/defs.hpp"
@@ -15,6 +16,9 @@ struct SeatScope {
   std::string seat;                ///< seat id
   std::vector<std::string> areas;  ///< area ids
 };
+
+/// True when `area` (an area id) is one `scope` answers for.
+bool answers_for(const SeatScope& scope, std::string_view area);
 
 /// True for the command kinds a seat may send (within its areas).
 bool seat_may_send(CommandKind kind);
