@@ -65,6 +65,15 @@ LiveSession::Done answer(const Call& call) {
   };
 }
 
+// The answer to a load: once it is in, the roster takes the new seats (new join codes, the old
+// ones stop working; none for a plain scenario).
+LiveSession::Done answer_with_seats(Services& s, const Call& c, std::vector<study::SeatDef> seats) {
+  return [&s, seats = std::move(seats), done = answer(c)](LiveSession::Result r) {
+    if (r.status == 200) s.seats.set(seats);
+    done(std::move(r));
+  };
+}
+
 // A text reply with its own content type.
 Reply text_reply(std::string type, std::string body) {
   Reply r;
@@ -158,12 +167,8 @@ void put_exercise(Services& s, Call& c) {
   // Over HTTP only an inline scenario: a path would reach the server's disk.
   study::ExerciseLoad x = study::parse_exercise(c.request.body, "");
   if (!x.exercise) return c.error(400, "invalid exercise; nothing changed", issue_texts(x.issues));
-  // Once loaded, the new exercise's seats get new join codes (the old codes stop working).
   std::vector<study::SeatDef> seats = x.exercise->def.seats;
-  s.live->load_exercise(std::move(*x.exercise), [&s, seats = std::move(seats), done = answer(c)](LiveSession::Result r) {
-    if (r.status == 200) s.seats.set(seats);
-    done(std::move(r));
-  });
+  s.live->load_exercise(std::move(*x.exercise), answer_with_seats(s, c, std::move(seats)));
 }
 
 void get_script(Services& s, Call& c) { s.live->script(answer(c)); }
@@ -211,10 +216,7 @@ void put_scenario(Services& s, Call& c) {
   LoadResult r = parse_scenario(c.request.body);
   if (!r.system) return c.error(400, "invalid scenario; nothing changed", issue_texts(r.issues));
   // A plain scenario ends the exercise, and with it the seats.
-  s.live->load(std::move(*r.system), [&s, done = answer(c)](LiveSession::Result result) {
-    if (result.status == 200) s.seats.set({});
-    done(std::move(result));
-  });
+  s.live->load(std::move(*r.system), answer_with_seats(s, c, {}));
 }
 
 void commands(Services& s, Call& c) {
