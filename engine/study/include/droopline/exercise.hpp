@@ -8,8 +8,11 @@
 #include <string_view>
 #include <vector>
 
+#include <nlohmann/json_fwd.hpp>
+
 #include "droopline/alarms.hpp"
 #include "droopline/defs.hpp"
+#include "droopline/objective_def.hpp"
 #include "droopline/validate.hpp"
 
 namespace droopline::study {
@@ -48,6 +51,7 @@ struct ExerciseDef {
   std::vector<ScriptEventDef> script;
   AlarmLimits alarms;                    ///< defaults for f0 filled in, file values over them
   double time_limit_s = 0.0;             ///< the exercise's length (s)
+  std::vector<ObjectiveDef> objectives;  ///< what each seat is scored on (may be empty)
 };
 
 /// A parsed and checked exercise: its definition and its checked scenario.
@@ -79,5 +83,9 @@ std::optional<ScriptEventDef> parse_script_event(std::string_view json_text, std
 /// True when the JSON text looks like an exercise (an object with `seats` or `script`): lets
 /// `droopline check` take either kind of file.
 bool looks_like_exercise(std::string_view json_text);
+/// The exercise as a self-contained exercise file (scenario inline, script with its ids,
+/// alarm limits and objectives as filled in): `parse_exercise` of its dump gives the same
+/// exercise. The journal keeps it, so a debrief needs nothing but the journal.
+nlohmann::ordered_json exercise_to_json(const Exercise& exercise);
 
 }  // namespace droopline::study
