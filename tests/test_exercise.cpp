@@ -9,40 +9,21 @@
 #include "droopline/alarms.hpp"
 #include "droopline/exercise.hpp"
 #include "droopline/script.hpp"
+#include "exercise_support.hpp"
 #include "support.hpp"
 
 using namespace droopline;
 using namespace droopline::study;
 using json = nlohmann::ordered_json;
 
+using test::errors_of;
+using test::load_ok;
+
 namespace {
 
 const char* kFile = "tests/data/exercise_two_areas.json";
 
-json file_json() {
-  std::ifstream in(test::source_path(kFile));
-  std::stringstream ss;
-  ss << in.rdbuf();
-  return json::parse(ss.str());
-}
-
-Exercise load_ok(const std::string& text, const std::string& base = "") {
-  ExerciseLoad r = parse_exercise(text, base);
-  std::string msgs;
-  for (const auto& i : r.issues) msgs += i.text() + "\n";
-  INFO(msgs);
-  REQUIRE(r.exercise);
-  return std::move(*r.exercise);
-}
-
-std::string errors_of(const std::string& text, const std::string& base = "") {
-  ExerciseLoad r = parse_exercise(text, base);
-  CHECK_FALSE(r.exercise);
-  std::string msgs;
-  for (const auto& i : r.issues)
-    if (!i.warning) msgs += i.text() + "\n";
-  return msgs;
-}
+json file_json() { return json::parse(test::read_source(kFile)); }
 
 // Steps and feeds the runner after each step, applying what it hands out at its own step (as the
 // live session does through its pipeline). Returns the firings with the step they were handed out.
