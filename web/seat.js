@@ -141,7 +141,7 @@ export async function buildSeat() {
     leave('The instructor loaded another exercise: join with your new code.');
     return;
   }
-  $('seat-title').textContent = `${app.seat.name} (${app.seat.areas.join(', ')})`;
+  $('seat-title').textContent = `${app.seat.name} (${app.seat.areas.join(', ')})${app.trainee ? `: ${app.trainee}` : ''}`;
   $('seat-briefing').textContent = app.exercise?.briefing || 'No briefing: no exercise is running.';
   $('seat-areas').replaceChildren(...app.scenario.areas.filter((a) => app.seat.areas.includes(a.id)).map(areaCard));
   renderSeatAlarms();

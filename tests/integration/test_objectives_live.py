@@ -9,22 +9,21 @@ state back, and hostile input to the new routes.
 import asyncio
 import json
 import os
-import sys
 import tempfile
 import time
 import unittest
 
 import websockets
 
+import test_exercise as te
 import test_server as ts
+from test_exercise import wait_for
 from test_server import TOKEN, run
-
-SOURCE = None  # tests/data/exercise_two_areas.json
 
 
 def exercise_file(**changes):
     """The test exercise with objectives for both seats (and `changes`), written to a temporary file."""
-    with open(SOURCE) as fh:
+    with open(te.EXERCISE) as fh:
         ex = json.load(fh)
     ex["objectives"] = [
         {"id": "dev", "measure": "largest_deviation_hz", "target": 0.05},
@@ -36,16 +35,6 @@ def exercise_file(**changes):
     with open(path, "w") as fh:
         json.dump(ex, fh)
     return path
-
-
-def wait_for(pred, timeout=20.0, every=0.05):
-    deadline = time.time() + timeout
-    while time.time() < deadline:
-        v = pred()
-        if v:
-            return v
-        time.sleep(every)
-    return None
 
 
 def journal(srv):
@@ -272,7 +261,7 @@ class TimeLimit(LiveCase):
 class StopEndsTheRun(LiveCase):
 
     def test_a_run_cut_short_is_marked_incomplete(self):
-        with open(SOURCE) as fh:
+        with open(te.EXERCISE) as fh:
             self.call("PUT", "/api/v1/scenario", json.load(fh)["scenario"])
         self.assertEqual(self.srv.stop(), 0)
         records = journal(self.srv)
@@ -281,12 +270,5 @@ class StopEndsTheRun(LiveCase):
         self.assertEqual([r["type"] for r in records], ["scenario", "exercise", "end", "scenario", "end", "stop"])
 
 
-def main():
-    ts.BIN, ts.SRC = sys.argv[1], sys.argv[2]
-    global SOURCE
-    SOURCE = os.path.join(ts.SRC, "tests", "data", "exercise_two_areas.json")
-    unittest.main(argv=[sys.argv[0], "-v", *sys.argv[3:]], exit=True)
-
-
 if __name__ == "__main__":
-    main()
+    te.main()  # the same arguments and exercise (tests/data/exercise_two_areas.json); runs this file's tests

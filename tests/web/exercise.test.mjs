@@ -329,6 +329,7 @@ test('the instructor ends the exercise: every seat sees it ended and its command
   await west.locator('[data-error-for="area:west"]', { hasText: 'the exercise has ended' }).waitFor({ timeout: 5000 });
   for (const vp of VIEWPORTS) {
     await west.setViewportSize(vp);
+    await west.evaluate(() => window.scrollTo(0, 0)); // the banner, at the top
     await west.waitForTimeout(300);
     await shot(west, `exercise-seat-ended-${size(vp)}`);
   }
