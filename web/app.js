@@ -17,7 +17,7 @@
 //   desk.js        the instructor view's panels: seats, script, save points and rewind, feed, alarms
 //   studies.js     modes, requirement checks, sweeps, COMTRADE records
 //   views.js       droop and power-angle canvases
-import { app, $ } from '/state.js';
+import { app, $, fmt } from '/state.js';
 import { connect, startsRun } from '/connection.js';
 import { buildCharts, loadHistory, addFrame, redrawCharts, resizeCharts } from '/charts.js';
 import { renderStatic, renderLive, renderClock, renderDisturbance, logEvent, clearRun } from '/live.js';
@@ -58,7 +58,7 @@ function scheduleRedraw() {
 // An event for the log and, with an author, the instructor's feed. The overview asks for the
 // exercise (its seats' names) only once a seat has acted: without one the route answers 404.
 function takeEvent(e) {
-  if (e.type === 'exercise_end') showEnded(true, e.text);
+  if (e.type === 'exercise_end') showEnded(true, `At t = ${fmt(e.t_s, 2)} s, ${e.why}: commands are closed until the instructor starts a new run.`);
   if (view === 'overview' && e.by && !['instructor', 'script'].includes(e.by) && !app.exercise) loadExercise();
   logEvent(e);
   feedEvent(e);
