@@ -11,12 +11,13 @@
 //   controls.js    instructor controls and field checks
 //   alarms.js      alarms from the stream, the one alarm list, acknowledging, the alarm tone
 //   exercise.js    the running exercise (briefing, time limit, seat names)
+//   objectives.js  objectives' running state (one table per seat), the exercise-ended banner
 //   wall.js        the wall view: large frequencies, alarms, tie flows, exercise clock
 //   seat.js        the seat view: join code, briefing, the seat's areas and units with their controls
 //   desk.js        the instructor view's panels: seats, script, save points and rewind, feed, alarms
 //   studies.js     modes, requirement checks, sweeps, COMTRADE records
 //   views.js       droop and power-angle canvases
-import { app, $ } from '/state.js';
+import { app, $, fmt } from '/state.js';
 import { connect, startsRun } from '/connection.js';
 import { buildCharts, loadHistory, addFrame, redrawCharts, resizeCharts } from '/charts.js';
 import { renderStatic, renderLive, renderClock, renderDisturbance, logEvent, clearRun } from '/live.js';
@@ -24,6 +25,7 @@ import { wireControls, fillChoices, unlockWith } from '/controls.js';
 import { wireStudies, clearSweepNote } from '/studies.js';
 import { takeAlarms, alarmMessage, fetchAlarms } from '/alarms.js';
 import { loadExercise } from '/exercise.js';
+import { showEnded } from '/objectives.js';
 import { prepareWall, buildWall, renderWall } from '/wall.js';
 import { wireSeat, buildSeat, renderSeat } from '/seat.js';
 import { makeDesk, refreshDesk, unlockedDesk, feedEvent, clearFeed } from '/desk.js';
@@ -56,6 +58,7 @@ function scheduleRedraw() {
 // An event for the log and, with an author, the instructor's feed. The overview asks for the
 // exercise (its seats' names) only once a seat has acted: without one the route answers 404.
 function takeEvent(e) {
+  if (e.type === 'exercise_end') showEnded(true, `At t = ${fmt(e.t_s, 2)} s, ${e.why}: commands are closed until the instructor starts a new run.`);
   if (view === 'overview' && e.by && !['instructor', 'script'].includes(e.by) && !app.exercise) loadExercise();
   logEvent(e);
   feedEvent(e);
@@ -108,7 +111,10 @@ connect({
     scheduleRedraw();
   },
   event: (e) => {
-    if (startsRun(e)) clearRun();
+    if (startsRun(e)) {
+      clearRun();
+      showEnded(false);
+    }
     takeEvent(e);
   },
   disturbance: (d) => {

@@ -104,7 +104,7 @@ class ExerciseCase(unittest.TestCase):
         # The exercise for everyone: no script, no join codes.
         s, ex, _ = self.srv.request("GET", "/api/v1/exercise")
         self.assertEqual(s, 200)
-        self.assertEqual(set(ex), {"name", "briefing", "time_limit_s", "seats"})
+        self.assertEqual(set(ex), {"name", "briefing", "time_limit_s", "seats", "ended"})
         self.assertEqual(ex["seats"][0], {"id": "west-desk", "name": "West desk", "areas": ["west"]})
         # The edit is in everyone's log with its author and without its content.
         edits = [e for e in self.events() if e.get("kind") == "script"]

@@ -470,7 +470,7 @@ class AttackFindingsTests(DemoServerCase):
         self.assertFalse(out["auth"]["ok"])
         self.assertEqual(out["auth"]["error"], "wrong instructor token")
         self.assertEqual(out["speed"]["body"]["error"], "speed: must lie within [0.1, 100], got 500")
-        self.assertIn('action: must be one of "pause", "resume", "reset", "speed", "rewind", got "fly"', out["action"]["body"]["error"])
+        self.assertIn('action: must be one of "pause", "resume", "reset", "speed", "rewind", "end", got "fly"', out["action"]["body"]["error"])
         self.assertIn("commands: required", out["commands"]["body"]["error"])
 
 
