@@ -462,6 +462,7 @@ PROTECTED = [
     ("POST", "/api/v1/script/s1/skip", None, "only the instructor sees"),
     ("POST", "/api/v1/script/s1/shift", '{"at_s": 5}', "only the instructor sees"),
     ("POST", "/api/v1/alarms/1/ack", None, "only an operator seat or the instructor can acknowledge alarms"),
+    ("GET", "/api/v1/debrief", None, "the debrief is for the instructor"),
 ]
 OPEN_TO_VIEWERS = ["/healthz", "/metrics", "/api/v1/state", "/api/v1/role", "/api/v1/scenario", "/api/v1/history",
                    "/api/v1/events", "/api/v1/record?from_s=0&to_s=1", "/api/v1/openapi.json",
