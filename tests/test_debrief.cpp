@@ -31,10 +31,10 @@ json exercise_json() {
   ss << in.rdbuf();
   json x = json::parse(ss.str());
   x["objectives"] = json::array({
-      json{{"measure", "largest_deviation_hz"}, {"target", 0.1}},
-      json{{"measure", "time_outside_standard_s"}, {"target", 2.0}, {"weight", 2}},
-      json{{"seat", "east-desk"}, {"measure", "alarm_to_ack_s"}, {"target", 2.0}},
-      json{{"seat", "east-desk"}, {"measure", "alarm_to_action_s"}, {"target", 3.0}},
+      json{{"measure", "largest_deviation_hz"}, {"target", 0.3}, {"zero_at", 0.9}},
+      json{{"measure", "time_outside_standard_s"}, {"target", 5.0}, {"zero_at", 60.0}, {"weight", 2}},
+      json{{"seat", "east-desk"}, {"measure", "alarm_to_ack_s"}, {"target", 1.0}, {"zero_at", 5.0}},
+      json{{"seat", "east-desk"}, {"measure", "alarm_to_action_s"}, {"target", 3.0}, {"zero_at", 30.0}},
   });
   return x;
 }
@@ -53,7 +53,8 @@ struct JournalFile {
   fs::path path;
   explicit JournalFile(const std::vector<std::string>& lines, const std::string& tail = "") {
     static int n = 0;
-    path = fs::temp_directory_path() / ("droopline_debrief_" + std::to_string(::getpid()) + "_" + std::to_string(++n) + ".jsonl");
+    path = fs::temp_directory_path() /
+           ("droopline_debrief_" + std::to_string(::getpid()) + "_" + std::to_string(++n) + ".jsonl");
     std::ofstream out(path, std::ios::binary);
     for (const std::string& l : lines) out << l << "\n";
     out << tail;
@@ -74,6 +75,10 @@ json batch(std::int64_t step, const json& command, const std::string& by) {
   return json{{"type", "commands"}, {"step", step}, {"commands", json::array({command})}, {"by", by}};
 }
 
+// The trip's alarm: the monitor raises both areas' low-reserve warnings first (at 0.5 s), so it is
+// the third (run_directly checks it is about e2).
+constexpr std::uint64_t kTripAlarm = 3;
+
 const json kTrip{{"kind", "unit_trip"}, {"unit", "e2"}};
 const json kEastRaise{{"kind", "setpoint"}, {"unit", "e1"}, {"mw", 350}};
 const json kWestDrop{{"kind", "load_step"}, {"area", "west"}, {"mw", -20}};  // rewound away
@@ -89,7 +94,7 @@ std::vector<std::string> journal_lines(const Plan& p, const json& x, const std::
       json{{"type", "exercise"}, {"step", 0}, {"run", kRun}, {"exercise", x}}.dump(),
       json{{"type", "trainee"}, {"step", 0}, {"seat", "east-desk"}, {"name", trainee}}.dump(),
       batch(p.at(5), kTrip, "script").dump(),
-      json{{"type", "ack"}, {"step", p.at(7)}, {"alarm", 1}, {"by", "east-desk"}}.dump(),
+      json{{"type", "ack"}, {"step", p.at(7)}, {"alarm", kTripAlarm}, {"by", "east-desk"}}.dump(),
       batch(p.at(10), kEastRaise, "east-desk").dump(),
       batch(p.at(20), kWestDrop, "west-desk").dump(),
       json{{"type", "rewind"}, {"step", p.at(25)}, {"taken", 3}, {"to_step", p.at(15)}, {"by", "instructor"}}.dump(),
@@ -114,7 +119,11 @@ Direct run_directly(const Exercise& ex, const Plan& p) {
   std::size_t next = 0;
   std::vector<Notice> pending;
   while (e->step_index() <= p.at(30)) {
-    if (e->step_index() == p.at(7)) REQUIRE(alarms.acknowledge(1, "east-desk", e->time_s()));
+    if (e->step_index() == p.at(7)) {
+      REQUIRE(alarms.find(kTripAlarm));
+      REQUIRE(alarms.find(kTripAlarm)->subject == "e2");
+      REQUIRE(alarms.acknowledge(kTripAlarm, "east-desk", e->time_s()));
+    }
     if (next < batches.size() && std::get<0>(batches[next]) == e->step_index()) {
       CommandParse cp = parse_commands(json::array({std::get<1>(batches[next])}).dump());
       Resolved r = resolve_all(e->system(), cp.commands);
@@ -161,14 +170,16 @@ TEST_CASE("debrief: the final lineage's actions with their authors, the ack, tra
   std::vector<std::tuple<std::string, std::string, double>> acted;
   bool rewind = false, acked = false;
   for (const json& e : d["timeline"]) {
-    if (e["kind"] == "action" || e["kind"] == "script")
-      acted.emplace_back(e["kind"], e["by"], e["t_s"].get<double>());
+    if (e["kind"] == "action" || e["kind"] == "script") acted.emplace_back(e["kind"], e["by"], e["t_s"].get<double>());
     if (e["kind"] == "rewind") rewind = e["by"] == "instructor" && e["t_s"].get<double>() == Approx(25.0);
     if (e["kind"] == "alarm acknowledged")
-      acked = e["by"] == "east-desk" && e["marker"] == "A1" && e["t_s"].get<double>() == Approx(7.0);
+      acked = e["by"] == "east-desk" && e["marker"] == "A" + std::to_string(kTripAlarm) &&
+              e["t_s"].get<double>() == Approx(7.0);
   }
   REQUIRE(acted.size() == 3);
-  CHECK(acted[0] == std::tuple<std::string, std::string, double>{"script", "script", Approx(5.0)});
+  CHECK(std::get<0>(acted[0]) == "script");
+  CHECK(std::get<1>(acted[0]) == "script");
+  CHECK(std::get<2>(acted[0]) == Approx(5.0));
   CHECK(std::get<1>(acted[1]) == "east-desk");
   CHECK(std::get<2>(acted[1]) == Approx(10.0));
   CHECK(std::get<1>(acted[2]) == "east-desk");
@@ -178,7 +189,8 @@ TEST_CASE("debrief: the final lineage's actions with their authors, the ack, tra
   // The trip's alarm, raised at 5 s: acknowledged 2 s later, the east desk's first action 5 s later.
   bool raised = false;
   for (const json& e : d["timeline"])
-    if (e["kind"] == "alarm raised" && e["marker"] == "A1") {
+    if (e["kind"] == "alarm raised" && e["marker"] == "A" + std::to_string(kTripAlarm)) {
+      CHECK(e["t_s"].get<double>() == Approx(5.0));
       raised = true;
       CHECK(e["to_ack_s"].get<double>() == Approx(7.0 - e["t_s"].get<double>()));
       CHECK(e["to_action_s"].get<double>() == Approx(10.0 - e["t_s"].get<double>()));
@@ -198,6 +210,9 @@ TEST_CASE("debrief: the final lineage's actions with their authors, the ack, tra
   SECTION("the scores equal an objective monitor fed directly over the final lineage") {
     const Direct direct = run_directly(ex, p);
     REQUIRE(d["scores"].size() == direct.scores.size());
+    // Partial scores (not all full or none), so equal scores say something.
+    CHECK(direct.scores.at(1).score > 0.0);
+    CHECK(direct.scores.at(1).score < 100.0);
     for (std::size_t s = 0; s < direct.scores.size(); ++s) {
       CHECK(d["scores"][s]["seat"] == direct.scores[s].seat);
       CHECK(d["scores"][s]["score"].get<double>() == direct.scores[s].score);
@@ -235,11 +250,21 @@ TEST_CASE("debrief: a restore goes back to the save point's lineage", "[debrief]
       json{{"type", "scenario"}, {"step", 0}, {"run", kRun}, {"scenario", x["scenario"]}}.dump(),
       json{{"type", "exercise"}, {"step", 0}, {"run", kRun}, {"exercise", x}}.dump(),
       batch(p.at(5), kTrip, "script").dump(),
-      json{{"type", "savepoint"}, {"step", p.at(6)}, {"taken", 1}, {"id", 1}, {"name", "after the trip"}, {"by", "instructor"}}
+      json{{"type", "savepoint"},
+           {"step", p.at(6)},
+           {"taken", 1},
+           {"id", 1},
+           {"name", "after the trip"},
+           {"by", "instructor"}}
           .dump(),
       batch(p.at(10), kEastRaise, "east-desk").dump(),
-      json{{"type", "ack"}, {"step", p.at(11)}, {"alarm", 1}, {"by", "east-desk"}}.dump(),
-      json{{"type", "restore"}, {"step", p.at(12)}, {"taken", 2}, {"savepoint", 1}, {"to_step", p.at(6)}, {"by", "instructor"}}
+      json{{"type", "ack"}, {"step", p.at(11)}, {"alarm", kTripAlarm}, {"by", "east-desk"}}.dump(),
+      json{{"type", "restore"},
+           {"step", p.at(12)},
+           {"taken", 2},
+           {"savepoint", 1},
+           {"to_step", p.at(6)},
+           {"by", "instructor"}}
           .dump(),
       batch(p.at(8), kEastMore, "east-desk").dump(),
   });
@@ -256,7 +281,8 @@ TEST_CASE("debrief: a restore goes back to the save point's lineage", "[debrief]
     if (e["kind"] == "action") times.push_back(e["t_s"].get<double>());
     CHECK(e["kind"] != "alarm acknowledged");
   }
-  CHECK(times == std::vector<double>{Approx(8.0)});
+  REQUIRE(times.size() == 1);
+  CHECK(times[0] == Approx(8.0));
   CHECK(d["status"]["complete"] == false);  // no end record
 }
 

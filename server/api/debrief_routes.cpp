@@ -20,12 +20,13 @@ void get_debrief(Services& s, Call& c) {
   if (run.size() > 64 || std::any_of(run.begin(), run.end(), [](char ch) {
         return !std::isalnum(static_cast<unsigned char>(ch)) && ch != '-' && ch != '_';
       }))
-    return c.error(400, "query parameter run: a run id of letters, digits, '-' and '_' (at most 64), got " +
-                            quote_cut(run));
+    return c.error(400,
+                   "query parameter run: a run id of letters, digits, '-' and '_' (at most 64), got " + quote_cut(run));
   if (s.counters.replays_active.fetch_add(1) >= s.options.max_replays) {
     s.counters.replays_active.fetch_sub(1);
     s.counters.replays_refused.fetch_add(1);
-    return c.respond(Reply{429, "application/json",
+    return c.respond(Reply{429,
+                           "application/json",
                            error_json("too many replays and debriefs at once (at most " +
                                       std::to_string(s.options.max_replays) + "); retry later"),
                            {{"Retry-After", "2"}},
@@ -36,8 +37,8 @@ void get_debrief(Services& s, Call& c) {
     std::optional<std::string> html = study::debrief_html(path, run, {}, error);
     s.counters.replays_active.fetch_sub(1);
     if (!html)
-      return respond(Reply{error.rfind("no run", 0) == 0 ? 404 : 500, "application/json",
-                           error_json("no debrief: " + error), {}, {}});
+      return respond(Reply{
+          error.rfind("no run", 0) == 0 ? 404 : 500, "application/json", error_json("no debrief: " + error), {}, {}});
     respond(Reply{200, "text/html; charset=utf-8", std::move(*html), {{"Cache-Control", "no-store"}}, {}});
   });
 }

@@ -26,8 +26,8 @@ std::string mark_text(const SystemDef& def, const JournalMark& m) {
     case JournalMark::Kind::savepoint:
       return "save point " + std::to_string(m.id) + " \"" + m.name + "\" kept";
     case JournalMark::Kind::restore:
-      return "save point " + std::to_string(m.id) + " restored: back to t = " +
-             fmt_fixed(static_cast<double>(m.to_step) * step_s, 2) + " s";
+      return "save point " + std::to_string(m.id) +
+             " restored: back to t = " + fmt_fixed(static_cast<double>(m.to_step) * step_s, 2) + " s";
     case JournalMark::Kind::rewind:
       return "rewound to t = " + fmt_fixed(static_cast<double>(m.to_step) * step_s, 2) + " s";
   }
@@ -39,9 +39,9 @@ const char* mark_kind(JournalMark::Kind k) {
 }
 
 DebriefDisturbance disturbance_of(const SystemDef& def, const Disturbance& d) {
-  DebriefDisturbance out{d.at_s,   describe_cause(def, d), d.delta_mw,      d.rocof_hz_per_s,        d.zenith,
-                         d.nadir_hz, d.nadir_at_s,        d.settling_hz,   d.response_mw_per_0p1hz, d.pre_hz,
-                         d.predicted_settling_hz, {}};
+  DebriefDisturbance out{
+      d.at_s,        describe_cause(def, d),  d.delta_mw, d.rocof_hz_per_s,        d.zenith, d.nadir_hz, d.nadir_at_s,
+      d.settling_hz, d.response_mw_per_0p1hz, d.pre_hz,   d.predicted_settling_hz, {}};
   for (const UnitResponse& u : d.units)
     out.units.push_back({def.units[u.unit].id, u.predicted_mw, u.response_10s_mw, u.response_30s_mw});
   return out;
@@ -122,10 +122,16 @@ class Resim {
 
   void ack(const JournalAck& k) {
     const bool ok = alarms_ && alarms_->acknowledge(k.alarm, k.by, engine_->time_s());
-    d_.timeline.push_back({engine_->time_s(), "alarm acknowledged", k.by,
+    d_.timeline.push_back({engine_->time_s(),
+                           "alarm acknowledged",
+                           k.by,
                            ok ? "alarm A" + std::to_string(k.alarm) + ": " + alarms_->find(k.alarm)->message
                               : "alarm A" + std::to_string(k.alarm) + " (not raised on this lineage when re-simulated)",
-                           "A" + std::to_string(k.alarm), {}, {}, {}, {}});
+                           "A" + std::to_string(k.alarm),
+                           {},
+                           {},
+                           {},
+                           {}});
   }
 
   void apply(const JournalBatch& batch) {
@@ -160,8 +166,14 @@ class Resim {
     if (!al || c.what == AlarmChange::What::acknowledged) return;
     const bool raised = c.what == AlarmChange::What::raised;
     d_.timeline.push_back({raised ? al->raised_s : al->cleared_s.value_or(engine_->time_s()),
-                           raised ? "alarm raised" : "alarm cleared", "", al->message, "A" + std::to_string(al->id),
-                           {}, {}, {}, {}});
+                           raised ? "alarm raised" : "alarm cleared",
+                           "",
+                           al->message,
+                           "A" + std::to_string(al->id),
+                           {},
+                           {},
+                           {},
+                           {}});
   }
 
   // Each raised alarm's time to the first action of a seat it concerns and to its acknowledgement.
@@ -214,7 +226,8 @@ std::optional<Debrief> build_debrief(const std::string& journal_path, const std:
   }
   const JournalRun* run = &jr.runs.back();
   if (!run_id.empty()) {
-    const auto it = std::find_if(jr.runs.begin(), jr.runs.end(), [&](const JournalRun& r) { return r.run_id == run_id; });
+    const auto it =
+        std::find_if(jr.runs.begin(), jr.runs.end(), [&](const JournalRun& r) { return r.run_id == run_id; });
     if (it == jr.runs.end()) {
       error = "no run " + clip_text(run_id, 64) + " in " + journal_path;
       return std::nullopt;
@@ -248,14 +261,13 @@ std::optional<Debrief> build_debrief(const std::string& journal_path, const std:
   };
   for (const JournalTrainee& t : run->trainees) name_seat(t.seat, t.name);
   for (const auto& [seat, name] : extras.trainees) name_seat(seat, name);
-  for (const JournalNote& n : run->notes)
-    d.notes.push_back({static_cast<double>(n.step) * def.step_s, n.by, n.text});
+  for (const JournalNote& n : run->notes) d.notes.push_back({static_cast<double>(n.step) * def.step_s, n.by, n.text});
   d.notes.insert(d.notes.end(), extras.notes.begin(), extras.notes.end());
 
   Resim(*run, *lineage, d).run();
   for (const JournalMark& m : run->marks)
-    d.timeline.push_back({static_cast<double>(m.step) * def.step_s, mark_kind(m.kind), m.by, mark_text(def, m), "", {},
-                          {}, {}, {}});
+    d.timeline.push_back(
+        {static_cast<double>(m.step) * def.step_s, mark_kind(m.kind), m.by, mark_text(def, m), "", {}, {}, {}, {}});
   std::stable_sort(d.timeline.begin(), d.timeline.end(),
                    [](const DebriefEvent& x, const DebriefEvent& y) { return x.t_s < y.t_s; });
   return d;

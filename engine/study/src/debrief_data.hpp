@@ -23,7 +23,7 @@ struct DebriefEvent {
   std::string marker;                 ///< its mark on the charts: "3" (action), "S1" (script), "A2" (alarm)
   std::optional<double> to_action_s;  ///< alarm raised: until the first action of a seat it concerns
   std::string action_by;
-  std::optional<double> to_ack_s;     ///< alarm raised: until its acknowledgement
+  std::optional<double> to_ack_s;  ///< alarm raised: until its acknowledgement
   std::string ack_by;
 };
 
@@ -62,19 +62,19 @@ struct DebriefSeries {
 
 struct Debrief {
   std::string journal, run_id;
-  std::string name;       ///< the exercise's (else the scenario's) name
-  std::string briefing;   ///< "" for a plain scenario
+  std::string name;      ///< the exercise's (else the scenario's) name
+  std::string briefing;  ///< "" for a plain scenario
   bool is_exercise = false;
   bool complete = false;
-  std::string why;        ///< how it ended (or why it counts as incomplete)
-  double end_s = 0.0;     ///< the last simulated time
+  std::string why;     ///< how it ended (or why it counts as incomplete)
+  double end_s = 0.0;  ///< the last simulated time
   double f0_hz = 50.0;
-  AlarmLimits limits;     ///< the bands drawn on the frequency chart
+  AlarmLimits limits;  ///< the bands drawn on the frequency chart
   std::vector<DebriefSeat> seats;
   std::vector<SeatScore> scores;
   std::vector<DebriefEvent> timeline;  ///< by time
   std::vector<DebriefDisturbance> disturbances;
-  std::vector<DebriefNote> notes;      ///< the journal's, then the extras'
+  std::vector<DebriefNote> notes;  ///< the journal's, then the extras'
   DebriefSeries series;
 };
 

@@ -15,7 +15,7 @@ namespace {
 using svg::esc;
 using svg::num;
 
-constexpr double W = 1000, H = 320, L = 72, R = 16, T = 46, B = 44;
+constexpr double W = 1000, H = 340, L = 72, R = 16, T = 58, B = 44;
 // Line colours with a dash pattern each, so lines differ in print and without colour too.
 constexpr const char* kColours[] = {"#1d5f8a", "#b5452b", "#2f7d3a", "#7a4a9c", "#a27300", "#3c3c3c"};
 constexpr const char* kDashes[] = {"", "7 3", "2 3", "9 3 2 3", "4 4", "1 2"};
@@ -31,16 +31,16 @@ h3{font-size:1.05em;margin:16px 0 6px}
 .briefing{white-space:pre-wrap;background:#f5f7f9;padding:8px 12px;border-radius:4px}
 table{border-collapse:collapse;width:100%;margin:6px 0 10px;font-size:.92em}
 th,td{border:1px solid #d8dde3;padding:4px 7px;text-align:left;vertical-align:top;overflow-wrap:anywhere}
-th{background:#eef1f4}td.num{text-align:right;white-space:nowrap;font-variant-numeric:tabular-nums}
+th{background:#eef1f4;overflow-wrap:normal;white-space:nowrap}td.num{text-align:right;white-space:nowrap;font-variant-numeric:tabular-nums}
 .arith{font-family:ui-monospace,"DejaVu Sans Mono",monospace;font-size:.9em}
-figure{margin:10px 0 18px}figure svg{width:100%;height:auto;display:block;border:1px solid #e2e6ea}
+figure{margin:10px 0 18px}figure>svg{width:100%;height:auto;display:block;border:1px solid #e2e6ea}
 figcaption{font-size:.88em;color:#333;margin-top:4px}
 .key{display:inline-block;margin-right:16px;white-space:nowrap}.key svg{vertical-align:middle;margin-right:4px}
 .met-yes{color:#2f6b36}.met-no{color:#9c3b1f;font-weight:600}
 .note{white-space:pre-wrap}
 section,tr,figure{break-inside:avoid;page-break-inside:avoid}
 @media print{@page{size:A4;margin:14mm}body{max-width:none;padding:0;font-size:10pt}
-h2{break-after:avoid;page-break-after:avoid}figure svg{border:none}a{color:inherit;text-decoration:none}}
+h2{break-after:avoid;page-break-after:avoid}figure>svg{border:none}a{color:inherit;text-decoration:none}}
 )";
 }
 
@@ -105,7 +105,8 @@ std::string chart(const std::string& title, const std::string& ylabel, const std
          "\" stroke=\"#e2e2e2\"/><text x=\"" + num(L - 6) + "\" y=\"" + num(Y(v) + 4) + "\" text-anchor=\"end\">" +
          fmt_num(v) + "</text>\n";
   for (double v : svg::ticks(x0, x1))
-    s += "<text x=\"" + num(X(v)) + "\" y=\"" + num(T + ph + 17) + "\" text-anchor=\"middle\">" + fmt_num(v) + "</text>\n";
+    s += "<text x=\"" + num(X(v)) + "\" y=\"" + num(T + ph + 17) + "\" text-anchor=\"middle\">" + fmt_num(v) +
+         "</text>\n";
   s += "<text x=\"" + num(L + pw / 2) + "\" y=\"" + num(H - 6) + "\" text-anchor=\"middle\">time (s)</text>\n";
   s += "<text transform=\"translate(16," + num(T + ph / 2) + ") rotate(-90)\" text-anchor=\"middle\">" + esc(ylabel) +
        "</text>\n";
@@ -119,28 +120,51 @@ std::string chart(const std::string& title, const std::string& ylabel, const std
       s += num(X(t[k])) + "," + num(Y((*lines[i].y)[k])) + " ";
     s += "\"><title>" + esc(lines[i].label) + "</title></polyline>\n";
   }
-  int row = 0;  // labels of neighbouring marks alternate between two rows
+  // Each label takes the first of a few rows where it clears the last label (else it is left out:
+  // the mark keeps its tooltip and the timeline lists it), so no two labels overlap.
+  constexpr double kLabelW = 26;
+  std::vector<double> top_rows(3, -1e9), bottom_rows(3, -1e9);
+  auto row_for = [](std::vector<double>& rows, double x) -> int {
+    for (std::size_t r = 0; r < rows.size(); ++r)
+      if (x - rows[r] >= kLabelW) {
+        rows[r] = x;
+        return static_cast<int>(r);
+      }
+    return -1;
+  };
   for (const Mark& m : marks) {
     const double x = X(std::clamp(m.t_s, x0, x1));
     const std::string tip = "<title>" + esc(m.label + " at " + time_text(m.t_s) + ": " + m.title) + "</title>";
     if (m.shape == Mark::alarm) {
+      // Diamonds on the lower edge; labels stacked above them (a white halo keeps them readable
+      // over a line).
       const double y = T + ph - 8;
-      s += "<g>" + tip + "<path d=\"M" + num(x) + " " + num(y - 6) + " l6 6 l-6 6 l-6 -6 z\" fill=\"#a27300\"/>" +
-           "<text x=\"" + num(x + 8) + "\" y=\"" + num(y - 4) + "\" font-size=\"10\" fill=\"#6b4c00\">" + esc(m.label) +
-           "</text></g>\n";
+      const int r = row_for(bottom_rows, x);
+      s += "<g>" + tip + "<path d=\"M" + num(x) + " " + num(y - 5) + " l5 5 l-5 5 l-5 -5 z\" fill=\"#a27300\"/>";
+      if (r >= 0)
+        s += "<text x=\"" + num(x) + "\" y=\"" + num(y - 9 - 12.0 * r) +
+             "\" font-size=\"10\" text-anchor=\"middle\" fill=\"#6b4c00\" stroke=\"#fff\" stroke-width=\"3\" "
+             "paint-order=\"stroke\">" +
+             esc(m.label) + "</text>";
+      s += "</g>\n";
       continue;
     }
-    const double ly = T - 26 + 14.0 * (row++ % 2);
+    const int r = row_for(top_rows, x);
+    const double ly = T - 36 + 14.0 * std::max(r, 0);
     const bool script = m.shape == Mark::script;
     s += "<g>" + tip + "<line x1=\"" + num(x) + "\" x2=\"" + num(x) + "\" y1=\"" + num(ly + 6) + "\" y2=\"" +
          num(T + ph) + "\" stroke=\"" + (script ? "#7a4a9c" : "#333") + "\" stroke-width=\"1\"" +
          (script ? " stroke-dasharray=\"5 3\"" : "") + "/>";
     if (script)
-      s += "<path d=\"M" + num(x - 6) + " " + num(ly - 5) + " h12 l-6 10 z\" fill=\"#7a4a9c\"/><text x=\"" +
-           num(x + 8) + "\" y=\"" + num(ly + 4) + "\" font-size=\"10\" fill=\"#4b2a63\">" + esc(m.label) + "</text>";
+      s += "<path d=\"M" + num(x - 6) + " " + num(ly - 5) + " h12 l-6 10 z\" fill=\"#7a4a9c\"/>" +
+           (r < 0 ? std::string()
+                  : "<text x=\"" + num(x + 8) + "\" y=\"" + num(ly + 4) + "\" font-size=\"10\" fill=\"#4b2a63\">" +
+                        esc(m.label) + "</text>");
     else
-      s += "<circle cx=\"" + num(x) + "\" cy=\"" + num(ly) + "\" r=\"6.5\" fill=\"#fff\" stroke=\"#333\"/><text x=\"" +
-           num(x) + "\" y=\"" + num(ly + 3.5) + "\" font-size=\"9\" text-anchor=\"middle\">" + esc(m.label) + "</text>";
+      s += "<circle cx=\"" + num(x) + "\" cy=\"" + num(ly) + "\" r=\"6.5\" fill=\"#fff\" stroke=\"#333\"/>" +
+           (r < 0 ? std::string()
+                  : "<text x=\"" + num(x) + "\" y=\"" + num(ly + 3.5) + "\" font-size=\"9\" text-anchor=\"middle\">" +
+                        esc(m.label) + "</text>");
     s += "</g>\n";
   }
   return s + "</svg>\n";
@@ -173,7 +197,8 @@ std::string charts(const Debrief& d) {
   const DebriefSeries& s = d.series;
   const std::vector<Mark> marks = marks_of(d);
   const std::string marks_key =
-      "<br><span class=\"key\">(1) an action, numbered as in the timeline</span><span class=\"key\">&#9660; S1 a script "
+      "<br><span class=\"key\">(1) an action, numbered as in the timeline</span><span class=\"key\">&#9660; S1 a "
+      "script "
       "event (dashed)</span><span class=\"key\">&#9670; A1 an alarm raised</span>";
   auto lines_of = [](const std::vector<std::string>& names, const std::vector<std::vector<double>>& ys) {
     std::vector<Series> out;
@@ -183,7 +208,7 @@ std::string charts(const Debrief& d) {
   std::string h = "<section id=\"charts\"><h2>Frequency, ACE and tie flows</h2>\n";
   const auto f_lines = lines_of(s.areas, s.f_hz);
   const double std_band = d.limits.standard_band_hz, lim_band = d.limits.limit_band_hz;
-  h += "<figure>" +
+  h += "<figure><h3>Frequency</h3>" +
        chart("Frequency", "frequency (Hz)", s.t_s, f_lines,
              {{d.f0_hz - lim_band, d.f0_hz + lim_band, "#fbefd9"}, {d.f0_hz - std_band, d.f0_hz + std_band, "#e3f1e1"}},
              marks, std::pair{d.f0_hz - std_band, d.f0_hz + std_band}) +
@@ -192,11 +217,11 @@ std::string charts(const Debrief& d) {
                            " Hz (limit)</span>" + marks_key) +
        "</figure>\n";
   const auto ace_lines = lines_of(s.areas, s.ace_mw);
-  h += "<figure>" + chart("ACE", "ACE (MW)", s.t_s, ace_lines, {}, marks) + legend(ace_lines, marks_key) +
-       "</figure>\n";
+  h += "<figure><h3>Area control error</h3>" + chart("ACE", "ACE (MW)", s.t_s, ace_lines, {}, marks) +
+       legend(ace_lines, marks_key) + "</figure>\n";
   if (!s.ties.empty()) {
     const auto tie_lines = lines_of(s.ties, s.flow_mw);
-    h += "<figure>" + chart("Tie flows", "flow, from -> to (MW)", s.t_s, tie_lines, {}, marks) +
+    h += "<figure><h3>Tie flows</h3>" + chart("Tie flows", "flow, from -> to (MW)", s.t_s, tie_lines, {}, marks) +
          legend(tie_lines, marks_key) + "</figure>\n";
   }
   return h + "</section>\n";
@@ -224,8 +249,9 @@ std::string objectives(const Debrief& d) {
 }
 
 std::string timeline(const Debrief& d) {
-  std::string h = "<section id=\"timeline\"><h2>Timeline</h2>\n<table class=\"timeline\"><thead><tr><th>mark</th>"
-                  "<th>time</th><th>kind</th><th>by</th><th>what</th><th>response</th></tr></thead><tbody>\n";
+  std::string h =
+      "<section id=\"timeline\"><h2>Timeline</h2>\n<table class=\"timeline\"><thead><tr><th>mark</th>"
+      "<th>time</th><th>kind</th><th>by</th><th>what</th><th>response</th></tr></thead><tbody>\n";
   for (const DebriefEvent& e : d.timeline) {
     std::string response;
     if (e.kind == "alarm raised") {
@@ -252,14 +278,15 @@ std::string disturbances(const Debrief& d) {
          "<tbody>\n";
     h += "<tr><td>imbalance (positive: deficit)</td><td class=\"num\">" + fmt_fixed(x.delta_mw, 1) +
          " MW</td><td></td></tr>\n";
-    h += "<tr><td>settling frequency</td><td class=\"num\">" + fixed(x.settling_hz, 3, " Hz") + "</td><td class=\"num\">" +
-         fmt_fixed(x.predicted_settling_hz, 3) + " Hz</td></tr>\n";
+    h += "<tr><td>settling frequency</td><td class=\"num\">" + fixed(x.settling_hz, 3, " Hz") +
+         "</td><td class=\"num\">" + fmt_fixed(x.predicted_settling_hz, 3) + " Hz</td></tr>\n";
     h += "<tr><td>settling deviation</td><td class=\"num\">" +
          fixed(x.settling_hz ? std::optional(*x.settling_hz - x.pre_hz) : std::nullopt, 3, " Hz") +
          "</td><td class=\"num\">" + fmt_fixed(x.predicted_settling_hz - d.f0_hz, 3) + " Hz</td></tr>\n";
     h += std::string("<tr><td>") + (x.zenith ? "zenith" : "nadir") + "</td><td class=\"num\">" +
          fixed(x.nadir_hz, 3, " Hz") +
-         (x.nadir_at_s ? " at +" + fmt_fixed(*x.nadir_at_s - x.at_s, 2) + " s" : std::string()) + "</td><td></td></tr>\n";
+         (x.nadir_at_s ? " at +" + fmt_fixed(*x.nadir_at_s - x.at_s, 2) + " s" : std::string()) +
+         "</td><td></td></tr>\n";
     h += "<tr><td>RoCoF (first 0.5 s)</td><td class=\"num\">" + fixed(x.rocof_hz_per_s, 3, " Hz/s") +
          "</td><td></td></tr>\n";
     h += "<tr><td>response</td><td class=\"num\">" + fixed(x.response_mw_per_0p1hz, 1, " MW/0.1 Hz") +
@@ -286,12 +313,13 @@ std::string disturbances(const Debrief& d) {
 }  // namespace
 
 std::string render_debrief_html(const Debrief& d) {
-  std::string h = "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">\n<title>Debrief: " +
-                  esc(d.name) + "</title>\n<style>\n" + css() + "</style></head><body>\n";
+  std::string h = "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">\n<title>Debrief: " + esc(d.name) +
+                  "</title>\n<style>\n" + css() + "</style></head><body>\n";
   h += "<section id=\"title\"><h1>Debrief: " + esc(d.name) + "</h1>\n<p class=\"meta\"><span>run " +
-       esc(d.run_id.empty() ? std::string("(no id: an older journal)") : d.run_id) + "</span><span>simulated to t = " +
-       fmt_fixed(d.end_s, 1) + " s</span><span class=\"" + (d.complete ? "status-complete\">complete" : "status-incomplete\">incomplete") +
-       "</span>" + (d.why.empty() ? std::string() : "<span>" + esc(d.why) + "</span>") + "</p>\n";
+       esc(d.run_id.empty() ? std::string("(no id: an older journal)") : d.run_id) +
+       "</span><span>simulated to t = " + fmt_fixed(d.end_s, 1) + " s</span><span class=\"" +
+       (d.complete ? "status-complete\">complete" : "status-incomplete\">incomplete") + "</span>" +
+       (d.why.empty() ? std::string() : "<span>" + esc(d.why) + "</span>") + "</p>\n";
   h += "<p class=\"caution\">A training record, not a compliance assessment: the figures come from a simulation of "
        "this exercise and say how the session went, nothing about a real system or a person's competence.</p>"
        "</section>\n";
@@ -313,8 +341,8 @@ std::string render_debrief_html(const Debrief& d) {
   h += "<section id=\"notes\"><h2>Instructor's notes</h2>\n";
   if (d.notes.empty()) h += "<p>No notes.</p>\n";
   for (const DebriefNote& n : d.notes)
-    h += "<p class=\"note\"><strong>" + (n.t_s ? time_text(*n.t_s) + ", " : std::string()) + esc(n.by) +
-         ":</strong> " + esc(n.text) + "</p>\n";
+    h += "<p class=\"note\"><strong>" + (n.t_s ? time_text(*n.t_s) + ", " : std::string()) + esc(n.by) + ":</strong> " +
+         esc(n.text) + "</p>\n";
   return h + "</section>\n</body></html>\n";
 }
 

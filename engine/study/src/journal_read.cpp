@@ -91,7 +91,8 @@ bool read_training_record(const json& j, const std::string& type, std::int64_t s
   }
   if (type == "trainee") {
     JournalTrainee t{step, {}, {}};
-    if (!text_field(j, "seat", 64, false, t.seat, error) || !text_field(j, "name", 200, true, t.name, error)) return false;
+    if (!text_field(j, "seat", 64, false, t.seat, error) || !text_field(j, "name", 200, true, t.name, error))
+      return false;
     run.trainees.push_back(std::move(t));
     return true;
   }

@@ -13,12 +13,18 @@ inline std::string esc(const std::string& s) {
   std::string o;
   o.reserve(s.size());
   for (char c : s) {
-    if (c == '<') o += "&lt;";
-    else if (c == '>') o += "&gt;";
-    else if (c == '&') o += "&amp;";
-    else if (c == '"') o += "&quot;";
-    else if (c == '\'') o += "&#39;";
-    else o += c;
+    if (c == '<')
+      o += "&lt;";
+    else if (c == '>')
+      o += "&gt;";
+    else if (c == '&')
+      o += "&amp;";
+    else if (c == '"')
+      o += "&quot;";
+    else if (c == '\'')
+      o += "&#39;";
+    else
+      o += c;
   }
   return o;
 }

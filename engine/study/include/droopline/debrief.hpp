@@ -3,12 +3,11 @@
 // at their steps on a fresh engine, with the alarm monitor and the objective monitor fed as the live
 // loop feeds them (so the scores are the live ones), sampled for charts; written as one
 // self-contained HTML page (inline CSS and SVG, nothing fetched, printable) or as JSON.
+#include <nlohmann/json_fwd.hpp>
 #include <optional>
 #include <string>
 #include <utility>
 #include <vector>
-
-#include <nlohmann/json_fwd.hpp>
 
 namespace droopline::study {
 
@@ -22,7 +21,7 @@ struct DebriefNote {
 /// What the records add to a journal.
 struct DebriefExtras {
   std::vector<std::pair<std::string, std::string>> trainees;  ///< seat id -> trainee name (over the journal's)
-  std::vector<DebriefNote> notes;                              ///< after the journal's own notes
+  std::vector<DebriefNote> notes;                             ///< after the journal's own notes
 };
 
 /// The debrief of run `run_id` ("" = the last run) of the journal at `journal_path`, as one
