@@ -275,6 +275,31 @@ TEST_CASE("debrief: a restore goes back to the save point's lineage", "[debrief]
   REQUIRE(lineage);
   CHECK(lineage->batches == std::vector<std::size_t>{0, 2});
   CHECK(lineage->acks.empty());
+  // An acknowledgement journalled before the save point for a step after it (it waits for its step
+  // like a batch) is not in the save point; one still waiting at the restore is refused by it.
+  JournalFile waiting({
+      json{{"type", "scenario"}, {"step", 0}, {"run", kRun}, {"scenario", x["scenario"]}}.dump(),
+      batch(p.at(5), kTrip, "script").dump(),
+      json{{"type", "ack"}, {"step", p.at(6) + 2}, {"alarm", kTripAlarm}, {"by", "east-desk"}}.dump(),
+      json{{"type", "savepoint"}, {"step", p.at(6)}, {"taken", 1}, {"id", 1}, {"name", "s"}, {"by", "instructor"}}
+          .dump(),
+      json{{"type", "ack"}, {"step", p.at(12) + 2}, {"alarm", 4}, {"by", "east-desk"}}.dump(),
+      json{{"type", "restore"},
+           {"step", p.at(12)},
+           {"taken", 1},
+           {"savepoint", 1},
+           {"to_step", p.at(6)},
+           {"by", "instructor"}}
+          .dump(),
+      json{{"type", "ack"}, {"step", p.at(7)}, {"alarm", 5}, {"by", "west-desk"}}.dump(),
+  });
+  JournalRead jw = read_journal(waiting.path.string());
+  REQUIRE(jw.issues.empty());
+  const std::optional<FinalLineage> lw = final_lineage(jw.runs.at(0), error);
+  REQUIRE(lw);
+  CHECK(lw->batches == std::vector<std::size_t>{0});
+  CHECK(lw->acks == std::vector<std::size_t>{2});
+
   const json d = debrief_of(f.path);
   std::vector<double> times;
   for (const json& e : d["timeline"]) {

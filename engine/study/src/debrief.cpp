@@ -126,7 +126,8 @@ class Resim {
                            "alarm acknowledged",
                            k.by,
                            ok ? "alarm A" + std::to_string(k.alarm) + ": " + alarms_->find(k.alarm)->message
-                              : "alarm A" + std::to_string(k.alarm) + " (not raised on this lineage when re-simulated)",
+                              : "alarm A" + std::to_string(k.alarm) +
+                                    ": not taken (no such alarm on this lineage, or acknowledged already)",
                            "A" + std::to_string(k.alarm),
                            {},
                            {},

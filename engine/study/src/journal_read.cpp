@@ -222,15 +222,23 @@ JournalRead read_journal(const std::string& path) {
 std::optional<FinalLineage> final_lineage(const JournalRun& run, std::string& error) {
   FinalLineage now;
   std::map<std::uint64_t, FinalLineage> saved;  // by save point id: its lineage when kept
+  std::vector<std::size_t> due;                 // acknowledgements journalled for a step still to come
   std::size_t next = 0, next_ack = 0;
   std::uint64_t taken = 0;
   for (const JournalMark& m : run.marks) {
     // The batches taken at their step before the mark, in the order journalled.
     for (; taken < m.taken && next < run.commands.size(); ++taken) now.batches.push_back(next++);
-    for (; next_ack < m.acks_before; ++next_ack) now.acks.push_back(next_ack);
+    // An acknowledgement is journalled before it takes effect, at its step, like a batch.
+    std::vector<std::size_t> later;
+    for (std::size_t a : due) (run.acks[a].step <= m.step ? now.acks : later).push_back(a);
+    for (; next_ack < m.acks_before; ++next_ack)
+      (run.acks[next_ack].step <= m.step ? now.acks : later).push_back(next_ack);
+    due = std::move(later);
     if (m.kind == JournalMark::Kind::savepoint) {
       saved[m.id] = now;
-    } else if (m.kind == JournalMark::Kind::restore) {
+      continue;  // what was still due goes on after it
+    }
+    if (m.kind == JournalMark::Kind::restore) {
       const auto it = saved.find(m.id);
       if (it == saved.end()) {
         error = "journal line " + std::to_string(m.line) + ": no save point " + std::to_string(m.id) + " before it";
@@ -243,10 +251,11 @@ std::optional<FinalLineage> final_lineage(const JournalRun& run, std::string& er
       std::erase_if(now.batches, [&](std::size_t b) { return run.commands[b].step >= m.to_step; });
       std::erase_if(now.acks, [&](std::size_t a) { return run.acks[a].step > m.to_step; });
     }
+    due.clear();                              // refused by the restore or rewind, as waiting batches are
     next = std::max(next, m.batches_before);  // journalled before it and not taken: refused by it
-    next_ack = std::max(next_ack, m.acks_before);
   }
   for (; next < run.commands.size(); ++next) now.batches.push_back(next);
+  now.acks.insert(now.acks.end(), due.begin(), due.end());
   for (; next_ack < run.acks.size(); ++next_ack) now.acks.push_back(next_ack);
   return now;
 }

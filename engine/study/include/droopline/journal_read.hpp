@@ -111,11 +111,12 @@ struct FinalLineage {
   std::vector<std::size_t> acks;
 };
 /// Works out the final lineage of `run` from its records alone (no simulation): batches are taken in
-/// the order journalled, as many before each mark as it says; a save point keeps what was taken on
-/// its lineage, a restore goes back to it, a rewind to step S drops the batches applied at S or later
-/// and the acknowledgements after S (as the live session's checkpoints keep them); batches journalled
-/// before a mark and not taken were refused by it. Nothing, with `error` ("journal line 9: ..."),
-/// when a restore names a save point not kept before it.
+/// the order journalled, as many before each mark as it says, and acknowledgements journalled before
+/// a mark took effect before it when their step had come; a save point keeps what was taken on its
+/// lineage, a restore goes back to it, a rewind to step S drops the batches applied at S or later
+/// and the acknowledgements after S (as the live session's checkpoints keep them); batches and
+/// acknowledgements journalled before a restore or rewind and not taken were refused by it. Nothing, with `error`
+/// ("journal line 9: ..."), when a restore names a save point not kept before it.
 std::optional<FinalLineage> final_lineage(const JournalRun& run, std::string& error);
 
 /// A journal read back: its runs, or what is wrong with it.
