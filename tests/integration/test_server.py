@@ -462,6 +462,10 @@ PROTECTED = [
     ("POST", "/api/v1/script/s1/skip", None, "only the instructor sees"),
     ("POST", "/api/v1/script/s1/shift", '{"at_s": 5}', "only the instructor sees"),
     ("POST", "/api/v1/alarms/1/ack", None, "only an operator seat or the instructor can acknowledge alarms"),
+    ("POST", "/api/v1/seats/join", '{"name": "a"}', "only an operator seat enters a trainee's name"),
+    ("GET", "/api/v1/objectives", None, "a seat sees its own objectives"),
+    ("POST", "/api/v1/notes", '{"text": "a"}', "only the instructor writes and reads the notes"),
+    ("GET", "/api/v1/notes", None, "only the instructor writes and reads the notes"),
     ("GET", "/api/v1/debrief", None, "the debrief is for the instructor"),
 ]
 OPEN_TO_VIEWERS = ["/healthz", "/metrics", "/api/v1/state", "/api/v1/role", "/api/v1/scenario", "/api/v1/history",
