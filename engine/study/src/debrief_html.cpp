@@ -37,7 +37,7 @@ figure{margin:10px 0 18px}figure>svg{width:100%;height:auto;display:block;border
 figcaption{font-size:.88em;color:#333;margin-top:4px}
 .key{display:inline-block;margin-right:16px;white-space:nowrap}.key svg{vertical-align:middle;margin-right:4px}
 .met-yes{color:#2f6b36}.met-no{color:#9c3b1f;font-weight:600}
-.note{white-space:pre-wrap}
+.note{white-space:pre-wrap}td.who{min-width:6.5em;overflow-wrap:break-word}
 section,tr,figure{break-inside:avoid;page-break-inside:avoid}
 @media print{@page{size:A4;margin:14mm}body{max-width:none;padding:0;font-size:10pt}
 h2{break-after:avoid;page-break-after:avoid}figure>svg{border:none}a{color:inherit;text-decoration:none}}
@@ -155,11 +155,13 @@ std::string chart(const std::string& title, const std::string& ylabel, const std
     s += "<g>" + tip + "<line x1=\"" + num(x) + "\" x2=\"" + num(x) + "\" y1=\"" + num(ly + 6) + "\" y2=\"" +
          num(T + ph) + "\" stroke=\"" + (script ? "#7a4a9c" : "#333") + "\" stroke-width=\"1\"" +
          (script ? " stroke-dasharray=\"5 3\"" : "") + "/>";
+    // A script label sits right of its triangle, or left of it near the right edge.
+    const bool left = x + 8 + 7.0 * static_cast<double>(m.label.size()) > W - 2;
     if (script)
       s += "<path d=\"M" + num(x - 6) + " " + num(ly - 5) + " h12 l-6 10 z\" fill=\"#7a4a9c\"/>" +
            (r < 0 ? std::string()
-                  : "<text x=\"" + num(x + 8) + "\" y=\"" + num(ly + 4) + "\" font-size=\"10\" fill=\"#4b2a63\">" +
-                        esc(m.label) + "</text>");
+                  : "<text x=\"" + num(left ? x - 8 : x + 8) + "\" y=\"" + num(ly + 4) + "\" font-size=\"10\"" +
+                        (left ? " text-anchor=\"end\"" : "") + " fill=\"#4b2a63\">" + esc(m.label) + "</text>");
     else
       s += "<circle cx=\"" + num(x) + "\" cy=\"" + num(ly) + "\" r=\"6.5\" fill=\"#fff\" stroke=\"#333\"/>" +
            (r < 0 ? std::string()
@@ -262,7 +264,8 @@ std::string timeline(const Debrief& d) {
                              : "not acknowledged";
     }
     h += "<tr><td>" + esc(e.marker) + "</td><td class=\"num\">" + time_text(e.t_s) + "</td><td>" + esc(e.kind) +
-         "</td><td>" + esc(e.by) + "</td><td>" + esc(e.what) + "</td><td>" + esc(response) + "</td></tr>\n";
+         "</td><td class=\"who\">" + esc(e.by) + "</td><td>" + esc(e.what) + "</td><td>" + esc(response) +
+         "</td></tr>\n";
   }
   if (d.timeline.empty()) h += "<tr><td colspan=\"6\">nothing happened</td></tr>\n";
   return h + "</tbody></table></section>\n";
