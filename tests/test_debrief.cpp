@@ -339,7 +339,7 @@ TEST_CASE("debrief: journal text is escaped and nothing is fetched from outside"
   CHECK(html->find("not a compliance assessment") != std::string::npos);
 }
 
-TEST_CASE("debrief: bad journals are named by line; a torn last line ends the journal", "[debrief]") {
+TEST_CASE("debrief: bad journals are named by line, and a torn last line ends the journal", "[debrief]") {
   const json x = exercise_json();
   const Exercise ex = exercise_of(x);
   const Plan p{ex.system.def().step_s};
