@@ -16,6 +16,7 @@
 #include <CLI/CLI.hpp>
 #include <spdlog/spdlog.h>
 
+#include "cli_debrief.hpp"
 #include "cli_run.hpp"
 #include "cli_modes.hpp"
 #include "cli_sweep.hpp"
@@ -132,6 +133,22 @@ Command replay_command(CLI::App& root) {
                 "series.csv: only the rows of the lineage the run ended on (default: every branch as streamed, time "
                 "going back at each restore or rewind)");
   return {sub, [a] { return droopline::cli::replay(a->journal, a->out, a->run, a->quiet, a->final_lineage); }};
+}
+
+Command debrief_command(CLI::App& root) {
+  struct Args {
+    std::string journal, out, run;
+    bool json = false, quiet = false;
+  };
+  auto* sub = root.add_subcommand("debrief", "write the debrief report (one HTML page) of a run from its journal");
+  auto a = std::make_shared<Args>();
+  sub->add_option("JOURNAL", a->journal, "the journal serve --journal wrote")->type_name("")->required()->check(kFileExists);
+  sub->add_option("--out", a->out, "the report file (written whole or not at all)")->type_name("FILE")->required();
+  sub->add_option("--run", a->run, "the run's id (its scenario record's \"run\"; default: the last run)")
+      ->type_name("ID");
+  sub->add_flag("--json", a->json, "write the report's data as JSON instead of HTML");
+  add_quiet(*sub, a->quiet);
+  return {sub, [a] { return droopline::cli::debrief(a->journal, a->out, a->run, a->json, a->quiet); }};
 }
 
 /// `--listen HOST:PORT` (an IPv6 host in brackets); an empty message when valid. The host is
@@ -323,7 +340,8 @@ int main(int argc, char** argv) {
   });
   const std::vector<Command> commands{check_command(app),  run_command(app),    serve_command(app),
                                       replay_command(app), sweep_command(app),  merge_command(app),
-                                      modes_command(app),  assess_command(app), record_command(app)};
+                                      modes_command(app),  assess_command(app), record_command(app),
+                                      debrief_command(app)};
   app.set_help_all_flag("--help-all", "every command's options");  // after the subcommands: theirs have none
   static char help_flag[] = "--help";
   if (argc > 1 && std::string(argv[1]) == "help") argv[1] = help_flag;  // `droopline help` is `droopline --help`

@@ -133,5 +133,7 @@ std::vector<std::string> issue_texts(const std::vector<Issue>& issues);
 void add_live_routes(std::vector<Route>& routes);
 /// The routes that run studies on the worker pool (replays, sweeps, modes, assess).
 void add_study_routes(std::vector<Route>& routes);
+/// The debrief of a run of the live session's journal (GET /api/v1/debrief, the instructor's).
+void add_debrief_routes(std::vector<Route>& routes);
 
 }  // namespace droopline::server

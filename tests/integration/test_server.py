@@ -466,6 +466,7 @@ PROTECTED = [
     ("GET", "/api/v1/objectives", None, "a seat sees its own objectives"),
     ("POST", "/api/v1/notes", '{"text": "a"}', "only the instructor writes and reads the notes"),
     ("GET", "/api/v1/notes", None, "only the instructor writes and reads the notes"),
+    ("GET", "/api/v1/debrief", None, "the debrief is for the instructor"),
 ]
 OPEN_TO_VIEWERS = ["/healthz", "/metrics", "/api/v1/state", "/api/v1/role", "/api/v1/scenario", "/api/v1/history",
                    "/api/v1/events", "/api/v1/record?from_s=0&to_s=1", "/api/v1/openapi.json",

@@ -1,0 +1,40 @@
+#include "cli_debrief.hpp"
+
+#include <iostream>
+#include <nlohmann/json.hpp>
+
+#include "cli_files.hpp"
+#include "droopline/debrief.hpp"
+
+namespace droopline::cli {
+
+int debrief(const std::string& journal, const std::string& out_file, const std::string& run_id, bool as_json,
+            bool quiet) {
+  std::string error;
+  std::optional<std::string> text;
+  if (as_json) {
+    if (auto j = study::debrief_json(journal, run_id, {}, error)) text = j->dump(1) + "\n";
+  } else {
+    text = study::debrief_html(journal, run_id, {}, error);
+  }
+  if (!text) {
+    std::cerr << journal << ": error: " << error << "\n";
+    return 2;
+  }
+  // Nothing half-written: the report appears under its name only once complete.
+  const fs::path out = fs::absolute(out_file);
+  AtomicFile file(out);
+  if (!file.ok()) {
+    std::cerr << "droopline: cannot write \"" << out_file << "\"\n";
+    return 1;
+  }
+  file.stream() << *text;
+  if (!file.stream() || !file.commit()) {
+    std::cerr << "droopline: writing \"" << out_file << "\" failed (disk full?)\n";
+    return 1;
+  }
+  if (!quiet) std::cout << "droopline: wrote the debrief to " << out_file << "\n";
+  return 0;
+}
+
+}  // namespace droopline::cli
