@@ -83,7 +83,8 @@ JournalRead read_journal(const std::string& path) {
           if (!i.warning) out.issues.push_back({where, i.text(), false});
         return out;
       }
-      out.runs.push_back({std::move(*r.system), {}, {}, 0});
+      out.runs.push_back({std::move(*r.system), {}, {}, 0, {}});
+      if (j.contains("run") && j["run"].is_string()) out.runs.back().run_id = clip_text(j["run"].get<std::string>(), 64);
     } else if (type == "savepoint" || type == "restore" || type == "rewind") {
       if (out.runs.empty()) {
         out.issues.push_back({where, "a record before any scenario", false});

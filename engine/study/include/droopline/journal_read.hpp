@@ -54,6 +54,7 @@ struct JournalRun {
   std::vector<JournalBatch> commands;  ///< in the order journalled
   std::vector<JournalMark> marks;      ///< save points, restores and rewinds, in the order journalled
   std::int64_t last_step = 0;          ///< the stop record's step, else the last command's step (on the last lineage)
+  std::string run_id;                  ///< the scenario record's "run" (empty in journals before run ids)
 };
 
 /// A journal read back: its runs, or what is wrong with it.
