@@ -20,33 +20,31 @@ using droopline::records::RunFilter;
 
 namespace {
 
-fs::path temp_dir(const std::string &name) {
-  fs::path d = fs::temp_directory_path() /
-               ("droopline-records-" + name + "-" + std::to_string(::getpid()));
+fs::path temp_dir(const std::string& name) {
+  fs::path d = fs::temp_directory_path() / ("droopline-records-" + name + "-" + std::to_string(::getpid()));
   fs::remove_all(d);
   fs::create_directories(d);
   return d;
 }
 
 // The test's own reader (not the store's code): one value of `sql` as text.
-std::string scalar(const fs::path &file, const std::string &sql) {
-  sqlite3 *db = nullptr;
-  REQUIRE(sqlite3_open_v2(file.c_str(), &db, SQLITE_OPEN_READONLY, nullptr) ==
-          SQLITE_OK);
-  sqlite3_stmt *st = nullptr;
+std::string scalar(const fs::path& file, const std::string& sql) {
+  sqlite3* db = nullptr;
+  REQUIRE(sqlite3_open_v2(file.c_str(), &db, SQLITE_OPEN_READONLY, nullptr) == SQLITE_OK);
+  sqlite3_stmt* st = nullptr;
   REQUIRE(sqlite3_prepare_v2(db, sql.c_str(), -1, &st, nullptr) == SQLITE_OK);
   std::string out;
   if (sqlite3_step(st) == SQLITE_ROW && sqlite3_column_text(st, 0))
-    out = reinterpret_cast<const char *>(sqlite3_column_text(st, 0));
+    out = reinterpret_cast<const char*>(sqlite3_column_text(st, 0));
   sqlite3_finalize(st);
   sqlite3_close(db);
   return out;
 }
 
-void exec(const fs::path &file, const std::string &sql) {
-  sqlite3 *db = nullptr;
+void exec(const fs::path& file, const std::string& sql) {
+  sqlite3* db = nullptr;
   REQUIRE(sqlite3_open(file.c_str(), &db) == SQLITE_OK);
-  char *msg = nullptr;
+  char* msg = nullptr;
   const int rc = sqlite3_exec(db, sql.c_str(), nullptr, nullptr, &msg);
   INFO((msg ? msg : ""));
   sqlite3_free(msg);
@@ -56,30 +54,26 @@ void exec(const fs::path &file, const std::string &sql) {
 
 const std::string kRun = "0123456789abcdef0123456789abcdef";
 
-RunStart start_of(const std::string &id, const std::string &journal = "") {
+RunStart start_of(const std::string& id, const std::string& journal = "") {
   RunStart s;
   s.run_id = id;
   s.exercise = "Morning pickup at Tarnwick";
   s.scenario = "Tri-valley interconnection";
   s.journal_path = journal;
-  s.started_unix_s = 1'800'000'000.0; // 2027-01-15 08:00 UTC
-  s.seats = {RunSeat{"north", "North desk", {"vellmark"}},
-             RunSeat{"south", "South desk", {"oskany", "dreyholt"}}};
+  s.started_unix_s = 1'800'000'000.0;  // 2027-01-15 08:00 UTC
+  s.seats = {RunSeat{"north", "North desk", {"vellmark"}}, RunSeat{"south", "South desk", {"oskany", "dreyholt"}}};
   return s;
 }
 
 nlohmann::ordered_json seat_scores(double north, double south) {
   using oj = nlohmann::ordered_json;
-  auto seat = [](const char *id, double score) {
-    return oj{{"seat", id},
-              {"score", score},
-              {"objectives",
-               oj::array({oj{{"objective", "band"}, {"score", score}}})}};
+  auto seat = [](const char* id, double score) {
+    return oj{{"seat", id}, {"score", score}, {"objectives", oj::array({oj{{"objective", "band"}, {"score", score}}})}};
   };
   return oj::array({seat("north", north), seat("south", south)});
 }
 
-} // namespace
+}  // namespace
 
 TEST_CASE("a new records file is schema version 2 in WAL mode") {
   const fs::path file = temp_dir("new") / "records.sqlite3";
@@ -90,8 +84,7 @@ TEST_CASE("a new records file is schema version 2 in WAL mode") {
   }
   CHECK(scalar(file, "PRAGMA user_version") == "2");
   CHECK(scalar(file, "PRAGMA journal_mode") == "wal");
-  for (const char *table :
-       {"runs", "seats", "trainees", "actions", "alarms", "scores", "notes"})
+  for (const char* table : {"runs", "seats", "trainees", "actions", "alarms", "scores", "notes"})
     CHECK(scalar(file, std::string("SELECT count(*) FROM sqlite_master WHERE "
                                    "type = 'table' AND name = '") +
                            table + "'") == "1");
@@ -150,18 +143,10 @@ TEST_CASE("the records survive a reopen") {
     store.run_started(start_of(kRun));
     store.trainee_joined(kRun, "north", "Ilse Marrow", 1.0);
     store.trainee_joined(kRun, "south", "Tomas Brenn", 2.0);
-    store.actions(kRun, 12.0, "north",
-                  nlohmann::json::parse(
-                      R"([{"kind":"load_step","area":"vellmark","mw":5}])"));
-    store.alarm(kRun, {{"id", 1},
-                       {"kind", "frequency_band"},
-                       {"raised_s", 10.0},
-                       {"acked_by", nullptr}});
-    store.alarm(kRun, {{"id", 1},
-                       {"kind", "frequency_band"},
-                       {"raised_s", 10.0},
-                       {"acked_by", "north"},
-                       {"acked_s", 14.0}});
+    store.actions(kRun, 12.0, "north", nlohmann::json::parse(R"([{"kind":"load_step","area":"vellmark","mw":5}])"));
+    store.alarm(kRun, {{"id", 1}, {"kind", "frequency_band"}, {"raised_s", 10.0}, {"acked_by", nullptr}});
+    store.alarm(kRun,
+                {{"id", 1}, {"kind", "frequency_band"}, {"raised_s", 10.0}, {"acked_by", "north"}, {"acked_s", 14.0}});
     store.note(kRun, 20.0, "instructor", "good call on the schedule");
     store.scores(kRun, 60.0, seat_scores(50, 60));
     store.scores(kRun, 120.0, seat_scores(75, 80));
@@ -173,19 +158,18 @@ TEST_CASE("the records survive a reopen") {
   std::string error;
   auto run = store.run(kRun, error);
   REQUIRE(run);
-  const auto &r = *run;
+  const auto& r = *run;
   CHECK(r["status"] == "complete");
   CHECK(r["ended_s"] == 120.0);
-  CHECK(r["started"] ==
-        "2027-01-15T08:00:00Z"); // 1.8e9 s after 1970-01-01, worked out by
-                                 // `date -u -d @1800000000`
+  CHECK(r["started"] == "2027-01-15T08:00:00Z");  // 1.8e9 s after 1970-01-01, worked out by
+                                                  // `date -u -d @1800000000`
   REQUIRE(r["seats"].size() == 2);
   CHECK(r["seats"][0]["trainees"][0] == "Ilse Marrow");
-  CHECK(r["seats"][0]["score"] == 75.0); // the latest, not the first
+  CHECK(r["seats"][0]["score"] == 75.0);  // the latest, not the first
   CHECK(r["seats"][0]["final"] == true);
   CHECK(r["seats"][1]["areas"].size() == 2);
   CHECK(r["actions"].size() == 1);
-  REQUIRE(r["alarms"].size() == 1); // the latest per alarm
+  REQUIRE(r["alarms"].size() == 1);  // the latest per alarm
   CHECK(r["alarms"][0]["acked_by"] == "north");
   CHECK(scalar(file, "SELECT acked_s FROM alarms") == "14.0");
   CHECK(r["notes"][0]["text"] == "good call on the schedule");
@@ -209,19 +193,13 @@ TEST_CASE("the records survive a reopen") {
 
   // Removing a name: its trainee row and the note that quotes it.
   std::promise<std::pair<long long, std::string>> removed;
-  store.add_note(kRun, "instructor", "Ilse Marrow did well",
-                 [](std::string) {});
-  store.delete_trainee("Ilse Marrow", [&](long long n, std::string e) {
-    removed.set_value({n, e});
-  });
+  store.add_note(kRun, "instructor", "Ilse Marrow did well", [](std::string) {});
+  store.delete_trainee("Ilse Marrow", [&](long long n, std::string e) { removed.set_value({n, e}); });
   auto [changed, why] = removed.get_future().get();
   CHECK(why.empty());
   CHECK(changed == 2);
-  CHECK(scalar(file,
-               "SELECT count(*) FROM trainees WHERE name = 'Ilse Marrow'") ==
-        "0");
-  CHECK(scalar(file, "SELECT count(*) FROM notes WHERE text LIKE '%Ilse%'") ==
-        "0");
+  CHECK(scalar(file, "SELECT count(*) FROM trainees WHERE name = 'Ilse Marrow'") == "0");
+  CHECK(scalar(file, "SELECT count(*) FROM notes WHERE text LIKE '%Ilse%'") == "0");
 }
 
 TEST_CASE("a records file of a newer schema is refused with the reason") {
@@ -229,51 +207,41 @@ TEST_CASE("a records file of a newer schema is refused with the reason") {
   exec(file, "CREATE TABLE later(x); PRAGMA user_version = 7;");
   RecordsStore store(file.string());
   CHECK_FALSE(store.ok());
-  CHECK_THAT(store.status().error,
-             Catch::Contains(file.string()) &&
-                 Catch::Contains("schema version is 7") &&
-                 Catch::Contains("newer than this droopline knows (2)"));
-  CHECK(scalar(file, "PRAGMA user_version") == "7"); // left as it was
+  CHECK_THAT(store.status().error, Catch::Contains(file.string()) && Catch::Contains("schema version is 7") &&
+                                       Catch::Contains("newer than this droopline knows (2)"));
+  CHECK(scalar(file, "PRAGMA user_version") == "7");  // left as it was
   store.actions(kRun, 1.0, "north",
-                nlohmann::json::array()); // dropped, never thrown
+                nlohmann::json::array());  // dropped, never thrown
   store.flush();
 }
 
-TEST_CASE(
-    "a run left running is marked incomplete and completed from its journal") {
+TEST_CASE("a run left running is marked incomplete and completed from its journal") {
   const fs::path dir = temp_dir("recover");
-  const fs::path file = dir / "records.sqlite3",
-                 journal = dir / "journal.jsonl";
-  std::ifstream scenario_in(
-      test::source_path("scenarios/demo_three_areas.json"));
+  const fs::path file = dir / "records.sqlite3", journal = dir / "journal.jsonl";
+  std::ifstream scenario_in(test::source_path("scenarios/demo_three_areas.json"));
   const std::string scenario = nlohmann::json::parse(scenario_in).dump();
   const std::string b1 = R"([{"kind":"load_step","area":"vellmark","mw":5}])";
   const std::string b2 = R"([{"kind":"load_step","area":"oskany","mw":-7.5}])";
   {
     std::ofstream out(journal);
-    out << R"({"type":"scenario","step":0,"run":")" << kRun
-        << R"(","scenario":)" << scenario << "}\n"
-        << R"({"type":"commands","step":100,"commands":)" << b1
-        << R"(,"by":"north"})"
+    out << R"({"type":"scenario","step":0,"run":")" << kRun << R"(","scenario":)" << scenario << "}\n"
+        << R"({"type":"commands","step":100,"commands":)" << b1 << R"(,"by":"north"})"
         << "\n"
-        << R"({"type":"commands","step":250,"commands":)" << b2
-        << R"(,"by":"south"})"
+        << R"({"type":"commands","step":250,"commands":)" << b2 << R"(,"by":"south"})"
         << "\n"
-        << R"({"type":"commands","step":300,"commands":)" << b1
-        << R"(,"by":"north"})"
+        << R"({"type":"commands","step":300,"commands":)" << b1 << R"(,"by":"north"})"
         << "\n"
-        << R"({"type":"commands","step":4)"; // a torn last line: never
-                                             // acknowledged
+        << R"({"type":"commands","step":4)";  // a torn last line: never
+                                              // acknowledged
   }
   {
     RecordsStore store(file.string());
     REQUIRE(store.ok());
     store.run_started(start_of(kRun, journal.string()));
-    store.actions(
-        kRun, 1.0, "north",
-        nlohmann::json::parse(b1)); // the first batch made it, the rest did not
+    store.actions(kRun, 1.0, "north",
+                  nlohmann::json::parse(b1));  // the first batch made it, the rest did not
     store.flush();
-  } // no run_ended: the service "died"
+  }  // no run_ended: the service "died"
   RecordsStore store(file.string());
   REQUIRE(store.ok());
   std::string error;
@@ -281,12 +249,10 @@ TEST_CASE(
   REQUIRE(run);
   CHECK((*run)["status"] == "incomplete");
   CHECK((*run)["why"] == "the service stopped without ending it");
-  const auto &actions = (*run)["actions"];
-  REQUIRE(actions.size() ==
-          3); // the one it had and the two it lacked, never the first twice
+  const auto& actions = (*run)["actions"];
+  REQUIRE(actions.size() == 3);  // the one it had and the two it lacked, never the first twice
   CHECK(actions[0]["t_s"] == 1.0);
-  CHECK(actions[1]["t_s"] ==
-        Approx(2.5)); // step 250 at the scenario's step_s 0.01
+  CHECK(actions[1]["t_s"] == Approx(2.5));  // step 250 at the scenario's step_s 0.01
   CHECK(actions[1]["by"] == "south");
   CHECK(actions[2]["t_s"] == Approx(3.0));
   CHECK(actions[2]["commands"][0]["area"] == "vellmark");
@@ -314,36 +280,31 @@ TEST_CASE("CSV cells are quoted and never run as formulas") {
   std::string error;
   auto csv = store.export_csv({}, error);
   REQUIRE(csv);
-  CHECK(csv->substr(0, csv->find("\r\n")) ==
-        "date,exercise,run_id,status,seat,trainee,score,band");
-  CHECK_THAT(*csv, Catch::Contains(
-                       "2027-01-15,Morning pickup at Tarnwick," + kRun +
-                       ",running,north,'=cmd|' /C calc'!A0,62.5,62.5\r\n"));
+  CHECK(csv->substr(0, csv->find("\r\n")) == "date,exercise,run_id,status,seat,trainee,score,band");
+  CHECK_THAT(*csv, Catch::Contains("2027-01-15,Morning pickup at Tarnwick," + kRun +
+                                   ",running,north,'=cmd|' /C calc'!A0,62.5,62.5\r\n"));
   CHECK_THAT(*csv, Catch::Contains(",running,south,,90.0,90.0\r\n"));
 }
 
-TEST_CASE("a full records file gives one clear message and the store stops "
-          "writing, without throwing") {
+TEST_CASE(
+    "a full records file gives one clear message and the store stops "
+    "writing, without throwing") {
   const fs::path file = temp_dir("full") / "records.sqlite3";
-  RecordsStore store(
-      file.string(),
-      64 * 4096); // at most 64 pages of 4 KiB (SQLite's default page size)
+  RecordsStore store(file.string(),
+                     64 * 4096);  // at most 64 pages of 4 KiB (SQLite's default page size)
   REQUIRE(store.ok());
   store.run_started(start_of(kRun));
   const auto big = nlohmann::json::array({std::string(3000, 'x')});
-  for (int i = 0; i < 200; ++i)
-    store.actions(kRun, i, "north", big);
+  for (int i = 0; i < 200; ++i) store.actions(kRun, i, "north", big);
   store.flush();
   const auto status = store.status();
   CHECK_FALSE(status.ok);
   CHECK(status.error ==
-        "records: cannot write " + file.string() +
-            ": database or disk is full; the session goes on without records");
-  const long long kept =
-      std::stoll(scalar(file, "SELECT count(*) FROM actions"));
+        "records: cannot write " + file.string() + ": database or disk is full; the session goes on without records");
+  const long long kept = std::stoll(scalar(file, "SELECT count(*) FROM actions"));
   CHECK(kept > 0);
   CHECK(kept < 200);
-  store.actions(kRun, 300.0, "north", big); // dropped quietly while failed
+  store.actions(kRun, 300.0, "north", big);  // dropped quietly while failed
   store.flush();
   CHECK(std::stoll(scalar(file, "SELECT count(*) FROM actions")) == kept);
   CHECK(scalar(file, "PRAGMA integrity_check") == "ok");

@@ -30,6 +30,7 @@
 #include "history_store.hpp"
 #include "seat_scope.hpp"
 #include "journal.hpp"
+#include "run_log.hpp"
 #include "telemetry.hpp"
 
 namespace droopline {
@@ -43,6 +44,7 @@ struct LiveConfig {
   /// Wall time a command is scheduled ahead so that its journal record is on disk before the loop
   /// reaches it; the loop waits at that step only if the disk is slower than this.
   double journal_lead_s = 0.02;
+  std::shared_ptr<RunLog> run_log;
 };
 
 /// Counters for /metrics (read from any thread).

@@ -5,7 +5,7 @@ namespace {
 
 // Version 1, as first shipped. Never edit it: files of this version exist and
 // migrate from it.
-constexpr const char *kVersion1 = R"sql(
+constexpr const char* kVersion1 = R"sql(
 CREATE TABLE runs(
   run_id TEXT PRIMARY KEY,
   exercise TEXT NOT NULL,
@@ -50,7 +50,7 @@ PRAGMA user_version = 1;
 // Version 1 -> 2: the trainees at each seat and the scores (the latest per
 // seat, and whether it is the run's final one); indexes for the records page's
 // filters.
-constexpr const char *kTo2 = R"sql(
+constexpr const char* kTo2 = R"sql(
 CREATE TABLE trainees(
   id INTEGER PRIMARY KEY,
   run_id TEXT NOT NULL REFERENCES runs(run_id) ON DELETE CASCADE,
@@ -72,29 +72,22 @@ CREATE INDEX runs_started ON runs(started_at);
 PRAGMA user_version = 2;
 )sql";
 
-constexpr const char *kSteps[] = {kVersion1,
-                                  kTo2}; // step i brings version i to i + 1
+constexpr const char* kSteps[] = {kVersion1, kTo2};  // step i brings version i to i + 1
 
-} // namespace
+}  // namespace
 
-bool prepare_schema(Db &db, std::string &error) {
+bool prepare_schema(Db& db, std::string& error) {
   int version = db.user_version(error);
-  if (version < 0)
-    return false;
+  if (version < 0) return false;
   if (version > kSchemaVersion) {
-    error = "its schema version is " + std::to_string(version) +
-            ", newer than this droopline knows (" +
-            std::to_string(kSchemaVersion) +
-            "): use a newer droopline, or another --records file";
+    error = "its schema version is " + std::to_string(version) + ", newer than this droopline knows (" +
+            std::to_string(kSchemaVersion) + "): use a newer droopline, or another --records file";
     return false;
   }
   for (; version < kSchemaVersion; ++version) {
     std::string why;
-    if (!transaction(db, why, [&](std::string &e) {
-          return db.exec(kSteps[version], e);
-        })) {
-      error = "cannot bring the schema from version " +
-              std::to_string(version) + " to " + std::to_string(version + 1) +
+    if (!transaction(db, why, [&](std::string& e) { return db.exec(kSteps[version], e); })) {
+      error = "cannot bring the schema from version " + std::to_string(version) + " to " + std::to_string(version + 1) +
               ": " + why;
       return false;
     }
@@ -102,4 +95,4 @@ bool prepare_schema(Db &db, std::string &error) {
   return true;
 }
 
-} // namespace droopline::records
+}  // namespace droopline::records

@@ -16,6 +16,6 @@ inline constexpr int kSchemaVersion = 2;
 /// each migration step in a transaction of its own. A version newer than known
 /// is refused (false, `error` says which and what to do); nothing is changed
 /// then.
-bool prepare_schema(Db &db, std::string &error);
+bool prepare_schema(Db& db, std::string& error);
 
-} // namespace droopline::records
+}  // namespace droopline::records

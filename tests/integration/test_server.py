@@ -462,7 +462,10 @@ PROTECTED = [
     ("POST", "/api/v1/script/s1/skip", None, "only the instructor sees"),
     ("POST", "/api/v1/script/s1/shift", '{"at_s": 5}', "only the instructor sees"),
     ("POST", "/api/v1/alarms/1/ack", None, "only an operator seat or the instructor can acknowledge alarms"),
-]
+] + [(m, "/api/v1/records/" + p, b, "training records are for the instructor") for m, p, b in [
+    ("GET", "status", None), ("GET", "runs", None), ("GET", "runs/" + "ab" * 16, None),
+    ("GET", "runs/" + "ab" * 16 + "/debrief", None), ("POST", "runs/" + "ab" * 16 + "/notes", '{"text": "x"}'),
+    ("GET", "trainees", None), ("GET", "export.csv", None), ("DELETE", "trainees/Ilse", None)]]
 OPEN_TO_VIEWERS = ["/healthz", "/metrics", "/api/v1/state", "/api/v1/role", "/api/v1/scenario", "/api/v1/history",
                    "/api/v1/events", "/api/v1/record?from_s=0&to_s=1", "/api/v1/openapi.json",
                    "/api/v1/exercise", "/api/v1/alarms"]
