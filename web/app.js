@@ -11,6 +11,7 @@
 //   controls.js    instructor controls and field checks
 //   alarms.js      alarms from the stream, the one alarm list, acknowledging, the alarm tone
 //   exercise.js    the running exercise (briefing, time limit, seat names)
+//   objectives.js  objectives' running state (one table per seat), the exercise-ended banner
 //   wall.js        the wall view: large frequencies, alarms, tie flows, exercise clock
 //   seat.js        the seat view: join code, briefing, the seat's areas and units with their controls
 //   desk.js        the instructor view's panels: seats, script, save points and rewind, feed, alarms
@@ -24,6 +25,7 @@ import { wireControls, fillChoices, unlockWith } from '/controls.js';
 import { wireStudies, clearSweepNote } from '/studies.js';
 import { takeAlarms, alarmMessage, fetchAlarms } from '/alarms.js';
 import { loadExercise } from '/exercise.js';
+import { showEnded } from '/objectives.js';
 import { prepareWall, buildWall, renderWall } from '/wall.js';
 import { wireSeat, buildSeat, renderSeat } from '/seat.js';
 import { makeDesk, refreshDesk, unlockedDesk, feedEvent, clearFeed } from '/desk.js';
@@ -56,6 +58,7 @@ function scheduleRedraw() {
 // An event for the log and, with an author, the instructor's feed. The overview asks for the
 // exercise (its seats' names) only once a seat has acted: without one the route answers 404.
 function takeEvent(e) {
+  if (e.type === 'exercise_end') showEnded(true, e.text);
   if (view === 'overview' && e.by && !['instructor', 'script'].includes(e.by) && !app.exercise) loadExercise();
   logEvent(e);
   feedEvent(e);
@@ -108,7 +111,10 @@ connect({
     scheduleRedraw();
   },
   event: (e) => {
-    if (startsRun(e)) clearRun();
+    if (startsRun(e)) {
+      clearRun();
+      showEnded(false);
+    }
     takeEvent(e);
   },
   disturbance: (d) => {

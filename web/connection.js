@@ -65,6 +65,9 @@ export function connect(on) {
       case 'disturbance':
         on.disturbance(msg);
         break;
+      case 'exercise_end': // the time limit or the instructor ended the exercise: the banner and the log
+        on.event(msg);
+        break;
       case 'alarm': // an exercise's alarm raised, cleared or acknowledged: the alarm lists and the log
         on.alarm(msg);
         break;

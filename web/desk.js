@@ -1,19 +1,23 @@
 // The instructor view's panels (from the `desk-panels` template, made only in that view): the seats
-// with their join codes and who has joined, the hidden script's timeline (fire now, skip, shift,
+// with their join codes, who has joined and their trainees' names, every seat's objectives, notes,
+// ending the exercise and opening its debrief, the hidden script's timeline (fire now, skip, shift,
 // add), save points (save, restore) and rewind, the action feed with each author's name and every
 // alarm. Seats, script and save points are read again every few seconds while unlocked: their
 // changes (a seat joining, a script event firing) are not all on the stream. A failed read shows
 // in its panel's `-read` output, apart from the answers to the instructor's own actions.
-import { app, $, fmt, el, button, authorName } from '/state.js';
+import { app, $, fmt, el, button, authorName, errorOutput } from '/state.js';
 import { apiFor } from '/api.js';
 import { sendChange, confirmAction, describeCommand } from '/commands.js';
 import { readNumbers } from '/controls.js';
 import { alarmsNow, renderAlarms, onAlarms, fetchAlarms } from '/alarms.js';
 import { loadExercise } from '/exercise.js';
+import { objectivesBlock, fetchObjectives, showEnded } from '/objectives.js';
 
 const POLL_MS = 2000;
 
 // ------------------------------------------------------------------ seats
+
+let seatsSeen = '';
 
 // Also whether an exercise runs (it has seats): only then is there one to ask for.
 async function refreshSeats() {
@@ -24,15 +28,89 @@ async function refreshSeats() {
   $('seats-none').hidden = r.seats.length > 0;
   const table = $('seats-table');
   table.hidden = r.seats.length === 0;
+  // Rebuilt only when something changed: rows that stay put can be read (and selected) meanwhile.
+  const seen = JSON.stringify(r.seats);
+  if (seen === seatsSeen) return;
+  seatsSeen = seen;
   table.tBodies[0].replaceChildren(...r.seats.map((s) => {
     const tr = el('tr', {},
       el('td', {}, el('strong', { textContent: s.name }), el('small', { textContent: ` ${s.id}` })),
+      el('td', { className: 'trainee', textContent: s.trainee || '-' }),
       el('td', { textContent: s.areas.join(', ') }),
       el('td', { className: 'code', textContent: s.join_code }),
       el('td', { className: s.joined ? 'joined' : 'waiting', textContent: s.joined ? `yes${s.streams ? `, ${s.streams} screen${s.streams > 1 ? 's' : ''}` : ''}` : 'not yet' }));
     tr.dataset.seat = s.id;
     return tr;
   }));
+}
+
+// ------------------------------------------------------------------ objectives, notes, end, debrief
+
+// Every seat's objectives, one table each, its trainee's name (from the seats table) in the header.
+async function refreshObjectives() {
+  const r = await fetchObjectives(errorOutput('objectives-read'));
+  if (!r) return;
+  const trainee = (id) => $('seats-table').querySelector(`tr[data-seat="${CSS.escape(id)}"] td.trainee`)?.textContent;
+  const seatName = (id) => app.exercise?.seats.find((x) => x.id === id)?.name ?? id;
+  $('desk-objectives').replaceChildren(...r.seats.map((seat) => {
+    const who = trainee(seat.seat);
+    return objectivesBlock(seat, `${seatName(seat.seat)}${who && who !== '-' ? `: ${who}` : ''}`);
+  }));
+  if (!r.seats.length) $('desk-objectives').replaceChildren(el('p', { className: 'empty', textContent: 'no objectives in this exercise' }));
+  $('do-end').disabled = r.ended;
+}
+
+async function refreshNotes() {
+  const r = await apiFor('notes', '/api/v1/notes');
+  if (!r) return;
+  $('notes-list').replaceChildren(...r.notes.slice().reverse().map((n) => el('li', {},
+    el('span', { className: 't', textContent: `${fmt(n.t_s, 1)} s` }), el('span', { className: 'note-text', textContent: n.text }))));
+}
+
+async function addNote() {
+  const text = $('note-text').value.trim();
+  if (!text) {
+    errorOutput('notes').textContent = 'Type the note first.';
+    return;
+  }
+  const r = await sendChange('notes', '/api/v1/notes', { text }, 'note kept');
+  if (!r) return;
+  $('note-text').value = '';
+  refreshNotes();
+}
+
+async function endExercise() {
+  if (!(await confirmAction('End the exercise now? The simulation pauses, the seats can send nothing more, and the run is kept as complete.', 'End exercise'))) return;
+  const r = await sendChange('end', '/api/v1/control', { action: 'end' }, 'exercise ended');
+  if (r) showEnded(true, 'ended by the instructor');
+  refreshObjectives();
+}
+
+// The debrief is the instructor's (bearer token), so it is fetched here and opened from a Blob URL:
+// a plain link could not carry the token.
+let debriefUrl = '';
+async function openDebrief() {
+  const out = errorOutput('debrief');
+  out.textContent = '';
+  let res;
+  try {
+    res = await fetch('/api/v1/debrief', { headers: { Authorization: `Bearer ${app.token}` } });
+  } catch (e) {
+    out.textContent = `the server did not answer (${e.message})`;
+    return;
+  }
+  if (!res.ok) {
+    const answer = await res.json().catch(() => ({}));
+    out.textContent = `No debrief: ${answer.error || `HTTP ${res.status}`}`;
+    return;
+  }
+  if (debriefUrl) URL.revokeObjectURL(debriefUrl);
+  debriefUrl = URL.createObjectURL(new Blob([await res.text()], { type: 'text/html' }));
+  const link = $('debrief-save');
+  link.href = debriefUrl;
+  link.download = `debrief-${(app.exercise?.name || 'run').replace(/[^A-Za-z0-9]+/g, '-').slice(0, 40)}.html`;
+  link.hidden = false;
+  window.open(debriefUrl, '_blank', 'noopener');
 }
 
 // ------------------------------------------------------------------ script
@@ -97,6 +175,7 @@ async function refreshScript() {
 
 // A plain scenario runs: no script to show (the route answers 404).
 function showNoScript() {
+  $('desk-objectives').replaceChildren(el('p', { className: 'empty', textContent: 'no exercise is running' }));
   scriptSeen = '';
   $('script-none').hidden = false;
   $('script-table').hidden = true;
@@ -196,7 +275,9 @@ export const clearFeed = () => { if (app.view === 'instructor') $('action-feed')
 /** Everything read again (after unlocking, after each greeting, and every POLL_MS). */
 export async function refreshDesk() {
   if (!app.instructor) return;
-  await Promise.all([refreshSeats().then(() => (app.exercise ? refreshScript() : showNoScript())), refreshSavepoints()]);
+  await Promise.all([
+    refreshSeats().then(() => (app.exercise ? Promise.all([refreshScript(), refreshObjectives()]) : showNoScript())),
+    refreshSavepoints(), refreshNotes()]);
 }
 
 /** Makes the panels from their template and wires them. */
@@ -207,6 +288,9 @@ export function makeDesk() {
   $('do-rewind').addEventListener('click', rewind);
   $('do-script-add').addEventListener('click', addScriptEvent);
   $('exercise-file').addEventListener('change', loadExerciseFile);
+  $('do-note').addEventListener('click', addNote);
+  $('do-end').addEventListener('click', endExercise);
+  $('do-debrief').addEventListener('click', openDebrief);
   setInterval(() => { if (app.instructor && !document.hidden) refreshDesk(); }, POLL_MS);
 }
 

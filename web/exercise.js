@@ -1,7 +1,9 @@
 // The running exercise as every role may see it (GET /api/v1/exercise: name, briefing, time limit,
-// seats with their names; never the script), kept in app.exercise; null when none runs.
+// seats with their names, whether it has ended; never the script), kept in app.exercise; null when
+// none runs.
 import { app, $ } from '/state.js';
 import { api, ApiError } from '/api.js';
+import { showEnded } from '/objectives.js';
 
 /** Fetches the exercise (after each greeting: another may have been loaded). */
 export async function loadExercise() {
@@ -14,5 +16,6 @@ export async function loadExercise() {
   const limit = app.exercise?.time_limit_s;
   $('time-limit').hidden = !limit;
   $('time-limit').textContent = limit ? ` of ${limit} s` : '';
+  showEnded(Boolean(app.exercise?.ended));
   return app.exercise;
 }

@@ -1,4 +1,5 @@
-// The seat view: a trainee joins with the seat's code, reads the briefing and runs the seat's own
+// The seat view: a trainee joins with the seat's code and their name, reads the briefing, follows the
+// seat's own objectives (polled every 2 s) and runs the seat's own
 // areas: per area its frequency, ACE, schedule (and a ramped change of it), upward reserve, shed
 // load (shed and restore by hand) and secondary control (on/off, mode); per unit its state and its
 // own setpoint (optionally ramped), start and controlled stop. Only the seat's areas are offered;
@@ -10,6 +11,10 @@ import { sendCommand, AGC_MODE_NAMES, agcModeWords } from '/commands.js';
 import { readNumbers } from '/controls.js';
 import { alarmsNow, renderAlarms, onAlarms, concernsSeat, fetchAlarms, wireTone } from '/alarms.js';
 import { loadExercise } from '/exercise.js';
+import { objectivesBlock, fetchObjectives } from '/objectives.js';
+
+const POLL_MS = 2000;
+const nameKey = () => `${app.tokenKey}:name`;
 
 // A number field in its label; an optional one may stay blank.
 function field(id, label, { optional = false, ...attrs } = {}) {
@@ -136,7 +141,7 @@ export async function buildSeat() {
     leave('The instructor loaded another exercise: join with your new code.');
     return;
   }
-  $('seat-title').textContent = `${app.seat.name} (${app.seat.areas.join(', ')})`;
+  $('seat-title').textContent = `${app.seat.name} (${app.seat.areas.join(', ')})${app.trainee ? `: ${app.trainee}` : ''}`;
   $('seat-briefing').textContent = app.exercise?.briefing || 'No briefing: no exercise is running.';
   $('seat-areas').replaceChildren(...app.scenario.areas.filter((a) => app.seat.areas.includes(a.id)).map(areaCard));
   renderSeatAlarms();
@@ -175,7 +180,16 @@ function renderSeatAlarms() {
   renderAlarms($('seat-alarms'), alarmsNow('open', concernsSeat), { canAck: () => true });
 }
 
-async function join(code) {
+// The seat's own objectives as they stand (the server gives a seat nothing else).
+async function refreshSeatObjectives() {
+  if (!app.seat || !app.exercise) return;
+  const r = await fetchObjectives($('seat-objectives-error'));
+  const mine = r?.seats.find((x) => x.seat === app.seat.id);
+  if (!mine) return;
+  $('seat-objectives-body').replaceChildren(objectivesBlock(mine, `${app.seat.name}: your objectives`));
+}
+
+async function join(code, name) {
   $('seat-error').textContent = '';
   let r;
   try {
@@ -191,13 +205,24 @@ async function join(code) {
       ? 'That is the instructor token: open the instructor view instead.' : 'That is no seat\'s code.';
     return false;
   }
-  Object.assign(app, { token: code, role: 'seat', seat: r.seat });
+  // The trainee's name goes with the seat (the server trims it and keeps at most 60 bytes).
+  try {
+    const joined = await api('/api/v1/seats/join', { method: 'POST', body: { name }, token: code });
+    name = joined.name;
+  } catch (e) {
+    if (!(e instanceof ApiError)) throw e;
+    $('seat-error').textContent = `Your name was refused: ${e.message}`;
+    return false;
+  }
+  Object.assign(app, { token: code, role: 'seat', seat: r.seat, trainee: name });
   sessionStorage.setItem(app.tokenKey, code);
+  sessionStorage.setItem(nameKey(), name);
   sendAuth();
   await loadExercise();
   $('seat-join').hidden = true;
   $('seat-desk').hidden = false;
   buildSeat();
+  refreshSeatObjectives();
   await fetchAlarms();
   return true;
 }
@@ -205,7 +230,9 @@ async function join(code) {
 // Back to the join form (the code forgotten), with a reason when there is one.
 function leave(why = '') {
   sessionStorage.removeItem(app.tokenKey);
+  sessionStorage.removeItem(nameKey());
   Object.assign(app, { token: '', role: 'viewer', seat: null });
+  $('seat-objectives-body').replaceChildren();
   $('seat-desk').hidden = true;
   $('seat-join').hidden = false;
   $('seat-error').textContent = why;
@@ -220,8 +247,17 @@ export function wireSeat() {
   wireTone($('alarm-tone'));
   $('seat-join').addEventListener('submit', (ev) => {
     ev.preventDefault();
-    join($('seat-code').value.trim());
+    const name = $('seat-name').value.trim();
+    if (!name) {
+      $('seat-error').textContent = 'Enter your name: it goes into the debrief and the training records.';
+      return;
+    }
+    join($('seat-code').value.trim(), name);
   });
   $('seat-leave').addEventListener('click', () => leave());
-  if (app.token) join(app.token);
+  setInterval(() => { if (app.seat && !document.hidden) refreshSeatObjectives(); }, POLL_MS);
+  // A reload joins again with the code and name kept in this tab.
+  const kept = sessionStorage.getItem(nameKey());
+  if (app.token && kept) join(app.token, kept);
+  else if (app.token) $('seat-code').value = app.token;
 }

@@ -8,6 +8,7 @@
 #include "droopline/format.hpp"
 #include "droopline/json_input.hpp"
 #include "droopline/scenario_io.hpp"
+#include "typed_text.hpp"
 
 namespace droopline::server {
 namespace {
@@ -23,6 +24,9 @@ constexpr const char* kSeats = "only the instructor sees the seats' join codes";
 constexpr const char* kScript = "only the instructor sees and changes the exercise's script";
 constexpr const char* kAck = "only an operator seat or the instructor can acknowledge alarms";
 constexpr const char* kSavePoints = "only the instructor sees the save points";
+constexpr const char* kJoin = "only an operator seat enters a trainee's name (use the seat's join code)";
+constexpr const char* kObjectives = "a seat sees its own objectives and the instructor every seat's";
+constexpr const char* kNotes = "only the instructor writes and reads the notes";
 
 // A number from the query, or an error message naming the parameter.
 bool query_number(const Target& t, const std::string& key, double fallback, double& out, std::string& error) {
@@ -236,6 +240,7 @@ void seats(Services& s, Call& c) {
                     {"areas", seat.areas},
                     {"join_code", seat.join_code},
                     {"joined", seat.joined},
+                    {"trainee", seat.trainee},
                     {"streams", seat.streams}});
   c.reply(200, json{{"seats", list}}.dump());
 }
@@ -247,12 +252,13 @@ void control(Services& s, Call& c) {
   const json& j = *parsed;
   if (!j.is_object())
     return c.error(400,
-                   "body must be {\"action\": \"pause\" | \"resume\" | \"reset\" | \"speed\" | \"rewind\", "
+                   "body must be {\"action\": \"pause\" | \"resume\" | \"reset\" | \"speed\" | \"rewind\" | \"end\", "
                    "\"speed\": x, \"to_s\": t}");
   const std::string action = j.contains("action") && j["action"].is_string() ? j["action"].get<std::string>() : "";
   if (action == "pause") return s.live->pause(answer(c));
   if (action == "resume") return s.live->resume(answer(c));
   if (action == "reset") return s.live->reset(answer(c));
+  if (action == "end") return s.live->end_exercise("instructor", answer(c));
   if (action == "rewind") {
     // JSON numbers are finite; the session checks the range against its lineage.
     if (!j.contains("to_s") || !j["to_s"].is_number())
@@ -261,7 +267,7 @@ void control(Services& s, Call& c) {
   }
   if (action != "speed")
     return c.error(
-        400, "action: must be one of \"pause\", \"resume\", \"reset\", \"speed\", \"rewind\", got " +
+        400, "action: must be one of \"pause\", \"resume\", \"reset\", \"speed\", \"rewind\", \"end\", got " +
                  (j.contains("action") ? clip_text(j["action"].dump(-1, ' ', false, json::error_handler_t::replace), 64)
                                        : std::string("nothing")));
   if (!j.contains("speed") || !j["speed"].is_number()) return c.error(400, "speed: required, a number from 0.1 to 100");
@@ -270,6 +276,65 @@ void control(Services& s, Call& c) {
     return c.error(400, "speed: must lie within [0.1, 100], got " + fmt_num(speed));
   s.live->set_speed(speed, answer(c));
 }
+
+// The one string field `field` of a JSON object body (no other field), checked as typed text by
+// `rule`; nullopt when the call was answered 400.
+std::optional<std::string> typed_body(const Call& c, const TypedTextRule& rule) {
+  std::string bad;
+  const auto parsed = parse_untrusted_json(c.request.body, bad);
+  if (!parsed) {
+    c.error(400, bad);
+    return std::nullopt;
+  }
+  const json& j = *parsed;
+  const std::string field = rule.field;
+  const std::string shape = "body must be {\"" + field + "\": \"...\"}";
+  if (!j.is_object()) {
+    c.error(400, shape);
+    return std::nullopt;
+  }
+  for (const auto& [key, value] : j.items())
+    if (key != field) {
+      c.error(400, quote_cut(key) + ": unknown field (" + shape + ")");
+      return std::nullopt;
+    }
+  if (!j.contains(field) || !j[field].is_string()) {
+    c.error(400, field + ": required, a string of 1 to " + std::to_string(rule.refuse_over) + " bytes");
+    return std::nullopt;
+  }
+  std::string why;
+  auto text = typed_text(j[field].get_ref<const std::string&>(), rule, why);
+  if (!text) c.error(400, why);
+  return text;
+}
+
+void join_seat(Services& s, Call& c) {
+  if (c.role != Role::seat) return c.error(403, kJoin);
+  std::optional<SeatScope> scope;
+  if (!seat_scope(s, c, scope)) return;
+  auto name = typed_body(c, kTraineeName);
+  if (!name) return;
+  const std::string seat = scope->seat;
+  s.live->trainee(seat, *name, [&s, seat, name = *name, done = answer(c)](LiveSession::Result r) {
+    if (r.status == 200) s.seats.set_trainee(seat, name);
+    done(std::move(r));
+  });
+}
+
+void get_objectives(Services& s, Call& c) {
+  // A seat sees its own seat's objectives only; the instructor sees every seat's.
+  std::optional<SeatScope> scope;
+  if (!seat_scope(s, c, scope)) return;
+  s.live->objectives(scope ? std::optional<std::string>(scope->seat) : std::nullopt, answer(c));
+}
+
+void post_note(Services& s, Call& c) {
+  auto text = typed_body(c, kNoteText);
+  if (!text) return;
+  s.live->add_note(std::move(*text), "instructor", answer(c));
+}
+
+void get_notes(Services& s, Call& c) { s.live->notes(answer(c)); }
 
 void post_savepoint(Services& s, Call& c) {
   std::string bad;
@@ -358,6 +423,10 @@ void add_live_routes(std::vector<Route>& routes) {
                                   {Verb::put, "/api/v1/scenario", instructor, kChanges, put_scenario},
                                   {Verb::post, "/api/v1/commands", seat, kOperates, commands},
                                   {Verb::get, "/api/v1/seats", instructor, kSeats, seats},
+                                  {Verb::post, "/api/v1/seats/join", seat, kJoin, join_seat},
+                                  {Verb::get, "/api/v1/objectives", seat, kObjectives, get_objectives},
+                                  {Verb::post, "/api/v1/notes", instructor, kNotes, post_note},
+                                  {Verb::get, "/api/v1/notes", instructor, kNotes, get_notes},
                                   {Verb::post, "/api/v1/control", instructor, kChanges, control},
                                   {Verb::post, "/api/v1/savepoints", instructor, kChanges, post_savepoint},
                                   {Verb::get, "/api/v1/savepoints", instructor, kSavePoints, get_savepoints},

@@ -32,7 +32,7 @@ void SeatRoster::set(const std::vector<study::SeatDef>& seats) {
     do {  // distinct codes, so that a code names one seat
       code = draw_code();
     } while (std::any_of(fresh.begin(), fresh.end(), [&](const SeatStatus& o) { return o.join_code == code; }));
-    fresh.push_back(SeatStatus{s.id, s.name, s.areas, code, false, 0});
+    fresh.push_back(SeatStatus{s.id, s.name, s.areas, code, false, 0, {}});
   }
   std::lock_guard<std::mutex> lock(mutex_);
   seats_ = std::move(fresh);
@@ -58,6 +58,16 @@ std::optional<SeatIdentity> SeatRoster::find(const std::string& id) const {
   for (const SeatStatus& s : seats_)
     if (s.id == id) return SeatIdentity{s.id, s.name, s.areas};
   return std::nullopt;
+}
+
+bool SeatRoster::set_trainee(const std::string& id, const std::string& name) {
+  std::lock_guard<std::mutex> lock(mutex_);
+  for (SeatStatus& s : seats_)
+    if (s.id == id) {
+      s.trainee = name;
+      return true;
+    }
+  return false;
 }
 
 void SeatRoster::stream(const std::string& id, int delta) {

@@ -22,6 +22,7 @@ struct SeatStatus {
   std::string join_code;
   bool joined = false;       ///< its code has been used since the exercise was loaded
   std::size_t streams = 0;   ///< streaming clients signed in as this seat now
+  std::string trainee;       ///< the name the trainee entered when joining ("" until then)
 };
 
 /// A seat's identity as a request carries it.
@@ -45,6 +46,8 @@ class SeatRoster {
   std::optional<SeatIdentity> sign_in(std::string_view given);
   /// The seat `id` as it stands now (nullopt once an exercise without it was loaded).
   std::optional<SeatIdentity> find(const std::string& id) const;
+  /// Seat `id`'s trainee is `name` (already checked); false when there is no such seat now.
+  bool set_trainee(const std::string& id, const std::string& name);
   /// A streaming client signed in as seat `id` opened (+1) or closed (-1).
   void stream(const std::string& id, int delta);
   /// Every seat with its code, in the file's order.

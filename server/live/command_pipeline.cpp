@@ -41,13 +41,21 @@ bool CommandPipeline::submit(const Engine& engine, std::vector<Command> commands
     done(refused(400, "command refused", std::move(check.issues)));
     return false;
   }
-  std::int64_t step = earliest_step;
-  if (!pending_.empty()) step = std::max(step, pending_.back().step);
+  const std::int64_t step = schedule(earliest_step);
   json cmds = json::array();
   for (const Command& c : commands) cmds.push_back(command_to_json(c));
   auto outcome = journal_.submit(json{{"type", "commands"}, {"step", step}, {"commands", cmds}, {"by", author}}.dump());
-  pending_.push_back({step, std::move(resolved.actions), std::move(author), std::move(done), std::move(outcome)});
+  pending_.push_back(
+      {step, std::move(resolved.actions), std::move(author), cmds.dump(), {}, std::move(done), std::move(outcome)});
   return true;
+}
+
+void CommandPipeline::submit_effect(json record, std::int64_t earliest_step, std::function<LiveResult(Engine&)> effect,
+                                    Done done) {
+  const std::int64_t step = schedule(earliest_step);
+  record["step"] = step;
+  auto outcome = journal_.submit(record.dump());
+  pending_.push_back({step, {}, {}, {}, std::move(effect), std::move(done), std::move(outcome)});
 }
 
 bool CommandPipeline::due_unwritten(std::int64_t step) const {
@@ -73,13 +81,18 @@ void CommandPipeline::apply_due(Engine& engine, const std::function<void(const A
     }
     spdlog::error("{}", it->outcome->error);
     refused_.fetch_add(it->actions.size());
-    it->done(refused(it->outcome->status, "command refused, nothing applied: " + it->outcome->error));
+    it->done(refused(it->outcome->status,
+                     std::string(it->effect ? "refused" : "command refused") + ", nothing applied: " + it->outcome->error));
     it = pending_.erase(it);
   }
   while (!pending_.empty() && pending_.front().step <= engine.step_index() &&
          pending_.front().outcome->state.load(std::memory_order_acquire) == JournalWriter::durable) {
     Pending p = std::move(pending_.front());
     pending_.pop_front();
+    if (p.effect) {  // not a command batch: replay and the save points' counts leave it out
+      p.done(p.effect(engine));
+      continue;
+    }
     ++taken_;
     ApplyResult r = engine.apply_all(p.actions);
     if (!r.ok) {  // replay refuses it the same way
@@ -88,7 +101,7 @@ void CommandPipeline::apply_due(Engine& engine, const std::function<void(const A
       continue;
     }
     applied_.fetch_add(p.actions.size());
-    applied({engine.step_index(), p.actions, p.author});
+    applied({engine.step_index(), p.actions, p.author, p.commands});
     p.done(accepted(json{{"ok", true},
                          {"applied", p.actions.size()},
                          {"t_s", r.at_s},

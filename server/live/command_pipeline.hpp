@@ -5,6 +5,7 @@
 // journal changes nothing. Used on the loop thread only (the journal writes on its own).
 #include <atomic>
 #include <cstdint>
+#include <algorithm>
 #include <deque>
 #include <functional>
 #include <memory>
@@ -52,6 +53,12 @@ class CommandPipeline {
   /// (nothing kept) with `done` answered when a check refuses them.
   bool submit(const Engine& engine, std::vector<Command> commands, std::string author, std::int64_t earliest_step,
               Done done);
+  /// Something other than commands that must be journalled before it takes effect, as commands are
+  /// (an alarm acknowledgement): `record` (its "step" set to the step chosen, `earliest_step` or
+  /// later) goes to the journal, and `effect` runs at that step once the record is durable and
+  /// answers; a failed record answers its status and nothing happens. Not a batch taken.
+  void submit_effect(nlohmann::ordered_json record, std::int64_t earliest_step,
+                     std::function<LiveResult(Engine&)> effect, Done done);
   /// The next command is due at `step` but its record is not on disk yet (the loop waits).
   bool due_unwritten(std::int64_t step) const;
   /// apply_due() has something to do at `step`.
@@ -62,6 +69,7 @@ class CommandPipeline {
     std::int64_t step;                   ///< the step it was applied at
     const std::vector<Action>& actions;  ///< the resolved actions
     const std::string& author;           ///< who sent them
+    const std::string& commands;         ///< the commands as the journal wrote them (a JSON array)
   };
   /// Answers the commands whose record failed; applies the durable ones whose step has come,
   /// calling `applied` after each (for the notices, their author and the save points' log), and
@@ -81,6 +89,10 @@ class CommandPipeline {
   }
   /// The step of the next waiting command, or -1.
   std::int64_t next_step() const { return pending_.empty() ? -1 : pending_.front().step; }
+  /// The step something submitted now for `earliest_step` would take (never before one waiting).
+  std::int64_t schedule(std::int64_t earliest_step) const {
+    return pending_.empty() ? earliest_step : std::max(earliest_step, pending_.back().step);
+  }
   /// Refuses every waiting command with `status` and `why`.
   void refuse_all(int status, const std::string& why);
   /// Refuses `commands` before they reach the pipeline (a halted session), counted like the rest.
@@ -92,6 +104,8 @@ class CommandPipeline {
     std::int64_t step;
     std::vector<Action> actions;  // resolved once, applied at `step`
     std::string author;           // who sent them
+    std::string commands;         // their journal form (a JSON array), for the training records
+    std::function<LiveResult(Engine&)> effect;  // instead of commands: what submit_effect runs
     Done done;
     std::shared_ptr<const JournalWriter::Outcome> outcome;
   };

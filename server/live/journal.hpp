@@ -6,13 +6,30 @@
 // record that cannot be written whole is cut off again, so the file never holds half a line
 // ahead of later records. The reader (`droopline replay`) is droopline/journal_read.hpp.
 //
-//   {"type":"scenario","step":0,"scenario":{...}}     a scenario was loaded (or the session reset)
+//   {"type":"scenario","step":0,"run":"<32 hex>","scenario":{...}}
+//                                                     a scenario was loaded (or the session reset): a
+//                                                     new run, its random id ("run", absent in older
+//                                                     journals)
+//   {"type":"exercise","step":0,"run":...,"exercise":{...}}
+//                                                     right after the scenario record of an exercise
+//                                                     run: study::exercise_to_json
 //   {"type":"commands","step":N,"commands":[...],"by":"instructor"}
 //                                                     commands applied before step N, and who sent
 //                                                     them (absent in older journals: the instructor)
 //   {"type":"script","step":N,"edit":"add"|"fire"|"skip"|"shift","id":...,"by":...}
 //                                                     an exercise's script edited (for the record:
 //                                                     its firings are command records, by "script")
+//   {"type":"ack","step":N,"alarm":ID,"by":...}       alarm ID acknowledged between steps N-1 and N
+//                                                     (written before it takes effect, as commands;
+//                                                     follows the run's lineage like them)
+//   {"type":"trainee","step":N,"seat":...,"name":...} a seat's trainee gave their name (repeated at
+//                                                     step 0 of a reset's new run)
+//   {"type":"note","step":N,"by":"instructor","text":...}
+//                                                     the instructor's note (never sent to seats)
+//   {"type":"end","step":N,"complete":true|false,"why":...}
+//                                                     the run ended: complete at the exercise's time
+//                                                     limit or by the instructor; else cut short (a
+//                                                     reset, another load, the service stopping)
 //   {"type":"stop","step":N}                          graceful shutdown after N steps
 #include <atomic>
 #include <condition_variable>

@@ -11,6 +11,7 @@
 #include <deque>
 #include <iterator>
 #include <functional>
+#include <map>
 #include <memory>
 #include <mutex>
 #include <optional>
@@ -24,6 +25,7 @@
 #include "droopline/comtrade.hpp"
 #include "droopline/engine.hpp"
 #include "droopline/exercise.hpp"
+#include "droopline/objectives.hpp"
 #include "droopline/script.hpp"
 #include "droopline/timeline.hpp"
 #include "command_pipeline.hpp"
@@ -44,7 +46,7 @@ struct LiveConfig {
   /// Wall time a command is scheduled ahead so that its journal record is on disk before the loop
   /// reaches it; the loop waits at that step only if the disk is slower than this.
   double journal_lead_s = 0.02;
-  std::shared_ptr<RunLog> run_log;
+  std::shared_ptr<RunLog> run_log;  ///< training records (none: not kept)
 };
 
 /// Counters for /metrics (read from any thread).
@@ -163,6 +165,28 @@ class LiveSession {
   /// A seat (`scope`) acknowledges only alarms that concern one of its areas (else 403).
   void ack_alarm(std::uint64_t id, std::string author, std::optional<SeatScope> scope, Done done);
 
+  // Runs: from a load or reset to the next, each with a random id (the journal's scenario record
+  // has it as "run"); the training records (LiveConfig::run_log) hear of each as it goes. An
+  // exercise's run ends complete at its time limit or by the instructor; then the session pauses
+  // and commands are refused (409) until a reset or a load.
+
+  /// The id of the run going on (thread-safe).
+  std::string run_id() const;
+  /// Seat `seat`'s trainee is `name` (checked by the caller: `typed_text` with kTraineeName): kept
+  /// for the exercise (a reset keeps it), journaled ("trainee") and told to the records; answers
+  /// {"ok", "seat", "name"}.
+  void trainee(std::string seat, std::string name, Done done);
+  /// An instructor's note (checked by the caller: kNoteText), journaled ("note"), told to the records
+  /// and kept for the run; answers {"ok", "id", "t_s"}.
+  void add_note(std::string text, std::string author, Done done);
+  /// This run's notes, oldest first: {"notes": [{"id", "t_s", "by", "text"}]}.
+  void notes(Done done);
+  /// Ends the running exercise now, complete (404 without one, 409 once ended).
+  void end_exercise(std::string author, Done done);
+  /// The objectives' running state: seat `seat`'s only, or every seat's (nullopt):
+  /// {"t_s", "ended", "seats": [seat_score_to_json, ...]}; 404 without an exercise.
+  void objectives(std::optional<std::string> seat, Done done);
+
   /// Current state as JSON (t_s, areas, units, ties, ...).
   void state(std::function<void(std::string)> done);
   /// The current scenario as JSON; without `with_hidden`, an exercise's own events are left out
@@ -187,7 +211,24 @@ class LiveSession {
  private:
   void run();
   void start_engine(const CheckedSystem& system);
-  bool journal_scenario(const SystemDef& def);  ///< false (logged) when the record failed
+  /// Journals the start of a new run of `def` (and of the running exercise when `exercise_`),
+  /// ending the run going on (incomplete, `why`) in the same write; false (logged) when it failed.
+  bool journal_new_run(const SystemDef& def, const study::Exercise* exercise, const std::string& why);
+  /// After start_engine: the new run told to the records (and the trainees still at their seats).
+  void open_run();
+  /// The run going on ends: final scores, the journal's end record (unless `journaled`), the records
+  /// told; the exercise pauses when `complete`. Nothing when it ended already.
+  void close_run(bool complete, const std::string& why, bool journaled);
+  /// Hands a record (trainee, note, end, script edit) to the journal's writer without waiting for it.
+  void journal_record(const nlohmann::ordered_json& record);
+  /// The journal's end record of the run going on.
+  nlohmann::ordered_json end_record(bool complete, const std::string& why) const;
+  /// Every seat's scores as JSON (empty without objectives).
+  nlohmann::ordered_json scores_json(const std::optional<std::string>& seat) const;
+  /// After each step: the records' scores every simulated minute; false when the time limit ended it.
+  bool run_after_step();
+  /// Why commands are refused now ("" when they are not): a halted session or an ended exercise.
+  std::string refusal() const;
   // Commands wait here, scheduled for a step, until their journal record is durable.
   void apply_due();             ///< answers failed ones; applies durable ones whose step has come
   bool due_unwritten() const;   ///< the next command is due but its record is not on disk yet
@@ -273,7 +314,24 @@ class LiveSession {
   std::optional<study::Exercise> exercise_;
   std::optional<study::ScriptRunner> script_;
   std::optional<study::AlarmMonitor> alarms_;
+  std::optional<study::ObjectiveMonitor> objectives_;
   std::vector<Notice> alarm_notices_;  // notices since the monitor's last update
+
+  // The run (loop thread only, but run_id_ which other threads read under run_mutex_).
+  std::string run_id_;
+  mutable std::mutex run_mutex_;
+  std::string next_run_id_;       // the id journal_new_run wrote, taken by open_run
+  bool run_open_ = false;         // the run has not ended yet
+  bool ended_ = false;            // the exercise ended: commands refused until a reset or load
+  double next_scores_s_ = 60.0;   // the records get the scores when simulation time reaches this
+  std::map<std::string, std::string> trainees_;  // seat id -> trainee name (the exercise's seats)
+  struct Note {
+    std::uint64_t id;
+    double t_s;
+    std::string by;
+    std::string text;
+  };
+  std::vector<Note> notes_;
 
   HistoryStore store_;              // rows, columns, scenario and event log for other threads
   std::vector<double> sample_row_;  // loop thread only

@@ -6,6 +6,7 @@
 #include "droopline/format.hpp"
 #include "droopline/json_input.hpp"
 #include "droopline/scenario_io.hpp"
+#include "typed_text.hpp"
 
 namespace droopline::server {
 namespace {
@@ -144,13 +145,44 @@ void WebsocketSession::handle_message(const std::string& text) {
   if (type == "auth") {
     const bool given = j.contains("token") && j["token"].is_string();
     Proof proof = given ? prove(j["token"].get_ref<const std::string&>(), ctx_.token, ctx_.seats) : Proof{};
-    const bool ok = given && !proof.refused_status;
+    // A seat's trainee may give their name with the code: checked before the role changes, so a bad
+    // name leaves the client as it was.
+    std::string bad_name;
+    std::optional<std::string> name;
+    if (j.contains("name")) {
+      if (!j["name"].is_string())
+        bad_name = "name: must be a string";
+      else if (!(name = typed_text(j["name"].get_ref<const std::string&>(), kTraineeName, bad_name)))
+        ;  // bad_name says why
+      else if (proof.role != Role::seat)
+        bad_name = "name: only a seat's trainee gives a name (with the seat's join code)";
+    }
+    const bool ok = given && !proof.refused_status && bad_name.empty();
     if (ok) become(proof);
     json answer{{"type", "auth"}, {"id", id}, {"ok", ok}, {"role", role_name(role_)}};
     if (seat_) answer["seat"] = {{"id", seat_->id}, {"name", seat_->name}, {"areas", seat_->areas}};
-    if (!ok) answer["error"] = given ? proof.refused : "token: required, a string";
-    reply(safe_dump(answer));
+    if (!ok) answer["error"] = !given ? "token: required, a string" : proof.refused_status ? proof.refused : bad_name;
     if (ok) spdlog::info("client {} authenticated as {}", peer_, seat_ ? "seat " + seat_->id : "instructor");
+    if (!ok || !name) return reply(safe_dump(answer));
+    // The name goes the way POST /api/v1/seats/join goes; the auth answer waits for it.
+    Request join;
+    join.verb = Verb::post;
+    join.target = "/api/v1/seats/join";
+    join.role = role_;
+    join.seat = seat_;
+    join.body = json{{"name", *name}}.dump();
+    ctx_.api->handle(join, [self = shared_from_this(), answer, trainee = *name](Reply r) mutable {
+      if (r.status == 200) {
+        answer["trainee"] = trainee;
+      } else {
+        std::string why;
+        const auto e = parse_untrusted_json(r.body, why);
+        answer["name_error"] = e && e->is_object() && e->contains("error") && (*e)["error"].is_string()
+                                   ? (*e)["error"]
+                                   : json("name refused (" + std::to_string(r.status) + ")");
+      }
+      self->reply(safe_dump(answer));
+    });
     return;
   }
   // A control message is a request to the API's route table: the same route, role rule and

@@ -462,6 +462,10 @@ PROTECTED = [
     ("POST", "/api/v1/script/s1/skip", None, "only the instructor sees"),
     ("POST", "/api/v1/script/s1/shift", '{"at_s": 5}', "only the instructor sees"),
     ("POST", "/api/v1/alarms/1/ack", None, "only an operator seat or the instructor can acknowledge alarms"),
+    ("POST", "/api/v1/seats/join", '{"name": "a"}', "only an operator seat enters a trainee's name"),
+    ("GET", "/api/v1/objectives", None, "a seat sees its own objectives"),
+    ("POST", "/api/v1/notes", '{"text": "a"}', "only the instructor writes and reads the notes"),
+    ("GET", "/api/v1/notes", None, "only the instructor writes and reads the notes"),
 ] + [(m, "/api/v1/records/" + p, b, "training records are for the instructor") for m, p, b in [
     ("GET", "status", None), ("GET", "runs", None), ("GET", "runs/" + "ab" * 16, None),
     ("GET", "runs/" + "ab" * 16 + "/debrief", None), ("POST", "runs/" + "ab" * 16 + "/notes", '{"text": "x"}'),

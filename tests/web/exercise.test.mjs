@@ -7,6 +7,8 @@
 import { test, before, after } from 'node:test';
 import assert from 'node:assert/strict';
 import { join } from 'node:path';
+import { mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
 import { SRC, SHOTS, VIEWPORTS, size, freePort, tokenFile, startServer, stopServer, launchBrowser, collectErrors } from './harness.mjs';
 
 const TOKEN = 'exercise-test-token-0123456789abcdef';
@@ -26,11 +28,28 @@ async function open(view, viewport = LAPTOP) {
   return { page, errors };
 }
 
-// A seat joins with the code the instructor's page shows.
+// The trainees (invented names).
+const TRAINEES = { 'west-desk': 'Tamsin Orrey', 'east-desk': 'Bram Yelland' };
+
+// The test exercise with objectives for both seats (one of the east's own), in a file of its own.
+function exerciseWithObjectives() {
+  const ex = JSON.parse(readFileSync(join(SRC, 'tests', 'data', 'exercise_two_areas.json'), 'utf8'));
+  ex.objectives = [
+    { id: 'dev', measure: 'largest_deviation_hz', target: 0.05 },
+    { id: 'band', measure: 'time_outside_standard_s', target: 5, weight: 2 },
+    { id: 'ack', seat: 'east-desk', measure: 'alarm_to_ack_s', target: 10 },
+  ];
+  const path = join(mkdtempSync(join(tmpdir(), 'droopline-web-')), 'exercise.json');
+  writeFileSync(path, JSON.stringify(ex));
+  return path;
+}
+
+// A seat joins with the code the instructor's page shows and the trainee's name.
 async function joinSeat(seat) {
   const code = (await pages.instructor.page.locator(`#seats-table tr[data-seat="${seat}"] td.code`).textContent()).trim();
   const p = await open('seat');
   await p.page.fill('#seat-code', code.toLowerCase()); // typed as a trainee might
+  await p.page.fill('#seat-name', `  ${TRAINEES[seat]} `);
   await p.page.click('#seat-join button');
   await p.page.waitForSelector('#seat-desk:not([hidden]) .desk-area .unit-row', { timeout: 8000 });
   return p;
@@ -40,7 +59,7 @@ const shot = (page, name) => page.screenshot({ path: join(SHOTS, `${name}.png`) 
 
 before(async () => {
   port = await freePort();
-  server = await startServer(port, ['--exercise', join(SRC, 'tests', 'data', 'exercise_two_areas.json'), '--token-file', tokenFile(TOKEN)]);
+  server = await startServer(port, ['--exercise', exerciseWithObjectives(), '--token-file', tokenFile(TOKEN)]);
   browser = await launchBrowser();
   pages.instructor = await open('instructor');
   await pages.instructor.page.fill('#token', TOKEN);
@@ -214,6 +233,74 @@ test("the instructor's controls stay in view, a trip waits for a confirmation an
   assert.deepEqual(errors, []);
 });
 
+test('a seat must give a name to join, and then sees its own objectives only', async () => {
+  const p = await open('seat');
+  await p.page.fill('#seat-code', 'ABCDEF');
+  await p.page.evaluate(() => { document.getElementById('seat-name').required = false; }); // past the browser's own check
+  await p.page.click('#seat-join button');
+  assert.match(await p.page.locator('#seat-error').textContent(), /Enter your name/);
+  assert.deepEqual(p.errors, []);
+  await p.page.context().close();
+
+  const { page, errors } = pages.east;
+  const block = page.locator('#seat-objectives-body .objectives-seat');
+  await block.first().waitFor({ timeout: 8000 });
+  assert.deepEqual(await block.evaluateAll((xs) => xs.map((x) => x.dataset.seat)), ['east-desk']);
+  const rows = await block.locator('tbody tr').evaluateAll((trs) => trs.map((tr) => [...tr.cells].map((c) => c.textContent)));
+  assert.equal(rows.length, 3, 'dev, band and the east\'s own ack objective');
+  for (const [label, measured, target, score, word] of rows) {
+    assert.ok(label.length > 3, label);
+    assert.match(target, /^[\d.]+ (Hz|s)$/);
+    assert.match(measured, /^([\d.]+ (Hz|s)|not yet)$/);
+    assert.match(score, /^\d+$/);
+    assert.ok(['met', 'not met'].includes(word), word);
+  }
+  assert.match(await block.locator('.seat-score').textContent(), /^score [\d.]+ \/ 100$/);
+  // The west desk has no ack objective of its own, and sees nothing of the east's.
+  const west = pages.west.page.locator('#seat-objectives-body .objectives-seat');
+  await west.first().waitFor({ timeout: 8000 });
+  assert.deepEqual(await west.evaluateAll((xs) => xs.map((x) => x.dataset.seat)), ['west-desk']);
+  assert.equal(await west.locator('tbody tr').count(), 2);
+  assert.deepEqual(errors, []);
+});
+
+test("the instructor sees every seat's objectives under its trainee's name, keeps notes and opens the debrief", async () => {
+  const { page, errors } = pages.instructor;
+  for (const [seat, name] of Object.entries(TRAINEES)) {
+    await page.locator(`#seats-table tr[data-seat="${seat}"] td.trainee`, { hasText: name }).waitFor({ timeout: 8000 });
+    await page.locator(`#desk-objectives .objectives-seat[data-seat="${seat}"] h3`, { hasText: name }).waitFor({ timeout: 8000 });
+  }
+  assert.equal(await page.locator('#desk-objectives .objectives-seat').count(), 2);
+
+  await page.fill('#note-text', 'West waited for the east\nbefore raising w1');
+  await page.click('#do-note');
+  await page.locator('#notes-list li', { hasText: 'West waited for the east' }).waitFor({ timeout: 5000 });
+  assert.equal(await page.locator('#note-text').inputValue(), '');
+  // Never on a seat's page.
+  assert.equal(await pages.west.page.getByText('West waited for the east').count(), 0);
+
+  // The debrief is served by the debrief branch's route: before that is merged the server answers
+  // 404, which the page must show in words (and which the browser logs as a failed load: that one
+  // console error is expected then, and only then).
+  const answer = page.waitForResponse((r) => r.url().endsWith('/api/v1/debrief'), { timeout: 5000 });
+  const popup = page.context().waitForEvent('page', { timeout: 5000 }).catch(() => null);
+  await page.click('#do-debrief');
+  const status = (await answer).status();
+  if (status === 404) {
+    await page.locator('[data-error-for="debrief"]', { hasText: 'No debrief' }).waitFor({ timeout: 5000 });
+    const i = errors.findIndex((e) => /status of 404/.test(e));
+    if (i >= 0) errors.splice(i, 1);
+  } else {
+    assert.equal(status, 200);
+    const report = await popup;
+    assert.ok(report, 'the debrief opened in a new tab');
+    assert.match(report.url(), /^blob:/);
+    await page.locator('#debrief-save:not([hidden])').waitFor({ timeout: 5000 });
+    await report.close();
+  }
+  assert.deepEqual(errors, []);
+});
+
 test('screenshots of every view at both sizes', async () => {
   const overview = await open('');
   for (const vp of VIEWPORTS) {
@@ -225,4 +312,29 @@ test('screenshots of every view at both sizes', async () => {
     }
   }
   assert.deepEqual(overview.errors, []);
+});
+
+test('the instructor ends the exercise: every seat sees it ended and its commands are refused', async () => {
+  const { page, errors } = pages.instructor;
+  await page.setViewportSize(LAPTOP);
+  await page.click('#do-end');
+  await page.click('#confirm-yes');
+  for (const p of [pages.instructor, pages.west, pages.east]) {
+    await p.page.locator('#exercise-ended:not([hidden])').waitFor({ timeout: 8000 });
+    assert.match(await p.page.locator('#exercise-ended').textContent(), /Exercise ended\..*ended by the instructor/);
+  }
+  const west = pages.west.page;
+  await west.setViewportSize(LAPTOP);
+  await west.click('.area-controls button:has-text("On")');
+  await west.locator('[data-error-for="area:west"]', { hasText: 'the exercise has ended' }).waitFor({ timeout: 5000 });
+  for (const vp of VIEWPORTS) {
+    await west.setViewportSize(vp);
+    await west.evaluate(() => window.scrollTo(0, 0)); // the banner, at the top
+    await west.waitForTimeout(300);
+    await shot(west, `exercise-seat-ended-${size(vp)}`);
+  }
+  await page.locator('#do-end[disabled]').waitFor({ timeout: 5000 });
+  const refused = pages.west.errors.filter((e) => /status of 409/.test(e)); // the refused command, logged by the browser
+  assert.deepEqual(pages.west.errors.filter((e) => !refused.includes(e)), []);
+  assert.deepEqual(errors, []);
 });

@@ -70,8 +70,7 @@ AlarmMonitor::AlarmMonitor(const CheckedSystem& system, AlarmLimits limits) : li
   };
   for (std::size_t a = 0; a < def.areas.size(); ++a) {
     area_ids_.push_back(def.areas[a].id);
-    const double bias = def.areas[a].agc.bias_mw_per_hz.value_or(natural_response_mw_per_hz(def, a));
-    ace_limit_mw_.push_back(limits_.ace_mw > 0.0 ? limits_.ace_mw : bias * limits_.standard_band_hz);
+    ace_limit_mw_.push_back(area_ace_limit_mw(def, a, limits_));
     for (int k : {kBand, kLimit, kRocof, kReserve, kAce}) watch(k, a);
   }
   for (std::size_t t = 0; t < def.ties.size(); ++t) {
@@ -194,9 +193,9 @@ std::vector<AlarmChange> AlarmMonitor::update(const Engine& engine, const std::v
   for (std::size_t a = 0; a < areas.size(); ++a) areas[a] = engine.area(AreaId{static_cast<std::uint32_t>(a)});
   std::vector<UnitState> units(unit_ids_.size());
   for (std::size_t u = 0; u < units.size(); ++u) units[u] = engine.unit(UnitId{static_cast<std::uint32_t>(u)});
-  std::vector<double> reserve(areas.size(), 0.0), largest(areas.size(), 0.0);
+  const std::vector<double> reserve = upward_reserve_mw(engine, unit_area_);
+  std::vector<double> largest(areas.size(), 0.0);
   for (std::size_t u = 0; u < units.size(); ++u) {
-    reserve[unit_area_[u]] += units[u].headroom_up_mw;
     if (units[u].status != UnitStatus::tripped)
       largest[unit_area_[u]] = std::max(largest[unit_area_[u]], units[u].p_mw);
   }
@@ -274,6 +273,18 @@ bool AlarmMonitor::acknowledge(std::uint64_t id, const std::string& by, double t
       a.kind == "unit_tripped" || a.kind == "unit_started" || a.kind == "unit_stopped" || a.kind == "shedding";
   if (event && !a.cleared_s) a.cleared_s = t_s;  // an event has nothing to wait for once seen
   return true;
+}
+
+std::vector<double> upward_reserve_mw(const Engine& engine, const std::vector<std::uint32_t>& unit_area) {
+  std::vector<double> reserve(engine.def().areas.size(), 0.0);
+  for (std::size_t u = 0; u < unit_area.size(); ++u)
+    reserve[unit_area[u]] += engine.unit(UnitId{static_cast<std::uint32_t>(u)}).headroom_up_mw;
+  return reserve;
+}
+
+double area_ace_limit_mw(const SystemDef& def, std::size_t area, const AlarmLimits& limits) {
+  if (limits.ace_mw > 0.0) return limits.ace_mw;
+  return def.areas[area].agc.bias_mw_per_hz.value_or(natural_response_mw_per_hz(def, area)) * limits.standard_band_hz;
 }
 
 const Alarm* AlarmMonitor::find(std::uint64_t id) const {

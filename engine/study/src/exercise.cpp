@@ -30,6 +30,7 @@ constexpr std::size_t kMaxBriefingChars = 20000;
 constexpr std::size_t kMaxNoteChars = 1000;
 constexpr double kMaxTimeS = 1e7;  // the scenario loader's bound on duration_s (about 115 days)
 constexpr double kMaxHoldS = 1e4;  // the loader's bound on any delay
+constexpr std::size_t kMaxObjectives = 100;
 
 bool valid_short_id(const std::string& id) {
   if (id.empty() || id.size() > 32) return false;
@@ -106,6 +107,43 @@ void read_alarms(Reader& r, const ijson& j, const std::string& p, AlarmLimits& a
   r.number(j, "battery_energy_pct", p, a.battery_energy_pct);
 }
 
+// An optional array of at most `max` entries, each read by `read_one(entry, "key[i]")`.
+template <class T, class F>
+void read_list(Reader& r, const ijson& j, const char* key, std::size_t max, const char* what, std::vector<T>& out,
+               F read_one) {
+  const ijson* list = r.array(j, key, "", false);
+  if (!list) return;
+  if (list->size() > max) {
+    r.error(key, "at most " + std::to_string(max) + " " + what + ", got " + std::to_string(list->size()));
+    return;
+  }
+  for (std::size_t i = 0; i < list->size(); ++i)
+    out.push_back(read_one((*list)[i], std::string(key) + "[" + std::to_string(i) + "]"));
+}
+
+// One objective's fields (shape and types; references and bounds: check_objectives).
+ObjectiveDef read_objective(Reader& r, const ijson& j, const std::string& p) {
+  ObjectiveDef o;
+  if (!r.object(j, p, {"id", "seat", "measure", "target", "zero_at", "weight", "ace_limit_mw", "label"})) return o;
+  r.string(j, "id", p, o.id);
+  r.string(j, "seat", p, o.seat);
+  std::string measure;
+  r.string(j, "measure", p, measure, true);
+  const std::optional<Measure> m = measure_from(measure);
+  if (m)
+    o.measure = *m;
+  else if (j.contains("measure") && j.at("measure").is_string())
+    r.error(p + ".measure", "unknown measure " + quote_id(measure) + " (one of: " + measure_names() + ")");
+  r.number(j, "target", p, o.target, true);
+  r.number(j, "zero_at", p, o.zero_at);
+  r.number(j, "weight", p, o.weight);
+  r.number(j, "ace_limit_mw", p, o.ace_limit_mw);
+  if (j.contains("ace_limit_mw") && m && *m != Measure::ace_minutes_share)
+    r.error(p + ".ace_limit_mw", "only for measure \"ace_minutes_share\"");
+  text_field(r, j, "label", p, o.label, kMaxNameChars, false);
+  return o;
+}
+
 void within(std::vector<Issue>& out, const std::string& path, double v, double lo, double hi, bool lo_open) {
   const bool ok = std::isfinite(v) && (lo_open ? v > lo : v >= lo) && v <= hi;
   if (!ok)
@@ -157,6 +195,52 @@ void check_seats(const std::vector<SeatDef>& seats, const SystemIndex& index, st
                                              std::to_string(it->second) + "]",
                        false});
     }
+  }
+}
+
+// Objectives against the seats: references, bounds, unique ids; then the defaults filled in (ids
+// o1, o2, ...; zero points; labels), so that the exercise as written back says what is scored.
+void check_objectives(std::vector<ObjectiveDef>& objs, const std::vector<SeatDef>& seats, std::vector<Issue>& out) {
+  constexpr double kMaxValue = 1e9;  // beyond any measure's sensible range
+  std::set<std::string> ids;
+  std::string seat_list;
+  for (const SeatDef& s : seats) seat_list += (seat_list.empty() ? "" : ", ") + s.id;
+  for (std::size_t i = 0; i < objs.size(); ++i) {
+    const std::string p = "objectives[" + std::to_string(i) + "]";
+    ObjectiveDef& o = objs[i];
+    if (!o.id.empty()) {
+      if (!valid_short_id(o.id))
+        out.push_back({p + ".id", "must be 1-32 letters, digits, '_' or '-', got " + quote_id(o.id), false});
+      else if (!ids.insert(o.id).second)
+        out.push_back({p + ".id", "duplicate id " + quote_id(o.id), false});
+    }
+    if (!o.seat.empty() && std::none_of(seats.begin(), seats.end(), [&](const SeatDef& s) { return s.id == o.seat; }))
+      out.push_back({p + ".seat", "no seat " + quote_id(o.seat) + " (seats: " + seat_list + ")", false});
+    // Shares are of 100; the rest are times, energies and powers that cannot be negative.
+    const bool share = o.measure == Measure::ace_minutes_share || o.measure == Measure::tie_loading_max_pct;
+    within(out, p + ".target", o.target, 0.0, share ? 100.0 : kMaxValue, false);
+    within(out, p + ".weight", o.weight, 0.0, 1e6, true);
+    within(out, p + ".ace_limit_mw", o.ace_limit_mw, 0.0, 2e6, false);
+    if (o.zero_at) within(out, p + ".zero_at", *o.zero_at, 0.0, kMaxValue, false);
+    if (!std::isfinite(o.target) || (o.zero_at && !std::isfinite(*o.zero_at))) continue;
+    const double zero = o.zero_at.value_or(default_zero_at(o.measure, o.target));
+    const bool higher = higher_is_better(o.measure);
+    if (higher ? !(zero < o.target) : !(zero > o.target))
+      out.push_back({p + (o.zero_at ? ".zero_at" : ".target"),
+                     std::string(o.zero_at ? "" : "with no zero_at, the default zero point ") + fmt_num(zero) +
+                         " must be " + (higher ? "below" : "above") + " the target " + fmt_num(o.target) + " (" +
+                         to_string(o.measure) + ": " + (higher ? "higher" : "lower") + " is better)",
+                     false});
+  }
+  for (std::size_t i = 0, n = 1; i < objs.size(); ++i) {
+    ObjectiveDef& o = objs[i];
+    if (o.id.empty()) {
+      while (ids.count("o" + std::to_string(n))) ++n;
+      o.id = "o" + std::to_string(n);
+      ids.insert(o.id);
+    }
+    if (!o.zero_at) o.zero_at = default_zero_at(o.measure, o.target);
+    if (o.label.empty()) o.label = default_label(o.measure);
   }
 }
 
@@ -241,7 +325,9 @@ ExerciseLoad parse_exercise(std::string_view json_text, const std::string& base_
   if (!j) return out;
   Reader r(out.issues);
   ExerciseDef def;
-  if (!r.object(*j, "", {"name", "briefing", "scenario", "seats", "script", "alarms", "time_limit_s", "description"}))
+  if (!r.object(
+          *j, "",
+          {"name", "briefing", "scenario", "seats", "script", "alarms", "time_limit_s", "description", "objectives"}))
     return out;
   text_field(r, *j, "name", "", def.name, kMaxNameChars, true);
   text_field(r, *j, "briefing", "", def.briefing, kMaxBriefingChars, true);
@@ -275,14 +361,10 @@ ExerciseLoad parse_exercise(std::string_view json_text, const std::string& base_
         def.seats.push_back(std::move(seat));
       }
   }
-  if (const ijson* script = r.array(*j, "script", "", false)) {
-    if (script->size() > kMaxScriptEvents)
-      r.error("script",
-              "at most " + std::to_string(kMaxScriptEvents) + " events, got " + std::to_string(script->size()));
-    else
-      for (std::size_t i = 0; i < script->size(); ++i)
-        def.script.push_back(read_event(r, (*script)[i], "script[" + std::to_string(i) + "]", true));
-  }
+  read_list(r, *j, "script", kMaxScriptEvents, "events", def.script,
+            [&](const ijson& e, const std::string& p) { return read_event(r, e, p, true); });
+  read_list(r, *j, "objectives", kMaxObjectives, "objectives", def.objectives,
+            [&](const ijson& e, const std::string& p) { return read_objective(r, e, p); });
   AlarmLimits file_alarms;  // zero: left out
   bool has_alarms = false;
   if (const ijson* a = r.field(*j, "alarms", "", false)) {
@@ -329,6 +411,7 @@ ExerciseLoad parse_exercise(std::string_view json_text, const std::string& base_
     def.script[i].id = "s" + std::to_string(n);
     script_ids.insert(def.script[i].id);
   }
+  check_objectives(def.objectives, def.seats, issues);
   std::stable_partition(issues.begin(), issues.end(), [](const Issue& i) { return !i.warning; });
   if (has_errors(issues)) return out;
   out.exercise = Exercise{std::move(def), std::move(*system)};

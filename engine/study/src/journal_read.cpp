@@ -125,9 +125,11 @@ JournalRead read_journal(const std::string& path) {
         run.commands.push_back(std::move(batch));
       }
       run.last_step = std::max(run.last_step, step);
-    } else if (type == "script") {
+    } else if (type == "script" || type == "exercise" || type == "ack" || type == "trainee" || type == "note" ||
+               type == "end") {
       // An instructor's edit of an exercise's script, for the record: what the script fired is in
-      // the command records (by "script"), so replay has nothing to do here.
+      // the command records (by "script"), so replay has nothing to do here. The exercise, its
+      // acknowledgements, trainees, notes and end are the debrief's to read.
     } else {
       out.issues.push_back({where, "unknown record type \"" + type + "\"", false});
       return out;

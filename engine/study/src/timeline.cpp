@@ -5,7 +5,7 @@
 
 namespace droopline::study {
 
-SavedState SavedState::copy() const { return {engine->clone(), counters, script, alarms}; }
+SavedState SavedState::copy() const { return {engine->clone(), counters, script, alarms, objectives}; }
 
 std::size_t Timeline::copy_bytes(const Engine& engine) {
   // The engine's layout (engine/src/engine_impl.hpp): per slot about 20 arrays of doubles and a
@@ -46,8 +46,8 @@ void Timeline::checkpoint(SavedState state) {
   now_.log.erase(now_.log.begin(), first_kept);
 }
 
-void Timeline::applied(std::int64_t step, std::vector<Action> actions) {
-  now_.log.push_back({step, std::move(actions)});
+void Timeline::applied(std::int64_t step, std::vector<Action> actions, std::string author) {
+  now_.log.push_back({step, std::move(actions), std::move(author)});
 }
 
 void Timeline::truncate(std::int64_t step) {

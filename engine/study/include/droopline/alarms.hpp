@@ -100,6 +100,12 @@ class AlarmMonitor {
   std::vector<double> ace_limit_mw_;               // per area
 };
 
+/// Each area's upward reserve: the sum of its units' headroom (offline and tripped units have
+/// none); `unit_area` gives each unit's area. One definition for the reserve alarm and objectives.
+std::vector<double> upward_reserve_mw(const Engine& engine, const std::vector<std::uint32_t>& unit_area);
+/// The |ACE| limit of area `area`: `limits.ace_mw`, or when 0 the area's bias x the standard band.
+double area_ace_limit_mw(const SystemDef& def, std::size_t area, const AlarmLimits& limits);
+
 /// One alarm as JSON (`id`, `kind`, `severity`, `area` (id), `areas`, `subject`, `message`, `raised_s`,
 /// `cleared_s`, `acked_by`, `acked_s`; absent ones null).
 nlohmann::ordered_json alarm_to_json(const SystemDef& def, const Alarm& alarm);

@@ -27,6 +27,12 @@ const char* to_string(Measure m);
 std::optional<Measure> measure_from(std::string_view name);
 /// True when a larger measured value is better (ace_minutes_share, lowest_reserve_mw).
 bool higher_is_better(Measure m);
+/// Every measure's name, comma-separated (for error messages).
+std::string measure_names();
+/// The zero point an objective gets when its file leaves `zero_at` out (README "Objectives").
+double default_zero_at(Measure m, double target);
+/// The label an objective gets when its file gives none ("largest frequency deviation").
+std::string default_label(Measure m);
 
 /// One objective as written in the exercise file (`objectives: [...]`).
 struct ObjectiveDef {

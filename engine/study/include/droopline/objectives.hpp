@@ -60,10 +60,62 @@ class ObjectiveMonitor {
   /// Every seat's score now (seats in the exercise's order); `alarms` for the acknowledgement times.
   std::vector<SeatScore> scores(const AlarmMonitor* alarms) const;
 
+  /// How long frequency must stay back inside the standard band for a disturbance to count as
+  /// over (return_to_standard_s).
+  static constexpr double kSettledHoldS = 10.0;
+  /// The ACE averaging period of ace_minutes_share (s).
+  static constexpr double kAceMinuteS = 60.0;
+
  private:
+  // One disturbance followed by return_to_standard_s.
+  struct Recovery {
+    double at_s = 0.0;                     // its start
+    std::optional<double> within_since_s;  // frequency back inside the standard band since
+    std::optional<double> back_s;          // settled: the time it took (negative: not the seat's island)
+  };
+  // One objective measured for one seat, with the running state its measure needs.
+  struct Track {
+    std::size_t def = 0;                   // index into defs_
+    std::size_t seat = 0;                  // index into seats_
+    std::optional<double> value;           // the running figure (time, extreme, energy); empty: none yet
+    std::vector<Recovery> recoveries;      // return_to_standard_s: one per engine disturbance
+    std::int64_t minute = -1;              // ace_minutes_share: the minute being averaged (-1: none yet)
+    std::vector<double> ace_sum_mw;        // ... per area of the seat: sum of ACE over its steps
+    std::int64_t minute_steps = 0;         // ... steps averaged so far in that minute
+    std::int64_t minutes = 0, passed = 0;  // ... whole minutes, and those within the limit
+    std::vector<double> ace_limit_mw;      // ... per area of the seat
+  };
+  struct Seat {
+    std::string id;
+    std::vector<std::uint32_t> areas;  // area indices
+    std::vector<std::uint32_t> ties;   // ties with an end in its areas
+    std::vector<double> action_s;      // times of its own actions, in order
+  };
+  void update_track(Track& t, const Engine& engine, double dt_s);
+  ObjectiveResult result(const Track& t, const AlarmMonitor* alarms) const;
+
   // Value members only (copied into save points; no pointers into the engine).
   std::vector<ObjectiveDef> defs_;
+  std::vector<Seat> seats_;
+  std::vector<Track> tracks_;
+  AlarmLimits limits_;
+  double f0_hz_ = 50.0;
+  double t_s_ = 0.0;                      // time of the last update
+  std::vector<std::uint32_t> unit_area_;  // per unit: its area
+  std::vector<double> tie_pmax_mw_;       // per tie
 };
+
+/// The score of a measured value against a target and a zero point (0..100, linear between), with
+/// the arithmetic in words; shared by every measure.
+struct Scored {
+  double score = 100.0;
+  double margin = 0.0;
+  bool met = true;
+  std::string arithmetic;
+};
+Scored score_value(std::optional<double> measured, double target, double zero_at, bool higher_better);
+/// The unit of a measure's values ("s", "Hz", "%", "MWh", "MW").
+const char* unit_of(Measure m);
 
 nlohmann::ordered_json objective_result_to_json(const ObjectiveResult& r);
 nlohmann::ordered_json seat_score_to_json(const SeatScore& s);

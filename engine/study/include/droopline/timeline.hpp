@@ -29,6 +29,7 @@
 
 #include "droopline/alarms.hpp"
 #include "droopline/engine.hpp"
+#include "droopline/objectives.hpp"
 #include "droopline/script.hpp"
 
 namespace droopline::study {
@@ -43,12 +44,13 @@ struct LoopCounters {
 
 /// Everything a loop needs to resume exactly where it was: the engine (state, integrators, timers,
 /// noise position, open disturbances, notices not yet taken), the loop's counters and the
-/// exercise state (script and alarms, when an exercise runs).
+/// exercise state (script, alarms and objectives, when an exercise runs).
 struct SavedState {
   std::unique_ptr<Engine> engine;
   LoopCounters counters;
   std::optional<ScriptRunner> script;
   std::optional<AlarmMonitor> alarms;
+  std::optional<ObjectiveMonitor> objectives = std::nullopt;  ///< initialised so callers without objectives may leave it out
 
   /// An independent copy (the engine cloned).
   SavedState copy() const;
@@ -60,6 +62,7 @@ struct SavedState {
 struct LoggedActions {
   std::int64_t step = 0;
   std::vector<Action> actions;
+  std::string author;  ///< who sent them ("" when the caller does not say): objectives count a seat's own
 };
 
 /// How far back and how densely a timeline keeps checkpoints.
@@ -112,8 +115,8 @@ class Timeline {
   bool due(std::int64_t step) const { return every_ > 0 && step % every_ == 0 && step > last_checkpoint_step(); }
   /// Keeps `state` as the checkpoint of its step and lets go of what lies further back than needed.
   void checkpoint(SavedState state);
-  /// Logs actions applied at `step` on the current lineage.
-  void applied(std::int64_t step, std::vector<Action> actions);
+  /// Logs actions applied at `step` on the current lineage, sent by `author`.
+  void applied(std::int64_t step, std::vector<Action> actions, std::string author = {});
   /// Forgets everything after `step` on the current lineage: checkpoints after it and actions at
   /// or after it (the state went back there: a rewind, or the live guard's last good state).
   void truncate(std::int64_t step);
