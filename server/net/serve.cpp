@@ -60,7 +60,8 @@ std::shared_ptr<records::RecordsStore> open_records(const Options& opt) {
     }
     std::error_code ec;
     const auto dir = std::filesystem::absolute(opt.journal, ec).parent_path() / "droopline-data";
-    std::filesystem::create_directories(dir, ec);
+    // Only the data folder is made: the journal's own folder must exist (the journal says so if not).
+    std::filesystem::create_directory(dir, ec);
     if (ec) spdlog::warn("records: cannot make the folder {}: {}", dir.string(), ec.message());
     path = (dir / "records.sqlite3").string();
   }
