@@ -188,6 +188,10 @@ Command serve_command(CLI::App& root) {
       ->type_name("FILE")
       ->check(kFileExists);
   sub->add_option("--journal", o.journal, "append every accepted command to FILE (JSON lines)")->type_name("FILE");
+  sub->add_option("--records", o.records,
+                  "training records in this SQLite file, or none (default with --journal: "
+                  "droopline-data/records.sqlite3 beside it)")
+      ->type_name("FILE");
   sub->add_option("--web", o.web_root, "static files to serve")->type_name("DIR")->capture_default_str();
   add_real(*sub, "--speed", o.speed, 0.1, 100, "X", "simulated seconds per wall second")->capture_default_str();
   add_real(*sub, "--frame-rate", o.frame_hz, 0.1, 100, "HZ", "telemetry frames per second")->capture_default_str();

@@ -5,10 +5,12 @@
 #include <cstdint>
 #include <functional>
 #include <memory>
+#include <optional>
 #include <string>
 #include <vector>
 
 #include "live_session.hpp"
+#include "records_store.hpp"
 #include "seats.hpp"
 #include "sweep_jobs.hpp"
 
@@ -22,6 +24,7 @@ struct Options {
   unsigned short port = 8080;
   std::string token_file;
   std::string journal;                     ///< empty: no journal
+  std::string records;                     ///< --records: the records file, "none", or empty (beside the journal)
   std::string web_root;                    ///< folder served as static files
   std::vector<std::string> allow_origins;  ///< extra Origins allowed to open the stream
   double speed = 1.0;
@@ -65,6 +68,13 @@ struct Services {
   SeatRoster seats;                   ///< the running exercise's seats and join codes (none without one)
   /// Runs a job on the worker pool (replays, modes, assessments): never on the loop or I/O threads.
   std::function<void(std::function<void()>)> run_on_workers;
+  /// The training records (none without --records or a journal, or with --records none).
+  std::shared_ptr<records::RecordsStore> records;
+  /// A run's debrief as one HTML page from its journal (journal path, run id, what the records
+  /// add, error) -> the page, or nothing with `error` set; empty when the debrief is not built in.
+  std::function<std::optional<std::string>(const std::string&, const std::string&,
+                                           const records::RecordsDebriefExtras&, std::string&)>
+      debrief;
 };
 
 /// True when `given` equals `token` (constant time).

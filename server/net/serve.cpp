@@ -1,6 +1,7 @@
 #include <sys/resource.h>
 
 #include <csignal>
+#include <filesystem>
 #include <cstdlib>
 #include <fstream>
 #include <random>
@@ -41,6 +42,32 @@ std::string make_token() {
   const char* hex = "0123456789abcdef";
   for (int i = 0; i < 32; ++i) t += hex[rd() % 16];
   return t;
+}
+
+// The training records: --records FILE, none with `--records none`, else beside the journal
+// (droopline-data/records.sqlite3, the folder made), else none. A file that cannot be used is
+// said once by the store; the session runs without records then.
+std::shared_ptr<records::RecordsStore> open_records(const Options& opt) {
+  if (opt.records == "none") {
+    spdlog::info("records: --records none: no training records are kept");
+    return nullptr;
+  }
+  std::string path = opt.records;
+  if (path.empty()) {
+    if (opt.journal.empty()) {
+      spdlog::info("records: no --records and no --journal: no training records are kept");
+      return nullptr;
+    }
+    std::error_code ec;
+    const auto dir = std::filesystem::absolute(opt.journal, ec).parent_path() / "droopline-data";
+    // Only the data folder is made: the journal's own folder must exist (the journal says so if not).
+    std::filesystem::create_directory(dir, ec);
+    if (ec) spdlog::warn("records: cannot make the folder {}: {}", dir.string(), ec.message());
+    path = (dir / "records.sqlite3").string();
+  }
+  auto store = std::make_shared<records::RecordsStore>(path);
+  if (store->ok()) spdlog::info("records: {}", path);
+  return store;
 }
 
 }  // namespace
@@ -100,6 +127,8 @@ int serve(Options options) {
   lc.frame_hz = opt.frame_hz;
   lc.history_s = opt.history_s;
   lc.journal_path = opt.journal;
+  ctx.records = open_records(opt);
+  lc.run_log = ctx.records;
   if (exercise) {
     ctx.seats.set(exercise->def.seats);
     for (const SeatStatus& seat : ctx.seats.list())

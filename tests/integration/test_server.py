@@ -467,7 +467,10 @@ PROTECTED = [
     ("POST", "/api/v1/notes", '{"text": "a"}', "only the instructor writes and reads the notes"),
     ("GET", "/api/v1/notes", None, "only the instructor writes and reads the notes"),
     ("GET", "/api/v1/debrief", None, "the debrief is for the instructor"),
-]
+] + [(m, "/api/v1/records/" + p, b, "training records are for the instructor") for m, p, b in [
+    ("GET", "status", None), ("GET", "runs", None), ("GET", "runs/" + "ab" * 16, None),
+    ("GET", "runs/" + "ab" * 16 + "/debrief", None), ("POST", "runs/" + "ab" * 16 + "/notes", '{"text": "x"}'),
+    ("GET", "trainees", None), ("GET", "export.csv", None), ("DELETE", "trainees/Ilse", None)]]
 OPEN_TO_VIEWERS = ["/healthz", "/metrics", "/api/v1/state", "/api/v1/role", "/api/v1/scenario", "/api/v1/history",
                    "/api/v1/events", "/api/v1/record?from_s=0&to_s=1", "/api/v1/openapi.json",
                    "/api/v1/exercise", "/api/v1/alarms"]
