@@ -42,6 +42,7 @@ struct Channel {
   double a = 1.0, b = 0.0;
   double primary = 1.0, secondary = 1.0;
   std::string ps = "P";
+  double skew_us = 0.0;
 };
 
 /// What goes into a .cfg; rates as (samp, endsamp), a single (0, N) meaning nrates 0.
@@ -66,8 +67,8 @@ inline std::string cfg_of(const Layout& l) {
   for (std::size_t k = 0; k < na; ++k) {
     const Channel& c = l.analogs[k];
     s += std::to_string(k + 1) + "," + c.id + ",,G1," + c.unit + "," + droopline::fmt_exact(c.a) + "," +
-         droopline::fmt_exact(c.b) + ",0,-32767,32767," + droopline::fmt_exact(c.primary) + "," +
-         droopline::fmt_exact(c.secondary) + "," + c.ps + crlf;
+         droopline::fmt_exact(c.b) + "," + droopline::fmt_exact(c.skew_us) + ",-32767,32767," +
+         droopline::fmt_exact(c.primary) + "," + droopline::fmt_exact(c.secondary) + "," + c.ps + crlf;
   }
   // Digital lines Dn,ch_id,ph,ccbm,y.
   for (int k = 0; k < l.digitals; ++k)

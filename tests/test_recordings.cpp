@@ -187,12 +187,14 @@ TEST_CASE("secondary values are turned into primary ones by the ratio", "[record
   Layout l = plant("1999", "ASCII");
   // A transducer behind 2000:5 instrument transformers; G2.P states the same ratio but holds primary values.
   l.analogs[1] = {"G1.P", "MW", 0.001, 0.0, 2000.0, 5.0, "S"};
-  l.analogs[2] = {"G2.P", "MW", 0.001, 0.0, 2000.0, 5.0, "P"};
+  l.analogs[2] = {"G2.P", "MW", 0.001, 0.0, 2000.0, 5.0, "P", 20.0};
   std::vector<Row> rows;
   for (int i = 0; i < 10; ++i) rows.push_back({0u, {-i * 3.0, 500.0 + i, 500.0 + i}, {}});
   const Recording r = read_ok(write_record(dir, "ct", l, rows), channels("F", {"G1.P", "G2.P"}));
   expect_series(r.power_mw[0].second, rows, 1, [](double x) { return 0.001 * x * (2000.0 / 5.0); });
   expect_series(r.power_mw[1].second, rows, 2, [](double x) { return 0.001 * x; });
+  CHECK(warned(r, "channel \"G2.P\": skew of 20 us not applied"));
+  CHECK_FALSE(warned(r, "channel \"G1.P\": skew"));
 }
 
 TEST_CASE("the .dat is found beside the .cfg in either case", "[recordings]") {

@@ -47,10 +47,10 @@ std::function<std::string(const fs::path&)> record(Layout l, std::vector<Row> ro
   };
 }
 
-std::function<std::string(const fs::path&)> csv(const std::string& text) {
+std::function<std::string(const fs::path&)> csv(const std::string& text, const std::string& name = "bad.csv") {
   return [=](const fs::path& dir) {
-    write(dir / "bad.csv", text);
-    return (dir / "bad.csv").string();
+    write(dir / name, text);
+    return (dir / name).string();
   };
 }
 
@@ -90,6 +90,10 @@ std::vector<Bad> table() {
   two_rates.rates = {{10.0, 10}, {5.0, 8}};
   Layout unknown_ft = base("BINARY64"), float_1999 = base("FLOAT32"), rev2005 = base();
   rev2005.revision = "2005";
+  RecordingOptions fine_grid = opts("f", {"p1"});
+  fine_grid.resample_hz = 1e6;
+  std::vector<Row> no_values = rows_of(10);
+  for (Row& r : no_values) r.x[1].reset();
   RecordingOptions per_unit = opts("f", {"p1"});
   per_unit.units = RecordingUnits::per_unit;
   per_unit.base_hz = 50.0;
@@ -186,7 +190,17 @@ std::vector<Bad> table() {
        {"bad.csv line 3", "blank line"},
        opts("f", {"p1"})},
       {"CSV per unit without a power base", csv("t_s,f,p1\n0,1,1\n1,1,1\n"), {"base_mw", "power base"}, per_unit},
-      {"unknown extension", csv("t_s,f,p1\n0,1,1\n1,1,1\n"), {"must end in .csv or .cfg"}, opts("f", {"p1"})},
+      {"CSV resampled onto a grid too large to hold",
+       csv("t_s,f,p1\n0,50,1\n100000,50,1\n"),
+       {"bad.csv", "would make 1e+11 samples"},
+       fine_grid},
+      {"a channel with no value at all",
+       record(base(), no_values),
+       {"bad.dat", "channel \"G1.P\" has no value at all"}},
+      {"unknown extension",
+       csv("t_s,f,p1\n0,1,1\n1,1,1\n", "bad.txt"),
+       {"must end in .csv or .cfg"},
+       opts("f", {"p1"})},
   };
 }
 
@@ -198,11 +212,7 @@ TEST_CASE("bad recordings are refused with the place of the fault", "[recordings
   for (const Bad& b : cases) {
     DYNAMIC_SECTION(b.name) {
       const auto dir = temp_folder("bad");
-      std::string path = b.make(dir);
-      if (b.name == "unknown extension") {
-        fs::rename(path, dir / "bad.txt");
-        path = (dir / "bad.txt").string();
-      }
+      const std::string path = b.make(dir);
       std::vector<Issue> issues;
       const auto r = read_recording(path, b.options, issues);
       std::string msgs;

@@ -7,7 +7,6 @@
 #include <algorithm>
 #include <bit>
 #include <cmath>
-#include <cstring>
 #include <filesystem>
 
 #include "droopline/format.hpp"
@@ -22,7 +21,13 @@ struct Samples {
   std::vector<char> stamp_missing;
   std::vector<std::vector<double>> raw;  // per chosen channel
   std::vector<std::vector<char>> missing;
-  std::vector<std::string> where;  // each sample's place, for messages about its time
+  std::string name;        // the .dat, for messages
+  std::size_t record = 0;  // binary record length (bytes); 0 for ASCII
+
+  // A sample's place for messages about its time: its ASCII line, or its binary timestamp's byte.
+  std::string where(std::size_t i) const {
+    return name + (record == 0 ? " line " + std::to_string(i + 1) : " byte " + std::to_string(i * record + 4));
+  }
 };
 
 std::size_t value_bytes(ComtradeFileType ft) { return ft == ComtradeFileType::binary ? 2 : 4; }
@@ -46,7 +51,6 @@ void resize(Samples& s, std::size_t n, std::size_t channels) {
   s.stamp_missing.assign(n, 0);
   s.raw.assign(channels, std::vector<double>(n, 0.0));
   s.missing.assign(channels, std::vector<char>(n, 0));
-  s.where.resize(n);
 }
 
 bool read_binary(const ComtradeConfig& cfg, const std::vector<std::size_t>& chosen, const std::string& dat,
@@ -68,9 +72,10 @@ bool read_binary(const ComtradeConfig& cfg, const std::vector<std::size_t>& chos
   if (size / rec > cfg.samples)
     return fail(cfg.samples * rec, "more data than the " + std::to_string(cfg.samples) + " samples the .cfg gives");
   resize(s, cfg.samples, chosen.size());
+  s.name = name;
+  s.record = rec;
   for (std::size_t i = 0; i < cfg.samples; ++i) {
     const std::size_t at = i * rec;
-    s.where[i] = name + " byte " + std::to_string(at + 4);
     const std::uint32_t ts = u32_at(dat, at + 4);
     s.stamp[i] = ts;
     s.stamp_missing[i] = ts == 0xFFFFFFFFu;
@@ -109,6 +114,7 @@ bool read_ascii(const ComtradeConfig& cfg, const std::vector<std::size_t>& chose
     return fail(cfg.samples + 1, "more data than the " + std::to_string(cfg.samples) + " samples the .cfg gives");
   const std::size_t na = cfg.analogs.size(), width = 2 + na + cfg.digital_count;
   resize(s, cfg.samples, chosen.size());
+  s.name = name;
   std::vector<std::string_view> f;
   for (std::size_t i = 0; i < cfg.samples; ++i) {
     f.clear();
@@ -118,7 +124,6 @@ bool read_ascii(const ComtradeConfig& cfg, const std::vector<std::size_t>& chose
       if (comma == std::string_view::npos) break;
       line.remove_prefix(comma + 1);
     }
-    s.where[i] = name + " line " + std::to_string(i + 1);
     if (f.size() != width)
       return fail(i + 1, std::to_string(f.size()) + " fields, expected " + std::to_string(width) + " (sample number, " +
                              "timestamp, " + std::to_string(na) + " analog, " + std::to_string(cfg.digital_count) +
@@ -148,13 +153,13 @@ bool times_of(const ComtradeConfig& cfg, const Samples& s, std::vector<double>& 
   if (cfg.rates.empty()) {
     for (std::size_t i = 0; i < t.size(); ++i) {
       if (s.stamp_missing[i]) {
-        issues.push_back({s.where[i], "missing timestamp, and the .cfg gives no sampling rate to stand in", false});
+        issues.push_back({s.where(i), "missing timestamp, and the .cfg gives no sampling rate to stand in", false});
         return false;
       }
       t[i] = s.stamp[i] * cfg.timemult * cfg.timestamp_unit_s;
       if (i > 0 && !(t[i] > t[i - 1])) {
         issues.push_back(
-            {s.where[i],
+            {s.where(i),
              "timestamp " + fmt_num(s.stamp[i]) + " does not come after the previous " + fmt_num(s.stamp[i - 1]),
              false});
         return false;
@@ -238,6 +243,10 @@ std::optional<Recording> read_comtrade_recording(const std::string& path, const 
         rec.warnings.push_back("channel \"" + ch.ch_id + "\" is in \"" + ch.unit + "\", taken as " +
                                (c == 0 ? "Hz" : "MW"));
     }
+    // Skew (the channel's sampling delay) is microseconds against steps of 1 ms and more in the
+    // recordings fitted here: said, not corrected, so a fast record's user knows.
+    if (ch.skew_us != 0.0)
+      rec.warnings.push_back("channel \"" + ch.ch_id + "\": skew of " + fmt_num(ch.skew_us) + " us not applied");
     std::vector<double> v(s.raw[c].size());
     for (std::size_t i = 0; i < v.size(); ++i) v[i] = (ch.a * s.raw[c][i] + ch.b) * ratio * factor.value_or(1.0);
     if (absent > 0) {
@@ -253,11 +262,10 @@ std::optional<Recording> read_comtrade_recording(const std::string& path, const 
   if (cfg->rates.size() > 1 && !options.resample_hz) {
     double top = 0.0;
     for (const ComtradeRate& r : cfg->rates) top = std::max(top, r.sample_hz);
-    detail::resample(rec, top);
-    rec.warnings.push_back(std::to_string(cfg->rates.size()) + " sampling rates: resampled onto the highest, " +
-                           fmt_num(top) + " Hz, by linear interpolation");
+    if (!detail::resample(rec, top, std::to_string(cfg->rates.size()) + " sampling rates: resampled", issues))
+      return std::nullopt;
   }
-  detail::finish(rec, options);
+  if (!detail::finish(rec, options, issues)) return std::nullopt;
   return rec;
 }
 

@@ -111,8 +111,17 @@ std::string lower_extension(const std::string& path) {
 
 }  // namespace
 
-void resample(Recording& rec, double hz) {
+bool resample(Recording& rec, double hz, const std::string& why, std::vector<Issue>& issues) {
   const double t0 = rec.t_s.front(), span = rec.t_s.back() - t0;
+  // 50 million samples (1.2 GB over three series) is far beyond any plant recording worth fitting.
+  constexpr double kMaxSamples = 5e7;
+  if (span * hz > kMaxSamples) {
+    issues.push_back({rec.source,
+                      why + " onto " + fmt_num(hz) + " Hz over " + fmt_num(span) + " s would make " +
+                          fmt_num(span * hz) + " samples (at most 5e+07)",
+                      false});
+    return false;
+  }
   // The small allowance keeps the last sample when the span is a whole number of steps.
   const auto n = static_cast<std::size_t>(std::floor(span * hz + 1e-9)) + 1;
   std::vector<double> grid(n);
@@ -120,6 +129,8 @@ void resample(Recording& rec, double hz) {
   rec.frequency_hz = interpolate(rec.t_s, rec.frequency_hz, grid);
   for (auto& [name, series] : rec.power_mw) series = interpolate(rec.t_s, series, grid);
   rec.t_s = std::move(grid);
+  rec.warnings.push_back(why + " onto " + fmt_num(hz) + " Hz by linear interpolation");
+  return true;
 }
 
 bool check_options(const RecordingOptions& options, std::vector<Issue>& issues) {
@@ -167,16 +178,13 @@ std::optional<std::vector<std::size_t>> choose(const std::vector<std::string>& n
   return index;
 }
 
-void finish(Recording& rec, const RecordingOptions& options) {
+bool finish(Recording& rec, const RecordingOptions& options, std::vector<Issue>& issues) {
   if (options.units == RecordingUnits::per_unit) {
     for (double& f : rec.frequency_hz) f *= options.base_hz;
     for (auto& [name, series] : rec.power_mw)
       for (double& p : series) p *= options.base_mw;
   }
-  if (options.resample_hz) {
-    resample(rec, *options.resample_hz);
-    rec.warnings.push_back("resampled onto " + fmt_num(*options.resample_hz) + " Hz by linear interpolation");
-  }
+  return !options.resample_hz || resample(rec, *options.resample_hz, "resampled", issues);
 }
 
 }  // namespace detail

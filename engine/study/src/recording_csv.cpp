@@ -122,7 +122,7 @@ std::optional<Recording> read_csv_recording(const std::string& path, const Recor
   rec.t_s = std::move(cols[0]);
   rec.frequency_hz = std::move(cols[1]);
   for (std::size_t w = 2; w < wanted.size(); ++w) rec.power_mw.emplace_back(wanted[w], std::move(cols[w]));
-  detail::finish(rec, options);
+  if (!detail::finish(rec, options, issues)) return std::nullopt;
   return rec;
 }
 

@@ -100,8 +100,9 @@ std::vector<std::string_view> lines_of(std::string_view text);
 std::optional<std::string> read_file(const std::string& path, std::vector<Issue>& issues);
 /// Fills samples marked missing by linear interpolation in time (held at the ends); the count filled.
 std::size_t fill_missing(const std::vector<double>& t_s, std::vector<double>& values, const std::vector<char>& missing);
-/// Moves every series onto a uniform grid at `hz` from the first to the last time, linearly.
-void resample(Recording& rec, double hz);
+/// Moves every series onto a uniform grid at `hz` from the first to the last time, linearly, and
+/// warns with `why`; false with an issue when the grid would be too large to hold.
+bool resample(Recording& rec, double hz, const std::string& why, std::vector<Issue>& issues);
 /// Checks the options (names given, bases positive); false with issues when they cannot be used.
 bool check_options(const RecordingOptions& options, std::vector<Issue>& issues);
 /// The text of `path` once the options are checked; the first step of each reader.
@@ -113,7 +114,7 @@ std::optional<std::vector<std::size_t>> choose(const std::vector<std::string>& n
                                                const std::vector<std::string>& wanted, const std::string& where,
                                                const std::string& kind, std::vector<Issue>& issues);
 /// Per unit to physical, then `resample_hz`; the last step of each reader.
-void finish(Recording& rec, const RecordingOptions& options);
+bool finish(Recording& rec, const RecordingOptions& options, std::vector<Issue>& issues);
 
 }  // namespace detail
 }  // namespace droopline::study
