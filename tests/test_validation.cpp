@@ -5,6 +5,7 @@
 #include <vector>
 
 #include "droopline/fit.hpp"
+#include "droopline/inject.hpp"
 #include "droopline/playback.hpp"
 #include "support.hpp"
 
@@ -108,4 +109,96 @@ TEST_CASE("a fit on a grid run's recording with seeded noise recovers droop, lag
   CHECK(r.sigma[0] > 0.0);
   CHECK(std::abs(r.values[0] - true_droop) < 5 * r.sigma[0]);
   CHECK(r.fragment["governor"]["droop"].get<double>() == r.values[0]);
+}
+
+namespace {
+
+// One area with one battery: with no synthetic inertia its output is a single lag behind the droop
+// reference, Tr dP/dt = Pref - P.
+SystemDef first_order_system(double response_s) {
+  SystemDef def;
+  def.name = "first order";
+  def.duration_s = 20.0;
+  def.areas.push_back({});
+  def.areas[0].id = "a";
+  def.areas[0].demand_mw = 50.0;
+  UnitDef b;
+  b.id = "B";
+  b.area = "a";
+  b.rating_mw = 100.0;
+  b.inertia_s = 0.0;
+  b.setpoint_mw = 0.0;
+  b.governor.droop = 0.04;
+  b.turbine.type = TurbineType::battery;
+  b.turbine.response_s = response_s;
+  b.turbine.synthetic_inertia_s = 0.0;
+  b.turbine.energy_mwh = 100.0;
+  UnitDef g;  // inertia for the area (not played back)
+  g.id = "G";
+  g.area = "a";
+  g.rating_mw = 100.0;
+  g.inertia_s = 5.0;
+  g.setpoint_mw = 50.0;
+  def.units = {b, g};
+  return def;
+}
+
+}  // namespace
+
+TEST_CASE("a single lag under an injected frequency step follows dP(t) = dP_inf (1 - exp(-t/T))") {
+  const double T = 0.5, step_mhz = -100.0;
+  const SystemDef def = first_order_system(T);
+  InjectProfile profile;
+  InjectTest test;
+  test.name = "step";
+  test.lead_s = 0.0;
+  test.pieces = {{step_mhz, 0.0, 10.0}};
+  test.require = {0.95, 3.0 * T + 0.1, 1.0, 0.1, 0.05, ""};
+  profile.tests = {test};
+  std::string error;
+  const auto out = run_injection(def, "B", profile, error);
+  INFO(error);
+  REQUIRE(out);
+  const InjectOutcome& o = (*out)[0];
+  // The closed form: the static droop response S/(R f0) * |df| (no deadband) approached exponentially.
+  const double dp_inf = def.units[0].rating_mw / (def.units[0].governor.droop * def.nominal_hz) * (-step_mhz / 1000.0);
+  CHECK(std::abs(o.expected_mw - dp_inf) < 1e-12);
+  double worst = 0.0;
+  for (std::size_t i = 0; i < o.t_s.size(); ++i)
+    worst = std::max(worst, std::abs(o.response_mw[i] - dp_inf * (1.0 - std::exp(-o.t_s[i] / T))));
+  INFO("largest difference from the closed form " << worst << " MW");
+  CHECK(worst < 1e-6 * dp_inf);  // RK4 at h = T/50
+  // 95 % of a single lag is reached at T ln 20; 5 % at T ln(1/0.95).
+  REQUIRE(o.reached_s);
+  CHECK(std::abs(*o.reached_s - T * std::log(20.0)) <= def.step_s);
+  CHECK(std::abs(*o.delay_s - T * std::log(1.0 / 0.95)) <= def.step_s);
+  CHECK(o.passed);
+  // The same test with a slower lag misses its time.
+  const auto slow = run_injection(first_order_system(2.0), "B", profile, error);
+  REQUIRE(slow);
+  CHECK_FALSE((*slow)[0].passed);
+  CHECK((*slow)[0].within_margin_s < 0.0);
+}
+
+TEST_CASE("bad injection profiles are refused with their place") {
+  const std::vector<std::pair<std::string, std::string>> cases = {
+      {R"({"name":"x","tests":[]})", "tests"},
+      {R"({"name":"x","tests":[{"name":"a","pieces":[{"to_mhz":-200,"hold_s":-1}],"require":{"share":1,"within_s":30,"max_delay_s":2}}]})",
+       "tests[0].pieces[0].hold_s"},
+      {R"({"name":"x","tests":[{"name":"a","pieces":[{"to_mhz":-200,"hold_s":10}],"require":{"share":1.5,"within_s":30,"max_delay_s":2}}]})",
+       "tests[0].require.share"},
+      {R"({"name":"x","tests":[{"name":"a","pieces":[{"to_mhz":-200,"hold_s":10}],"require":{"within_s":30,"max_delay_s":2}}]})",
+       "tests[0].require.share"},
+      {R"({"name":"x","tests":[{"name":"a","pieces":[{"to_mhz":0,"hold_s":10}],"require":{"share":1,"within_s":30,"max_delay_s":2}}]})",
+       "tests[0].pieces"},
+      {R"({"name":"x","tests":[{"name":"a","pieces":[{"to_mhz":-200,"hold_s":10,"extra":1}],"require":{"share":1,"within_s":30,"max_delay_s":2}}]})",
+       "tests[0].pieces[0].extra"},
+  };
+  for (const auto& [text, where] : cases) {
+    std::vector<Issue> issues;
+    INFO(text);
+    CHECK_FALSE(parse_inject_profile(text, issues));
+    REQUIRE_FALSE(issues.empty());
+    CHECK(issues[0].path == where);
+  }
 }

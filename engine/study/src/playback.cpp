@@ -96,13 +96,29 @@ std::optional<json> playback_scenario(const SystemDef& def, const std::vector<st
   json kept = json::array();
   for (json a : doc["areas"]) {
     if (!areas.count(a["id"].get<std::string>())) continue;
-    // The load does not matter (the frequency is imposed) but must be one the checks accept.
+    if (a.contains("agc")) a["agc"]["enabled"] = false;
+    a["shedding"] = json::array();
+    // The checks want synchronous inertia in every area (a battery alone has none); with the
+    // frequency imposed it does nothing, so an idle placeholder unit gives it.
+    bool inertia = false;
+    for (const json& u : units)
+      if (u["area"] == a["id"] && u["inertia_s"].get<double>() > 0.0) inertia = true;
+    if (!inertia) {
+      SystemDef holder;
+      UnitDef idle;
+      idle.id = "playback_inertia_" + a["id"].get<std::string>();
+      idle.area = a["id"].get<std::string>();
+      idle.rating_mw = 1000.0;  // heavy enough for the checks' step-size rule
+      idle.inertia_s = 10.0;
+      idle.setpoint_mw = 10.0;  // gives the area a load to balance
+      holder.units.push_back(idle);
+      units.push_back(scenario_to_json(holder)["units"][0]);
+    }
+    // The load does not matter (the frequency is imposed) but must balance for the checks.
     double demand = 0.0;
     for (const json& u : units)
       if (u["area"] == a["id"]) demand += u["setpoint_mw"].get<double>();
-    a["demand_mw"] = std::max(demand, 1.0);
-    if (a.contains("agc")) a["agc"]["enabled"] = false;
-    a["shedding"] = json::array();
+    a["demand_mw"] = demand;
     kept.push_back(std::move(a));
   }
   doc["areas"] = std::move(kept);
