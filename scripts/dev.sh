@@ -9,7 +9,7 @@ cd "$(dirname "$0")/.."
 
 # Debian 12 packages the build, the tests and the benchmarks need.
 PACKAGES=(cmake ninja-build g++ pkg-config libboost-dev nlohmann-json3-dev libspdlog-dev catch2
-          python3-scipy python3-numpy python3-websockets libeigen3-dev libcli11-dev chromium clang libclang-rt-14-dev)
+          python3-scipy python3-numpy python3-websockets libeigen3-dev libcli11-dev libnlopt-cxx-dev chromium clang libclang-rt-14-dev)
 
 setup() {
   local missing=()

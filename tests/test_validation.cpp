@@ -202,3 +202,44 @@ TEST_CASE("bad injection profiles are refused with their place") {
     CHECK(issues[0].path == where);
   }
 }
+
+TEST_CASE("bad fit arguments are refused with what is wrong and where") {
+  const SystemDef plant = test::load("scenarios/validation/plant.json");
+  Recording rec;
+  rec.power_mw.push_back({"QH1", {}});
+  for (int i = 0; i <= 100; ++i) {
+    rec.t_s.push_back(0.1 * i);
+    rec.frequency_hz.push_back(50.0);
+    rec.power_mw[0].second.push_back(300.0);
+  }
+  auto spec_with = [&](std::vector<FitParam> params) {
+    FitSpec s;
+    s.playback.def = plant;
+    s.playback.units = {"QH1"};
+    s.playback.recording = rec;
+    s.params = std::move(params);
+    return s;
+  };
+  auto refused = [](const FitSpec& s) {
+    std::string error;
+    CHECK_FALSE(check_fit(s, error));
+    return error;
+  };
+  CHECK(refused(spec_with({{"governor.speed", 1, 2}})).find("no number \"governor.speed\" in unit QH1") !=
+        std::string::npos);
+  CHECK(
+      refused(spec_with({{"governor.droop", 0.08, 0.03}})).find("governor.droop: LO (0.08) must be below HI (0.03)") !=
+      std::string::npos);
+  const std::string outside = refused(spec_with({{"governor.droop", 0.0, 0.1}}));
+  CHECK(outside.find("bound 0 is outside what the model accepts") != std::string::npos);
+  CHECK(outside.find("units[0].governor.droop") != std::string::npos);  // the scenario check's own place
+  FitSpec late = spec_with({{"governor.droop", 0.02, 0.1}});
+  for (double& t : late.playback.recording.t_s) t += 1000.0;  // the plant scenario runs 600 s
+  CHECK(refused(late).find("less than one step") != std::string::npos);
+  std::string error;
+  CHECK_FALSE(parse_fit_param("governor.droop=0.1:0.05", error));
+  CHECK(error.find("must be below") != std::string::npos);
+  CHECK_FALSE(parse_fit_param("governor.droop=a:0.05", error));
+  CHECK(error.find("must be numbers") != std::string::npos);
+  CHECK(check_fit(spec_with({{"governor.droop", 0.02, 0.1}}), error));
+}

@@ -16,11 +16,16 @@ namespace {
 std::string esc(const std::string& s) {
   std::string o;
   for (char c : s) {
-    if (c == '<') o += "&lt;";
-    else if (c == '>') o += "&gt;";
-    else if (c == '&') o += "&amp;";
-    else if (c == '"') o += "&quot;";
-    else o += c;
+    if (c == '<')
+      o += "&lt;";
+    else if (c == '>')
+      o += "&gt;";
+    else if (c == '&')
+      o += "&amp;";
+    else if (c == '"')
+      o += "&quot;";
+    else
+      o += c;
   }
   return o;
 }
@@ -39,7 +44,8 @@ std::vector<double> ticks(double lo, double hi) {
   const double r = raw / mag;
   const double step = (r < 1.5 ? 1 : r < 3.5 ? 2 : r < 7.5 ? 5 : 10) * mag;
   std::vector<double> out;
-  for (double t = std::ceil(lo / step) * step; t <= hi + step * 1e-9; t += step) out.push_back(std::abs(t) < step * 1e-9 ? 0.0 : t);
+  for (double t = std::ceil(lo / step) * step; t <= hi + step * 1e-9; t += step)
+    out.push_back(std::abs(t) < step * 1e-9 ? 0.0 : t);
   return out;
 }
 
@@ -58,18 +64,19 @@ std::string ramp(double f) {
 
 constexpr double W = 720, H = 460, L = 90, R = 30, T = 50, B = 70;
 
-std::string frame(const std::string& title, const std::string& xlabel, const std::string& ylabel, double extra_right = 0) {
-  std::string s = "<svg xmlns=\"http://www.w3.org/2000/svg\" width=\"" + num(W + extra_right) + "\" height=\"" + num(H) +
-                  "\" viewBox=\"0 0 " + num(W + extra_right) + " " + num(H) +
+std::string frame(const std::string& title, const std::string& xlabel, const std::string& ylabel,
+                  double extra_right = 0) {
+  std::string s = "<svg xmlns=\"http://www.w3.org/2000/svg\" width=\"" + num(W + extra_right) + "\" height=\"" +
+                  num(H) + "\" viewBox=\"0 0 " + num(W + extra_right) + " " + num(H) +
                   "\" font-family=\"sans-serif\" font-size=\"12\">\n"
                   "<rect width=\"100%\" height=\"100%\" fill=\"#ffffff\"/>\n";
   s += "<text x=\"" + num(L) + "\" y=\"28\" font-size=\"15\" font-weight=\"bold\">" + esc(title) + "</text>\n";
-  s += "<text x=\"" + num(L + (W - L - R) / 2) + "\" y=\"" + num(H - 22) + "\" text-anchor=\"middle\">" + esc(xlabel) + "</text>\n";
-  s += "<text transform=\"translate(22," + num(T + (H - T - B) / 2) + ") rotate(-90)\" text-anchor=\"middle\">" + esc(ylabel) +
+  s += "<text x=\"" + num(L + (W - L - R) / 2) + "\" y=\"" + num(H - 22) + "\" text-anchor=\"middle\">" + esc(xlabel) +
        "</text>\n";
+  s += "<text transform=\"translate(22," + num(T + (H - T - B) / 2) + ") rotate(-90)\" text-anchor=\"middle\">" +
+       esc(ylabel) + "</text>\n";
   return s;
 }
-
 
 // A value range widened by 6 % each side (and opened up when it is a single value).
 std::pair<double, double> padded(double y0, double y1) {
@@ -94,7 +101,8 @@ std::string axes(double x0, double x1, double y0, double y1) {
          fmt_num(t) + "</text>\n";
   }
   for (double t : ticks(x0, x1))
-    s += "<text x=\"" + num(X(t)) + "\" y=\"" + num(T + ph + 18) + "\" text-anchor=\"middle\">" + fmt_num(t) + "</text>\n";
+    s += "<text x=\"" + num(X(t)) + "\" y=\"" + num(T + ph + 18) + "\" text-anchor=\"middle\">" + fmt_num(t) +
+         "</text>\n";
   return s;
 }
 
@@ -140,7 +148,6 @@ std::string line_plot_svg(const std::string& title, const std::string& xlabel, c
   return s + "</svg>\n";
 }
 
-
 std::string sweep_svg(const std::vector<std::string>& paths, const std::vector<std::vector<double>>& axis_values,
                       const std::vector<SweepRow>& rows, const std::string& metric, const std::string& title) {
   const auto& names = metric_names();
@@ -175,8 +182,8 @@ std::string sweep_svg(const std::vector<std::string>& paths, const std::vector<s
     for (auto [x, y] : pts) s += num(X(x)) + "," + num(Y(y)) + " ";
     s += "\"/>\n";
     for (auto [x, y] : pts)
-      s += "<circle cx=\"" + num(X(x)) + "\" cy=\"" + num(Y(y)) + "\" r=\"3\" fill=\"#1d5f8a\"><title>" + esc(paths[0]) +
-           " = " + fmt_num(x) + ": " + metric + " = " + fmt_num(y) + "</title></circle>\n";
+      s += "<circle cx=\"" + num(X(x)) + "\" cy=\"" + num(Y(y)) + "\" r=\"3\" fill=\"#1d5f8a\"><title>" +
+           esc(paths[0]) + " = " + fmt_num(x) + ": " + metric + " = " + fmt_num(y) + "</title></circle>\n";
     return s + "</svg>\n";
   }
 
@@ -204,8 +211,9 @@ std::string sweep_svg(const std::vector<std::string>& paths, const std::vector<s
       s += "<title>" + esc(paths[0]) + " = " + fmt_num(xs[xi]) + ", " + esc(paths[1]) + " = " + fmt_num(ys[yi]) + ": " +
            (c == cell.end() ? std::string("not run") : metric + " = " + fmt_num(c->second)) + "</title></rect>\n";
       if (label && c != cell.end())
-        s += "<text x=\"" + num(x + cw / 2) + "\" y=\"" + num(y + ch / 2 + 4) + "\" text-anchor=\"middle\" font-size=\"10\" fill=\"" +
-             (f < 0.25 || f > 0.8 ? "#ffffff" : "#222222") + "\">" + fmt_num(c->second) + "</text>\n";
+        s += "<text x=\"" + num(x + cw / 2) + "\" y=\"" + num(y + ch / 2 + 4) +
+             "\" text-anchor=\"middle\" font-size=\"10\" fill=\"" + (f < 0.25 || f > 0.8 ? "#ffffff" : "#222222") +
+             "\">" + fmt_num(c->second) + "</text>\n";
     }
   const std::size_t xstep = std::max<std::size_t>(1, xs.size() / 10), ystep = std::max<std::size_t>(1, ys.size() / 10);
   for (std::size_t xi = 0; xi < xs.size(); xi += xstep)
@@ -217,8 +225,8 @@ std::string sweep_svg(const std::vector<std::string>& paths, const std::vector<s
   // Colour key.
   const double kx = W + 10;
   for (int i = 0; i < 50; ++i)
-    s += "<rect x=\"" + num(kx) + "\" y=\"" + num(T + ph - (i + 1) * ph / 50) + "\" width=\"16\" height=\"" + num(ph / 50 + 0.5) +
-         "\" fill=\"" + ramp(i / 49.0) + "\"/>\n";
+    s += "<rect x=\"" + num(kx) + "\" y=\"" + num(T + ph - (i + 1) * ph / 50) + "\" width=\"16\" height=\"" +
+         num(ph / 50 + 0.5) + "\" fill=\"" + ramp(i / 49.0) + "\"/>\n";
   s += "<text x=\"" + num(kx + 20) + "\" y=\"" + num(T + 10) + "\">" + fmt_num(hi) + "</text>\n";
   s += "<text x=\"" + num(kx + 20) + "\" y=\"" + num(T + ph) + "\">" + fmt_num(lo) + "</text>\n";
   s += "<text x=\"" + num(kx) + "\" y=\"" + num(T - 8) + "\">" + esc(metric) + "</text>\n";
