@@ -148,8 +148,8 @@ void local_search(Job& job, std::size_t start, const std::vector<double>& x0) {
   opt.set_upper_bounds(std::vector<double>(p, 1.0));
   SearchCtx ctx{&job};
   opt.set_min_objective(objective, &ctx);
-  opt.set_xtol_rel(1e-7);
-  opt.set_ftol_rel(1e-12);
+  opt.set_xtol_rel(1e-6);
+  opt.set_ftol_rel(1e-10);
   opt.set_maxeval(static_cast<int>(job.spec->max_evaluations));
   opt.set_initial_step(std::vector<double>(p, 0.1));
   std::vector<double> x = x0;
