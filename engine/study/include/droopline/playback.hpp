@@ -21,11 +21,10 @@ struct StagePoints {
 /// The stage points of the step that starts at `t0_s` (from the playback's start) and lasts `h_s`.
 using FrequencyAt = std::function<StagePoints(double t0_s, double h_s)>;
 
-/// A measured frequency between its samples: the quadratic through the two samples around the time
-/// and one neighbour, taken on the side where the samples bend less (an essentially non-oscillatory
-/// choice: a corner, such as a load step landing on a sample, is not carried into the interval on
-/// its other side); linear with two samples. A recording made at the step gives the units their
-/// stage points to the integration's own order.
+/// A measured frequency between its samples: per interval, the cubic through its two samples and two
+/// more, each added on the side where the samples bend less (an essentially non-oscillatory choice:
+/// a corner, such as a load step landing on a sample, is not carried into the intervals on its other
+/// side); fewer points when the recording has fewer than four samples.
 class FrequencyTrack {
  public:
   /// Times (s, strictly increasing, from any origin) and values (Hz).
