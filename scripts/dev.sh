@@ -8,7 +8,7 @@ set -euo pipefail
 cd "$(dirname "$0")/.."
 
 # Debian 12 packages the build, the tests and the benchmarks need.
-PACKAGES=(cmake ninja-build g++ pkg-config libboost-dev nlohmann-json3-dev libspdlog-dev libsqlite3-dev catch2
+PACKAGES=(cmake ninja-build g++ pkg-config libboost-dev nlohmann-json3-dev libspdlog-dev libsqlite3-dev libnlopt-cxx-dev catch2
           python3-scipy python3-numpy python3-websockets libeigen3-dev libcli11-dev chromium clang libclang-rt-14-dev)
 
 setup() {

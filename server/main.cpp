@@ -19,6 +19,7 @@
 #include "cli_debrief.hpp"
 #include "cli_run.hpp"
 #include "cli_modes.hpp"
+#include "cli_validation.hpp"
 #include "cli_sweep.hpp"
 #include "droopline/kernel_choice.hpp"
 #include "serve.hpp"
@@ -74,6 +75,17 @@ std::string read_count(std::string digits, N lo, N hi, N& out) {
 CLI::Option* add_real(CLI::App& app, const std::string& name, double& value, double lo, double hi, const std::string& unit,
                       const std::string& help) {
   return app.add_option(name, value, help)->type_name(unit)->check(kNotNan)->check(CLI::Range(lo, hi));
+}
+
+/// `--shard I/N`: this run's slice I of N (1 <= I <= N); the values land in `shard` and `shards`.
+void add_shard(CLI::App& app, std::uint32_t& shard, std::uint32_t& shards, const std::string& help) {
+  app.add_option("--shard", help)->type_name("I/N")->check([&shard, &shards](const std::string& v) {
+    const auto slash = v.find('/');
+    if (slash == std::string::npos) return "takes I/N, got \"" + v + "\"";
+    std::string error = read_count(v.substr(0, slash), 1u, 100000u, shard);
+    if (error.empty()) error = read_count(v.substr(slash + 1), 1u, 100000u, shards);
+    return error.empty() && shard > shards ? "takes I/N with 1 <= I <= N, got \"" + v + "\"" : error;
+  });
 }
 
 /// The scenario FILE every study and run reads; it must exist.
@@ -228,15 +240,7 @@ Command sweep_command(CLI::App& root) {
   add_count(*sub, "--sample", a->sample, std::uint64_t{1}, std::uint64_t{1} << 40,
             "a seeded random sample of N combinations of the grid");
   add_count(*sub, "--seed", a->seed, std::uint64_t{0}, ~std::uint64_t{0} >> 1, "the sample's seed")->capture_default_str();
-  sub->add_option("--shard", "run only slice I of N (join the slices with merge)")
-      ->type_name("I/N")
-      ->check([a](const std::string& v) {
-        const auto slash = v.find('/');
-        if (slash == std::string::npos) return "takes I/N, got \"" + v + "\"";
-        std::string error = read_count(v.substr(0, slash), 1u, 100000u, a->shard);
-        if (error.empty()) error = read_count(v.substr(slash + 1), 1u, 100000u, a->shards);
-        return error.empty() && a->shard > a->shards ? "takes I/N with 1 <= I <= N, got \"" + v + "\"" : error;
-      });
+  add_shard(*sub, a->shard, a->shards, "run only slice I of N (join the slices with merge)");
   add_count(*sub, "--threads", a->threads, 1u, 999u, "parallel runs (default: one per core)");
   add_metric(*sub, a->metric);
   add_quiet(*sub, a->quiet);
@@ -320,6 +324,77 @@ Command record_command(CLI::App& root) {
   return {sub, [a] { return droopline::cli::record(*a); }};
 }
 
+/// A required option that may be given several times, each value kept.
+CLI::Option* add_repeated(CLI::App& app, const std::string& name, std::vector<std::string>& values, const std::string& type,
+                          const std::string& help) {
+  return app.add_option(name, values, help)
+      ->type_name(type)
+      ->required()
+      ->expected(1)
+      ->multi_option_policy(CLI::MultiOptionPolicy::TakeAll);
+}
+
+/// The options that say how a recording is read.
+void add_recording(CLI::App& sub, droopline::cli::RecordingArgs& r, bool one_power_column_per_unit) {
+  sub.add_option("--time-column", r.time_column, "CSV: the time column (s)")->type_name("NAME")->capture_default_str();
+  sub.add_option("--frequency-column", r.frequency_column, "the frequency column or channel (default AREA.f_hz)")
+      ->type_name("NAME");
+  sub.add_option("--power-column", r.power_columns,
+                 one_power_column_per_unit ? "the output column or channel, one per --unit (default UNIT.p_mw)"
+                                           : "the output column or channel (default UNIT.p_mw)")
+      ->type_name("NAME")
+      ->expected(1)
+      ->multi_option_policy(CLI::MultiOptionPolicy::TakeAll);
+  add_real(sub, "--base-mw", r.base_mw, 1e-9, 1e9, "MW", "values are per unit: the power base (with --base-hz)");
+  add_real(sub, "--base-hz", r.base_hz, 1e-9, 1e6, "HZ", "values are per unit: the frequency base (with --base-mw)");
+}
+
+Command playback_command(CLI::App& root) {
+  auto* sub = root.add_subcommand("playback", "drive units with a recorded frequency and compare their output");
+  auto a = std::make_shared<droopline::cli::PlaybackArgs>();
+  add_scenario(*sub, a->scenario_file);
+  add_repeated(*sub, "--unit", a->units, "ID", "a unit to play back (repeatable: units of one plant)");
+  sub->add_option("--measured", a->rec.measured, "the recording (.csv or COMTRADE .cfg)")
+      ->type_name("REC")
+      ->required()
+      ->check(kFileExists);
+  add_recording(*sub, a->rec, true);
+  add_real(*sub, "--threshold-hz", a->threshold_hz, 1e-6, 10, "HZ",
+           "an excursion is |f - f0| beyond this (default: the widest deadband + 0.01)");
+  sub->add_option("--out-dir", a->out_dir, "write playback.csv, playback.json and plots here")->type_name("DIR");
+  sub->add_flag("--json", a->json, "print the comparison as JSON");
+  return {sub, [a] { return droopline::cli::playback(*a); }};
+}
+
+Command fit_command(CLI::App& root) {
+  auto* sub = root.add_subcommand("fit", "fit a unit's parameters to a recording (a study result, not a plant setting)");
+  auto a = std::make_shared<droopline::cli::FitArgs>();
+  add_scenario(*sub, a->scenario_file);
+  add_repeated(*sub, "--unit", a->units, "ID", "the unit (repeatable: one fit each)");
+  add_repeated(*sub, "--measured", a->recordings, "REC", "the recording (repeatable: one fit each, paired with --unit in order)")
+      ->check(kFileExists);
+  add_recording(*sub, a->rec, true);
+  add_repeated(*sub, "--param", a->params, "PATH=LO:HI", "a parameter, relative to the unit, and its bounds (repeatable)");
+  add_count(*sub, "--starts", a->starts, 1u, 1000u, "local searches from a seeded Latin hypercube")->capture_default_str();
+  add_count(*sub, "--seed", a->seed, std::uint64_t{0}, ~std::uint64_t{0} >> 1, "the starting points' seed")->capture_default_str();
+  add_count(*sub, "--threads", a->threads, 1u, 999u, "parallel searches (default: one per core)");
+  add_shard(*sub, a->shard, a->shards, "run only fits I, I+N, I+2N, ... of the list (1-based)");
+  sub->add_option("--out-dir", a->out_dir, "write each fit's JSON, scenario fragment and plot here")->type_name("DIR");
+  sub->add_flag("--json", a->json, "print the fit as JSON");
+  return {sub, [a] { return droopline::cli::fit(*a); }};
+}
+
+Command inject_command(CLI::App& root) {
+  auto* sub = root.add_subcommand("inject", "run frequency-injection tests on a unit model (exit 0 all passed, 3 some failed)");
+  auto a = std::make_shared<droopline::cli::InjectArgs>();
+  add_scenario(*sub, a->scenario_file);
+  sub->add_option("--unit", a->unit, "the unit")->type_name("ID")->required();
+  sub->add_option("--profile", a->profile, "the test profile (JSON)")->type_name("PROFILE")->required()->check(kFileExists);
+  sub->add_option("--out-dir", a->out_dir, "write inject.json and a plot per test here")->type_name("DIR");
+  sub->add_flag("--json", a->json, "print the results as JSON");
+  return {sub, [a] { return droopline::cli::inject(*a); }};
+}
+
 }  // namespace
 
 int main(int argc, char** argv) {
@@ -345,7 +420,8 @@ int main(int argc, char** argv) {
   const std::vector<Command> commands{check_command(app),  run_command(app),    serve_command(app),
                                       replay_command(app), sweep_command(app),  merge_command(app),
                                       modes_command(app),  assess_command(app), record_command(app),
-                                      debrief_command(app)};
+                                      debrief_command(app),
+                                      playback_command(app), fit_command(app), inject_command(app)};
   app.set_help_all_flag("--help-all", "every command's options");  // after the subcommands: theirs have none
   static char help_flag[] = "--help";
   if (argc > 1 && std::string(argv[1]) == "help") argv[1] = help_flag;  // `droopline help` is `droopline --help`

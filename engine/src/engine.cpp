@@ -52,6 +52,12 @@ std::unique_ptr<Engine> Engine::clone() const {
 }
 
 void Engine::step() { impl_->step(); }
+void Engine::step_imposed(std::span<const double> df_hz) {
+  if (df_hz.size() != 4 * impl_->na)
+    throw std::invalid_argument("step_imposed: " + std::to_string(4 * impl_->na) + " values expected (4 per area), got " +
+                                std::to_string(df_hz.size()));
+  impl_->step_imposed(df_hz);
+}
 
 void Engine::set_task_runner(TaskRunner* runner) { impl_->runner = runner; }
 

@@ -161,6 +161,9 @@ struct EngineState {
   TaskRunner* runner = nullptr;
   int stage_now = 1;
   double stage_c = 0.0;
+  // step_imposed: per area the frequency deviation at each of a step's four stage points (Hz);
+  // null in a normal step, where the swing equation gives it.
+  const double* imposed_df = nullptr;
 
   // Secondary-control scratch, sized for every unit so the step never allocates
   std::vector<double> agc_give;
@@ -221,6 +224,7 @@ struct Engine::Impl : detail::EngineState {
   double extra_load(const detail::AreaRt& ar, double t) const;
   void step();
   void step_state(std::span<const double> x, std::span<double> next);
+  void step_imposed(std::span<const double> df_hz);
   void post_step();
 
   // outputs.cpp

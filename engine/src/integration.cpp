@@ -44,7 +44,9 @@ void Engine::Impl::stage(int st) {
   const double c = st == 1 ? 0.0 : (st == 4 ? h : 0.5 * h);
   const double frac = st == 1 ? 0.0 : (st == 4 ? 1.0 : 0.5);
   for (std::size_t a = 0; a < na; ++a) {
-    dfv[a] = st == 1 ? y[a] : y[a] + c * k[a];
+    // Imposed (playback): the recording's deviation at this stage point instead of the state's.
+    dfv[a] = imposed_df ? imposed_df[4 * a + static_cast<std::size_t>(st - 1)]
+                        : (st == 1 ? y[a] : y[a] + c * k[a]);
     thv[a] = st == 1 ? y[na + a] : y[na + a] + c * k[na + a];
     net_out[a] = 0.0;
     gen[a] = 0.0;
@@ -72,6 +74,7 @@ void Engine::Impl::stage(int st) {
       d_df = (gen[a] - load - net_out[a]) * inv_m[a];
       d_th = kTwoPi * dfv[a];
     }
+    if (imposed_df) d_df = (imposed_df[4 * a + 3] - imposed_df[4 * a]) / h;
     for (auto [i, d] : {std::pair{a, d_df}, std::pair{na + a, d_th}}) {
       if (st == 1) {
         k[i] = d;
@@ -83,6 +86,8 @@ void Engine::Impl::stage(int st) {
         y[i] = y[i] + (h / 6.0) * (acc[i] + d);
       }
     }
+    // The step ends on the last stage's imposed value (what protection and metrics then read).
+    if (imposed_df && st == 4) y[a] = imposed_df[4 * a + 3];
   }
 }
 
@@ -129,6 +134,12 @@ void Engine::Impl::step() {
   ++n;
   for (detail::AreaRt& ar : areas) ar.noise_mw = ar.noise_next;
   post_step();
+}
+
+void Engine::Impl::step_imposed(std::span<const double> df_hz) {
+  imposed_df = df_hz.data();
+  step();
+  imposed_df = nullptr;
 }
 
 void Engine::Impl::step_state(std::span<const double> x, std::span<double> next) {

@@ -139,7 +139,6 @@ void Call::error(int status, const std::string& message, const std::vector<std::
 
 Api::Api(Services& services) : services_(services), routes_(route_table()) {}
 
-void add_records_routes(std::vector<Route>& routes);  // records_routes.cpp
 
 std::vector<Route> route_table() {
   std::vector<Route> routes;

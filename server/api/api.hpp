@@ -11,6 +11,7 @@
 
 #include "http_target.hpp"
 #include "seats.hpp"
+#include "droopline/debrief.hpp"
 #include "services.hpp"
 
 namespace droopline::server {
@@ -135,5 +136,10 @@ void add_live_routes(std::vector<Route>& routes);
 void add_study_routes(std::vector<Route>& routes);
 /// The debrief of a run of the live session's journal (GET /api/v1/debrief, the instructor's).
 void add_debrief_routes(std::vector<Route>& routes);
+/// The training records' routes (records_routes.cpp, the instructor's).
+void add_records_routes(std::vector<Route>& routes);
+/// Answers with the debrief of run `run` ("" = the last) of the journal at `path`, built on the
+/// worker pool within the replay limit (429 beyond it); `extras` from the training records.
+void respond_with_debrief(Services& s, Call& c, std::string path, std::string run, study::DebriefExtras extras);
 
 }  // namespace droopline::server

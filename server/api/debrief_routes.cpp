@@ -13,15 +13,9 @@ namespace {
 constexpr const char* kDebrief =
     "the debrief is for the instructor (it holds trainee names and scores, and runs on the server's worker pool)";
 
-void get_debrief(Services& s, Call& c) {
-  const std::string path = s.options.journal;
-  if (path.empty()) return c.error(404, "no journal: start droopline serve with --journal FILE to have debriefs");
-  const std::string run = c.target.get("run");
-  if (run.size() > 64 || std::any_of(run.begin(), run.end(), [](char ch) {
-        return !std::isalnum(static_cast<unsigned char>(ch)) && ch != '-' && ch != '_';
-      }))
-    return c.error(400,
-                   "query parameter run: a run id of letters, digits, '-' and '_' (at most 64), got " + quote_cut(run));
+}  // namespace
+
+void respond_with_debrief(Services& s, Call& c, std::string path, std::string run, study::DebriefExtras extras) {
   if (s.counters.replays_active.fetch_add(1) >= s.options.max_replays) {
     s.counters.replays_active.fetch_sub(1);
     s.counters.replays_refused.fetch_add(1);
@@ -32,15 +26,29 @@ void get_debrief(Services& s, Call& c) {
                            {{"Retry-After", "2"}},
                            {}});
   }
-  s.run_on_workers([&s, path, run, respond = c.respond] {
+  s.run_on_workers([&s, path, run, extras = std::move(extras), respond = c.respond] {
     std::string error;
-    std::optional<std::string> html = study::debrief_html(path, run, {}, error);
+    std::optional<std::string> html = study::debrief_html(path, run, extras, error);
     s.counters.replays_active.fetch_sub(1);
     if (!html)
       return respond(Reply{
           error.rfind("no run", 0) == 0 ? 404 : 500, "application/json", error_json("no debrief: " + error), {}, {}});
     respond(Reply{200, "text/html; charset=utf-8", std::move(*html), {{"Cache-Control", "no-store"}}, {}});
   });
+}
+
+namespace {
+
+void get_debrief(Services& s, Call& c) {
+  const std::string path = s.options.journal;
+  if (path.empty()) return c.error(404, "no journal: start droopline serve with --journal FILE to have debriefs");
+  const std::string run = c.target.get("run");
+  if (run.size() > 64 || std::any_of(run.begin(), run.end(), [](char ch) {
+        return !std::isalnum(static_cast<unsigned char>(ch)) && ch != '-' && ch != '_';
+      }))
+    return c.error(400,
+                   "query parameter run: a run id of letters, digits, '-' and '_' (at most 64), got " + quote_cut(run));
+  respond_with_debrief(s, c, path, run, {});
 }
 
 }  // namespace

@@ -105,7 +105,6 @@ void debrief(Services& s, Call& c) {
   RecordsStore* store = store_of(s, c);
   auto id = store ? run_id_of(c) : std::nullopt;
   if (!id) return;
-  if (!s.debrief) return c.error(501, "the debrief is not built into this droopline");
   auto run = run_of(*store, c, *id);
   if (!run) return;
   const std::string journal = (*run)["journal_path"].get<std::string>();
@@ -117,16 +116,11 @@ void debrief(Services& s, Call& c) {
   // The trainees as the records know them (a removed name stays removed), and
   // the notes written after the session: those during it are in the journal,
   // which the debrief reads itself.
-  records::RecordsDebriefExtras extras;
+  study::DebriefExtras extras;
   for (const json& t : (*run)["trainees"]) extras.trainees.emplace_back(t["seat"], t["name"]);
   for (const json& n : (*run)["notes"])
     if (n["t_s"].is_null()) extras.notes.push_back({std::nullopt, n["by"], n["text"]});
-  s.run_on_workers([build = s.debrief, journal, id = *id, extras = std::move(extras), respond = c.respond] {
-    std::string error;
-    auto html = build(journal, id, extras, error);
-    if (!html) return respond(Reply{500, "application/json", error_json("cannot build the debrief: " + error), {}, {}});
-    respond(Reply{200, "text/html; charset=utf-8", std::move(*html), {}, {}});
-  });
+  respond_with_debrief(s, c, journal, *id, std::move(extras));
 }
 
 void post_note(Services& s, Call& c) {

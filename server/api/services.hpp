@@ -70,11 +70,6 @@ struct Services {
   std::function<void(std::function<void()>)> run_on_workers;
   /// The training records (none without --records or a journal, or with --records none).
   std::shared_ptr<records::RecordsStore> records;
-  /// A run's debrief as one HTML page from its journal (journal path, run id, what the records
-  /// add, error) -> the page, or nothing with `error` set; empty when the debrief is not built in.
-  std::function<std::optional<std::string>(const std::string&, const std::string&,
-                                           const records::RecordsDebriefExtras&, std::string&)>
-      debrief;
 };
 
 /// True when `given` equals `token` (constant time).

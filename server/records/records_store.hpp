@@ -40,18 +40,6 @@ struct RunFilter {
   std::string to;        ///< YYYY-MM-DD, runs started that day or earlier (UTC); "" any
 };
 
-/// What the records add to a run's debrief: the trainees' names and the notes
-/// they keep (the debrief's own DebriefExtras has the same fields; the service
-/// adapts one to the other).
-struct RecordsDebriefExtras {
-  std::vector<std::pair<std::string, std::string>> trainees;  ///< seat id -> trainee name
-  struct Note {
-    std::optional<double> t_s;  ///< simulated time, or none for a note written after the run
-    std::string by;
-    std::string text;
-  };
-  std::vector<Note> notes;  ///< in the order written
-};
 
 /// "" when `f` is fit for the queries, else what is wrong and where ("from:
 /// ...").

@@ -26,6 +26,12 @@ SWEEP = ["sweep", SCENARIO, "--vary", "units[0].governor.droop=0.04,0.05", "--ou
 MODES = ["modes", SCENARIO]
 RECORD = ["record", SCENARIO, "--out", OUT]
 REPLAY = ["replay", SCENARIO, "--out", OUT]
+PLANT = os.path.join(SRC, "scenarios", "validation", "plant.json")
+EVENT = os.path.join(SRC, "scenarios", "validation", "recorded_event.csv")
+PROFILE = os.path.join(SRC, "scenarios", "validation", "injection_profile.json")
+PLAYBACK = ["playback", PLANT, "--unit", "QH1", "--measured", EVENT, "--out-dir", OUT]
+FIT = ["fit", PLANT, "--unit", "QH1", "--measured", EVENT, "--out-dir", OUT]
+INJECT = ["inject", PLANT, "--unit", "QH1", "--profile", PROFILE, "--out-dir", OUT]
 
 # (arguments, what stderr must name)
 CASES = [
@@ -96,6 +102,23 @@ CASES = [
     (["check"], "FILE"),
     (["check", MISSING], MISSING),
     (["check", SCENARIO, "--fix"], "--fix"),
+    # playback, fit, inject: the command line, then what only the recording and scenario can tell
+    (["playback", PLANT, "--unit", "QH1"], "--measured"),
+    (["playback", PLANT, "--measured", EVENT], "--unit"),
+    (PLAYBACK + ["--threshold-hz", "0"], "--threshold-hz"),
+    (["playback", PLANT, "--unit", "QH1", "--measured", MISSING], MISSING),
+    (PLAYBACK[:3] + ["QX9"] + PLAYBACK[4:], 'no unit "QX9"'),
+    (PLAYBACK + ["--power-column", "QH1.q_mvar"], "QH1.q_mvar"),
+    (FIT, "--param"),
+    (FIT + ["--param", "governor.droop=0.08:0.03"], "must be below"),
+    (FIT + ["--param", "governor.droop"], "PATH=LO:HI"),
+    (FIT + ["--param", "governor.speed=1:2"], "governor.speed"),
+    (FIT + ["--param", "governor.droop=0:0.1"], "bound 0"),
+    (FIT + ["--param", "governor.droop=0.02:0.1", "--starts", "0"], "--starts"),
+    (FIT + ["--param", "governor.droop=0.02:0.1", "--shard", "3/2"], "--shard"),
+    (INJECT[:2] + INJECT[4:], "--unit"),
+    (["inject", PLANT, "--unit", "QH1", "--profile", MISSING], MISSING),
+    (["inject", PLANT, "--unit", "QH1", "--profile", SCENARIO], "unknown field"),
     # the command itself
     ([], "subcommand"),
     (["simulate", SCENARIO], "simulate"),

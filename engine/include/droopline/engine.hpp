@@ -170,6 +170,11 @@ class Engine {
 
   /// Applies the scheduled events due now, then advances exactly one step.
   void step();
+  /// step() with every area's frequency imposed instead of integrated (no swing equation: playback
+  /// of a recorded frequency): `df_hz` holds, per area in order, its deviation from f0 (Hz) at each
+  /// of the four RK4 stage points, which the units' own stage kernels see; the area's deviation
+  /// after the step is the fourth. Throws std::invalid_argument unless it holds 4 values per area.
+  void step_imposed(std::span<const double> df_hz);
   /// Steps until duration_s (or until `max_steps` more steps were taken).
   void run(std::int64_t max_steps = INT64_MAX);
   /// True once the scenario's duration is reached (step() may still be called: it runs on).
