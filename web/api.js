@@ -53,3 +53,46 @@ export async function apiFor(group, path, options) {
     return null;
   }
 }
+
+/**
+ * Fetches `path` with the instructor's token for a file (a report, a CSV) and resolves to its Blob
+ * URL; throws an ApiError (the server's `error`, or why it did not answer). A plain link could not
+ * carry the token, so the file is fetched here and handed out from a Blob URL.
+ */
+export async function fetchFile(path, type) {
+  let res;
+  try {
+    res = await fetch(path, { headers: { Authorization: `Bearer ${app.token}` } });
+  } catch (e) {
+    throw new ApiError(`the server did not answer (${e.message})`, 0);
+  }
+  if (!res.ok) {
+    const answer = await res.json().catch(() => ({}));
+    throw new ApiError(answer.error || `HTTP ${res.status}`, res.status);
+  }
+  return URL.createObjectURL(new Blob([await res.text()], { type }));
+}
+
+/** A file name's stem from free text: letters and figures, the rest as dashes. */
+export const fileStem = (text) => text.replace(/[^A-Za-z0-9]+/g, '-').slice(0, 40);
+
+/**
+ * Opens the debrief (HTML) at `path` in a new tab and points the `save` link beside the button at
+ * it, named `debrief-<name>.html`; a failure shows in `out`. The link's previous Blob is released.
+ */
+export async function openDebrief(path, out, save, name) {
+  out.textContent = '';
+  let url;
+  try {
+    url = await fetchFile(path, 'text/html');
+  } catch (e) {
+    if (!(e instanceof ApiError)) throw e;
+    out.textContent = e.status ? `No debrief: ${e.message}` : e.message;
+    return;
+  }
+  if (save.href.startsWith('blob:')) URL.revokeObjectURL(save.href);
+  save.href = url;
+  save.download = `debrief-${fileStem(name || 'run')}.html`;
+  save.hidden = false;
+  window.open(url, '_blank', 'noopener');
+}

@@ -1,6 +1,6 @@
 // droopline training-room page, the entry module: picks the view (overview, wall, seat or
 // instructor, from `?view=`), wires the stream to the charts and panels, and the controls and
-// studies to the HTTP API. Each part is its own module:
+// studies to the HTTP API; the records view reads the training records only. Each part is its own module:
 //   state.js       shared state (window.droopline), the view, $, fmt, el, author names
 //   api.js         the one HTTP API caller (token or seat code, JSON, readable errors)
 //   connection.js  the WebSocket stream: hello, frames, events, alarms, reconnection
@@ -16,6 +16,7 @@
 //   seat.js        the seat view: join code, briefing, the seat's areas and units with their controls
 //   desk.js        the instructor view's panels: seats, script, save points and rewind, feed, alarms
 //   studies.js     modes, requirement checks, sweeps, COMTRADE records
+//   records.js     the records view: past runs with filters, debriefs, notes, progress, CSV export
 //   views.js       droop and power-angle canvases
 import { app, $, fmt } from '/state.js';
 import { connect, startsRun } from '/connection.js';
@@ -29,6 +30,7 @@ import { showEnded } from '/objectives.js';
 import { prepareWall, buildWall, renderWall } from '/wall.js';
 import { wireSeat, buildSeat, renderSeat } from '/seat.js';
 import { makeDesk, refreshDesk, unlockedDesk, feedEvent, clearFeed } from '/desk.js';
+import { makeRecords, refreshRecords } from '/records.js';
 
 const view = app.view;
 document.body.dataset.view = view;
@@ -37,6 +39,7 @@ if (view === 'wall') $('wall').hidden = false;
 if (view === 'seat') $('seat').hidden = false;
 if (view === 'wall') prepareWall();
 if (view === 'instructor') makeDesk();
+if (view === 'records') makeRecords();
 
 // Charts and panels are redrawn at most once per animation frame.
 let redrawPending = false;
@@ -98,12 +101,20 @@ async function onHello(msg) {
 }
 
 window.addEventListener('resize', resizeCharts);
-wireControls({ onUnlock: () => { clearSweepNote(); if (view === 'instructor') unlockedDesk(); } });
+// What the instructor's token opens, once accepted: the desk's panels, or the records.
+function unlocked() {
+  clearSweepNote();
+  if (view === 'instructor') unlockedDesk();
+  if (view === 'records') refreshRecords();
+}
+wireControls({ onUnlock: unlocked });
 wireStudies();
 if (view === 'seat') wireSeat();
-// The instructor view signs in again with a token kept from before (a reload).
-if (view === 'instructor' && app.token) unlockWith(app.token).then(() => { clearSweepNote(); unlockedDesk(); }, () => {});
-connect({
+// The instructor and records views sign in again with a token kept from before (a reload, or the
+// other view in the same tab).
+if (['instructor', 'records'].includes(view) && app.token) unlockWith(app.token).then(unlocked, () => {});
+// The records are of past runs: that view does not stream the live one.
+if (view !== 'records') connect({
   hello: onHello,
   frame: (f) => {
     app.last = f;

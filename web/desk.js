@@ -6,7 +6,7 @@
 // changes (a seat joining, a script event firing) are not all on the stream. A failed read shows
 // in its panel's `-read` output, apart from the answers to the instructor's own actions.
 import { app, $, fmt, el, button, authorName, errorOutput } from '/state.js';
-import { apiFor } from '/api.js';
+import { apiFor, openDebrief } from '/api.js';
 import { sendChange, confirmAction, describeCommand } from '/commands.js';
 import { readNumbers } from '/controls.js';
 import { alarmsNow, renderAlarms, onAlarms, fetchAlarms } from '/alarms.js';
@@ -86,32 +86,8 @@ async function endExercise() {
   refreshObjectives();
 }
 
-// The debrief is the instructor's (bearer token), so it is fetched here and opened from a Blob URL:
-// a plain link could not carry the token.
-let debriefUrl = '';
-async function openDebrief() {
-  const out = errorOutput('debrief');
-  out.textContent = '';
-  let res;
-  try {
-    res = await fetch('/api/v1/debrief', { headers: { Authorization: `Bearer ${app.token}` } });
-  } catch (e) {
-    out.textContent = `the server did not answer (${e.message})`;
-    return;
-  }
-  if (!res.ok) {
-    const answer = await res.json().catch(() => ({}));
-    out.textContent = `No debrief: ${answer.error || `HTTP ${res.status}`}`;
-    return;
-  }
-  if (debriefUrl) URL.revokeObjectURL(debriefUrl);
-  debriefUrl = URL.createObjectURL(new Blob([await res.text()], { type: 'text/html' }));
-  const link = $('debrief-save');
-  link.href = debriefUrl;
-  link.download = `debrief-${(app.exercise?.name || 'run').replace(/[^A-Za-z0-9]+/g, '-').slice(0, 40)}.html`;
-  link.hidden = false;
-  window.open(debriefUrl, '_blank', 'noopener');
-}
+// The run's debrief in a new tab, with a "save report" link (api.js: the records view shares it).
+const openRunDebrief = () => openDebrief('/api/v1/debrief', errorOutput('debrief'), $('debrief-save'), app.exercise?.name);
 
 // ------------------------------------------------------------------ script
 
@@ -290,7 +266,7 @@ export function makeDesk() {
   $('exercise-file').addEventListener('change', loadExerciseFile);
   $('do-note').addEventListener('click', addNote);
   $('do-end').addEventListener('click', endExercise);
-  $('do-debrief').addEventListener('click', openDebrief);
+  $('do-debrief').addEventListener('click', openRunDebrief);
   setInterval(() => { if (app.instructor && !document.hidden) refreshDesk(); }, POLL_MS);
 }
 

@@ -1,9 +1,9 @@
 // The page's shared state and the small helpers every module uses. The state object is also
 // `window.droopline`, for the browser tests and the curious.
 
-// The view is chosen by how the page is entered: `/?view=wall`, `/?view=seat`, `/?view=instructor`;
-// anything else is the overview.
-const VIEWS = ['wall', 'seat', 'instructor'];
+// The view is chosen by how the page is entered: `/?view=wall`, `/?view=seat`, `/?view=instructor`,
+// `/?view=records`; anything else is the overview.
+const VIEWS = ['wall', 'seat', 'instructor', 'records'];
 const asked = new URLSearchParams(location.search).get('view');
 const view = VIEWS.includes(asked) ? asked : 'overview';
 // A seat's join code and the instructor token are kept apart: one browser may hold both views.
@@ -15,7 +15,7 @@ export const app = {
   last: null,          // the latest frame
   charts: {},
   data: {},            // chart data arrays
-  view,                // 'overview', 'wall', 'seat' or 'instructor'
+  view,                // 'overview', 'wall', 'seat', 'instructor' or 'records'
   tokenKey: keyOf,     // where this view keeps its token or join code (sessionStorage)
   token: sessionStorage.getItem(keyOf) || '',
   role: 'viewer',      // 'viewer', 'seat' or 'instructor', once the server accepted the token
