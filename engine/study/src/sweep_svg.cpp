@@ -90,7 +90,8 @@ std::string line_plot_svg(const std::string& title, const std::string& xlabel, c
     }
   if (!std::isfinite(x0)) return {};
   if (x1 == x0) x1 = x0 + 1;
-  auto [y0, y1] = padded(lo, hi);
+  const auto yr = padded(lo, hi);
+  const double y0 = yr.first, y1 = yr.second;
   const double pw = W - L - R, ph = H - T - B;
   auto X = [&](double x) { return L + (x - x0) / (x1 - x0) * pw; };
   auto Y = [&](double y) { return T + (1 - (y - y0) / (y1 - y0)) * ph; };
@@ -143,7 +144,8 @@ std::string sweep_svg(const std::vector<std::string>& paths, const std::vector<s
     std::sort(pts.begin(), pts.end());
     double x0 = pts.front().first, x1 = pts.back().first;
     if (x1 == x0) x1 = x0 + 1;
-    auto [y0, y1] = padded(lo, hi);
+    const auto yr = padded(lo, hi);
+    const double y0 = yr.first, y1 = yr.second;
     auto X = [&](double x) { return L + (x - x0) / (x1 - x0) * pw; };
     auto Y = [&](double y) { return T + (1 - (y - y0) / (y1 - y0)) * ph; };
     std::string s = frame(title, paths[0], metric) + axes(x0, x1, y0, y1);
