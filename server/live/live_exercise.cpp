@@ -218,7 +218,7 @@ void LiveSession::ack_alarm(std::uint64_t id, std::string author, std::optional<
         return done(refused(403, "alarm " + std::to_string(id) + " (" + a->message + ") is not about an area seat \"" +
                                      scope->seat + "\" answers for"));
     }
-    auto already = [this, id](const study::Alarm& al) {
+    auto already = [id](const study::Alarm& al) {
       return refused(409, "alarm " + std::to_string(id) + " was already acknowledged by " + al.acked_by.value_or("?"));
     };
     if (a->acked_by) return done(already(*a));

@@ -18,18 +18,9 @@ import unittest
 
 import test_server as ts
 from test_server import TOKEN
+from test_exercise import wait_for
 
 EXERCISE = None
-
-
-def wait_for(pred, timeout=20.0, every=0.1):
-    deadline = time.time() + timeout
-    while time.time() < deadline:
-        v = pred()
-        if v:
-            return v
-        time.sleep(every)
-    return None
 
 
 class Server(ts.Server):
