@@ -80,7 +80,9 @@ bool RecordsStore::recover(const std::string& why) {
     }
   }
   std::map<std::string, JournalRead> journals;  // each journal read once
-  for (const auto& [run_id, path] : running) {
+  for (const auto& entry : running) {
+    const std::string& run_id = entry.first;
+    const std::string& path = entry.second;
     const JournalRun* found = nullptr;
     if (!path.empty()) {
       auto it = journals.find(path);
