@@ -13,6 +13,7 @@
 #include "seats.hpp"
 #include "droopline/debrief.hpp"
 #include "services.hpp"
+#include "typed_text.hpp"
 
 namespace droopline::server {
 
@@ -128,6 +129,10 @@ std::string quote_cut(std::string_view text);
 
 /// The error texts of `issues` (warnings left out).
 std::vector<std::string> issue_texts(const std::vector<Issue>& issues);
+
+/// The one string field `rule.field` of a JSON object body (no other field), checked as typed
+/// text by `rule` (live_routes.cpp); nullopt when the call was answered 400.
+std::optional<std::string> typed_body(const Call& c, const TypedTextRule& rule);
 
 /// The routes of the live session (state, scenario, commands, control, history, events, record,
 /// role, healthz, metrics, stream, openapi).

@@ -277,8 +277,8 @@ void control(Services& s, Call& c) {
   s.live->set_speed(speed, answer(c));
 }
 
-// The one string field `field` of a JSON object body (no other field), checked as typed text by
-// `rule`; nullopt when the call was answered 400.
+}  // namespace
+
 std::optional<std::string> typed_body(const Call& c, const TypedTextRule& rule) {
   std::string bad;
   const auto parsed = parse_untrusted_json(c.request.body, bad);
@@ -307,6 +307,8 @@ std::optional<std::string> typed_body(const Call& c, const TypedTextRule& rule) 
   if (!text) c.error(400, why);
   return text;
 }
+
+namespace {
 
 void join_seat(Services& s, Call& c) {
   if (c.role != Role::seat) return c.error(403, kJoin);

@@ -19,7 +19,6 @@ using records::RecordsStore;
 constexpr const char* kRecords =
     "training records are for the instructor "
     "(they hold trainees' names and scores)";
-constexpr std::size_t kMaxNoteBytes = 4000;
 constexpr std::size_t kMaxNameBytes = 200;
 
 // The store, or a 503 answered.
@@ -127,17 +126,9 @@ void post_note(Services& s, Call& c) {
   RecordsStore* store = store_of(s, c);
   auto id = store ? run_id_of(c) : std::nullopt;
   if (!id) return;
-  std::string bad;
-  const auto body = parse_untrusted_json(c.request.body, bad);
-  if (!body) return c.error(400, bad);
-  if (!body->is_object() || !body->contains("text") || !(*body)["text"].is_string())
-    return c.error(400, "body must be a JSON object {\"text\": \"...\"}");
-  for (auto it = body->begin(); it != body->end(); ++it)
-    if (it.key() != "text") return c.error(400, quote_cut(it.key()) + ": unknown field (expected text)");
-  std::string text = (*body)["text"].get<std::string>();
-  if (text.empty() || text.size() > kMaxNoteBytes)
-    return c.error(
-        400, "text: from 1 to " + std::to_string(kMaxNoteBytes) + " bytes (got " + std::to_string(text.size()) + ")");
+  auto note = typed_body(c, kNoteText);
+  if (!note) return;
+  const std::string text = std::move(*note);
   store->add_note(*id, "instructor", text, [respond = c.respond, id = *id, text](std::string error) {
     if (error.empty())
       return respond(

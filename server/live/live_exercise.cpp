@@ -21,9 +21,7 @@ ExerciseStep feed_exercise(const Engine& engine, std::optional<study::AlarmMonit
                            std::optional<study::ObjectiveMonitor>& objectives, std::vector<Notice>& notices,
                            std::int64_t lead_steps, bool run_script) {
   ExerciseStep out;
-  if (alarms) out.changes = alarms->update(engine, notices);
-  notices.clear();
-  if (objectives) objectives->update(engine, alarms ? &*alarms : nullptr);
+  out.changes = study::feed_monitors(engine, alarms, objectives, notices);
   if (script && run_script) out.firings = script->due(engine, lead_steps);
   return out;
 }

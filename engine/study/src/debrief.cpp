@@ -94,11 +94,7 @@ class Resim {
       std::vector<Notice> fresh = engine_->take_notices();
       for (const Notice& n : fresh) event_of_notice(n);
       pending_.insert(pending_.end(), fresh.begin(), fresh.end());
-      if (alarms_) {
-        for (const AlarmChange& c : alarms_->update(*engine_, pending_)) alarm_event(c);
-        if (objectives_) objectives_->update(*engine_, &*alarms_);
-      }
-      pending_.clear();
+      for (const AlarmChange& c : feed_monitors(*engine_, alarms_, objectives_, pending_)) alarm_event(c);
       if (engine_->step_index() % every_ == 0) sample();
     }
     engine_->close_disturbances();

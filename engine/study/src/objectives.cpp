@@ -110,10 +110,16 @@ void ObjectiveMonitor::update(const Engine& engine, const AlarmMonitor* /*alarms
   const double t = engine.time_s();
   const double dt = std::max(0.0, t - t_s_);  // the step just taken (rectangles at its end)
   t_s_ = t;
-  for (Track& tr : tracks_) update_track(tr, engine, dt);
+  // Every area's reserve once per step (a sum over the fleet), for all the reserve objectives.
+  std::vector<double> reserve;
+  for (Track& tr : tracks_) {
+    if (defs_[tr.def].measure == Measure::lowest_reserve_mw && reserve.empty())
+      reserve = upward_reserve_mw(engine, unit_area_);
+    update_track(tr, engine, dt, reserve);
+  }
 }
 
-void ObjectiveMonitor::update_track(Track& tr, const Engine& engine, double dt_s) {
+void ObjectiveMonitor::update_track(Track& tr, const Engine& engine, double dt_s, const std::vector<double>& reserve) {
   const Seat& seat = seats_[tr.seat];
   const Measure m = defs_[tr.def].measure;
   const double t = engine.time_s();
@@ -187,7 +193,6 @@ void ObjectiveMonitor::update_track(Track& tr, const Engine& engine, double dt_s
       break;
     }
     case Measure::lowest_reserve_mw: {
-      const std::vector<double> reserve = upward_reserve_mw(engine, unit_area_);
       for (std::uint32_t a : seat.areas) tr.value = std::min(tr.value.value_or(reserve[a]), reserve[a]);
       break;
     }
@@ -256,6 +261,15 @@ ObjectiveResult ObjectiveMonitor::result(const Track& tr, const AlarmMonitor* al
   r.met = s.met;
   r.arithmetic = s.arithmetic;
   return r;
+}
+
+std::vector<AlarmChange> feed_monitors(const Engine& engine, std::optional<AlarmMonitor>& alarms,
+                                       std::optional<ObjectiveMonitor>& objectives, std::vector<Notice>& notices) {
+  std::vector<AlarmChange> changes;
+  if (alarms) changes = alarms->update(engine, notices);
+  notices.clear();
+  if (objectives) objectives->update(engine, alarms ? &*alarms : nullptr);
+  return changes;
 }
 
 }  // namespace droopline::study

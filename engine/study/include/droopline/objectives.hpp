@@ -91,7 +91,8 @@ class ObjectiveMonitor {
     std::vector<std::uint32_t> ties;   // ties with an end in its areas
     std::vector<double> action_s;      // times of its own actions, in order
   };
-  void update_track(Track& t, const Engine& engine, double dt_s);
+  /// `reserve`: each area's upward reserve now (filled when a reserve objective exists).
+  void update_track(Track& t, const Engine& engine, double dt_s, const std::vector<double>& reserve);
   ObjectiveResult result(const Track& t, const AlarmMonitor* alarms) const;
 
   // Value members only (copied into save points; no pointers into the engine).
@@ -116,6 +117,12 @@ struct Scored {
 Scored score_value(std::optional<double> measured, double target, double zero_at, bool higher_better);
 /// The unit of a measure's values ("s", "Hz", "%", "MWh", "MW").
 const char* unit_of(Measure m);
+
+/// After each step, in the one order the live loop and the debrief both keep: the alarm monitor is
+/// fed the notices since its last update (then cleared), then the objective monitor measures the
+/// step (reading the alarms). Either may be absent. Returns the alarm changes.
+std::vector<AlarmChange> feed_monitors(const Engine& engine, std::optional<AlarmMonitor>& alarms,
+                                       std::optional<ObjectiveMonitor>& objectives, std::vector<Notice>& notices);
 
 nlohmann::ordered_json objective_result_to_json(const ObjectiveResult& r);
 nlohmann::ordered_json seat_score_to_json(const SeatScore& s);
