@@ -80,9 +80,13 @@ test('the instructor sees each seat with a join code large enough to read out, a
     const row = page.locator(`#seats-table tr[data-seat="${seat}"]`);
     // The seats are read again every 2 s: both joined before this test began.
     await row.locator('td.joined').waitFor({ timeout: 8000 });
-    const code = row.locator('td.code');
-    assert.match((await code.textContent()).trim(), /^[A-Z2-9]{6}$/);
-    const px = await code.evaluate((e) => parseFloat(getComputedStyle(e).fontSize));
+    // One evaluation reads the text and the size: the table is rebuilt every 2 s, and a handle
+    // resolved before a rebuild would point at a detached cell (no computed style).
+    const { text, px } = await page.evaluate((sel) => {
+      const e = document.querySelector(sel);
+      return { text: e.textContent, px: parseFloat(getComputedStyle(e).fontSize) };
+    }, `#seats-table tr[data-seat="${seat}"] td.code`);
+    assert.match(text.trim(), /^[A-Z2-9]{6}$/);
     assert.ok(px >= 24, `${seat}'s code in ${px}px type`);
   }
   assert.deepEqual(errors, []);
