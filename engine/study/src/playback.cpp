@@ -130,7 +130,8 @@ std::optional<json> playback_scenario(const SystemDef& def, const std::vector<st
 }
 
 std::vector<std::vector<double>> play(const CheckedSystem& system, const std::vector<std::string>& unit_ids,
-                                      const FrequencyAt& f_at, const std::vector<double>& sample_s) {
+                                      const FrequencyAt& f_at, const std::vector<double>& sample_s,
+                                      std::int64_t settle_steps) {
   const std::unique_ptr<Engine> engine = Engine::create(system);
   const SystemDef& def = system.def();
   const double h = def.step_s, f0 = def.nominal_hz;
@@ -139,12 +140,16 @@ std::vector<std::vector<double>> play(const CheckedSystem& system, const std::ve
   for (const std::string& id : unit_ids) ids.push_back(*engine->find_unit(id));
   std::vector<std::vector<double>> out(nu, std::vector<double>(ns, 0.0));
   std::vector<double> prev(nu), now(nu), df(4 * na);
+  if (settle_steps > 0) {  // held at the first frequency: every stage point sees the same value
+    std::fill(df.begin(), df.end(), f_at(0.0, h).f_hz[0] - f0);
+    for (std::int64_t n = 0; n < settle_steps; ++n) engine->step_imposed(df);
+  }
   for (std::size_t u = 0; u < nu; ++u) prev[u] = engine->unit(ids[u]).p_mw;
   std::size_t k = 0;
   const double tol = 1e-9 * h;
   for (; k < ns && sample_s[k] <= tol; ++k)
     for (std::size_t u = 0; u < nu; ++u) out[u][k] = prev[u];
-  const auto steps = static_cast<std::int64_t>(std::floor(def.duration_s / h + 1e-9));
+  const auto steps = static_cast<std::int64_t>(std::floor(def.duration_s / h + 1e-9)) - settle_steps;
   for (std::int64_t n = 1; n <= steps && k < ns; ++n) {
     const double t0 = static_cast<double>(n - 1) * h, t1 = static_cast<double>(n) * h;
     const StagePoints sp = f_at(t0, h);
@@ -161,6 +166,20 @@ std::vector<std::vector<double>> play(const CheckedSystem& system, const std::ve
   }
   return out;
 }
+
+namespace {
+
+// Steps for a unit to settle at a held frequency: twenty times its slowest time constant (hydro's
+// reset time taken as five water starting times when not given), within 30 .. 600 s.
+std::int64_t settle_steps_for(const UnitDef& d, double h) {
+  const TurbineDef& t = d.turbine;
+  const double slowest = std::max({d.governor.lag_s, t.steam_chest_s, t.type == TurbineType::reheat ? t.reheat_s : 0.0,
+                                   t.type == TurbineType::hydro ? t.reset_s.value_or(5.0 * t.water_s) : 0.0,
+                                   t.fuel_s, t.combustion_s, t.response_s, t.rocof_filter_s});
+  return static_cast<std::int64_t>(std::ceil(std::clamp(20.0 * slowest, 30.0, 600.0) / h));
+}
+
+}  // namespace
 
 std::optional<PreparedPlayback> prepare_playback(const PlaybackSpec& spec, std::string& error) {
   const Recording& rec = spec.recording;
@@ -184,26 +203,41 @@ std::optional<PreparedPlayback> prepare_playback(const PlaybackSpec& spec, std::
     return std::nullopt;
   }
   SystemDef def = spec.def;
-  PreparedPlayback prep{json(), spec.units, FrequencyTrack({}, {}), {}, {}, {}};
+  PreparedPlayback prep{json(), spec.units, FrequencyTrack({}, {}), {}, {}, {}, 0, {}};
   for (std::size_t u = 0; u < spec.units.size(); ++u)
     for (UnitDef& d : def.units)
       if (d.id == spec.units[u]) {
         // At rest where the plant was: its mean output before the first excursion (noise on one
         // sample would otherwise shift the whole response), or the first sample without a rest.
+        // Off nominal beyond the deadband at the start, the rest is around that first frequency.
+        const double f_start = rec.frequency_hz.front();
+        const bool off = std::abs(f_start - def.nominal_hz) > d.governor.deadband_hz + 1e-3;
+        const double around = off ? f_start : def.nominal_hz;
         const double threshold = spec.threshold_hz.value_or(d.governor.deadband_hz + 0.01);
         double sum = 0.0;
         std::size_t count = 0;
-        for (std::size_t i = 0; i < rec.t_s.size() && std::abs(rec.frequency_hz[i] - def.nominal_hz) <= threshold;
+        // Off nominal the unit may still be moving (slow units elsewhere in its grid): its first second only.
+        for (std::size_t i = 0; i < rec.t_s.size() && std::abs(rec.frequency_hz[i] - around) <= threshold &&
+                                (!off || rec.t_s[i] - rec.t_s.front() < 1.0);
              ++i, ++count)
           sum += rec.power_mw[u].second[i];
         d.setpoint_mw = count ? sum / static_cast<double>(count) : rec.power_mw[u].second.front();
-        const double off = std::abs(rec.frequency_hz.front() - def.nominal_hz);
-        if (off > d.governor.deadband_hz + 1e-3)
-          prep.warnings.push_back("the recording starts " + fmt_num(off * 1000) +
-                                  " mHz off nominal, outside the deadband of " + d.id +
-                                  ": the model starts steady at nominal and answers that offset first");
+        prep.start_mw.push_back(d.setpoint_mw);
+        if (!off) continue;
+        if (d.governor.mode == GovernorMode::isochronous) {
+          prep.warnings.push_back("the recording starts " + fmt_num(std::abs(f_start - def.nominal_hz) * 1000) +
+                                  " mHz off nominal and " + d.id +
+                                  " is isochronous (no steady state off nominal): it starts steady at nominal");
+          continue;
+        }
+        prep.settle_steps = std::max(prep.settle_steps, settle_steps_for(d, h));
       }
-  auto doc = playback_scenario(def, spec.units, last - first, error);
+  if (prep.settle_steps > 0)
+    prep.warnings.push_back("the recording starts " + fmt_num((rec.frequency_hz.front() - def.nominal_hz) * 1000) +
+                            " mHz off nominal: the units settle there for " +
+                            fmt_num(static_cast<double>(prep.settle_steps) * h) +
+                            " s first, their setpoints moved so they start at the measured output");
+  auto doc = playback_scenario(def, spec.units, last - first + static_cast<double>(prep.settle_steps) * h, error);
   if (!doc) return std::nullopt;
   prep.scenario = std::move(*doc);
   std::vector<double> t;
@@ -228,8 +262,29 @@ std::optional<std::vector<std::vector<double>>> simulate(const PreparedPlayback&
     return std::nullopt;
   }
   const FrequencyTrack& track = prep.track;
-  return play(
-      *loaded.system, prep.units, [&track](double t0, double h) { return track.stages(t0, h); }, prep.sample_s);
+  const FrequencyAt f_at = [&track](double t0, double h) { return track.stages(t0, h); };
+  if (prep.settle_steps == 0) return play(*loaded.system, prep.units, f_at, prep.sample_s);
+  // Settled at the first frequency with the scenario's setpoints, each unit is off its measured
+  // start by its droop's answer to the offset; moving the setpoint by that much starts it there
+  // (exactly, while no limit is reached: the steady answer does not depend on the setpoint).
+  const std::vector<std::vector<double>> settled = play(*loaded.system, prep.units, f_at, {0.0}, prep.settle_steps);
+  json moved = scenario;
+  for (std::size_t u = 0; u < prep.units.size(); ++u) {
+    const double shift = prep.start_mw[u] - settled[u][0];
+    for (json& unit : moved["units"])
+      if (unit["id"] == prep.units[u]) {
+        unit["setpoint_mw"] = unit["setpoint_mw"].get<double>() + shift;
+        for (json& area : moved["areas"])  // the checks want each area balanced at the start
+          if (area["id"] == unit["area"]) area["demand_mw"] = area["demand_mw"].get<double>() + shift;
+      }
+  }
+  const LoadResult moved_loaded = parse_scenario(moved.dump());
+  if (!moved_loaded.system) {
+    for (const Issue& i : moved_loaded.issues)
+      if (!i.warning) error += (error.empty() ? "" : "; ") + i.text();
+    return std::nullopt;
+  }
+  return play(*moved_loaded.system, prep.units, f_at, prep.sample_s, prep.settle_steps);
 }
 
 SeriesError series_error(const std::vector<double>& a, const std::vector<double>& b) {
@@ -289,11 +344,13 @@ std::optional<PlaybackResult> run_playback(const PlaybackSpec& spec, std::string
     r.t_s.push_back(spec.recording.t_s[i]);
     r.f_hz.push_back(spec.recording.frequency_hz[i]);
   }
-  // Excursions: the first sample beyond the threshold after one within it.
+  // Excursions: the first sample beyond the threshold after one within it, around nominal, or
+  // around the first frequency when the units settled there.
+  const double around = prep->settle_steps > 0 ? r.f_hz.front() : r.nominal_hz;
   std::vector<std::size_t> starts;
   bool beyond = true;  // an offset already there at the start is not an excursion seen to begin
   for (std::size_t k = 0; k < r.f_hz.size(); ++k) {
-    const bool now = std::abs(r.f_hz[k] - r.nominal_hz) > r.threshold_hz;
+    const bool now = std::abs(r.f_hz[k] - around) > r.threshold_hz;
     if (now && !beyond) starts.push_back(k);
     beyond = now;
   }

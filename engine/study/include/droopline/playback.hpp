@@ -3,6 +3,7 @@
 /// signal) imposed as their speed, with no swing equation (the grid is the recording). The units
 /// step through the engine's own stage kernels (`Engine::step_imposed`), so the model played back
 /// is the model of every other run.
+#include <cstdint>
 #include <functional>
 #include <nlohmann/json.hpp>
 #include <optional>
@@ -53,9 +54,12 @@ std::optional<nlohmann::ordered_json> playback_scenario(const SystemDef& def, co
 
 /// Steps the units of `system` (a playback scenario) with `f_at` imposed on every area, and returns
 /// each unit's output (MW) at each of `sample_s` (from 0, increasing, within the duration), the
-/// output between two steps interpolated linearly. The run has floor(duration / step) steps.
+/// output between two steps interpolated linearly. The run has floor(duration / step) steps; the
+/// first `settle_steps` of them hold the frequency at `f_at`'s value at 0 and come before time 0
+/// (the units settle where the recording starts), so they count in the duration.
 std::vector<std::vector<double>> play(const CheckedSystem& system, const std::vector<std::string>& unit_ids,
-                                      const FrequencyAt& f_at, const std::vector<double>& sample_s);
+                                      const FrequencyAt& f_at, const std::vector<double>& sample_s,
+                                      std::int64_t settle_steps = 0);
 
 /// An excursion of the measured frequency beyond the threshold and the response to it.
 struct Excursion {
@@ -103,14 +107,26 @@ struct PreparedPlayback {
   std::vector<double> sample_s;   ///< recording samples compared, from the playback's start (s)
   std::vector<std::size_t> rows;  ///< their rows in the recording
   std::vector<std::string> warnings;
+  /// A recording that starts off nominal beyond a unit's deadband: steps held at its first
+  /// frequency before it starts, so the units start steady there rather than at nominal; 0 when it
+  /// starts at rest. `start_mw` (per unit) is the measured output the units must then start at:
+  /// each setpoint is moved by the response the settling shows (see `simulate`).
+  std::int64_t settle_steps = 0;
+  std::vector<double> start_mw;
 };
 
 /// Checks the spec (units known, one power series per unit, the recording long enough for a step)
-/// and prepares it; each unit's setpoint becomes its first measured output. Empty with `error` set.
+/// and prepares it; each unit's setpoint becomes its measured output at rest (the mean before the
+/// first excursion), or, for a recording that starts off nominal, the setpoint that gives its first
+/// measured output at that frequency. Empty with `error` set.
 std::optional<PreparedPlayback> prepare_playback(const PlaybackSpec& spec, std::string& error);
 
 /// The outputs of a prepared playback's units, with the playback scenario `scenario` (possibly with
-/// changed values); empty with `error` set when that scenario does not pass its checks.
+/// changed values); empty with `error` set when that scenario does not pass its checks. With
+/// `settle_steps`, the units first settle at the recording's first frequency, and each setpoint is
+/// then moved by the difference between its `start_mw` and the settled output, so the comparison
+/// starts where the plant was whatever the values tried (the droop's answer to the offset depends on
+/// them); the moved scenario is settled again and played.
 std::optional<std::vector<std::vector<double>>> simulate(const PreparedPlayback& prep,
                                                          const nlohmann::ordered_json& scenario, std::string& error);
 
