@@ -205,17 +205,25 @@ async function runFit() {
     out.textContent = 'Pick a recording first (step 1).';
     return;
   }
+  const name = fit.picked.kind === 'csv' ? fit.picked.csv.name : fit.picked.cfg.name;
+  let recording;
+  try {
+    recording = await recordingBody(mw == null ? null : { base_mw: mw, base_hz: hz });
+  } catch (e) { // the file changed or went since it was picked
+    out.textContent = `Could not read ${name} again (${e.message}): pick it once more.`;
+    return;
+  }
   const body = {
     unit: $('fit-unit').value,
     params: rows.map((r) => `${r.path}=${r.lo}:${r.hi}`),
     starts: v['fit-starts'],
     seed: v['fit-seed'],
-    recording: await recordingBody(mw == null ? null : { base_mw: mw, base_hz: hz }),
-    name: fit.picked.kind === 'csv' ? fit.picked.csv.name : fit.picked.cfg.name,
+    recording,
+    name,
   };
   const mine = ++fit.generation;
   clearResult();
-  fit.sent = { rows, name: body.name };
+  fit.sent = { rows, name };
   $('do-fit').disabled = true;
   $('fit-progress').textContent = 'sending the recording...';
   try {
@@ -398,12 +406,16 @@ export function validationScenario(sc) {
     $(id).replaceChildren(...sc.units.map((u) => new Option(`${u.id} (${u.turbine.type}, ${u.rating_mw} MW)`, u.id)));
     if (ids.includes(keep)) $(id).value = keep;
   }
-  if (!ids.includes(fit.unit)) unitChanged();
+  if (unitKey(unitOf($('fit-unit').value)) !== fit.unitKey) unitChanged();
 }
+
+// A unit's rows stay across a new scenario only while the unit has the same parameters to offer.
+const unitKey = (u) => (u ? `${u.id}/${u.turbine.type}/${u.ramp_mw_per_s != null}` : '');
 
 // Another unit: its own parameters (one row to start from) and its default columns.
 function unitChanged() {
   fit.unit = $('fit-unit').value;
+  fit.unitKey = unitKey(unitOf(fit.unit));
   $('fit-params').tBodies[0].replaceChildren();
   addParamRow('governor.droop');
   fillColumns();
