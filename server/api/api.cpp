@@ -144,6 +144,7 @@ std::vector<Route> route_table() {
   std::vector<Route> routes;
   add_live_routes(routes);
   add_study_routes(routes);
+  add_fit_routes(routes);
   add_debrief_routes(routes);
   add_records_routes(routes);
   return routes;

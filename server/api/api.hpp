@@ -4,6 +4,7 @@
 // requests and WebSocket control messages both come through here, so one route, one role rule
 // and one set of messages serve both. Handlers answer later, from any thread, through `Respond`.
 #include <functional>
+#include <memory>
 #include <optional>
 #include <string>
 #include <utility>
@@ -143,6 +144,14 @@ void add_study_routes(std::vector<Route>& routes);
 void add_debrief_routes(std::vector<Route>& routes);
 /// The training records' routes (records_routes.cpp, the instructor's).
 void add_records_routes(std::vector<Route>& routes);
+/// The routes of fit jobs and injection tests (fit_routes.cpp, the instructor's).
+void add_fit_routes(std::vector<Route>& routes);
+/// The study job of `kind` named by the route's {id}; nullptr with a 404 answered.
+std::shared_ptr<StudyJobs::Job> find_job(Services& s, const Call& c, const std::string& kind);
+/// The same job once finished with a result; nullptr with a 404 or 409 answered (running, failed).
+std::shared_ptr<StudyJobs::Job> finished_job(Services& s, const Call& c, const std::string& kind);
+/// Sets the job's cancel flag and answers its status (DELETE), or a 404.
+void cancel_job(Services& s, const Call& c, const std::string& kind);
 /// Answers with the debrief of run `run` ("" = the last) of the journal at `path`, built on the
 /// worker pool within the replay limit (429 beyond it); `extras` from the training records.
 void respond_with_debrief(Services& s, Call& c, std::string path, std::string run, study::DebriefExtras extras);

@@ -1,6 +1,6 @@
 #pragma once
 // What the API layer works on: the options of `droopline serve`, the counters the network layer
-// keeps, and the live session, sweep jobs and worker pool the routes hand work to. No sockets.
+// keeps, and the live session, study jobs and worker pool the routes hand work to. No sockets.
 #include <atomic>
 #include <cstdint>
 #include <functional>
@@ -12,7 +12,7 @@
 #include "live_session.hpp"
 #include "records_store.hpp"
 #include "seats.hpp"
-#include "sweep_jobs.hpp"
+#include "study_jobs.hpp"
 
 namespace droopline::server {
 
@@ -31,6 +31,7 @@ struct Options {
   double frame_hz = 20.0;
   double history_s = 600.0;
   std::size_t max_body_bytes = 1 << 20;      ///< HTTP body limit
+  std::size_t max_fit_body_bytes = 16 << 20;  ///< HTTP body limit of POST /api/v1/fits (a recording inside)
   std::size_t max_message_bytes = 64 << 10;  ///< WebSocket message limit
   std::size_t max_connections = 256;
   std::size_t client_queue = 64;  ///< queued messages per client before old frames drop
@@ -64,7 +65,7 @@ struct Services {
   std::string token;                  ///< the instructor token
   std::unique_ptr<LiveSession> live;  ///< the live session
   NetCounters counters;               ///< for /metrics
-  SweepJobs sweeps;                   ///< sweep jobs submitted over the API
+  StudyJobs jobs;                     ///< sweep and fit jobs submitted over the API
   SeatRoster seats;                   ///< the running exercise's seats and join codes (none without one)
   /// Runs a job on the worker pool (replays, modes, assessments): never on the loop or I/O threads.
   std::function<void(std::function<void()>)> run_on_workers;

@@ -4,7 +4,6 @@
 #include <algorithm>
 #include <cmath>
 #include <nlohmann/json.hpp>
-#include <thread>
 
 #include "api.hpp"
 #include "droopline/assess.hpp"
@@ -34,8 +33,8 @@ void answer(const Respond& respond, int status, std::string body) {
 void replays(Services& s, Call& c) {
   LoadResult r = parse_scenario(c.request.body);
   if (!r.system) return c.error(400, "invalid scenario", issue_texts(r.issues));
-  const double unit_steps =
-      r.system->def().duration_s / r.system->def().step_s * static_cast<double>(std::max<std::size_t>(1, r.system->def().units.size()));
+  const double unit_steps = r.system->def().duration_s / r.system->def().step_s *
+                            static_cast<double>(std::max<std::size_t>(1, r.system->def().units.size()));
   if (unit_steps > s.options.max_replay_unit_steps) {
     s.counters.replays_refused.fetch_add(1);
     return c.error(413, "replay too large: " + fmt_num(unit_steps) +
@@ -116,6 +115,31 @@ std::vector<std::string> read_sweep(const json& j, study::SweepSpec& spec, std::
   return problems;
 }
 
+// A sweep job's work: the rows, their CSV and, for one or two varied fields, the plot.
+void run_sweep_job(const study::SweepSpec& spec, const std::string& metric, StudyJobs::Job& j) {
+  std::string err;
+  const study::SweepResult r = study::run_sweep(
+      spec, err, [&j](std::uint64_t done, std::uint64_t total) { j.progress(done, total); }, &j.cancel);
+  if (!err.empty()) {
+    j.status = "failed";
+    j.error = err;
+    return;
+  }
+  j.progress(r.rows.size(), std::max<std::uint64_t>(j.total.load(), r.rows.size()));
+  j.status = r.cancelled ? "cancelled" : "done";
+  j.result = study::sweep_to_json(spec, r);
+  std::vector<std::string> paths;
+  std::vector<std::vector<double>> axes;
+  for (const auto& v : spec.vary) {
+    paths.push_back(v.path);
+    axes.push_back(v.values);
+  }
+  j.artefacts["csv"] = study::sweep_to_csv(paths, r.rows);
+  j.artefacts["svg"] =
+      study::sweep_svg(paths, axes, r.rows, metric, spec.scenario.value("name", std::string("sweep")) + ": " + metric);
+  j.wall_s = r.wall_s;
+}
+
 // {"scenario": {...} (default: the loaded one), "vary": ["PATH=VALUES", ...], "sample": N,
 //  "seed": S, "metric": "nadir_hz"}: a job; answers 202 with its id.
 void post_sweep(Services& s, Call& c) {
@@ -128,7 +152,7 @@ void post_sweep(Services& s, Call& c) {
   std::string metric = "nadir_hz";
   const std::vector<std::string> problems = read_sweep(j, spec, metric);
   if (!problems.empty()) return c.error(400, "sweep refused", problems);
-  spec.threads = std::max(1u, std::thread::hardware_concurrency() - 1);  // one core left to the loop
+  spec.threads = StudyJobs::threads();  // one core left to the loop
   auto start = [&s, spec = std::move(spec), metric, respond = c.respond](std::string scenario_text) mutable {
     LoadResult r = parse_scenario(scenario_text);
     if (!r.system) return answer(respond, 400, error_json("invalid scenario", issue_texts(r.issues)));
@@ -148,45 +172,64 @@ void post_sweep(Services& s, Call& c) {
               error_json("vary " + v.path + "=" + fmt_num(x) + " gives an invalid scenario", issue_texts(pr.issues)));
       }
     std::string err;
-    auto job = s.sweeps.submit(std::move(spec), metric, err);
+    json info{{"metric", metric}};
+    auto job = s.jobs.submit(
+        "sweep", std::move(info),
+        [spec = std::move(spec), metric](StudyJobs::Job& running) { run_sweep_job(spec, metric, running); }, err);
     if (!job) return answer(respond, 429, error_json(err));
-    answer(respond, 202, SweepJobs::status_json(*job).dump());
+    answer(respond, 202, StudyJobs::status_json(*job).dump());
   };
   if (j.contains("scenario")) return start(j["scenario"].dump());
   s.live->scenario(std::move(start));
 }
 
-// The job named by the route's {id}, or a 404 answered.
-std::shared_ptr<SweepJobs::Job> find_job(Services& s, Call& c) {
-  auto job = s.sweeps.find(c.params.at(0));
-  if (!job) c.error(404, "no sweep job " + quote_cut(c.params.at(0)) + " (finished jobs are kept until 16 newer ones)");
+}  // namespace
+
+std::shared_ptr<StudyJobs::Job> find_job(Services& s, const Call& c, const std::string& kind) {
+  auto job = s.jobs.find(kind, c.params.at(0));
+  if (!job)
+    c.error(404, "no " + kind + " job " + quote_cut(c.params.at(0)) + " (finished jobs are kept until 16 newer ones)");
   return job;
 }
 
-void get_sweep(Services& s, Call& c) {
-  if (auto job = find_job(s, c)) c.reply(200, SweepJobs::status_json(*job).dump());
+std::shared_ptr<StudyJobs::Job> finished_job(Services& s, const Call& c, const std::string& kind) {
+  auto job = find_job(s, c, kind);
+  if (!job) return nullptr;
+  const std::string& id = c.params.at(0);
+  if (!job->finished.load(std::memory_order_acquire))
+    return c.error(409, kind + " " + id + " is still running"), nullptr;
+  if (job->status == "failed") return c.error(409, kind + " " + id + " failed: " + job->error), nullptr;
+  if (job->result.is_null())
+    return c.error(409, kind + " " + id + " was " + job->status + ": it has no result"), nullptr;
+  return job;
 }
 
-void delete_sweep(Services& s, Call& c) {
-  auto job = find_job(s, c);
+void cancel_job(Services& s, const Call& c, const std::string& kind) {
+  auto job = find_job(s, c, kind);
   if (!job) return;
   job->cancel = true;
-  c.reply(200, SweepJobs::status_json(*job).dump());
+  c.reply(200, StudyJobs::status_json(*job).dump());
 }
 
+namespace {
+
+void get_sweep(Services& s, Call& c) {
+  if (auto job = find_job(s, c, "sweep")) c.reply(200, StudyJobs::status_json(*job).dump());
+}
+
+void delete_sweep(Services& s, Call& c) { cancel_job(s, c, "sweep"); }
+
 void sweep_result(Services& s, Call& c) {
-  auto job = find_job(s, c);
+  auto job = finished_job(s, c, "sweep");
   if (!job) return;
-  const std::string& id = c.params.at(0);
-  if (!job->finished.load(std::memory_order_acquire)) return c.error(409, "sweep " + id + " is still running");
-  if (job->status == "failed") return c.error(409, "sweep " + id + " failed: " + job->error);
   const std::string format = c.target.get("format", "json");
   if (format != "json" && format != "csv" && format != "svg")
     return c.error(400, "query parameter format: must be json, csv or svg, got \"" + format + "\"");
-  if (format == "svg" && job->svg.empty()) return c.error(404, "no plot: it needs one or two varied fields");
+  if (format == "svg" && job->artefact("svg").empty())
+    return c.error(404, "no plot: it needs one or two varied fields");
   Reply r;
   r.type = format == "json" ? "application/json" : format == "csv" ? "text/csv; charset=utf-8" : "image/svg+xml";
-  r.body = format == "json" ? job->result.dump() : format == "csv" ? job->csv : job->svg;
+  r.body = format == "json" ? job->result.dump() : job->artefact(format);
   c.respond(std::move(r));
 }
 

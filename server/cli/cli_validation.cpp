@@ -42,12 +42,8 @@ std::optional<study::Recording> read_for(const SystemDef& def, const std::vector
   study::RecordingOptions o;
   o.time_column = a.time_column;
   o.frequency_column = a.frequency_column;
-  if (o.frequency_column.empty())
-    for (const UnitDef& u : def.units)
-      if (!units.empty() && u.id == units[0]) o.frequency_column = u.area + ".f_hz";
   o.power_columns = a.power_columns;
-  if (o.power_columns.empty())
-    for (const std::string& u : units) o.power_columns.push_back(u + ".p_mw");
+  o = study::default_columns(def, units, std::move(o));
   if (a.base_mw > 0.0 || a.base_hz > 0.0) {
     o.units = study::RecordingUnits::per_unit;
     o.base_mw = a.base_mw;

@@ -1,5 +1,7 @@
 #include "http_session.hpp"
 
+#include <algorithm>
+#include <limits>
 #include <type_traits>
 
 #include <spdlog/spdlog.h>
@@ -11,7 +13,8 @@ namespace {
 
 constexpr auto kHeaderTimeout = std::chrono::seconds(10);  // slow-loris guard per request
 constexpr std::size_t kHeaderLimit = 16 * 1024;
-// Lingering close after an early error reply: what is still read and thrown away, at most.
+// Lingering close after an early error reply: what is still read and thrown away, at most (8 MiB,
+// or the largest body limit and 1 MiB more, so a client refused just past it still gets the 413).
 constexpr auto kLingerTime = std::chrono::seconds(5);
 constexpr std::size_t kLingerBytes = 8u << 20;
 
@@ -49,13 +52,29 @@ void HttpSession::run() {
 
 void HttpSession::do_read() {
   parser_.emplace();
-  parser_->body_limit(ctx_.options.max_body_bytes);
+  // The header is read first with no body limit (Beast would check a Content-Length against it when
+  // the header ends); on_header then checks and sets the limit of the route asked for.
+  body_limit_ = ctx_.options.max_body_bytes;
+  parser_->body_limit(std::numeric_limits<std::uint64_t>::max());
   parser_->header_limit(kHeaderLimit);
   stream_.expires_after(kHeaderTimeout);
+  http::async_read_header(stream_, buffer_, *parser_,
+                          beast::bind_front_handler(&HttpSession::on_header, shared_from_this()));
+}
+
+void HttpSession::on_header(beast::error_code ec, std::size_t) {
+  if (ec) return refuse_read(ec);
+  // Only a fit carries a recording in its body; every other request keeps the small limit.
+  const auto& head = parser_->get();
+  const bool fit = head.method() == http::verb::post && parse_target(head.target()).path == "/api/v1/fits";
+  body_limit_ = fit ? ctx_.options.max_fit_body_bytes : ctx_.options.max_body_bytes;
+  if (const auto length = parser_->content_length(); length && *length > body_limit_)
+    return refuse_read(http::error::body_limit);  // decided from the header: nothing more is read
+  parser_->body_limit(body_limit_);
   http::async_read(stream_, buffer_, *parser_, beast::bind_front_handler(&HttpSession::on_read, shared_from_this()));
 }
 
-void HttpSession::on_read(beast::error_code ec, std::size_t) {
+void HttpSession::refuse_read(beast::error_code ec) {
   head_ = false;
   if (ec == http::error::end_of_stream || ec == beast::error::timeout || ec == net::error::operation_aborted ||
       ec == net::error::connection_reset) {
@@ -64,15 +83,18 @@ void HttpSession::on_read(beast::error_code ec, std::size_t) {
     return;
   }
   if (ec == http::error::body_limit) {
-    return send_then_linger(json_response(11, false, 413, error_json("request body larger than " +
-                                                         std::to_string(ctx_.options.max_body_bytes) + " bytes")));
+    return send_then_linger(
+        json_response(11, false, 413, error_json("request body larger than " + std::to_string(body_limit_) + " bytes")));
   }
   if (ec == http::error::header_limit) {
     return send_then_linger(json_response(11, false, 431, error_json("request headers larger than 16 KiB")));
   }
-  if (ec) {
-    return send_then_linger(json_response(11, false, 400, error_json("malformed HTTP request: " + ec.message())));
-  }
+  send_then_linger(json_response(11, false, 400, error_json("malformed HTTP request: " + ec.message())));
+}
+
+void HttpSession::on_read(beast::error_code ec, std::size_t) {
+  head_ = false;
+  if (ec) return refuse_read(ec);
   HttpRequest req = parser_->release();
   head_ = req.method() == http::verb::head;
   ctx_.counters.requests.fetch_add(1);
@@ -123,7 +145,8 @@ void HttpSession::do_discard() {
 
 void HttpSession::on_discard(beast::error_code ec, std::size_t bytes) {
   discarded_ += bytes;
-  if (ec || discarded_ >= kLingerBytes) return;  // end of stream, reset, timeout or enough: close
+  const std::size_t most = std::max(kLingerBytes, ctx_.options.max_fit_body_bytes + (1u << 20));
+  if (ec || discarded_ >= most) return;  // end of stream, reset, timeout or enough: close
   stream_.async_read_some(net::buffer(discard_buffer_),
                           beast::bind_front_handler(&HttpSession::on_discard, shared_from_this()));
 }

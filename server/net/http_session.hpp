@@ -20,7 +20,9 @@ class HttpSession : public std::enable_shared_from_this<HttpSession> {
 
  private:
   void do_read();
+  void on_header(beast::error_code ec, std::size_t bytes);
   void on_read(beast::error_code ec, std::size_t bytes);
+  void refuse_read(beast::error_code ec);
   /// Writes one response (string, file or empty body); one write in flight per connection.
   template <class Body>
   void send(http::response<Body> res);
@@ -44,6 +46,7 @@ class HttpSession : public std::enable_shared_from_this<HttpSession> {
   std::shared_ptr<void> slot_;
   beast::flat_buffer buffer_;
   std::optional<http::request_parser<http::string_body>> parser_;
+  std::size_t body_limit_ = 0;  // of the request being read (bytes), for the 413's message
   std::shared_ptr<void> writing_;  // the response being written (any body type)
   bool head_ = false;               // the request being answered is a HEAD
   bool linger_ = false;             // after this write: discard what the client still sends

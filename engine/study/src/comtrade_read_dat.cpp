@@ -6,8 +6,10 @@
 // 0x80000000 in BINARY32, a missing timestamp 0xFFFFFFFF in the binary forms.
 #include <algorithm>
 #include <bit>
+#include <cctype>
 #include <cmath>
 #include <filesystem>
+#include <functional>
 
 #include "droopline/format.hpp"
 #include "droopline/recording.hpp"
@@ -36,12 +38,12 @@ std::size_t record_bytes(const ComtradeConfig& cfg) {
   return 8 + cfg.analogs.size() * value_bytes(cfg.file_type) + 2 * ((cfg.digital_count + 15) / 16);
 }
 
-std::uint32_t u32_at(const std::string& d, std::size_t at) {
+std::uint32_t u32_at(std::string_view d, std::size_t at) {
   const auto* p = reinterpret_cast<const unsigned char*>(d.data() + at);
   return p[0] | (p[1] << 8) | (p[2] << 16) | (std::uint32_t{p[3]} << 24);
 }
 
-std::uint32_t u16_at(const std::string& d, std::size_t at) {
+std::uint32_t u16_at(std::string_view d, std::size_t at) {
   const auto* p = reinterpret_cast<const unsigned char*>(d.data() + at);
   return p[0] | (p[1] << 8);
 }
@@ -53,7 +55,7 @@ void resize(Samples& s, std::size_t n, std::size_t channels) {
   s.missing.assign(channels, std::vector<char>(n, 0));
 }
 
-bool read_binary(const ComtradeConfig& cfg, const std::vector<std::size_t>& chosen, const std::string& dat,
+bool read_binary(const ComtradeConfig& cfg, const std::vector<std::size_t>& chosen, std::string_view dat,
                  const std::string& name, Samples& s, std::vector<Issue>& issues) {
   const std::size_t rec = record_bytes(cfg), size = dat.size(), vb = value_bytes(cfg.file_type);
   auto fail = [&](std::size_t byte, const std::string& message) {
@@ -99,7 +101,7 @@ bool read_binary(const ComtradeConfig& cfg, const std::vector<std::size_t>& chos
   return true;
 }
 
-bool read_ascii(const ComtradeConfig& cfg, const std::vector<std::size_t>& chosen, const std::string& dat,
+bool read_ascii(const ComtradeConfig& cfg, const std::vector<std::size_t>& chosen, std::string_view dat,
                 const std::string& name, Samples& s, std::vector<Issue>& issues) {
   auto lines = detail::lines_of(dat);
   while (!lines.empty() && detail::trim(lines.back()).empty()) lines.pop_back();
@@ -190,13 +192,14 @@ std::optional<double> unit_factor(const std::string& unit, bool frequency) {
   return std::nullopt;
 }
 
-}  // namespace
-
-std::optional<Recording> read_comtrade_recording(const std::string& path, const RecordingOptions& options,
-                                                 std::vector<Issue>& issues) {
-  const auto text = detail::read_checked(path, options, issues);
-  if (!text) return std::nullopt;
-  const auto cfg = parse_comtrade_cfg(*text, path, issues);
+// The recording of a parsed .cfg's text: `dat_of` gives the data (and its name for messages) once
+// the .cfg has been read and its channels chosen, so a broken .cfg is reported before a missing .dat.
+std::optional<Recording> read_comtrade(
+    std::string_view cfg_text, const std::string& path, const RecordingOptions& options,
+    const std::function<std::optional<std::string_view>(std::string& dat_path, std::vector<Issue>&)>& dat_of,
+    std::vector<Issue>& issues) {
+  if (!detail::check_options(options, issues)) return std::nullopt;
+  const auto cfg = parse_comtrade_cfg(cfg_text, path, issues);
   if (!cfg) return std::nullopt;
 
   std::vector<std::string> wanted{options.frequency_column};
@@ -207,15 +210,8 @@ std::optional<Recording> read_comtrade_recording(const std::string& path, const 
   if (!picked) return std::nullopt;
   const std::vector<std::size_t>& chosen = *picked;
 
-  // The .dat beside the .cfg: same stem, either case of extension (recorders write both).
-  const std::string stem = path.substr(0, path.size() - 4);
-  std::string dat_path = stem + ".dat";
-  if (!std::filesystem::exists(dat_path) && std::filesystem::exists(stem + ".DAT")) dat_path = stem + ".DAT";
-  if (!std::filesystem::exists(dat_path)) {
-    issues.push_back({path, "no data file beside it (" + stem + ".dat or .DAT)", false});
-    return std::nullopt;
-  }
-  const auto dat = detail::read_file(dat_path, issues);
+  std::string dat_path;
+  const auto dat = dat_of(dat_path, issues);
   if (!dat) return std::nullopt;
   Samples s;
   const bool ok = cfg->file_type == ComtradeFileType::ascii ? read_ascii(*cfg, chosen, *dat, dat_path, s, issues)
@@ -267,6 +263,47 @@ std::optional<Recording> read_comtrade_recording(const std::string& path, const 
   }
   if (!detail::finish(rec, options, issues)) return std::nullopt;
   return rec;
+}
+
+}  // namespace
+
+std::optional<Recording> read_comtrade_recording(const std::string& path, const RecordingOptions& options,
+                                                 std::vector<Issue>& issues) {
+  const auto text = detail::read_checked(path, options, issues);
+  if (!text) return std::nullopt;
+  std::string dat_text;
+  return read_comtrade(
+      *text, path, options,
+      [&path, &dat_text](std::string& dat_path, std::vector<Issue>& out) -> std::optional<std::string_view> {
+        // The .dat beside the .cfg: same stem, either case of extension (recorders write both).
+        const std::string stem = path.substr(0, path.size() - 4);
+        dat_path = stem + ".dat";
+        if (!std::filesystem::exists(dat_path) && std::filesystem::exists(stem + ".DAT")) dat_path = stem + ".DAT";
+        if (!std::filesystem::exists(dat_path)) {
+          out.push_back({path, "no data file beside it (" + stem + ".dat or .DAT)", false});
+          return std::nullopt;
+        }
+        auto read = detail::read_file(dat_path, out);
+        if (!read) return std::nullopt;
+        dat_text = std::move(*read);
+        return std::string_view(dat_text);
+      },
+      issues);
+}
+
+std::optional<Recording> read_comtrade_recording_data(std::string_view cfg_text, std::string_view dat_bytes,
+                                                      const std::string& name, const RecordingOptions& options,
+                                                      std::vector<Issue>& issues) {
+  std::string ext = name.size() >= 4 ? name.substr(name.size() - 4) : std::string();
+  std::transform(ext.begin(), ext.end(), ext.begin(), [](unsigned char c) { return std::tolower(c); });
+  const std::string dat_name = (ext == ".cfg" ? name.substr(0, name.size() - 4) : name) + ".dat";
+  return read_comtrade(
+      cfg_text, name, options,
+      [&dat_name, dat_bytes](std::string& dat_path, std::vector<Issue>&) -> std::optional<std::string_view> {
+        dat_path = dat_name;
+        return dat_bytes;
+      },
+      issues);
 }
 
 }  // namespace droopline::study

@@ -4,6 +4,7 @@
 
 #include <Eigen/Dense>
 #include <algorithm>
+#include <atomic>
 #include <cmath>
 #include <limits>
 #include <nlopt.hpp>
@@ -68,9 +69,18 @@ std::optional<double> unit_value(const json& unit, const std::string& path) {
 
 std::string unit_path(const std::string& unit, const std::string& path) { return "units[" + unit + "]." + path; }
 
+// The runs of every fit counted against their budget, and the caller's cancel flag.
+struct Tally {
+  const FitControl* control = nullptr;
+  std::atomic<std::uint64_t> done{0};
+  std::uint64_t total = 0;
+  bool cancelled() const { return control->cancel && control->cancel->load(std::memory_order_relaxed); }
+};
+
 // Everything one fit needs while it runs; shared read-only by its local searches.
 struct Job {
   const FitSpec* spec = nullptr;
+  Tally* tally = nullptr;
   std::optional<PreparedPlayback> prep;
   std::vector<double> measured;
   std::string error;
@@ -91,6 +101,8 @@ bool with_values(const Job& job, const std::vector<double>& v, json& doc) {
 
 // Simulated output at physical values `v`, or nothing when the scenario refuses them.
 std::optional<std::vector<double>> output_at(const Job& job, const std::vector<double>& v) {
+  if (job.tally && job.tally->control->progress)
+    job.tally->control->progress(job.tally->done.fetch_add(1) + 1, job.tally->total);
   json doc;
   if (!with_values(job, v, doc)) return std::nullopt;
   std::string err;
@@ -135,6 +147,8 @@ struct SearchCtx {
 
 double objective(const std::vector<double>& x, std::vector<double>& /*grad*/, void* data) {
   auto* c = static_cast<SearchCtx*>(data);
+  // NLopt's C++ wrapper turns this into a forced stop of the search (caught in local_search).
+  if (c->job->tally->cancelled()) throw nlopt::forced_stop();
   ++c->evaluations;
   const auto out = output_at(*c->job, physical(*c->job->spec, x));
   // Values the scenario's checks refuse cannot be the answer: far worse than any real fit.
@@ -142,6 +156,7 @@ double objective(const std::vector<double>& x, std::vector<double>& /*grad*/, vo
 }
 
 void local_search(Job& job, std::size_t start, const std::vector<double>& x0) {
+  if (job.tally->cancelled()) return;
   const std::size_t p = x0.size();
   nlopt::opt opt(nlopt::LN_BOBYQA, static_cast<unsigned>(p));
   opt.set_lower_bounds(std::vector<double>(p, 0.0));
@@ -315,16 +330,24 @@ bool check_fit(const FitSpec& spec, std::string& error) {
   return problems.empty();
 }
 
+std::uint64_t fit_budget(const FitSpec& spec) {
+  return std::uint64_t{spec.starts} * spec.max_evaluations + 2 + 2 * spec.params.size();
+}
+
 std::vector<std::optional<FitResult>> run_fits(const std::vector<FitSpec>& specs, unsigned threads,
-                                               std::vector<std::string>& errors) {
+                                               std::vector<std::string>& errors, const FitControl& control) {
   std::vector<Job> jobs(specs.size());
+  Tally tally;
+  tally.control = &control;
   errors.assign(specs.size(), std::string());
   std::vector<std::pair<std::size_t, std::size_t>> searches;  // (job, start)
   std::vector<std::vector<std::vector<double>>> starts(specs.size());
   for (std::size_t j = 0; j < specs.size(); ++j) {
     Job& job = jobs[j];
     job.spec = &specs[j];
+    job.tally = &tally;
     if (!check_fit(specs[j], job.error)) continue;
+    tally.total += fit_budget(specs[j]);
     job.prep = prepare_playback(specs[j].playback, job.error);
     for (std::size_t i : job.prep->rows) job.measured.push_back(specs[j].playback.recording.power_mw[0].second[i]);
     starts[j] = latin_hypercube(specs[j].starts, specs[j].params.size(), specs[j].seed);
@@ -355,7 +378,7 @@ std::vector<std::optional<FitResult>> run_fits(const std::vector<FitSpec>& specs
       },
       &ctx);
   for (std::size_t j = 0; j < jobs.size(); ++j)
-    if (jobs[j].prep) ctx.ready.push_back(j);
+    if (jobs[j].prep && !tally.cancelled()) ctx.ready.push_back(j);
   pool.run(
       pool.concurrency(),
       [](void* c, std::size_t task, std::size_t tasks) {
@@ -364,7 +387,14 @@ std::vector<std::optional<FitResult>> run_fits(const std::vector<FitSpec>& specs
           (*x->results)[x->ready[i]] = finish((*x->jobs)[x->ready[i]]);
       },
       &ctx);
-  for (std::size_t j = 0; j < jobs.size(); ++j) errors[j] = jobs[j].error;
+  for (std::size_t j = 0; j < jobs.size(); ++j) {
+    errors[j] = jobs[j].error;
+    // A search stopped half-way is no answer: nothing of a cancelled run is returned.
+    if (tally.cancelled() && jobs[j].prep) {
+      results[j].reset();
+      errors[j] = "cancelled";
+    }
+  }
   return results;
 }
 

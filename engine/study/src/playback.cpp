@@ -18,6 +18,16 @@ namespace {
 constexpr std::size_t kEnoOrder = 3;
 }  // namespace
 
+RecordingOptions default_columns(const SystemDef& def, const std::vector<std::string>& unit_ids,
+                                 RecordingOptions options) {
+  if (options.frequency_column.empty())
+    for (const UnitDef& u : def.units)
+      if (!unit_ids.empty() && u.id == unit_ids[0]) options.frequency_column = u.area + ".f_hz";
+  if (options.power_columns.empty())
+    for (const std::string& u : unit_ids) options.power_columns.push_back(u + ".p_mw");
+  return options;
+}
+
 FrequencyTrack::FrequencyTrack(std::vector<double> t_s, std::vector<double> f_hz)
     : t_(std::move(t_s)), f_(std::move(f_hz)) {
   const std::size_t n = t_.size();

@@ -55,15 +55,21 @@ std::optional<Recording> read_csv_recording(const std::string& path, const Recor
                                             std::vector<Issue>& issues) {
   const auto text = detail::read_checked(path, options, issues);
   if (!text) return std::nullopt;
-  const std::vector<std::string_view> lines = detail::lines_of(*text);
+  return read_csv_recording_text(*text, path, options, issues);
+}
+
+std::optional<Recording> read_csv_recording_text(std::string_view text, const std::string& name,
+                                                 const RecordingOptions& options, std::vector<Issue>& issues) {
+  if (!detail::check_options(options, issues)) return std::nullopt;  // again for callers from memory
+  const std::vector<std::string_view> lines = detail::lines_of(text);
   if (lines.empty() || detail::trim(lines[0]).empty()) {
-    issues.push_back({path + " line 1", "empty: a header row naming the columns is expected", false});
+    issues.push_back({name + " line 1", "empty: a header row naming the columns is expected", false});
     return std::nullopt;
   }
   const char sep = separator_of(lines[0]);
   std::vector<std::string> header;
   if (!split_line(lines[0], sep, header)) {
-    issues.push_back({path + " line 1", "a quote is left open", false});
+    issues.push_back({name + " line 1", "a quote is left open", false});
     return std::nullopt;
   }
   for (std::string& h : header) h = std::string(detail::trim(h));
@@ -71,7 +77,7 @@ std::optional<Recording> read_csv_recording(const std::string& path, const Recor
   // Wanted columns: time, frequency, then each power series.
   std::vector<std::string> wanted{options.time_column, options.frequency_column};
   wanted.insert(wanted.end(), options.power_columns.begin(), options.power_columns.end());
-  const auto chosen = detail::choose(header, wanted, path + " line 1", "column", issues);
+  const auto chosen = detail::choose(header, wanted, name + " line 1", "column", issues);
   if (!chosen) return std::nullopt;
   const std::vector<std::size_t>& index = *chosen;
 
@@ -80,12 +86,12 @@ std::optional<Recording> read_csv_recording(const std::string& path, const Recor
   while (last > 1 && detail::trim(lines[last - 1]).empty()) --last;
 
   Recording rec;
-  rec.source = path;
+  rec.source = name;
   std::vector<std::vector<double>> cols(wanted.size());
   std::vector<std::string> fields;
   const std::size_t before = issues.size();
   for (std::size_t li = 1; li < last && issues.size() - before < 20; ++li) {
-    const std::string where = path + " line " + std::to_string(li + 1);
+    const std::string where = name + " line " + std::to_string(li + 1);
     if (detail::trim(lines[li]).empty()) {
       issues.push_back({where, "blank line inside the data", false});
       continue;
@@ -116,7 +122,7 @@ std::optional<Recording> read_csv_recording(const std::string& path, const Recor
   }
   if (issues.size() > before) return std::nullopt;
   if (cols[0].size() < 2) {
-    issues.push_back({path, "needs at least two samples, has " + std::to_string(cols[0].size()), false});
+    issues.push_back({name, "needs at least two samples, has " + std::to_string(cols[0].size()), false});
     return std::nullopt;
   }
   rec.t_s = std::move(cols[0]);

@@ -4,7 +4,9 @@
 /// measured one. Bounded derivative-free local searches (NLopt's BOBYQA on parameters scaled to
 /// [0, 1]) from a seeded Latin hypercube of starting points; uncertainty from the sensitivity at
 /// the optimum. A fitted model is a study result, not a plant setting.
+#include <atomic>
 #include <cstdint>
+#include <functional>
 #include <nlohmann/json.hpp>
 #include <optional>
 #include <string>
@@ -53,10 +55,23 @@ struct FitResult {
 /// Every problem as one line of `error`.
 bool check_fit(const FitSpec& spec, std::string& error);
 
+/// Progress and cancellation of `run_fits`, both optional (the service's fit jobs use them).
+struct FitControl {
+  /// Called from the search threads after each model run with the runs done so far and the sum of
+  /// the fits' `fit_budget`s (searches that converge early leave the count short of it).
+  std::function<void(std::uint64_t done, std::uint64_t total)> progress;
+  /// Checked before every model run of the searches; once it is true they stop, and every fit comes
+  /// back as nullopt with the error "cancelled".
+  const std::atomic<bool>* cancel = nullptr;
+};
+
+/// The model runs a fit may take: starts x max_evaluations and its 2 + 2 x params final runs.
+std::uint64_t fit_budget(const FitSpec& spec);
+
 /// Runs several fits, their local searches spread over `threads` (0: one per core). A fit that
 /// cannot run comes back as nullopt with its reason in `errors` (same index).
 std::vector<std::optional<FitResult>> run_fits(const std::vector<FitSpec>& specs, unsigned threads,
-                                               std::vector<std::string>& errors);
+                                               std::vector<std::string>& errors, const FitControl& control = {});
 
 /// The result as JSON: `{"unit", "params": {PATH: value}, "uncertainty": {PATH: sigma}, "initial",
 /// "rmse_before", "rmse_after", "r2_before", "r2_after", "correlation", "warnings", ...}`.

@@ -44,6 +44,11 @@ class FrequencyTrack {
   std::vector<Piece> pieces_;  // one per interval between samples
 };
 
+/// `options` with droopline's own names where none are given: the frequency of the first unit's area
+/// (`AREA.f_hz`) and each unit's output (`UNIT.p_mw`); the command line and the service read alike.
+RecordingOptions default_columns(const SystemDef& def, const std::vector<std::string>& unit_ids,
+                                 RecordingOptions options);
+
 /// The scenario reduced to what a playback needs: the units `unit_ids` (checked to exist), their
 /// areas with their demand set to the units' setpoints, no ties, other units, events, shedding or
 /// secondary control, `duration_s` long. Defaults are made explicit (every field a path may name is

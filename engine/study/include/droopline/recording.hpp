@@ -46,9 +46,20 @@ std::optional<Recording> read_recording(const std::string& path, const Recording
 std::optional<Recording> read_csv_recording(const std::string& path, const RecordingOptions& options,
                                             std::vector<Issue>& issues);
 
+/// A CSV recording from its text (received over the network, say); messages name `name` as the file
+/// (`name line N column "x": ...`). The file reader above reads the file and calls this.
+std::optional<Recording> read_csv_recording_text(std::string_view text, const std::string& name,
+                                                 const RecordingOptions& options, std::vector<Issue>& issues);
+
 /// A COMTRADE record: the .cfg at `path` and the .dat beside it (same stem, .dat or .DAT).
 std::optional<Recording> read_comtrade_recording(const std::string& path, const RecordingOptions& options,
                                                  std::vector<Issue>& issues);
+
+/// A COMTRADE record from the .cfg's text and the .dat's bytes (ASCII text or binary records);
+/// messages name `name` as the .cfg and its stem + ".dat" as the data file (`X.dat byte N: ...`).
+std::optional<Recording> read_comtrade_recording_data(std::string_view cfg_text, std::string_view dat_bytes,
+                                                      const std::string& name, const RecordingOptions& options,
+                                                      std::vector<Issue>& issues);
 
 /// The data file types of a COMTRADE record.
 enum class ComtradeFileType { ascii, binary, binary32, float32 };
