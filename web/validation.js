@@ -313,6 +313,9 @@ async function showResult(job, r) {
   }
 }
 
+// The plot's size: its card's width, a share of the window's height.
+const fitChartSize = () => ({ width: Math.max(300, $('fit-chart').clientWidth), height: Math.max(220, Math.round(window.innerHeight * 0.32)) });
+
 // The measured, initial and fitted output against time, from the result's series.
 function drawFit(r) {
   const s = r.series;
@@ -320,14 +323,15 @@ function drawFit(r) {
   const box = $('fit-chart');
   const value = (u, v) => (v == null ? '-' : v.toFixed(2));
   fit.chart = new uPlot({
-    width: Math.max(300, box.clientWidth), height: Math.max(220, Math.round(window.innerHeight * 0.32)),
+    ...fitChartSize(),
     scales: { x: { time: false } },
     axes: [{ label: 'time, s' }, { label: 'output, MW' }],
     cursor: { drag: { x: true, y: false } },
     series: [{ label: 't s' },
-      { label: 'measured', stroke: '#222', width: 1.5, value },
+      // The measured line wide and pale under the others: a close fit still shows both.
+      { label: 'measured', stroke: '#9aa5b1', width: 4, value },
       { label: 'initial (scenario values)', stroke: '#aa3a28', width: 1.5, dash: [6, 4], value },
-      { label: 'fitted', stroke: '#1d5f8a', width: 2, value }],
+      { label: 'fitted', stroke: '#0b3d91', width: 1.5, value }],
   }, [s.t_s, s.measured_mw, s.initial_mw, s.fitted_mw], box);
   app.fitChart = fit.chart; // for the browser tests
 }
@@ -431,6 +435,6 @@ export function wireValidation() {
   $('do-fit-cancel').addEventListener('click', cancelFit);
   $('do-inject').addEventListener('click', runInjection);
   window.addEventListener('resize', () => {
-    if (fit.chart) fit.chart.setSize({ width: Math.max(300, $('fit-chart').clientWidth), height: fit.chart.height });
+    if (fit.chart) fit.chart.setSize(fitChartSize());
   });
 }

@@ -286,18 +286,18 @@ test('bad bounds and a bad file refused in words; a BINARY record cancelled; fit
   for (const vp of VIEWPORTS) {
     await page.setViewportSize(vp);
     await page.waitForTimeout(300);
+    await page.locator('#validation-study').screenshot({ path: join(SHOTS, `validation-${size(vp)}.png`) });
     const facts = await page.$eval('#validation-study', (card) => {
       const right = card.getBoundingClientRect().right;
       return {
         scroll: card.scrollWidth - card.clientWidth,
         page: document.documentElement.scrollWidth - document.documentElement.clientWidth,
         wide: [...card.querySelectorAll('*')].filter((e) => e.getClientRects().length && e.getBoundingClientRect().right > right + 0.5)
-          .map((e) => `${e.tagName}#${e.id}.${e.className}`),
+          .map((e) => `${e.tagName}#${e.id}.${e.className} ${Math.round(e.getBoundingClientRect().right - right)} px`),
       };
     });
     assert.deepEqual(facts, { scroll: 0, page: 0, wide: [] }, size(vp));
     for (const t of ['#fit-table', '#fit-quality', '#fit-correlation', '#inject-table']) assert.deepEqual((await readTable(page, t)).problems, [], `${t} at ${size(vp)}`);
-    await page.locator('#validation-study').screenshot({ path: join(SHOTS, `validation-${size(vp)}.png`) });
   }
   assert.deepEqual(errors.filter((e) => !refused.includes(e)), []);
   await page.close();
