@@ -198,6 +198,12 @@ test('bad bounds and a bad file refused in words; a BINARY record cancelled; fit
   assert.deepEqual(await page.locator('#fit-params .field-error:visible').allTextContents(), ['must be above low']);
   assert.equal(sent.length, 0);
   await setParams(page, FIT);
+  // So is one per-unit base without the other.
+  await page.fill('#fit-base-mw', '400');
+  await page.click('#do-fit');
+  assert.equal(await page.textContent('#fit-base-hz-error'), 'give both bases, or neither');
+  assert.equal(sent.length, 0);
+  await page.fill('#fit-base-mw', '');
 
   // A CSV without the frequency column: the page offers no such column and the server names it.
   const lines = readFileSync(CSV, 'utf8').trim().split('\n');
@@ -217,6 +223,7 @@ test('bad bounds and a bad file refused in words; a BINARY record cancelled; fit
   assert.deepEqual(shown, expected, 'the server\'s message and every detail, one a line');
   assert.ok(shown.join(' ').includes('quarnholt.f_hz'), `the message names the column: ${shown.join(' | ')}`);
   assert.ok(!/object Object|Error:|at \S+:\d+/.test(shown.join(' ')));
+  await page.locator('.validation-steps').screenshot({ path: join(SHOTS, `validation-refused-${size(VIEWPORTS[0])}.png`) });
   const refused = errors.filter((e) => /status of 400/.test(e)); // the browser logs the refused request
   assert.equal(refused.length, 1, errors.join('\n'));
   assert.deepEqual(errors.filter((e) => !refused.includes(e)), []);
@@ -319,3 +326,23 @@ async function fitAndCompareWithDownloads(page, name, params) {
   assert.equal(svg.text, (await call(`/api/v1/fits/${id}/result?format=svg`)).text);
   return { r };
 }
+
+test('a viewer pressing Fit or Run tests is told they are the instructor\'s, in words', { timeout: 60000 }, async () => {
+  const page = await browser.newPage({ viewport: VIEWPORTS[0] });
+  const errors = collectErrors(page);
+  await page.goto(`http://127.0.0.1:${port}/`);
+  await page.waitForFunction(() => window.droopline?.connected && document.querySelectorAll('#fit-unit option').length === 2, null, { timeout: 10000 });
+  await page.setInputFiles('#fit-file', CSV);
+  await page.waitForSelector('#fit-columns:not([hidden])');
+  await page.click('#do-fit');
+  await page.locator('[data-error-for="fit"]', { hasText: 'for the instructor' }).waitFor({ timeout: 10000 });
+  await page.setInputFiles('#inject-file', PROFILE);
+  await page.click('#do-inject');
+  await page.locator('[data-error-for="inject"]', { hasText: 'for the instructor' }).waitFor({ timeout: 10000 });
+  assert.equal(await page.isVisible('#fit-result'), false);
+  assert.equal(await page.isVisible('#inject-table'), false);
+  const refused = errors.filter((e) => /status of 401/.test(e)); // the browser logs each refused request
+  assert.equal(refused.length, 2, errors.join('\n'));
+  assert.deepEqual(errors.filter((e) => !refused.includes(e)), []);
+  await page.close();
+});
