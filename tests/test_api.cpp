@@ -10,6 +10,7 @@
 #include <string>
 
 #include "api.hpp"
+#include "fit_request.hpp"
 
 using namespace droopline::server;
 using json = nlohmann::json;
@@ -180,4 +181,76 @@ TEST_CASE("the dispatch: a seat's code proves role seat; a seat on an instructor
   CHECK(seats.status == 200);
   CHECK(json::parse(seats.body)["seats"][0]["join_code"] == code);
   CHECK(json::parse(seats.body)["seats"][0]["joined"] == true);
+}
+
+// Base64 as RFC 4648 gives it: its section 10 test vectors (quoted from memory of the RFC).
+TEST_CASE("base64 of posted binary records: RFC 4648 vectors and bad input with its offset", "[api]") {
+  const std::vector<std::pair<std::string, std::string>> vectors{{"", ""},           {"Zg==", "f"},
+                                                                 {"Zm8=", "fo"},     {"Zm9v", "foo"},
+                                                                 {"Zm9vYg==", "foob"}, {"Zm9vYmE=", "fooba"},
+                                                                 {"Zm9vYmFy", "foobar"}};
+  for (const auto& v : vectors) {
+    std::string err;
+    const auto out = decode_base64(v.first, err);
+    INFO(v.first << ": " << err);
+    REQUIRE(out);
+    CHECK(*out == v.second);
+  }
+  std::string err;
+  CHECK(decode_base64("Zm9v\r\nYmFy", err) == std::optional<std::string>("foobar"));  // wrapped lines
+  CHECK_FALSE(decode_base64("Zm9v YmFy", err));
+  CHECK(err == "character \" \" at offset 4 is not base64");
+  CHECK_FALSE(decode_base64("Zg==Zg==", err));
+  CHECK(err == "character \"Z\" at offset 4 follows the padding");
+  CHECK_FALSE(decode_base64("Zm9vY", err));
+  CHECK(err.find("not a multiple of 4") != std::string::npos);
+  CHECK_FALSE(decode_base64("Z===", err));
+  CHECK(err == "character \"=\" at offset 1 is not base64");
+}
+
+// Each bad fit body is refused with its field named, before any scenario or job is involved.
+TEST_CASE("fit bodies: every problem names its field", "[api]") {
+  const json ok = {{"unit", "QH1"},
+                   {"params", {"governor.droop=0.02:0.1"}},
+                   {"recording", {{"format", "csv"}, {"text", "t_s,f\n0,50\n"}}}};
+  auto problems_of = [](const json& body) {
+    std::vector<std::string> problems;
+    const auto req = read_fit_request(body.dump(), problems);
+    CHECK(req.has_value() == problems.empty());
+    std::string all;
+    for (const auto& p : problems) all += p + "\n";
+    return all;
+  };
+  CHECK(problems_of(ok).empty());
+  const std::vector<std::pair<json, std::string>> table{
+      {{{"/params", json::array({"governor.droop=0.1:0.02"})}}, "params[0]: governor.droop: LO (0.1) must be below HI (0.02)"},
+      {{{"/params", json::array({"a=1:2", "b=nan:1"})}}, "params[1]: \"b=nan:1\": LO and HI must be numbers"},
+      {{{"/params", json::array({"a=1:2", "a=1:3"})}}, "params[1]: \"a\" is given twice"},
+      {{{"/params", json(std::vector<std::string>(9, "a=1:2"))}}, "params: required, a list of 1 to 8 \"PATH=LO:HI\", got 9"},
+      {{{"/starts", 1000000}}, "starts: must be a whole number from 1 to 32"},
+      {{{"/starts", 0}}, "starts: must be a whole number from 1 to 32"},
+      {{{"/seed", -1}}, "seed: must be a whole number >= 0"},
+      {{{"/threshold_hz", 0}}, "threshold_hz: must be a number above 0"},
+      {{{"/unit", 5}}, "unit: required"},
+      {{{"/scenario", "x"}}, "scenario: must be an object"},
+      {{{"/extra", 1}}, "\"extra\": unknown field"},
+      {{{"/recording", json{{"format", "xml"}}}}, "recording.format: must be \"csv\" or \"comtrade\""},
+      {{{"/recording/base_mw", 100}}, "recording.base_hz: per-unit recordings need both base_mw and base_hz"},
+      {{{"/recording/base_hz", 1e9}, {"/recording/base_mw", 1}}, "recording.base_hz: must be a number from 10 to 1000"},
+      {{{"/recording", json{{"format", "comtrade"}, {"cfg", "x"}, {"dat_base64", "QUJD$"}}}},
+       "recording.dat_base64: character \"$\" at offset 4 is not base64"},
+      {{{"/recording", json{{"format", "comtrade"}, {"cfg", "x"}, {"dat", "1"}, {"dat_base64", "QUJD"}}}},
+       "recording.dat: give exactly one of"},
+      {{{"/recording", json{{"format", "comtrade"}, {"cfg", "x"}, {"dat", "1"}}}, {"/name", "record.txt"}},
+       "name: a COMTRADE record's name ends in .cfg"},
+  };
+  for (const auto& row : table) {
+    json body = ok;
+    for (auto it = row.first.begin(); it != row.first.end(); ++it) body[json::json_pointer(it.key())] = it.value();
+    INFO(body.dump());
+    CHECK_THAT(problems_of(body), Catch::Contains(row.second));
+  }
+  std::vector<std::string> problems;
+  CHECK_FALSE(read_fit_request("[1]", problems));
+  CHECK_THAT(problems.at(0), Catch::Contains("body: must be a JSON object"));
 }

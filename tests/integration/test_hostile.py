@@ -201,6 +201,8 @@ class BoundedJsonTests(DemoServerCase):
             ("POST", "/api/v1/replays"): deep,
             ("POST", "/api/v1/assess"): deep_obj,
             ("POST", "/api/v1/modes"): deep,
+            ("POST", "/api/v1/fits"): '{"unit": "G1", "recording": ' + deep + "}",
+            ("POST", "/api/v1/injections"): '{"unit": "G1", "profile": ' + deep + "}",
         }
         for (method, path), body in bodies.items():
             with self.subTest(path=path):
@@ -287,6 +289,16 @@ BAD_STUDY = [
     ("POST", "/api/v1/sweeps", {"vary": ["units[0].governor.droop=0:0.999:0.000001", "units[1].governor.droop=0:0.999:0.000001"]},
      400, "members, at most 100000 over HTTP"),
     ("POST", "/api/v1/sweeps", {"vary": ["units[0].governor.droop=0.04,1e300"]}, 400, "must lie within [0.001, 1], got 1e+300"),
+    ("POST", "/api/v1/fits", {"unit": "G1", "params": ["governor.droop=0.02:0.1"], "starts": 10 ** 12,
+                              "recording": {"format": "csv", "text": "t_s"}}, 400, "starts: must be a whole number from 1 to 32"),
+    ("POST", "/api/v1/fits", {"unit": "G1", "params": ["governor.droop=1e999:2"],
+                              "recording": {"format": "csv", "text": "t_s"}}, 400, "params[0]:"),
+    ("POST", "/api/v1/fits", {"unit": "G1", "params": ["governor.droop=0.02:0.1"],
+                              "recording": {"format": "comtrade", "cfg": "x", "dat_base64": "@@@@"}}, 400,
+     "recording.dat_base64: character"),
+    ("POST", "/api/v1/fits", [], 400, "body: must be a JSON object"),
+    ("POST", "/api/v1/injections", {"unit": "G1", "profile": {"tests": 5}}, 400, "profile.tests"),
+    ("POST", "/api/v1/injections", {"unit": ["G1"], "profile": {}}, 400, "unit: required"),
     ("POST", "/api/v1/modes", {"name": 5}, 400, "name: must be a string"),
     ("POST", "/api/v1/modes", [1, 2], 400, "must be an object"),
     ("GET", "/api/v1/modes?damping_threshold=x", None, 400, "damping_threshold: must be a decimal number"),
