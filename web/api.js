@@ -4,11 +4,17 @@
 import { app, errorOutput } from '/state.js';
 
 export class ApiError extends Error {
-  constructor(message, status) {
+  constructor(message, status, headline = message, lines = []) {
     super(message);
     this.status = status; // the HTTP status; 0 when the server did not answer
+    this.headline = headline; // the server's `error` alone
+    this.lines = lines; // the server's `issues` (or `details`), one problem each
   }
 }
+
+// The server's list of problems: `issues` on most routes, `details` on some; text only.
+const problemLines = (answer) => (Array.isArray(answer.issues) ? answer.issues : Array.isArray(answer.details) ? answer.details : [])
+  .map((x) => (typeof x === 'string' ? x : JSON.stringify(x)));
 
 /**
  * Calls `path` and resolves to the parsed JSON answer; throws an ApiError on failure.
@@ -27,10 +33,11 @@ export async function api(path, { method = 'GET', body, token } = {}) {
   } catch (e) {
     throw new ApiError(`the server did not answer (${e.message})`, 0);
   }
-  const answer = await res.json().catch(() => ({}));
+  const answer = await res.json().then((a) => (a && typeof a === 'object' ? a : {}), () => ({}));
   if (!res.ok) {
-    const issues = answer.issues?.length ? `: ${answer.issues.join('; ')}` : '';
-    throw new ApiError(`${answer.error || `HTTP ${res.status}`}${issues}`, res.status);
+    const headline = typeof answer.error === 'string' && answer.error ? answer.error : `HTTP ${res.status}`;
+    const lines = problemLines(answer);
+    throw new ApiError(`${headline}${lines.length ? `: ${lines.join('; ')}` : ''}`, res.status, headline, lines);
   }
   return answer;
 }

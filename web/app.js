@@ -16,6 +16,8 @@
 //   seat.js        the seat view: join code, briefing, the seat's areas and units with their controls
 //   desk.js        the instructor view's panels: seats, script, save points and rewind, feed, alarms
 //   studies.js     modes, requirement checks, sweeps, COMTRADE records
+//   validation.js  model validation: a unit's model fitted to a recording, injection tests
+//   recording.js   a recording picked in the browser: CSV columns, COMTRADE channels, base64
 //   records.js     the records view: past runs with filters, debriefs, notes, progress, CSV export
 //   views.js       droop and power-angle canvases
 import { app, $, fmt } from '/state.js';
@@ -24,6 +26,7 @@ import { buildCharts, loadHistory, addFrame, redrawCharts, resizeCharts } from '
 import { renderStatic, renderLive, renderClock, renderDisturbance, logEvent, clearRun } from '/live.js';
 import { wireControls, fillChoices, unlockWith } from '/controls.js';
 import { wireStudies, clearSweepNote } from '/studies.js';
+import { wireValidation, validationScenario } from '/validation.js';
 import { takeAlarms, alarmMessage, fetchAlarms } from '/alarms.js';
 import { loadExercise } from '/exercise.js';
 import { showEnded } from '/objectives.js';
@@ -75,6 +78,7 @@ async function onHello(msg) {
   buildCharts();
   renderStatic();
   fillChoices(app.scenario);
+  validationScenario(app.scenario);
   loadHistory(msg.history);
   takeAlarms(msg.alarms ?? [], { replace: true });
   // The server keeps its event list across resets: only this run's events, from the last reset or
@@ -109,6 +113,7 @@ function unlocked() {
 }
 wireControls({ onUnlock: unlocked });
 wireStudies();
+wireValidation();
 if (view === 'seat') wireSeat();
 // The instructor and records views sign in again with a token kept from before (a reload, or the
 // other view in the same tab).

@@ -17,10 +17,13 @@ export function numberProblem(input) {
   const v = Number(input.value);
   if (!Number.isFinite(v)) return 'not a number';
   if (input.min !== '' && v < Number(input.min)) return `at least ${input.min}`;
+  if (input.max !== '' && v > Number(input.max)) return `at most ${input.max}`;
+  if (input.step === '1' && !Number.isInteger(v)) return 'a whole number';
   return '';
 }
 
-function showFieldProblem(input, problem) {
+/** Shows `problem` beside `input` (below it, inside its label); '' clears it. */
+export function showFieldProblem(input, problem) {
   let note = input.parentElement.querySelector('.field-error');
   if (!note && problem) {
     note = Object.assign(document.createElement('span'), { className: 'field-error', id: `${input.id}-error` });

@@ -215,13 +215,15 @@ for (const vp of VIEWPORTS) {
     const { page, errors } = await openPage(vp);
     await unlock(page);
     const sent = [];
-    page.on('request', (r) => { if (/\/api\/v1\/(commands|record)/.test(r.url())) sent.push(r.url()); });
+    page.on('request', (r) => { if (/\/api\/v1\/(commands|record|fits)/.test(r.url())) sent.push(r.url()); });
     // Every number field of the page, with the button that would send it; '' (blank) or '-' (typed, not a number).
     const cases = [
       ['step-mw', '#do-step', ''], ['ramp-mw', '#do-ramp', ''], ['ramp-s', '#do-ramp', '-'],
       ['set-mw', '#do-setpoint', ''], ['set-ramp', '#do-setpoint', '-'], ['gov-droop', '#do-governor', ''],
       ['gov-db', '#do-governor', '-'], ['start-mw', '#do-start', ''], ['rec-from', '#rec-cfg', ''], ['rec-to', '#rec-dat', '-'],
       ['sched-mw', '#do-schedule', ''], ['sched-s', '#do-schedule', '-'], ['shed-mw', '#do-shed', ''],
+      ['fit-base-mw', '#do-fit', '-'], ['fit-base-hz', '#do-fit', '-'], ['fit-starts', '#do-fit', ''], ['fit-seed', '#do-fit', '-'],
+      ['fit-lo-1', '#do-fit', ''], ['fit-hi-1', '#do-fit', '-'],
     ];
     const all = await page.$$eval('input[type=number]', (xs) => xs.map((x) => x.id).sort());
     assert.deepEqual([...new Set(cases.map((c) => c[0]))].sort(), all, 'every number field is covered');
