@@ -15,6 +15,7 @@ const POLL_MS = 500;
 const MAX_PARAMS = 8; // the server's limit on one fit
 const fit = { picked: null, job: null, generation: 0, sent: null, chart: null, urls: [], rows: 0 };
 let injectUrls = [];
+let loadedScenario = null; // the scenario of the last hello: the base the fitted values are tried in
 
 // ------------------------------------------------------------------ parameters of a unit
 
@@ -298,6 +299,11 @@ async function showResult(job, r) {
     ? warnings.map((w) => el('li', { textContent: `Warning: ${w}` }))
     : [el('li', { className: 'empty', textContent: 'No warnings: no value on its bound, no two parameters this recording cannot tell apart.' })]));
   $('fit-result').hidden = false;
+  // The injection tests may now run on the fitted values of this unit.
+  fit.fitted = r.fragment ? { unit: r.unit, fragment: r.fragment } : null;
+  const fitted = $('inject-model').options[1];
+  fitted.disabled = !fit.fitted;
+  fitted.textContent = fit.fitted ? `the fitted values of ${r.unit}` : 'the fitted values (fit first)';
   drawFit(r);
   const base = `/api/v1/fits/${encodeURIComponent(job.id)}/result?format=`;
   const links = [['fit-fragment', 'fragment', 'application/json', `fit_${r.unit}.fragment.json`], ['fit-svg', 'svg', 'image/svg+xml', `fit_${r.unit}.svg`]];
@@ -378,10 +384,29 @@ async function runInjection() {
     out.textContent = `${file.name} is not JSON: ${e.message}`;
     return;
   }
+  const body = { unit: $('inject-unit').value, profile };
+  const onFitted = $('inject-model').value === 'fitted';
+  if (onFitted) {
+    if (!fit.fitted || !loadedScenario) {
+      out.textContent = 'Fit a unit first: the fitted values come from the fit above.';
+      return;
+    }
+    // The loaded scenario with the fitted unit's governor, turbine and ramp limit; its setpoint and
+    // the rest of the scenario stay as they are.
+    body.unit = fit.fitted.unit;
+    $('inject-unit').value = fit.fitted.unit;
+    body.scenario = structuredClone(loadedScenario);
+    const unit = body.scenario.units.find((u) => u.id === fit.fitted.unit);
+    if (!unit) {
+      out.textContent = `Unit ${fit.fitted.unit} is not in the loaded scenario any more: fit again.`;
+      return;
+    }
+    for (const key of ['governor', 'turbine', 'ramp_mw_per_s']) if (key in fit.fitted.fragment) unit[key] = fit.fitted.fragment[key];
+  }
   $('inject-verdict').textContent = 'running the tests...';
   let r;
   try {
-    r = await api('/api/v1/injections', { method: 'POST', body: { unit: $('inject-unit').value, profile } });
+    r = await api('/api/v1/injections', { method: 'POST', body });
   } catch (e) {
     $('inject-verdict').textContent = '';
     showProblem(out, e);
@@ -389,7 +414,7 @@ async function runInjection() {
   }
   fillTable($('inject-table'), INJECT_COLUMNS, r.tests, { rowClass: (t) => (t.passed ? '' : 'fail') });
   const passed = r.tests.filter((t) => t.passed).length;
-  $('inject-verdict').textContent = `Unit ${r.unit}: ${passed} of ${r.tests.length} tests passed. ${r.passed ? 'All requirements met.' : 'Requirements NOT met.'}`;
+  $('inject-verdict').textContent = `Unit ${r.unit} (${onFitted ? 'fitted values' : 'scenario values'}): ${passed} of ${r.tests.length} tests passed. ${r.passed ? 'All requirements met.' : 'Requirements NOT met.'}`;
   $('inject-note').textContent = r.note ? `About the profile: ${r.note}` : '';
   $('inject-plots').replaceChildren(...(r.plots ?? []).map((svg, i) => {
     const url = URL.createObjectURL(new Blob([svg], { type: 'image/svg+xml' }));
@@ -404,6 +429,7 @@ async function runInjection() {
 
 /** The unit choices of a newly loaded scenario (a choice that still exists stays, with its rows). */
 export function validationScenario(sc) {
+  loadedScenario = sc;
   const ids = sc.units.map((u) => u.id);
   for (const id of ['fit-unit', 'inject-unit']) {
     const keep = $(id).value;

@@ -288,6 +288,29 @@ test('bad bounds and a bad file refused in words; a BINARY record cancelled; fit
   assert.equal(plots.length, injected.json.plots.length);
   for (const p of plots) assert.ok(p.src.startsWith('blob:') && p.w > 0, 'each plot loads from a Blob URL');
 
+  // The same tests on the fitted values: the page posts the loaded scenario with the fitted
+  // governor and turbine, and its table is the server's answer to that body.
+  await page.selectOption('#inject-model', 'fitted');
+  const [request] = await Promise.all([
+    page.waitForRequest((q) => q.url().endsWith('/api/v1/injections') && q.method() === 'POST'),
+    page.click('#do-inject'),
+  ]);
+  const onFitted = request.postDataJSON();
+  const fittedUnit = onFitted.scenario.units.find((u) => u.id === 'QH1');
+  assert.equal(fittedUnit.governor.droop, csvRun.r.params['governor.droop'], 'the fitted droop is the one tested');
+  assert.equal(fittedUnit.turbine.reheat_s, csvRun.r.params['turbine.reheat_s'], 'the fitted reheat time is the one tested');
+  await page.waitForFunction(() => document.querySelector('#inject-verdict').textContent.includes('fitted values'), null, { timeout: 60000 });
+  const again = await call('/api/v1/injections', { method: 'POST', body: onFitted });
+  assert.equal(again.status, 200, again.text);
+  const fittedTable = await readTable(page, '#inject-table');
+  assert.equal(fittedTable.rows.length, again.json.tests.length);
+  fittedTable.rows.forEach((row, i) => {
+    const t = again.json.tests[i];
+    assert.equal(row.result, t.passed ? 'pass' : 'FAIL', t.name);
+    if (t.delay_s == null) assert.equal(row['measured delay s'], 'not reached');
+    else assert.ok(Math.abs(Number(row['measured delay s']) - t.delay_s) <= 0.005 + 1e-9);
+  });
+
   // The panel with its results at the laptop's and the projector's size: nothing cut or wider
   // than its card, every figure under its head.
   for (const vp of VIEWPORTS) {

@@ -34,9 +34,9 @@ std::string ramp(double f) {
 constexpr double W = 720, H = 460, L = 90, R = 30, T = 50, B = 70;
 
 std::string frame(const std::string& title, const std::string& xlabel, const std::string& ylabel,
-                  double extra_right = 0) {
+                  double extra_right = 0, double extra_below = 0) {
   std::string s = "<svg xmlns=\"http://www.w3.org/2000/svg\" width=\"" + num(W + extra_right) + "\" height=\"" +
-                  num(H) + "\" viewBox=\"0 0 " + num(W + extra_right) + " " + num(H) +
+                  num(H + extra_below) + "\" viewBox=\"0 0 " + num(W + extra_right) + " " + num(H + extra_below) +
                   "\" font-family=\"sans-serif\" font-size=\"12\">\n"
                   "<rect width=\"100%\" height=\"100%\" fill=\"#ffffff\"/>\n";
   s += "<text x=\"" + num(L) + "\" y=\"28\" font-size=\"15\" font-weight=\"bold\">" + esc(title) + "</text>\n";
@@ -95,8 +95,24 @@ std::string line_plot_svg(const std::string& title, const std::string& xlabel, c
   const double pw = W - L - R, ph = H - T - B;
   auto X = [&](double x) { return L + (x - x0) / (x1 - x0) * pw; };
   auto Y = [&](double y) { return T + (1 - (y - y0) / (y1 - y0)) * ph; };
-  std::string s = frame(title, xlabel, ylabel) + axes(x0, x1, y0, y1);
-  double key_y = T + 14;
+  // The legend below the axis label, entries side by side and wrapped, each as wide as its name
+  // (12 px sans-serif: about 7 px a character), so it never covers a line or leaves the frame.
+  std::string key;
+  double key_x = L, key_y = H - 2;
+  for (const PlotLine& l : lines) {
+    if (std::min(l.x.size(), l.y.size()) == 0) continue;
+    const double w = 30 + 7.0 * static_cast<double>(l.name.size()) + 18;
+    if (key_x > L && key_x + w > W - R) {
+      key_x = L;
+      key_y += 16;
+    }
+    key += "<line x1=\"" + num(key_x) + "\" x2=\"" + num(key_x + 24) + "\" y1=\"" + num(key_y - 4) + "\" y2=\"" +
+           num(key_y - 4) + "\" stroke=\"" + esc(l.colour) + "\" stroke-width=\"2\"" +
+           (l.dashed ? " stroke-dasharray=\"6 4\"" : "") + "/><text x=\"" + num(key_x + 30) + "\" y=\"" + num(key_y) +
+           "\">" + esc(l.name) + "</text>\n";
+    key_x += w;
+  }
+  std::string s = frame(title, xlabel, ylabel, 0, key_y - H + 8) + axes(x0, x1, y0, y1);
   for (const PlotLine& l : lines) {
     const std::size_t n = std::min(l.x.size(), l.y.size());
     if (n == 0) continue;
@@ -108,14 +124,8 @@ std::string line_plot_svg(const std::string& title, const std::string& xlabel, c
     if ((n - 1) % every != 0 && std::isfinite(l.x[n - 1]) && std::isfinite(l.y[n - 1]))
       s += num(X(l.x[n - 1])) + "," + num(Y(l.y[n - 1]));
     s += "\"><title>" + esc(l.name) + "</title></polyline>\n";
-    // The legend, top right inside the plot area.
-    s += "<line x1=\"" + num(L + pw - 200) + "\" x2=\"" + num(L + pw - 176) + "\" y1=\"" + num(key_y - 4) + "\" y2=\"" +
-         num(key_y - 4) + "\" stroke=\"" + esc(l.colour) + "\" stroke-width=\"2\"" +
-         (l.dashed ? " stroke-dasharray=\"6 4\"" : "") + "/><text x=\"" + num(L + pw - 170) + "\" y=\"" + num(key_y) +
-         "\">" + esc(l.name) + "</text>\n";
-    key_y += 16;
   }
-  return s + "</svg>\n";
+  return s + key + "</svg>\n";
 }
 
 std::string sweep_svg(const std::vector<std::string>& paths, const std::vector<std::vector<double>>& axis_values,
