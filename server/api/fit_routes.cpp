@@ -23,6 +23,8 @@ namespace {
 using json = nlohmann::ordered_json;
 
 constexpr const char* kFits = "fits are for the instructor (a fit job runs on the server's spare cores)";
+constexpr const char* kFitResult =
+    "a fit's result is the instructor's (it carries the measured output of the plant's recording)";
 constexpr const char* kInjections = "injection tests are for the instructor (they run on the server's worker pool)";
 constexpr std::size_t kMaxSeriesPoints = 2000;  // the page plots at most this many points per series
 
@@ -205,7 +207,7 @@ void add_fit_routes(std::vector<Route>& routes) {
                                   {Verb::post, "/api/v1/fits", instructor, kFits, post_fit},
                                   {Verb::get, "/api/v1/fits/{id}", Role::viewer, "", get_fit},
                                   {Verb::delete_, "/api/v1/fits/{id}", instructor, kFits, delete_fit},
-                                  {Verb::get, "/api/v1/fits/{id}/result", Role::viewer, "", fit_result},
+                                  {Verb::get, "/api/v1/fits/{id}/result", instructor, kFitResult, fit_result},
                                   {Verb::post, "/api/v1/injections", instructor, kInjections, post_injection},
                               });
 }

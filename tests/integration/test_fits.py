@@ -111,7 +111,11 @@ class FitTests(unittest.TestCase):
         self.assertEqual(done["status"], "done", done)
         self.assertEqual(done["done"], done["total"])
         self.assertEqual(done["result"], f"/api/v1/fits/{st['id']}/result")
-        s, result, _ = self.srv.request("GET", done["result"])
+        s, result, _ = self.srv.request("GET", done["result"], None, TOKEN)
+        # The result carries the plant's measured output: the instructor's only.
+        s_viewer, refused, _ = self.srv.request("GET", done["result"])
+        self.assertEqual(s_viewer, 401, refused)
+        self.assertIn("instructor", refused["error"])
         self.assertEqual(s, 200, result)
         return st["id"], result
 
@@ -136,14 +140,14 @@ class FitTests(unittest.TestCase):
         self.assertEqual(series["measured_mw"][0], float(first[2]))
         self.assertEqual(series["t_s"][-1], float(self.csv.splitlines()[-1].split(",")[0]))
 
-        s, svg, r = self.srv.request("GET", f"/api/v1/fits/{job}/result?format=svg")
+        s, svg, r = self.srv.request("GET", f"/api/v1/fits/{job}/result?format=svg", None, TOKEN)
         self.assertEqual((s, r.getheader("Content-Type")), (200, "image/svg+xml"))
         self.assertTrue(ET.fromstring(svg).tag.endswith("svg"))
-        s, fragment, _ = self.srv.request("GET", f"/api/v1/fits/{job}/result?format=fragment")
+        s, fragment, _ = self.srv.request("GET", f"/api/v1/fits/{job}/result?format=fragment", None, TOKEN)
         self.assertEqual(s, 200)
         self.assertEqual(fragment, cli["fragment"])
         self.assertEqual(fragment["governor"]["droop"], result["params"]["governor.droop"])
-        s, body, _ = self.srv.request("GET", f"/api/v1/fits/{job}/result?format=csv")
+        s, body, _ = self.srv.request("GET", f"/api/v1/fits/{job}/result?format=csv", None, TOKEN)
         self.assertEqual(s, 400, body)
         self.assertIn("format: must be json, svg or fragment", body["error"])
 
@@ -174,7 +178,7 @@ class FitTests(unittest.TestCase):
         self.assertLess(time.time() - t0, 10)  # stopped between runs, not after 32 searches
         self.assertLess(done["done"], done["total"])
         self.assertNotIn("result", done)
-        s, body, _ = self.srv.request("GET", f"/api/v1/fits/{st['id']}/result")
+        s, body, _ = self.srv.request("GET", f"/api/v1/fits/{st['id']}/result", None, TOKEN)
         self.assertEqual(s, 409, body)
         s, body, _ = self.srv.request("GET", "/api/v1/fits/999")
         self.assertEqual(s, 404, body)

@@ -454,6 +454,7 @@ PROTECTED = [
     ("DELETE", "/api/v1/sweeps/1", None, "sweeps are for the instructor"),
     ("POST", "/api/v1/fits", '{"unit": "V1"}', "fits are for the instructor"),
     ("DELETE", "/api/v1/fits/1", None, "fits are for the instructor"),
+    ("GET", "/api/v1/fits/1/result", None, "a fit's result is the instructor's"),
     ("POST", "/api/v1/injections", '{"unit": "V1"}', "injection tests are for the instructor"),
     ("GET", "/api/v1/modes", None, "run on the server's worker pool"),
     ("POST", "/api/v1/modes", "{}", "run on the server's worker pool"),
