@@ -279,6 +279,14 @@ TEST_CASE("bad fit arguments are refused with what is wrong and where") {
   FitSpec late = spec_with({{"governor.droop", 0.02, 0.1}});
   for (double& t : late.playback.recording.t_s) t += 1000.0;  // the plant scenario runs 600 s
   CHECK(refused(late).find("less than one step") != std::string::npos);
+  // Finite but not sensible: a glitch to 5 kHz, and an output in kW read as MW.
+  FitSpec glitch = spec_with({{"governor.droop", 0.02, 0.1}});
+  glitch.playback.recording.frequency_hz[37] = 5000.0;
+  CHECK(refused(glitch).find("sample 38 (t = 3.7 s) has frequency 5000 Hz, outside 45 .. 55 Hz") != std::string::npos);
+  FitSpec kw = spec_with({{"governor.droop", 0.02, 0.1}});
+  kw.playback.recording.power_mw[0].second[5] = 300000.0;
+  CHECK(refused(kw).find("sample 6 (t = 0.5 s) has output 300000 MW in \"QH1\", beyond ten times the rating of QH1") !=
+        std::string::npos);
   std::string error;
   CHECK_FALSE(parse_fit_param("governor.droop=0.1:0.05", error));
   CHECK(error.find("must be below") != std::string::npos);

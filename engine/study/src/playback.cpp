@@ -189,6 +189,37 @@ std::int64_t settle_steps_for(const UnitDef& d, double h) {
   return static_cast<std::int64_t>(std::ceil(std::clamp(20.0 * slowest, 30.0, 600.0) / h));
 }
 
+// Finite is not yet sensible: a frequency more than 10 % off nominal, or an output beyond ten
+// times the unit's rating, is a recorder's glitch or a wrong column or base, not a grid event.
+// The first such sample is named so it can be cut out or marked missing.
+bool plausible(const PlaybackSpec& spec, std::string& error) {
+  const Recording& rec = spec.recording;
+  const double f0 = spec.def.nominal_hz;
+  auto at = [&](std::size_t i) { return "sample " + std::to_string(i + 1) + " (t = " + fmt_num(rec.t_s[i]) + " s)"; };
+  for (std::size_t i = 0; i < rec.frequency_hz.size() && i < rec.t_s.size(); ++i)
+    if (!(std::abs(rec.frequency_hz[i] - f0) <= 0.1 * f0)) {
+      error = "the recording's " + at(i) + " has frequency " + fmt_num(rec.frequency_hz[i]) + " Hz, outside " +
+              fmt_num(0.9 * f0) + " .. " + fmt_num(1.1 * f0) +
+              " Hz (nominal +- 10 %): a recorder glitch or the wrong column or base? Cut it out or leave the field "
+              "empty (a missing sample)";
+      return false;
+    }
+  for (std::size_t u = 0; u < rec.power_mw.size() && u < spec.units.size(); ++u) {
+    double rating = 0.0;
+    for (const UnitDef& d : spec.def.units)
+      if (d.id == spec.units[u]) rating = d.rating_mw;
+    const auto& p = rec.power_mw[u].second;
+    for (std::size_t i = 0; i < p.size() && i < rec.t_s.size(); ++i)
+      if (!(std::abs(p[i]) <= 10.0 * rating)) {
+        error = "the recording's " + at(i) + " has output " + fmt_num(p[i]) + " MW in \"" + rec.power_mw[u].first +
+                "\", beyond ten times the rating of " + spec.units[u] + " (" + fmt_num(rating) +
+                " MW): the wrong column or base?";
+        return false;
+      }
+  }
+  return true;
+}
+
 }  // namespace
 
 std::optional<PreparedPlayback> prepare_playback(const PlaybackSpec& spec, std::string& error) {
@@ -212,6 +243,7 @@ std::optional<PreparedPlayback> prepare_playback(const PlaybackSpec& spec, std::
             " s) in common";
     return std::nullopt;
   }
+  if (!plausible(spec, error)) return std::nullopt;
   SystemDef def = spec.def;
   PreparedPlayback prep{json(), spec.units, FrequencyTrack({}, {}), {}, {}, {}, 0, {}};
   for (std::size_t u = 0; u < spec.units.size(); ++u)
