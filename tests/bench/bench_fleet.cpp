@@ -110,14 +110,15 @@ int main(int argc, char** argv) {
       }
     }
 
-    // Whole process: load the file, run, write series.csv and summary.json.
+    // Whole process on one thread: load the file, run, write series.csv and summary.json.
     const fs::path file = work / ("fleet_" + std::to_string(n) + ".json");
     std::ofstream(file) << fleet_file(def);
     double best_process = 1e300;
     long rss = 0;
     for (int r = 0; r < repeat; ++r) {
+      // One thread, like the peer: the goal compares one core with one core.
       ChildResult c = run_child({droopline_bin.string(), "run", file.string(), "--out",
-                                 (work / ("out_" + std::to_string(n))).string(), "--quiet"});
+                                 (work / ("out_" + std::to_string(n))).string(), "--quiet", "--threads", "1"});
       if (c.status != 0) {
         std::cerr << "droopline run failed on the " << n << "-unit fleet\n";
         return 1;
