@@ -173,8 +173,8 @@ struct EngineState {
   // Work pieces of a stage and the task runner
   std::vector<Piece> pieces;
   std::vector<double> piece_gen;
-  std::vector<PieceCall> calls;      // by piece
-  const void* calls_key[3] = {};     // this engine, y and k as the calls were worked out for
+  std::vector<PieceCall> calls;   // by piece
+  const void* calls_key[3] = {};  // this engine, y and k as the calls were worked out for
 
   TaskRunner* runner = nullptr;
   int stage_now = 1;

@@ -82,8 +82,7 @@ void Engine::Impl::stage(int st) {
   }
   stage_now = st;
   stage_c = c;
-  if (calls_key[0] != this || calls_key[1] != y.data() || calls_key[2] != k.data())
-    refresh_calls();
+  if (calls_key[0] != this || calls_key[1] != y.data() || calls_key[2] != k.data()) refresh_calls();
   const std::size_t tasks = runner && nu >= kParallelMinUnits ? std::min(runner->concurrency(), pieces.size()) : 1;
   // Pieces are summed in a fixed order: the result does not depend on how many ran in parallel.
   if (tasks > 1) {

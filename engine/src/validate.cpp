@@ -32,9 +32,7 @@ IdIndex index_ids(Checker& ck, const std::vector<T>& items,
       continue;
     }
     auto [it, fresh] = index.emplace(id, i);
-    if (!fresh)
-      ck.error(path(), "duplicate id \"" + id + "\" (also " + list + "[" +
-                         std::to_string(it->second) + "])");
+    if (!fresh) ck.error(path(), "duplicate id \"" + id + "\" (also " + list + "[" + std::to_string(it->second) + "])");
   }
   return index;
 }
@@ -88,8 +86,7 @@ void check_governor(Checker& ck, const std::string& p, const GovernorDef& g, boo
   ck.positive_at_most(at(p, ".integral_s"), g.integral_s, bound::kTimeS, " s");
 }
 
-void check_turbine(Checker& ck, const std::string& p, const UnitDef& u,
-                   Fastest& tcs) {
+void check_turbine(Checker& ck, const std::string& p, const UnitDef& u, Fastest& tcs) {
   const TurbineDef& t = u.turbine;
   auto tc = [&](const char* name, double v) {
     ck.positive_at_most(at(p, name, true), v, bound::kTimeS, " s");
@@ -264,8 +261,7 @@ std::optional<InitialFlows> check_definition(const SystemDef& def, std::vector<I
     ck.non_negative_at_most(at(p, ".agc_share"), u.agc_share, bound::kPowerMw, "");
     check_start_up(ck, p, u);
     check_governor(ck, p + ".governor", u.governor, battery);
-    if (!battery && u.governor.lag_s > 0.0)
-      tcs.offer(u.governor.lag_s, p, ".governor.lag_s");
+    if (!battery && u.governor.lag_s > 0.0) tcs.offer(u.governor.lag_s, p, ".governor.lag_s");
     check_turbine(ck, p + ".turbine", u, tcs);
     if (area != areas.end() && u.online && is_synchronous(u) && u.inertia_s > 0.0 &&
         u.rating_mw > 0.0)

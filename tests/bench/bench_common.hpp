@@ -7,10 +7,9 @@
 
 #include <chrono>
 #include <filesystem>
+#include <nlohmann/json.hpp>
 #include <string>
 #include <vector>
-
-#include <nlohmann/json.hpp>
 
 #include "child_process.hpp"
 #include "droopline/defs.hpp"
@@ -45,10 +44,21 @@ inline SystemDef fleet(std::size_t n, double seconds) {
     u.governor.deadband_hz = 0.01 + 0.01 * spread;
     u.governor.lag_s = 0.15 + 0.2 * spread;
     switch (i % 5) {
-      case 0: u.turbine.type = TurbineType::steam; u.turbine.steam_chest_s = 0.2 + 0.2 * spread; break;
-      case 1: u.turbine.type = TurbineType::reheat; u.turbine.reheat_s = 5.0 + 4.0 * spread; break;
-      case 2: u.turbine.type = TurbineType::hydro; u.turbine.water_s = 1.0 + 1.0 * spread; break;
-      case 3: u.turbine.type = TurbineType::gas; break;
+      case 0:
+        u.turbine.type = TurbineType::steam;
+        u.turbine.steam_chest_s = 0.2 + 0.2 * spread;
+        break;
+      case 1:
+        u.turbine.type = TurbineType::reheat;
+        u.turbine.reheat_s = 5.0 + 4.0 * spread;
+        break;
+      case 2:
+        u.turbine.type = TurbineType::hydro;
+        u.turbine.water_s = 1.0 + 1.0 * spread;
+        break;
+      case 3:
+        u.turbine.type = TurbineType::gas;
+        break;
       case 4:
         u.turbine.type = TurbineType::battery;
         u.inertia_s = 0.0;
@@ -90,8 +100,8 @@ inline std::string fleet_file(const SystemDef& d) {
     g.erase("integral_s");
     if (battery) g.erase("lag_s");
     auto& t = u["turbine"];
-    for (const char* k : {"load_limit_mw", "temporary_droop", "reset_s", "soc", "rocof_filter_s",
-                          "response_s", "fuel_s", "combustion_s", "hp_fraction", "steam_chest_s"})
+    for (const char* k : {"load_limit_mw", "temporary_droop", "reset_s", "soc", "rocof_filter_s", "response_s",
+                          "fuel_s", "combustion_s", "hp_fraction", "steam_chest_s"})
       if (t.contains(k) && !(t["type"] == "steam" && std::string(k) == "steam_chest_s")) t.erase(k);
   }
   for (auto& a : j["areas"]) {

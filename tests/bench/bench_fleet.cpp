@@ -9,31 +9,30 @@
 #include <unistd.h>
 
 #include <algorithm>
-#include <cmath>
 #include <chrono>
+#include <cmath>
 #include <cstdio>
 #include <cstring>
 #include <filesystem>
 #include <fstream>
 #include <iostream>
+#include <nlohmann/json.hpp>
 #include <sstream>
 #include <string>
 #include <vector>
 
-#include <nlohmann/json.hpp>
-
+#include "bench_common.hpp"
 #include "droopline/engine.hpp"
 #include "droopline/scenario_io.hpp"
-#include "bench_common.hpp"
 #include "droopline/task_pool.hpp"
 
 namespace fs = std::filesystem;
 using namespace droopline;
+using bench::ChildResult;
 using bench::fleet;
 using bench::fleet_file;
 using bench::now_s;
 using bench::run_child;
-using bench::ChildResult;
 
 namespace {
 

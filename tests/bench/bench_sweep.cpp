@@ -32,7 +32,8 @@ Grid grid_of(std::size_t members, double demand_mw) {
   const std::size_t nd = members >= 1000 ? 40 : static_cast<std::size_t>(std::lround(std::sqrt(members)));
   const std::size_t nm = (members + nd - 1) / nd;
   Grid g;
-  for (std::size_t i = 0; i < nd; ++i) g.droop.push_back(0.03 + 0.04 * static_cast<double>(i) / static_cast<double>(nd));
+  for (std::size_t i = 0; i < nd; ++i)
+    g.droop.push_back(0.03 + 0.04 * static_cast<double>(i) / static_cast<double>(nd));
   for (std::size_t i = 0; i < nm; ++i)
     g.mw.push_back(demand_mw * (0.02 + 0.06 * static_cast<double>(i) / static_cast<double>(nm)));
   return g;
@@ -101,18 +102,18 @@ int sweep_bench(int argc, char** argv, const fs::path& droopline_bin, const fs::
 
   std::printf("droopline-bench --sweep: the 20-unit fleet, 60 s at 0.01 s, droop of u0 x load step; best of %d\n",
               repeat);
-  std::printf("%8s %14s %12s %9s %10s %11s %16s\n", "members", "1 thread s", "cores s", "speed-up", "peer s",
-              "peer/us", "max |dnadir| Hz");
+  std::printf("%8s %14s %12s %9s %10s %11s %16s\n", "members", "1 thread s", "cores s", "speed-up", "peer s", "peer/us",
+              "max |dnadir| Hz");
   for (std::size_t members : sizes) {
     const Grid g = grid_of(members, demand);
     const std::size_t n = g.droop.size() * g.mw.size();
     auto sweep_with = [&](unsigned threads) {
       double best = 1e300;
       for (int r = 0; r < repeat; ++r) {
-        const ChildResult c = run_child({droopline_bin.string(), "sweep", file.string(), "--vary",
-                                         "units[u0].governor.droop=" + listed(g.droop), "--vary",
-                                         "events[0].mw=" + listed(g.mw), "--threads", std::to_string(threads),
-                                         "--out", (work / "sweep").string(), "--quiet"});
+        const ChildResult c =
+            run_child({droopline_bin.string(), "sweep", file.string(), "--vary",
+                       "units[u0].governor.droop=" + listed(g.droop), "--vary", "events[0].mw=" + listed(g.mw),
+                       "--threads", std::to_string(threads), "--out", (work / "sweep").string(), "--quiet"});
         if (c.status != 0) return -1.0;
         best = std::min(best, c.wall_s);
       }
