@@ -15,6 +15,7 @@
 
 #include "disturbances.hpp"
 #include "droopline/engine.hpp"
+#include "kernels.hpp"
 #include "models/model_base.hpp"
 #include "noise.hpp"
 
@@ -50,6 +51,20 @@ struct Block {
 /// At most kPieceUnits units of one segment: the unit of work of a stage.
 struct Piece {
   std::size_t block, area, begin, end;  // [begin, end) within the block
+  bool iso;
+};
+
+/// A piece's kernel arguments, worked out once for the layout rather than at every stage: in a
+/// small system the stage's work per unit is so small that gathering them was a third of it.
+/// They point into the state and parameter arrays, so they are worked out again whenever one of
+/// those may have moved (see Engine::Impl::refresh_calls).
+struct PieceCall {
+  GovernorParams g;
+  ModelParams tp;
+  SegmentArrays arr;
+  double* out;  // the units' outputs at the stage point (MW)
+  std::size_t len, area;
+  TurbineType type;
   bool iso;
 };
 
@@ -158,6 +173,9 @@ struct EngineState {
   // Work pieces of a stage and the task runner
   std::vector<Piece> pieces;
   std::vector<double> piece_gen;
+  std::vector<PieceCall> calls;   // by piece
+  const void* calls_key[3] = {};  // this engine, y and k as the calls were worked out for
+
   TaskRunner* runner = nullptr;
   int stage_now = 1;
   double stage_c = 0.0;
@@ -220,6 +238,7 @@ struct Engine::Impl : detail::EngineState {
   // integration.cpp
   static void run_task(void* self, std::size_t task, std::size_t tasks);
   void run_piece(std::size_t p);
+  void refresh_calls();
   void stage(int st);
   double extra_load(const detail::AreaRt& ar, double t) const;
   void step();

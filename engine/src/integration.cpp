@@ -18,24 +18,47 @@ void Engine::Impl::run_task(void* self, std::size_t task, std::size_t tasks) {
 }
 
 void Engine::Impl::run_piece(std::size_t p) {
-  const detail::Piece& pc = pieces[p];
-  detail::Block& b = blocks[pc.block];
-  const detail::StageInfo info{stage_now, stage_c, h / 6.0, pc.iso};
-  const std::size_t s0 = b.first_slot + pc.begin, len = pc.end - pc.begin, j = pc.begin;
-  const detail::GovernorParams g{&pref0[s0],   &kd[s0],   &kiso[s0], &dbs[s0],
-                                 &inv_lag[s0], &ramp[s0], &pmin[s0], &pmax[s0]};
-  detail::ModelParams tp{};
-  for (std::size_t i = 0; i < detail::kMaxParams; ++i) tp.p[i] = &b.params[i][j];
-  detail::SegmentArrays arr{};
-  for (std::size_t i = 0; i < b.nstate; ++i) {
-    const std::size_t o = b.off + i * b.n + j;
-    arr.y[i] = &y[o];
-    arr.k[i] = &k[o];
-    arr.acc[i] = &acc[o];
+  const detail::PieceCall& c = calls[p];
+  const detail::StageInfo info{stage_now, stage_c, h / 6.0, c.iso};
+  detail::model_stage(c.type, c.len, dfv[c.area], c.g, c.tp, c.arr, info, c.out);
+  // Below eight values ordered_sum adds them one after the other from +0.0 (its partial sums
+  // start only at eight): the same sum, the same bits, without the call.
+  if (c.len < 8) {
+    double sum = 0.0;
+    for (std::size_t i = 0; i < c.len; ++i) sum += c.out[i];
+    piece_gen[p] = sum;
+  } else {
+    piece_gen[p] = detail::ordered_sum(c.len, c.out);
   }
-  double* out = &pm_stage[s0];
-  detail::model_stage(b.type, len, dfv[pc.area], g, tp, arr, info, out);
-  piece_gen[p] = detail::ordered_sum(len, out);
+}
+
+// The pointers of every piece's kernel call. They go stale when the pieces change, when the state
+// arrays move (step_state swaps y with its copy) and in a clone (a copy of another engine's).
+void Engine::Impl::refresh_calls() {
+  for (std::size_t p = 0; p < pieces.size(); ++p) {
+    const detail::Piece& pc = pieces[p];
+    detail::Block& b = blocks[pc.block];
+    const std::size_t s0 = b.first_slot + pc.begin, j = pc.begin;
+    detail::PieceCall& c = calls[p];
+    c.g = {&pref0[s0], &kd[s0], &kiso[s0], &dbs[s0], &inv_lag[s0], &ramp[s0], &pmin[s0], &pmax[s0]};
+    c.tp = {};
+    for (std::size_t i = 0; i < detail::kMaxParams; ++i) c.tp.p[i] = &b.params[i][j];
+    c.arr = {};
+    for (std::size_t i = 0; i < b.nstate; ++i) {
+      const std::size_t o = b.off + i * b.n + j;
+      c.arr.y[i] = &y[o];
+      c.arr.k[i] = &k[o];
+      c.arr.acc[i] = &acc[o];
+    }
+    c.out = &pm_stage[s0];
+    c.len = pc.end - pc.begin;
+    c.area = pc.area;
+    c.type = b.type;
+    c.iso = pc.iso;
+  }
+  calls_key[0] = this;
+  calls_key[1] = y.data();
+  calls_key[2] = k.data();
 }
 
 // Stage 1 reads y; stages 2-4 read y + c * (previous slope). Areas are done here in scalar code,
@@ -59,14 +82,18 @@ void Engine::Impl::stage(int st) {
   }
   stage_now = st;
   stage_c = c;
+  if (calls_key[0] != this || calls_key[1] != y.data() || calls_key[2] != k.data()) refresh_calls();
   const std::size_t tasks = runner && nu >= kParallelMinUnits ? std::min(runner->concurrency(), pieces.size()) : 1;
+  // Pieces are summed in a fixed order: the result does not depend on how many ran in parallel.
   if (tasks > 1) {
     runner->run(tasks, &Impl::run_task, this);
+    for (std::size_t p = 0; p < pieces.size(); ++p) gen[pieces[p].area] += piece_gen[p];
   } else {
-    for (std::size_t p = 0; p < pieces.size(); ++p) run_piece(p);
+    for (std::size_t p = 0; p < pieces.size(); ++p) {
+      run_piece(p);
+      gen[calls[p].area] += piece_gen[p];
+    }
   }
-  // Pieces are summed in a fixed order: the result does not depend on how many ran in parallel.
-  for (std::size_t p = 0; p < pieces.size(); ++p) gen[pieces[p].area] += piece_gen[p];
   for (std::size_t a = 0; a < na; ++a) {
     double d_df = 0.0, d_th = 0.0;
     if (!areas[a].collapsed) {

@@ -173,6 +173,8 @@ void Engine::Impl::rebuild_pieces() {
       for (std::size_t j = sg.begin; j < sg.end; j += kPieceUnits)
         pieces.push_back({bi, sg.area, j, std::min(sg.end, j + kPieceUnits), sg.iso});
   piece_gen.assign(pieces.size(), 0.0);
+  calls.resize(pieces.size());  // sized here so that a step never allocates
+  calls_key[0] = nullptr;       // the pieces' kernel calls are worked out again
 }
 
 void Engine::Impl::set_governor_gains(std::size_t u) {

@@ -25,16 +25,14 @@ IdIndex index_ids(Checker& ck, const std::vector<T>& items,
                                              const std::string& list) {
   IdIndex index;
   for (std::size_t i = 0; i < items.size(); ++i) {
-    const std::string path = list + "[" + std::to_string(i) + "].id";
+    auto path = [&] { return list + "[" + std::to_string(i) + "].id"; };  // for a message only
     const std::string& id = items[i].id;
     if (!valid_id(id)) {
-      ck.error(path, "must be 1-64 letters, digits, '_' or '-', got \"" + id + "\"");
+      ck.error(path(), "must be 1-64 letters, digits, '_' or '-', got \"" + id + "\"");
       continue;
     }
     auto [it, fresh] = index.emplace(id, i);
-    if (!fresh)
-      ck.error(path, "duplicate id \"" + id + "\" (also " + list + "[" +
-                         std::to_string(it->second) + "])");
+    if (!fresh) ck.error(path(), "duplicate id \"" + id + "\" (also " + list + "[" + std::to_string(it->second) + "])");
   }
   return index;
 }
@@ -60,9 +58,20 @@ void check_start_up(Checker& ck, const std::string& p, const UnitDef& u) {
   }
 }
 
-struct TimeConstant {
-  double value_s;
+// The fastest time constant so far and where it is. The path is built only when a value is the
+// new fastest (a few times in a fleet), not for each of a large fleet's tens of thousands.
+struct Fastest {
+  double value_s = 0.0;
   std::string path;
+  bool any = false;
+  template <class... Parts>
+  void offer(double v, const Parts&... parts) {
+    if (any && !(v < value_s)) return;  // the first of equal values stays, as a min_element
+    any = true;
+    value_s = v;
+    path.clear();
+    ((path += parts), ...);
+  }
 };
 
 void check_governor(Checker& ck, const std::string& p, const GovernorDef& g, bool battery) {
@@ -77,12 +86,11 @@ void check_governor(Checker& ck, const std::string& p, const GovernorDef& g, boo
   ck.positive_at_most(at(p, ".integral_s"), g.integral_s, bound::kTimeS, " s");
 }
 
-void check_turbine(Checker& ck, const std::string& p, const UnitDef& u,
-                   std::vector<TimeConstant>& tcs) {
+void check_turbine(Checker& ck, const std::string& p, const UnitDef& u, Fastest& tcs) {
   const TurbineDef& t = u.turbine;
   auto tc = [&](const char* name, double v) {
     ck.positive_at_most(at(p, name, true), v, bound::kTimeS, " s");
-    if (v > 0.0) tcs.push_back({v, p + "." + name});
+    if (v > 0.0) tcs.offer(v, p, ".", name);
   };
   switch (t.type) {
     case TurbineType::steam:
@@ -101,7 +109,7 @@ void check_turbine(Checker& ck, const std::string& p, const UnitDef& u,
     case TurbineType::hydro: {
       tc("water_s", t.water_s);
       ck.typical(at(p, ".water_s"), t.water_s, 0.5, 4.0, "water starting time (s)");
-      if (t.water_s > 0.0) tcs.push_back({t.water_s / 2.0, p + ".water_s (Tw/2)"});
+      if (t.water_s > 0.0) tcs.offer(t.water_s / 2.0, p, ".water_s (Tw/2)");
       if (t.temporary_droop) ck.positive_at_most(at(p, ".temporary_droop"), *t.temporary_droop, bound::kGainPerPu, " pu");
       if (t.reset_s) ck.positive_at_most(at(p, ".reset_s"), *t.reset_s, bound::kTimeS, " s");
       if (!t.temporary_droop && !t.reset_s && !(u.inertia_s > 0.0))
@@ -113,7 +121,7 @@ void check_turbine(Checker& ck, const std::string& p, const UnitDef& u,
           ck.warn(at(p, ".temporary_droop"),
                   fmt_num(rt) + " is below the permanent droop " + fmt_num(u.governor.droop) +
                       ": the compensation then amplifies fast changes instead of softening them");
-        if (tr > 0.0) tcs.push_back({tr * rt / u.governor.droop, p + " (TR*RT/R)"});
+        if (tr > 0.0) tcs.offer(tr * rt / u.governor.droop, p, " (TR*RT/R)");
       }
       if (!(tr > 0.0) && !t.reset_s && t.water_s > 0.0)
         ck.error(at(p, ".water_s"), "the design rule gives no positive reset_s for Tw = " +
@@ -170,7 +178,7 @@ std::optional<InitialFlows> check_definition(const SystemDef& def, std::vector<I
   auto units = index_ids(ck, def.units, "units");
   auto ties = index_ids(ck, def.ties, "ties");
 
-  std::vector<TimeConstant> tcs;
+  Fastest tcs;
   std::vector<double> inertia(def.areas.size(), 0.0);
 
   for (std::size_t i = 0; i < def.areas.size(); ++i) {
@@ -253,8 +261,7 @@ std::optional<InitialFlows> check_definition(const SystemDef& def, std::vector<I
     ck.non_negative_at_most(at(p, ".agc_share"), u.agc_share, bound::kPowerMw, "");
     check_start_up(ck, p, u);
     check_governor(ck, p + ".governor", u.governor, battery);
-    if (!battery && u.governor.lag_s > 0.0)
-      tcs.push_back({u.governor.lag_s, p + ".governor.lag_s"});
+    if (!battery && u.governor.lag_s > 0.0) tcs.offer(u.governor.lag_s, p, ".governor.lag_s");
     check_turbine(ck, p + ".turbine", u, tcs);
     if (area != areas.end() && u.online && is_synchronous(u) && u.inertia_s > 0.0 &&
         u.rating_mw > 0.0)
@@ -284,7 +291,7 @@ std::optional<InitialFlows> check_definition(const SystemDef& def, std::vector<I
       const double m = 2.0 * inertia[i] / def.nominal_hz;
       const double beta = natural_response_mw_per_hz(def, i);
       if (m > 0.0 && beta > 0.0 && def.nominal_hz > 0.0)
-        tcs.push_back({m / beta, "areas[" + std::to_string(i) + "] (inertia over natural response, M/beta)"});
+        tcs.offer(m / beta, "areas[", std::to_string(i), "] (inertia over natural response, M/beta)");
     }
 
   // Tie damping pulls the two areas' speeds together with the time constant
@@ -304,10 +311,8 @@ std::optional<InitialFlows> check_definition(const SystemDef& def, std::vector<I
                    " s) must be at most twice it for the integration to stay stable");
   }
 
-  if (def.step_s > 0.0 && !tcs.empty()) {
-    auto fastest = std::min_element(tcs.begin(), tcs.end(), [](auto& a, auto& b) {
-      return a.value_s < b.value_s;
-    });
+  if (def.step_s > 0.0 && tcs.any) {
+    const Fastest* fastest = &tcs;
     if (def.step_s > fastest->value_s / kStepFraction)
       ck.error("step_s", fmt_num(def.step_s) + " s is too large for the fastest time constant, " +
                              fastest->path + " = " + fmt_num(fastest->value_s) +

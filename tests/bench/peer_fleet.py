@@ -20,27 +20,31 @@ TURB = {"steam_chest_s": 0.3, "reheat_s": 7.0, "hp_fraction": 0.3, "water_s": 1.
         "soc": 0.5}
 
 
-def main(path):
-    with open(path) as fh:
-        sc = json.load(fh)
+def fleet_model(sc, droop=None):
+    """The fleet's right-hand side over M members at once: every state is a row of M values.
+
+    droop: None (one member, the file's droops) or a (units, M) array, one column per member.
+    Returns (rhs, x0, extra): rhs(t, x) on the flattened (states, M) array, the initial state, and
+    extra, the list whose first item is the load added to the area (MW, scalar or per member).
+    """
     f0 = sc["nominal_hz"]
     area = sc["areas"][0]
     units = sc["units"]
-    n = len(units)
     typ = np.array([u["turbine"]["type"] for u in units])
-    S = np.array([u["rating_mw"] for u in units], dtype=float)
+    col = lambda v: np.array(v, dtype=float)[:, None]  # one value per unit, the same for every member
+    S = col([u["rating_mw"] for u in units])
     H = np.array([u.get("inertia_s", 0.0) for u in units], dtype=float)
-    P0 = np.array([u["setpoint_mw"] for u in units], dtype=float)
-    lo = np.array([u.get("min_mw", -u["rating_mw"] if u["turbine"]["type"] == "battery" else 0.0)
-                   for u in units], dtype=float)
-    hi = np.array([u.get("max_mw", u["rating_mw"]) for u in units], dtype=float)
+    P0 = col([u["setpoint_mw"] for u in units])
+    lo = col([u.get("min_mw", -u["rating_mw"] if u["turbine"]["type"] == "battery" else 0.0) for u in units])
+    hi = col([u.get("max_mw", u["rating_mw"]) for u in units])
     gov = [dict(GOV, **u.get("governor", {})) for u in units]
-    R = np.array([g["droop"] for g in gov], dtype=float)
-    db = np.array([g["deadband_hz"] for g in gov], dtype=float)
-    step_db = np.array([g["deadband"] == "step" for g in gov])
-    Tg = np.array([g["lag_s"] for g in gov], dtype=float)
+    R = col([g["droop"] for g in gov]) if droop is None else np.asarray(droop, dtype=float)
+    members = R.shape[1]
+    db = col([g["deadband_hz"] for g in gov])
+    step_db = np.array([g["deadband"] == "step" for g in gov])[:, None]
+    Tg = col([g["lag_s"] for g in gov])
     K = S / (R * f0)
-    M = 2.0 * np.sum(H * S * (typ != "battery")) / f0
+    M = 2.0 * np.sum(H * S[:, 0] * (typ != "battery")) / f0
     dmp = area.get("load_damping", 1.0) * area["demand_mw"] / f0
     pd0 = area["demand_mw"]
 
@@ -56,7 +60,7 @@ def main(path):
     turb = [turbine(u) for u in units]
 
     def tp(name, key):
-        return np.array([t[key] for t in turb if t["type"] == name], dtype=float)
+        return col([t[key] for t in turb if t["type"] == name])
 
     idx = {t: np.flatnonzero(typ == t) for t in ("steam", "reheat", "hydro", "gas", "battery")}
     st_T = tp("steam", "steam_chest_s")
@@ -69,15 +73,15 @@ def main(path):
     bt_Tf, bt_Tr, bt_Hs = tp("battery", "rocof_filter_s"), tp("battery", "response_s"), tp("battery", "synthetic_inertia_s")
     bt_S = S[idx["battery"]]
 
-    # State: [df, steam(pv, pm), reheat(pv, x, y), hydro(w, pv, z), gas(pv, x, pm), battery(q, p)]
+    # State rows: [df, steam(pv, pm), reheat(pv, x, y), hydro(w, pv, z), gas(pv, x, pm), battery(q, p)]
     sizes = [len(idx["steam"]) * 2, len(idx["reheat"]) * 3, len(idx["hydro"]) * 3,
              len(idx["gas"]) * 3, len(idx["battery"]) * 2]
     offs = np.cumsum([1] + sizes)
-    x0 = np.zeros(offs[-1])
-    x0[offs[0]:offs[1]] = np.tile(P0[idx["steam"]], 2)
-    x0[offs[1]:offs[2]] = np.tile(P0[idx["reheat"]], 3)
-    x0[offs[2]:offs[3]] = np.tile(P0[idx["hydro"]], 3)
-    x0[offs[3]:offs[4]] = np.tile(P0[idx["gas"]], 3)
+    x0 = np.zeros((offs[-1], members))
+    x0[offs[0]:offs[1]] = np.tile(P0[idx["steam"]], (2, 1))
+    x0[offs[1]:offs[2]] = np.tile(P0[idx["reheat"]], (3, 1))
+    x0[offs[2]:offs[3]] = np.tile(P0[idx["hydro"]], (3, 1))
+    x0[offs[3]:offs[4]] = np.tile(P0[idx["gas"]], (3, 1))
     nb = len(idx["battery"])
     x0[offs[4] + nb:offs[5]] = P0[idx["battery"]]
     extra = [0.0]
@@ -87,32 +91,42 @@ def main(path):
         r = np.where((pv >= h) & (r > 0), 0.0, r)
         return np.where((pv <= l) & (r < 0), 0.0, r)
 
-    def rhs(_t, x):
+    def rhs(_t, xf):
+        x = xf.reshape(-1, members)
         df = x[0]
         e = -df
         ed = np.where(step_db, np.where(abs(e) > db, e, 0.0), np.sign(e) * np.maximum(abs(e) - db, 0.0))
         ref = P0 + K * ed
         dx = np.empty_like(x)
         gen = 0.0
-        i = idx["steam"]; s = x[offs[0]:offs[1]].reshape(2, -1); d = dx[offs[0]:offs[1]].reshape(2, -1)
-        d[0] = valve_rate(ref[i], s[0], Tg[i], lo[i], hi[i]); d[1] = (s[0] - s[1]) / st_T; gen += s[1].sum()
-        i = idx["reheat"]; s = x[offs[1]:offs[2]].reshape(3, -1); d = dx[offs[1]:offs[2]].reshape(3, -1)
+        i = idx["steam"]; s = x[offs[0]:offs[1]].reshape(2, -1, members); d = dx[offs[0]:offs[1]].reshape(2, -1, members)
+        d[0] = valve_rate(ref[i], s[0], Tg[i], lo[i], hi[i]); d[1] = (s[0] - s[1]) / st_T; gen += s[1].sum(axis=0)
+        i = idx["reheat"]; s = x[offs[1]:offs[2]].reshape(3, -1, members); d = dx[offs[1]:offs[2]].reshape(3, -1, members)
         d[0] = valve_rate(ref[i], s[0], Tg[i], lo[i], hi[i]); d[1] = (s[0] - s[1]) / rh_T
-        d[2] = (s[1] - s[2]) / rh_Tr; gen += (rh_F * s[1] + (1 - rh_F) * s[2]).sum()
-        i = idx["hydro"]; s = x[offs[2]:offs[3]].reshape(3, -1); d = dx[offs[2]:offs[3]].reshape(3, -1)
+        d[2] = (s[1] - s[2]) / rh_Tr; gen += (rh_F * s[1] + (1 - rh_F) * s[2]).sum(axis=0)
+        i = idx["hydro"]; s = x[offs[2]:offs[3]].reshape(3, -1, members); d = dx[offs[2]:offs[3]].reshape(3, -1, members)
         u = hy_g * ref[i] + (1 - hy_g) * s[0]
         d[0] = (ref[i] - s[0]) / hy_Ta; d[1] = valve_rate(u, s[1], Tg[i], lo[i], hi[i])
-        d[2] = (s[1] - s[2]) / (hy_Tw / 2); gen += (3 * s[2] - 2 * s[1]).sum()
-        i = idx["gas"]; s = x[offs[3]:offs[4]].reshape(3, -1); d = dx[offs[3]:offs[4]].reshape(3, -1)
+        d[2] = (s[1] - s[2]) / (hy_Tw / 2); gen += (3 * s[2] - 2 * s[1]).sum(axis=0)
+        i = idx["gas"]; s = x[offs[3]:offs[4]].reshape(3, -1, members); d = dx[offs[3]:offs[4]].reshape(3, -1, members)
         d[0] = valve_rate(ref[i], s[0], Tg[i], lo[i], hi[i]); d[1] = (np.minimum(s[0], gt_L) - s[1]) / gt_Tf
-        d[2] = (s[1] - s[2]) / gt_Tc; gen += s[2].sum()
-        i = idx["battery"]; s = x[offs[4]:offs[5]].reshape(2, -1); d = dx[offs[4]:offs[5]].reshape(2, -1)
+        d[2] = (s[1] - s[2]) / gt_Tc; gen += s[2].sum(axis=0)
+        i = idx["battery"]; s = x[offs[4]:offs[5]].reshape(2, -1, members); d = dx[offs[4]:offs[5]].reshape(2, -1, members)
         rocof = (df - s[0]) / bt_Tf
         bref = np.clip(ref[i] - 2 * bt_Hs * bt_S * rocof / f0, lo[i], hi[i])
-        d[0] = rocof; d[1] = (bref - s[1]) / bt_Tr; gen += s[1].sum()
+        d[0] = rocof; d[1] = (bref - s[1]) / bt_Tr; gen += s[1].sum(axis=0)
         dx[0] = (gen - (pd0 + extra[0] + dmp * df)) / M
-        return dx
+        return dx.ravel()
 
+    return rhs, x0.ravel(), extra
+
+
+def main(path):
+    with open(path) as fh:
+        sc = json.load(fh)
+    f0 = sc["nominal_hz"]
+    n = len(sc["units"])
+    rhs, x0, extra = fleet_model(sc)
     every = sc.get("output_every_s", 0.1)
     times = np.round(np.arange(0.0, sc["duration_s"] + every / 2, every), 9)
     ev = sc["events"][0]

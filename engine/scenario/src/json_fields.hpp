@@ -22,8 +22,11 @@ namespace droopline::detail {
 using json = nlohmann::ordered_json;
 using ijson = json;
 
-inline std::string join(const std::string& path, const std::string& key) {
-  return path.empty() ? key : path + "." + key;
+inline std::string join(const std::string& path, std::string_view key) {
+  std::string out;
+  out.reserve(path.size() + 1 + key.size());
+  if (!path.empty()) (out += path) += '.';
+  return out += key;
 }
 
 inline const char* type_name(const ijson& j) {
@@ -65,7 +68,7 @@ class Reader {
     return true;
   }
 
-  const ijson* field(const ijson& obj, const std::string& key, const std::string& path, bool required) {
+  const ijson* field(const ijson& obj, std::string_view key, const std::string& path, bool required) {
     auto it = obj.find(key);
     if (it == obj.end()) {
       if (required) error(join(path, key), "required");
@@ -74,7 +77,7 @@ class Reader {
     return &*it;
   }
 
-  void number(const ijson& obj, const std::string& key, const std::string& path, double& out, bool required = false) {
+  void number(const ijson& obj, std::string_view key, const std::string& path, double& out, bool required = false) {
     if (const ijson* v = field(obj, key, path, required)) {
       if (v->is_number())
         out = v->get<double>();
@@ -83,7 +86,7 @@ class Reader {
     }
   }
 
-  void number(const ijson& obj, const std::string& key, const std::string& path, std::optional<double>& out) {
+  void number(const ijson& obj, std::string_view key, const std::string& path, std::optional<double>& out) {
     double v = 0.0;
     const std::size_t before = issues_.size();
     if (!obj.contains(key)) return;
@@ -91,7 +94,7 @@ class Reader {
     if (issues_.size() == before) out = v;
   }
 
-  void string(const ijson& obj, const std::string& key, const std::string& path, std::string& out,
+  void string(const ijson& obj, std::string_view key, const std::string& path, std::string& out,
               bool required = false) {
     if (const ijson* v = field(obj, key, path, required)) {
       if (v->is_string())
@@ -101,7 +104,7 @@ class Reader {
     }
   }
 
-  void boolean(const ijson& obj, const std::string& key, const std::string& path, bool& out, bool required = false) {
+  void boolean(const ijson& obj, std::string_view key, const std::string& path, bool& out, bool required = false) {
     if (const ijson* v = field(obj, key, path, required)) {
       if (v->is_boolean())
         out = v->get<bool>();
@@ -111,7 +114,7 @@ class Reader {
   }
 
   template <class E>
-  bool choice(const ijson& obj, const std::string& key, const std::string& path,
+  bool choice(const ijson& obj, std::string_view key, const std::string& path,
               const std::vector<std::pair<const char*, E>>& options, E& out, bool required = false) {
     const ijson* v = field(obj, key, path, required);
     if (!v) return false;
@@ -128,7 +131,7 @@ class Reader {
     return false;
   }
 
-  const ijson* array(const ijson& obj, const std::string& key, const std::string& path, bool required = false) {
+  const ijson* array(const ijson& obj, std::string_view key, const std::string& path, bool required = false) {
     const ijson* v = field(obj, key, path, required);
     if (v && !v->is_array()) {
       error(join(path, key), std::string("must be an array, got ") + type_name(*v));

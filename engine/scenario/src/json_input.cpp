@@ -32,8 +32,18 @@ class DomBuilder {
   bool end_object() { return close(); }
   bool end_array() { return close(); }
   bool key(std::string& k) {
-    if (stack_.back()->contains(k)) dups.push_back(k);
-    key_ = std::move(k);
+    // One search of the object: a new key is appended at once (with a null value that the next
+    // event replaces); a repeated one is noted and its slot receives the new value.
+    auto& obj = stack_.back()->get_ref<json::object_t&>();
+    if (obj.empty()) obj.reserve(8);  // most objects of a scenario have a few keys: one allocation
+    auto it = obj.find(k);
+    if (it != obj.end()) {
+      dups.push_back(k);
+      slot_ = &it->second;
+    } else {
+      obj.emplace_back(std::move(k), json());
+      slot_ = &obj.back().second;
+    }
     return true;
   }
   bool parse_error(std::size_t byte, const std::string&, const nlohmann::detail::exception& e) {
@@ -53,13 +63,12 @@ class DomBuilder {
       top.get_ref<json::array_t&>().push_back(std::move(v));
       return &top.get_ref<json::array_t&>().back();
     }
-    auto& obj = top.get_ref<json::object_t&>();
-    // A repeated key (reported as an error) takes the new value, so a container opened under it
-    // is the one that receives its members. The element stays put while it is open: its parent
-    // gets no new key until it is closed.
-    auto [it, fresh] = obj.emplace(key_, json());
-    it->second = std::move(v);
-    return &it->second;
+    // An object's member goes to the slot its key made (see key()). A repeated key (reported as
+    // an error) takes the new value, so a container opened under it is the one that receives its
+    // members. The element stays put while it is open: its parent gets no new key until it is
+    // closed.
+    *slot_ = std::move(v);
+    return slot_;
   }
   bool put(json&& v) {
     insert(std::move(v));
@@ -80,7 +89,7 @@ class DomBuilder {
 
   std::size_t max_depth_;
   std::vector<json*> stack_;
-  std::string key_;
+  json* slot_ = nullptr;  // the value of the key just read in the innermost object
 };
 
 // Byte offset of the bracket that opens level max_depth + 1 (outside strings), or the end.

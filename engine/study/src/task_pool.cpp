@@ -1,5 +1,7 @@
 #include "droopline/task_pool.hpp"
 
+#include <thread>
+
 namespace droopline {
 namespace {
 // Plain reloads, no PAUSE instruction: under hypervisors that exit on PAUSE loops a spinning
@@ -33,7 +35,15 @@ void TaskPool::run(std::size_t count, void (*fn)(void*, std::size_t, std::size_t
   generation_.notify_all();
   // The caller takes task 0 and any task beyond the workers.
   for (std::size_t i = 0; i < count; i += workers_.size() + 1) fn(ctx, i, count);
-  while (busy_.load(std::memory_order_acquire) != 0) relax();
+  // Spin a little, then give the core away between looks: on a machine busy with other work the
+  // worker may be waiting for this very core, and spinning through whole time slices made a
+  // 10,000-unit run on two threads take 3 to 24 s instead of 0.4 s.
+  for (int spin = 0; busy_.load(std::memory_order_acquire) != 0; ++spin) {
+    if (spin < kSpins)
+      relax();
+    else
+      std::this_thread::yield();
+  }
 }
 
 void TaskPool::work(std::size_t index) {
