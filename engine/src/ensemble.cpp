@@ -167,8 +167,11 @@ void Ensemble::drop_diverged() {
   Lanes& s = *s_;
   if (s.in.empty()) return;
   if (!s.layout) s.layout.emplace(*s.all[s.in[0]]->impl_);
+  // The layout changes only with something that leaves a notice (a command, a tie trip, a collapse) or while units
+  // start or stop: the usual case is that no member needs looking at.
+  if (std::none_of(s.in.begin(), s.in.end(), [this](std::size_t m) { return touched(m); })) return;
   if (std::all_of(s.in.begin(), s.in.end(), [&s](std::size_t m) { return s.layout->matches(*s.all[m]->impl_); }))
-    return;  // the usual case: nothing changed the layout
+    return;
   const Layout first(*s.all[s.in[0]]->impl_);
   std::size_t same_kept = 0, same_first = 0;
   for (std::size_t m : s.in) {
@@ -190,6 +193,12 @@ void Ensemble::drop_diverged() {
   }
   s.in = std::move(stay);
   s.ref = s.in.empty() ? nullptr : s.all[s.in[0]]->impl_.get();
+}
+
+// True when member m's engine did something since its lanes were last gathered, or has units starting or stopping.
+bool Ensemble::touched(std::size_t m) const {
+  const Engine::Impl& e = *s_->all[m]->impl_;
+  return s_->dirty[m] || e.notices.size() != s_->seen[m] || e.changing_units > 0;
 }
 
 // Interleaves what the stages read: always what secondary control and loads change every step, everything for a member
@@ -220,7 +229,7 @@ void Ensemble::gather() {
   for (std::size_t l = 0; l < g; ++l) {
     const std::size_t m = s.in[l];
     const Engine::Impl& e = *s.all[m]->impl_;
-    if (relayout || s.dirty[m] || e.notices.size() != s.seen[m] || e.changing_units > 0) {
+    if (relayout || touched(m)) {
       put_lane(e.y, s.y, l, g);
       put_lane(e.kd, s.kd, l, g);
       put_lane(e.kiso, s.kiso, l, g);

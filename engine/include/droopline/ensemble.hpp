@@ -48,6 +48,7 @@ class Ensemble {
  private:
   struct Lanes;
   void begin_members();
+  bool touched(std::size_t m) const;
   void drop_diverged();
   void gather();
   void stage(int st);
