@@ -242,6 +242,8 @@ Command sweep_command(CLI::App& root) {
   add_count(*sub, "--seed", a->seed, std::uint64_t{0}, ~std::uint64_t{0} >> 1, "the sample's seed")->capture_default_str();
   add_shard(*sub, a->shard, a->shards, "run only slice I of N (join the slices with merge)");
   add_count(*sub, "--threads", a->threads, 1u, 999u, "parallel runs (default: one per core)");
+  sub->add_flag("--no-ensemble", [a](std::int64_t) { a->ensemble = false; },
+                "run every combination alone instead of stepping those of one structure together");
   add_metric(*sub, a->metric);
   add_quiet(*sub, a->quiet);
   return {sub, [a] { return droopline::cli::sweep(*a); }};

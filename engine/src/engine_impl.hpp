@@ -242,6 +242,8 @@ struct Engine::Impl : detail::EngineState {
   void stage(int st);
   double extra_load(const detail::AreaRt& ar, double t) const;
   void step();
+  void begin_step();   // events due, load at both ends of the step
+  void finish_step();  // the step count, then post_step
   void step_state(std::span<const double> x, std::span<double> next);
   void step_imposed(std::span<const double> df_hz);
   void post_step();

@@ -125,6 +125,14 @@ double Engine::Impl::extra_load(const detail::AreaRt& ar, double t) const {
 }
 
 void Engine::Impl::step() {
+  begin_step();
+  for (int st = 1; st <= 4; ++st) stage(st);
+  finish_step();
+}
+
+// A step is split in three so an ensemble (ensemble.cpp) can run the stages of several engines
+// together between each engine's own begin and finish.
+void Engine::Impl::begin_step() {
   while (next_event < schedule.size() && schedule[next_event].first <= n) {
     const Action& c = schedule[next_event].second;
     ApplyResult r = apply_checked(std::span<const Action>(&c, 1));
@@ -157,7 +165,9 @@ void Engine::Impl::step() {
     lc0[a] = base + extra_load(ar, t0) + ar.noise_mw;
     lc1[a] = base + extra_load(ar, t0 + h) + ar.noise_next;
   }
-  for (int st = 1; st <= 4; ++st) stage(st);
+}
+
+void Engine::Impl::finish_step() {
   ++n;
   for (detail::AreaRt& ar : areas) ar.noise_mw = ar.noise_next;
   post_step();

@@ -69,8 +69,7 @@ inline double iso_rate(double kiso, double ed, double v, double lo, double hi) {
   (void)inv_lag;                                     \
   const double* __restrict ramp = g.ramp;            \
   const double* __restrict pmin = g.pmin;            \
-  const double* __restrict pmax = g.pmax;            \
-  const double e = -df_hz, ae = std::fabs(e)
+  const double* __restrict pmax = g.pmax
 
 // The arrays of one segment never overlap; GCC honours restrict only on function parameters, so
 // say so to the vectorizer directly.
@@ -101,11 +100,23 @@ namespace {
     y##i[j] = clamp(y##i[j], range.lo, range.hi);                           \
   }
 
+// How the frequency deviation reaches the loop: one value for the whole segment (a single run:
+// every unit sees its area's df) or one per element (an ensemble: each member's lane its own).
+// Either way each element sees the same value through the same operations, so the bits agree.
+struct DfScalar {
+  double v;
+  double operator[](std::size_t) const { return v; }
+};
+struct DfPerElement {
+  const double* __restrict v;
+  double operator[](std::size_t j) const { return v[j]; }
+};
+
 // Always inlined into each instruction-set variant's entry point, so the loop is compiled for
 // that variant's instructions (an out-of-line copy would run the baseline code).
-template <class M, int S, bool ISO>
-[[gnu::always_inline]] inline void model_loop(std::size_t n, double df_hz, const GovernorParams& g, const ModelParams& t,
-                       const SegmentArrays& a, double c, double h6, double* __restrict out) {
+template <class M, int S, bool ISO, class Df>
+[[gnu::always_inline]] inline void model_loop(std::size_t n, Df df, const GovernorParams& g, const ModelParams& t,
+                                              const SegmentArrays& a, double c, double h6, double* __restrict out) {
   static_assert(M::kStates <= kMaxStates && M::kParams <= kMaxParams);
   constexpr std::size_t kIso = M::kStates - 1;
   DL_GOVERNOR;
@@ -129,6 +140,7 @@ template <class M, int S, bool ISO>
     DL_PARAM(1);
     DL_PARAM(2);
     DL_PARAM(3);
+    const double df_hz = df[j], e = -df_hz, ae = std::fabs(e);
     const double ed = deadband(e, ae, dbs[j]);
     const Drive drive{pref0[j] + kd[j] * ed + x[kIso], df_hz, inv_lag[j], ramp[j], pmin[j], pmax[j]};
     const RateResult r = M::rates(x, p, drive, d);
@@ -156,24 +168,26 @@ template <class M, int S, bool ISO>
 #undef DL_IVDEP
 
 // Dispatches the stage number to the loop instance (compiled inside each ISA clone).
-#define DL_DISPATCH_ISO(loop, ISO)                                   \
-  switch (s.stage) {                                                 \
-    case 1: loop, 1, ISO>(n, df_hz, g, t, a, s.c, s.h6, out); break;  \
-    case 2: loop, 2, ISO>(n, df_hz, g, t, a, s.c, s.h6, out); break;  \
-    case 3: loop, 3, ISO>(n, df_hz, g, t, a, s.c, s.h6, out); break;  \
-    default: loop, 4, ISO>(n, df_hz, g, t, a, s.c, s.h6, out); break; \
+#define DL_DISPATCH_ISO(loop, ISO, DF)                             \
+  switch (s.stage) {                                               \
+    case 1: loop, 1, ISO>(n, DF, g, t, a, s.c, s.h6, out); break;  \
+    case 2: loop, 2, ISO>(n, DF, g, t, a, s.c, s.h6, out); break;  \
+    case 3: loop, 3, ISO>(n, DF, g, t, a, s.c, s.h6, out); break;  \
+    default: loop, 4, ISO>(n, DF, g, t, a, s.c, s.h6, out); break; \
   }
-#define DL_DISPATCH(loop)          \
-  if (s.iso) {                     \
-    DL_DISPATCH_ISO(loop, true)    \
-  } else {                         \
-    DL_DISPATCH_ISO(loop, false)   \
+#define DL_DISPATCH(loop, DF)          \
+  if (s.iso) {                         \
+    DL_DISPATCH_ISO(loop, true, DF)    \
+  } else {                             \
+    DL_DISPATCH_ISO(loop, false, DF)   \
   }
 
 }  // namespace
 
 using StageFn = void (*)(std::size_t, double, const GovernorParams&, const ModelParams&, const SegmentArrays&,
                          const StageInfo&, double*);
+using LanesStageFn = void (*)(std::size_t, const double*, const GovernorParams&, const ModelParams&,
+                              const SegmentArrays&, const StageInfo&, double*);
 
 // The entry points of every instruction-set variant: the same source compiled for AVX-512
 // (x86-64-v4), AVX2 and baseline x86-64, one stage function per model. Every variant gives the
@@ -182,13 +196,25 @@ using StageFn = void (*)(std::size_t, double, const GovernorParams&, const Model
   template <class M>                                                                                         \
   ATTR void model_stage(std::size_t n, double df_hz, const GovernorParams& g, const ModelParams& t,           \
                         const SegmentArrays& a, const StageInfo& s, double* out) {                            \
-    DL_DISPATCH(model_loop<M)                                                                                \
+    DL_DISPATCH(model_loop<M, DfScalar{df_hz})                                                               \
+  }                                                                                                           \
+  template <class M>                                                                                         \
+  ATTR void lanes_stage(std::size_t n, const double* df, const GovernorParams& g, const ModelParams& t,       \
+                        const SegmentArrays& a, const StageInfo& s, double* out) {                            \
+    DL_DISPATCH(model_loop<M, DfPerElement{df})                                                              \
   }                                                                                                           \
   template <class... Ms>                                                                                      \
   constexpr std::array<StageFn, sizeof...(Ms)> stage_table(ModelList<Ms...>) {                                \
     return {&model_stage<Ms>...};                                                                             \
   }                                                                                                           \
-  ATTR double ordered_sum(std::size_t n, const double* v) { return ordered_sum_body(n, v); }
+  template <class... Ms>                                                                                      \
+  constexpr std::array<LanesStageFn, sizeof...(Ms)> lanes_table(ModelList<Ms...>) {                           \
+    return {&lanes_stage<Ms>...};                                                                             \
+  }                                                                                                           \
+  ATTR double ordered_sum(std::size_t n, const double* v) { return ordered_sum_body(n, v); }                   \
+  ATTR void ordered_sums(std::size_t n, std::size_t lanes, const double* v, double* out) {                     \
+    ordered_sums_body(n, lanes, v, out);                                                                      \
+  }
 
 // Eight interleaved partial sums combined pairwise: a fixed order the compiler can map onto vector
 // lanes without reassociating anything, so every ISA variant gives the same bits.
@@ -199,6 +225,38 @@ inline double ordered_sum_body(std::size_t n, const double* v) {
     for (int l = 0; l < 8; ++l) s[l] += v[i + static_cast<std::size_t>(l)];
   for (; i < n; ++i) s[0] += v[i];
   return ((s[0] + s[1]) + (s[2] + s[3])) + ((s[4] + s[5]) + (s[6] + s[7]));
+}
+
+// ordered_sum_body for each of `lanes` interleaved sequences (element i of lane l at v[i lanes +
+// l]): lane by lane the same additions in the same order, done across the lanes side by side.
+// The usual widths are compiled for their width; any other goes lane by lane.
+template <std::size_t W>
+[[gnu::always_inline]] inline void ordered_sums_fixed(std::size_t n, const double* v, double* out) {
+  double s[8][W] = {};
+  std::size_t i = 0;
+  for (; i + 8 <= n; i += 8)
+    for (std::size_t q = 0; q < 8; ++q)
+      for (std::size_t l = 0; l < W; ++l) s[q][l] += v[(i + q) * W + l];
+  for (; i < n; ++i)
+    for (std::size_t l = 0; l < W; ++l) s[0][l] += v[i * W + l];
+  for (std::size_t l = 0; l < W; ++l)
+    out[l] = ((s[0][l] + s[1][l]) + (s[2][l] + s[3][l])) + ((s[4][l] + s[5][l]) + (s[6][l] + s[7][l]));
+}
+[[gnu::always_inline]] inline void ordered_sums_body(std::size_t n, std::size_t lanes, const double* v, double* out) {
+  switch (lanes) {
+    case 8: return ordered_sums_fixed<8>(n, v, out);
+    case 4: return ordered_sums_fixed<4>(n, v, out);
+    case 2: return ordered_sums_fixed<2>(n, v, out);
+    default: break;
+  }
+  for (std::size_t l = 0; l < lanes; ++l) {
+    double s[8] = {0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0};
+    std::size_t i = 0;
+    for (; i + 8 <= n; i += 8)
+      for (std::size_t q = 0; q < 8; ++q) s[q] += v[(i + q) * lanes + l];
+    for (; i < n; ++i) s[0] += v[i * lanes + l];
+    out[l] = ((s[0] + s[1]) + (s[2] + s[3])) + ((s[4] + s[5]) + (s[6] + s[7]));
+  }
 }
 
 namespace baseline {
@@ -221,15 +279,19 @@ namespace {
 
 struct KernelSet {
   const char* name;
-  std::array<StageFn, kModelCount> stage;  // by TurbineType
+  std::array<StageFn, kModelCount> stage;        // by TurbineType
+  std::array<LanesStageFn, kModelCount> lanes;   // by TurbineType
   decltype(&baseline::ordered_sum) sum;
+  decltype(&baseline::ordered_sums) sums;
+  std::size_t ensemble_lanes;  // doubles per vector register of the variant (ensemble width)
 };
 
-#define DL_SET(ns) {#ns, ns::stage_table(Models{}), &ns::ordered_sum}
-constexpr KernelSet kBaseline = DL_SET(baseline);
+#define DL_SET(ns, width) \
+  {#ns, ns::stage_table(Models{}), ns::lanes_table(Models{}), &ns::ordered_sum, &ns::ordered_sums, width}
+constexpr KernelSet kBaseline = DL_SET(baseline, 4);
 #if DL_VARIANTS
-constexpr KernelSet kAvx2 = DL_SET(avx2);
-constexpr KernelSet kAvx512 = DL_SET(avx512);
+constexpr KernelSet kAvx2 = DL_SET(avx2, 4);
+constexpr KernelSet kAvx512 = DL_SET(avx512, 8);
 #endif
 #undef DL_SET
 
@@ -263,6 +325,12 @@ void model_stage(TurbineType type, std::size_t n, double df_hz, const GovernorPa
   active().stage[static_cast<std::size_t>(type)](n, df_hz, g, t, a, s, out);
 }
 double ordered_sum(std::size_t n, const double* v) { return active().sum(n, v); }
+void lanes_stage(TurbineType type, std::size_t n, const double* df_hz, const GovernorParams& g, const ModelParams& t,
+                 const SegmentArrays& a, const StageInfo& s, double* out_pm) {
+  active().lanes[static_cast<std::size_t>(type)](n, df_hz, g, t, a, s, out_pm);
+}
+void ordered_sums(std::size_t n, std::size_t lanes, const double* v, double* out) { active().sums(n, lanes, v, out); }
+std::size_t ensemble_lanes() { return active().ensemble_lanes; }
 
 }  // namespace droopline::detail
 

@@ -53,7 +53,21 @@ struct StageInfo {
 void model_stage(TurbineType type, std::size_t n, double df_hz, const GovernorParams& g, const ModelParams& t,
                  const SegmentArrays& a, const StageInfo& s, double* out_pm);
 
-/// Sum of v[0..n) in a fixed order (four interleaved partial sums), independent of the ISA.
+/// Sum of v[0..n) in a fixed order (eight interleaved partial sums), independent of the ISA.
 double ordered_sum(std::size_t n, const double* v);
+
+/// model_stage for an ensemble: `n` elements interleaved across members (element u lanes + l is
+/// unit u of the lane-l member), df_hz with one value per element. Each element goes through
+/// exactly the operations model_stage does for it, so each member's bits are its single run's.
+void lanes_stage(TurbineType type, std::size_t n, const double* df_hz, const GovernorParams& g, const ModelParams& t,
+                 const SegmentArrays& a, const StageInfo& s, double* out_pm);
+
+/// ordered_sum of each of `lanes` interleaved sequences of n values (value i of lane l at
+/// v[i lanes + l]) into out[l], each in ordered_sum's order.
+void ordered_sums(std::size_t n, std::size_t lanes, const double* v, double* out);
+
+/// Members an ensemble steps side by side with the kernels in use: the doubles in one vector
+/// register (8 for AVX-512, 4 for AVX2; 4 for baseline, measured faster than 2 there).
+std::size_t ensemble_lanes();
 
 }  // namespace droopline::detail

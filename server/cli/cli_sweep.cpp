@@ -10,8 +10,10 @@
 #include <nlohmann/json.hpp>
 
 #include "cli_files.hpp"
+#include "droopline/ensemble.hpp"
 #include "droopline/format.hpp"
 #include "droopline/json_input.hpp"
+#include "droopline/kernel_choice.hpp"
 #include "droopline/scenario_io.hpp"
 
 namespace droopline::cli {
@@ -93,6 +95,7 @@ int sweep(const SweepArgs& args) {
   spec.shard = args.shard;
   spec.shards = args.shards;
   spec.threads = args.threads;
+  spec.ensemble = args.ensemble;
   for (const std::string& v : args.vary) {
     std::string error;
     auto parsed = study::parse_vary(v, error);
@@ -118,6 +121,9 @@ int sweep(const SweepArgs& args) {
     if (spec.shards > 1) std::cout << " (shard " << spec.shard << "/" << spec.shards << " of " << res.selected << ")";
     else if (spec.sample) std::cout << " (a sample of " << res.grid_size << ")";
     std::cout << " on " << res.threads << " thread(s) in " << fmt_fixed(res.wall_s, 2) << " s; wrote " << args.out_dir << "/sweep.csv\n";
+    std::cout << "droopline: ensemble_members " << res.ensemble_members << ", diverged_members " << res.diverged_members
+              << ", fallback_members " << res.alone_members << " (" << Ensemble::lanes() << " lanes, "
+              << kernels_in_use() << " kernels" << (spec.ensemble ? "" : ", ensemble off") << ")\n";
     std::vector<std::string> paths;
     for (const auto& v : spec.vary) paths.push_back(v.path);
     print_extremes(res.rows, paths, args.metric);

@@ -18,6 +18,7 @@ struct SweepArgs {
   unsigned threads = 0;
   std::string metric = "nadir_hz";
   bool quiet = false;
+  bool ensemble = true;  ///< false: --no-ensemble, every run alone (for comparison)
 };
 
 /// Runs the sweep (this shard) and writes DIR/sweep.csv, DIR/sweep.json and, for one or two

@@ -236,6 +236,7 @@ class Engine {
   void step_state(std::span<const double> x, std::span<double> next);
 
  private:
+  friend class Ensemble;  // steps the stages of several engines together (ensemble.hpp)
   struct Impl;
   explicit Engine(std::unique_ptr<Impl> impl);
   std::unique_ptr<Impl> impl_;

@@ -7,12 +7,15 @@
 #include <cstdio>
 #include <random>
 #include <set>
+#include <span>
 #include <thread>
 
 #include "droopline/batch.hpp"
 #include "droopline/engine.hpp"
+#include "droopline/ensemble.hpp"
 #include "droopline/format.hpp"
 #include "droopline/scenario_io.hpp"
+#include "sweep_run.hpp"
 
 namespace droopline::study {
 namespace {
@@ -46,13 +49,12 @@ std::uint64_t fnv1a(std::uint64_t h, const std::string& s) {
   return h;
 }
 
-enum Metric : std::size_t {
-  m_disturbances, m_delta, m_rocof, m_nadir, m_nadir_after, m_settling, m_response,
-  m_lowest, m_highest, m_shed, m_tripped, m_final_min, m_count
-};
+}  // namespace
 
-SweepRow run_one(const SweepSpec& spec, std::uint64_t index, const std::vector<std::uint64_t>& strides) {
-  SweepRow row;
+namespace sweep_detail {
+
+std::optional<CheckedSystem> member_system(const SweepSpec& spec, std::uint64_t index,
+                                           const std::vector<std::uint64_t>& strides, SweepRow& row) {
   row.index = index;
   json doc = spec.scenario;
   for (std::size_t k = 0; k < spec.vary.size(); ++k) {
@@ -69,24 +71,22 @@ SweepRow run_one(const SweepSpec& spec, std::uint64_t index, const std::vector<s
       if (i.warning) continue;
       row.error += (row.error.empty() ? "" : "; ") + i.text();
     }
-    return row;
   }
-  const std::unique_ptr<Engine> engine = Engine::create(*loaded.system);
-  Engine& e = *engine;
+  return std::move(loaded.system);
+}
+
+void Extremes::sample(const Engine& at) {
+  for (std::uint32_t a = 0; a < at.def().areas.size(); ++a) {
+    const AreaState s = at.area(AreaId{a});
+    if (s.collapsed) continue;
+    lowest = std::min(lowest, s.f_hz);
+    highest = std::max(highest, s.f_hz);
+  }
+}
+
+void finish_row(const Engine& e, Extremes ex, SweepRow& row) {
   const SystemDef& def = e.def();
-  double lowest = INFINITY, highest = -INFINITY;
-  BatchObservers obs;
-  obs.row = [&](const Engine& at) {
-    for (std::uint32_t a = 0; a < def.areas.size(); ++a) {
-      const AreaState s = at.area(AreaId{a});
-      if (s.collapsed) continue;
-      lowest = std::min(lowest, s.f_hz);
-      highest = std::max(highest, s.f_hz);
-    }
-  };
-  BatchOptions to_end;
-  to_end.row_at_end = true;
-  run_batch(e, to_end, obs);
+  double lowest = ex.lowest, highest = ex.highest;
   row.status = "ok";
   row.metrics.assign(m_count, std::nullopt);
   const auto& ds = e.disturbances();
@@ -127,6 +127,29 @@ SweepRow run_one(const SweepSpec& spec, std::uint64_t index, const std::vector<s
   for (std::uint32_t u = 0; u < def.units.size(); ++u) tripped += e.unit(UnitId{u}).status == UnitStatus::tripped;
   row.metrics[m_tripped] = tripped;
   if (std::isfinite(final_min)) row.metrics[m_final_min] = final_min;
+}
+
+void run_alone(Engine& e, SweepRow& row) {
+  Extremes ex;
+  BatchObservers obs;
+  obs.row = [&ex](const Engine& at) { ex.sample(at); };
+  BatchOptions to_end;
+  to_end.row_at_end = true;
+  run_batch(e, to_end, obs);
+  finish_row(e, ex, row);
+  row.path = "alone";
+}
+
+}  // namespace sweep_detail
+
+namespace {
+
+SweepRow run_one(const SweepSpec& spec, std::uint64_t index, const std::vector<std::uint64_t>& strides) {
+  SweepRow row;
+  const std::optional<CheckedSystem> system = sweep_detail::member_system(spec, index, strides, row);
+  if (!system) return row;
+  const std::unique_ptr<Engine> engine = Engine::create(*system);
+  sweep_detail::run_alone(*engine, row);
   return row;
 }
 
@@ -315,19 +338,26 @@ SweepResult run_sweep(const SweepSpec& spec, std::string& error,
   res.threads = static_cast<unsigned>(std::min<std::size_t>(res.threads, std::max<std::size_t>(1, mine.size())));
   res.rows.resize(mine.size());
   std::atomic<std::size_t> next{0}, done{0};
+  // Runs go in groups of consecutive combinations, stepped together when the ensemble is on (one
+  // member per lane, sweep_ensemble.cpp), else one by one; either way every row is its one run's.
+  const std::size_t group = spec.ensemble ? std::max<std::size_t>(1, Ensemble::lanes()) : 1;
   const auto t0 = std::chrono::steady_clock::now();
   {
-    // The pool: each worker takes the next combination; every row has one writer.
+    // The pool: each worker takes the next group; every row has one writer.
     std::vector<std::jthread> workers;
     for (unsigned w = 0; w < res.threads; ++w)
       workers.emplace_back([&] {
-        for (std::size_t i; (i = next.fetch_add(1)) < mine.size();) {
+        for (std::size_t i; (i = next.fetch_add(group)) < mine.size();) {
+          const std::size_t end = std::min(mine.size(), i + group);
           if (cancel && cancel->load()) {
-            done.fetch_add(1);
-            continue;  // leaves the row empty
+            done.fetch_add(end - i);
+            continue;  // leaves the rows empty
           }
-          res.rows[i] = run_one(spec, mine[i], strides);
-          done.fetch_add(1);
+          if (group == 1)
+            res.rows[i] = run_one(spec, mine[i], strides);
+          else
+            sweep_detail::run_group(spec, std::span(mine).subspan(i, end - i), strides, &res.rows[i]);
+          done.fetch_add(end - i);
         }
       });
     while (progress && done.load() < mine.size()) {
@@ -336,6 +366,11 @@ SweepResult run_sweep(const SweepSpec& spec, std::string& error,
     }
   }
   res.wall_s = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+  for (const SweepRow& row : res.rows) {
+    if (row.path == "ensemble") ++res.ensemble_members;
+    else if (row.path == "diverged") ++res.diverged_members;
+    else if (row.path == "alone") ++res.alone_members;
+  }
   if (cancel && cancel->load()) {
     res.cancelled = true;
     std::erase_if(res.rows, [](const SweepRow& r) { return r.status.empty(); });

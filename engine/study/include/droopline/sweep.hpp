@@ -41,6 +41,9 @@ struct SweepSpec {
   std::uint64_t seed = 1;
   std::uint32_t shard = 1, shards = 1;  ///< this is shard `shard` of `shards` (1-based)
   unsigned threads = 0;                 ///< 0 = one per core
+  /// Step runs of one structure together, one per SIMD lane (droopline/ensemble.hpp); the rows
+  /// are the same bits either way (`--no-ensemble` turns it off for comparison).
+  bool ensemble = true;
 };
 
 /// One run's outcome.
@@ -51,6 +54,10 @@ struct SweepRow {
   std::string error;            ///< why, when not ok
   std::vector<std::optional<double>> metrics;  ///< metric_names() order; empty when not reached
   std::string worst_cause;      ///< the disturbance the metrics describe
+  /// How the run went (kept in memory, not written): `ensemble` (in the lanes from start to
+  /// end), `diverged` (left them on a structural change of its own, then went on alone),
+  /// `alone` (its structure differed, or the ensemble was off); empty for an invalid row.
+  std::string path;
 };
 
 struct SweepResult {
@@ -61,6 +68,9 @@ struct SweepResult {
   double wall_s = 0.0;
   unsigned threads = 1;
   bool cancelled = false;
+  std::uint64_t ensemble_members = 0;  ///< rows whose run stayed in an ensemble's lanes to the end
+  std::uint64_t diverged_members = 0;  ///< rows whose run left the lanes part-way and ended alone
+  std::uint64_t alone_members = 0;     ///< rows run alone from the start (fell back, or ensemble off)
 };
 
 /// The combinations of the sweep, all shards together, as grid indices in ascending order.
