@@ -137,15 +137,17 @@ void post_fit(Services& s, Call& c) {
       auto req = read_fit_request(body, problems);
       if (!req) return answer(respond, 400, error_json("fit refused", problems));
       auto posted = req->scenario ? std::optional<std::string>(req->scenario->dump()) : std::nullopt;
-      with_scenario(s, std::move(posted), [&s, slot, req = std::move(*req), respond](std::string text) mutable {
+      // Shared, not copied: the recording in it may be megabytes, and the callback is copied on its way.
+      auto checked = std::make_shared<const FitRequest>(std::move(*req));
+      with_scenario(s, std::move(posted), [&s, slot, checked, respond](std::string text) mutable {
         guarded(respond, [&] {
-          auto spec = fit_spec(req, text, respond);
+          auto spec = fit_spec(*checked, text, respond);
           slot.reset();
           if (!spec) return;
           std::string err;
           const std::uint64_t budget = study::fit_budget(*spec);
           auto job = s.jobs.submit(
-              "fit", json{{"unit", req.unit}}, [spec = std::move(*spec)](StudyJobs::Job& j) { run_fit_job(spec, j); },
+              "fit", json{{"unit", checked->unit}}, [spec = std::move(*spec)](StudyJobs::Job& j) { run_fit_job(spec, j); },
               err);
           if (!job) return answer(respond, 429, error_json(err));
           job->progress(0, budget);  // the budget shows from the first poll on
