@@ -311,7 +311,7 @@ TEST_CASE("shed and restore by hand: the droop law, and refusals in words") {
         "shed load restored: 20.0 MW in area A\n");
 }
 
-TEST_CASE("restore: hand-shed load first, then stages; a stage all restored is re-armed and trips again") {
+TEST_CASE("restore: hand-shed load first, then stages, a stage all restored is re-armed and trips again") {
   // Demand 300, kd 200, dmp 6: a step of 80 MW settles at -0.388 Hz, below the 49.7 Hz stage,
   // which sheds 10 % (30 MW) and leaves -0.243 Hz.
   SystemDef d = test::one_area(50.0, 500.0, 300.0);

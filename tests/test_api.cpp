@@ -145,7 +145,7 @@ TEST_CASE("join codes: six characters without look-alikes, typed in any case, ea
   CHECK_FALSE(roster.sign_in(seats[1].join_code));
 }
 
-TEST_CASE("the dispatch: a seat's code proves role seat; a seat on an instructor route gets 403 with the reason") {
+TEST_CASE("the dispatch: a seat's code proves role seat, a seat on an instructor route gets 403 with the reason") {
   Services services;  // no live session: a handler that ran would crash (role and seats need none)
   services.token = "the-instructor-token";
   services.seats.set({{"west", "West desk", {"vellmark"}}});

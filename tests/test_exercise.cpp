@@ -441,7 +441,7 @@ TEST_CASE("alarms: RoCoF held beyond its limit raises an alarm") {
   CHECK(w.count(AlarmChange::What::raised, "rocof") == 1);
 }
 
-TEST_CASE("alarms: trip, start, shedding events clear once acknowledged; unit limit and reserve") {
+TEST_CASE("alarms: trip, start, shedding events clear once acknowledged, unit limit and reserve") {
   const Exercise ex = load_ok(file_json().dump());
   auto e = Engine::create(ex.system);
   Watcher w{AlarmMonitor(ex.system, ex.def.alarms), {}};

@@ -52,7 +52,7 @@ TEST_CASE("step deadband: the whole error acts once outside the band") {
   CHECK(test::freq(*e, "A") == Approx(50.0 - 30.0 / (kd + dmp)).margin(1e-4));
 }
 
-TEST_CASE("inside the deadband the governor does nothing; load damping alone holds") {
+TEST_CASE("inside the deadband the governor does nothing, load damping alone holds") {
   for (DeadbandKind kind : {DeadbandKind::offset, DeadbandKind::step}) {
     SystemDef d = test::one_area(50.0, 500.0, 300.0);
     d.units[0].governor.deadband_hz = 0.2;

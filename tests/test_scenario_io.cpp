@@ -192,7 +192,7 @@ TEST_CASE("operator commands: read, written back the same, restore without mw me
   CHECK(std::get<Restore>(res.actions[5]).mw == 10.0);
 }
 
-TEST_CASE("start_up_s and the agc mode round-trip; typical start-up ranges warn") {
+TEST_CASE("start_up_s and the agc mode round-trip, typical start-up ranges warn") {
   nlohmann::ordered_json j = nlohmann::ordered_json::parse(kBase);
   j["units"][1]["start_up_s"] = 600;  // reheat: typical 1-4 h
   j["areas"][0]["agc"] = {{"enabled", true}, {"mode", "constant_interchange"}};
