@@ -19,6 +19,7 @@
 #include "droopline/journal_read.hpp"
 #include "droopline/scenario_io.hpp"
 #include "live_session.hpp"
+#include "study_jobs.hpp"
 #include "support.hpp"
 
 using namespace droopline;
@@ -401,4 +402,21 @@ TEST_CASE("a restore refuses the commands still waiting and journals what replay
   // The service stopping cuts the run short: its end record comes before the stop record.
   CHECK(types == std::vector<std::string>{"scenario", "savepoint", "commands", "restore", "end", "stop"});
   std::filesystem::remove(journal);
+}
+
+TEST_CASE("study jobs: cancelled and failed jobs are forgotten before results, so cancellations cannot push results out") {
+  droopline::server::StudyJobs jobs(1, 4);
+  auto run = [&](const std::string& status) {
+    std::string error;
+    auto job = jobs.submit("fit", nlohmann::ordered_json::object(),
+                           [status](droopline::server::StudyJobs::Job& j) { j.status = status; }, error);
+    REQUIRE(job);
+    while (!job->finished.load()) std::this_thread::yield();
+    return job->id;
+  };
+  const std::string kept = run("done");
+  for (int i = 0; i < 10; ++i) run(i % 2 ? "cancelled" : "failed");
+  CHECK(jobs.find("fit", kept));  // the one result is still there after ten junk jobs
+  for (int i = 0; i < 4; ++i) run("done");
+  CHECK_FALSE(jobs.find("fit", kept));  // newer results do push it out, oldest first
 }

@@ -75,6 +75,18 @@ TEST_CASE("the shipped COMTRADE record reads the same from its bytes as from its
   same(*a, *b);
 }
 
+TEST_CASE("the COMTRADE copy's times are the CSV's to the bit (samples over rate, not a running sum)", "[recordings]") {
+  const RecordingOptions o = qh1();
+  std::vector<Issue> issues;
+  const auto csv = read_recording(kShipped + "recorded_event.csv", o, issues);
+  const auto cfg = read_recording(kShipped + "recorded_event.cfg", o, issues);
+  REQUIRE(csv);
+  REQUIRE(cfg);
+  // 6,000 sums of 0.1 s come to 600.00000000007 s: the last sample then fell past a 600 s run.
+  CHECK(cfg->t_s.back() == 600.0);
+  CHECK(cfg->t_s == csv->t_s);
+}
+
 TEST_CASE("a BINARY32 record reads the same from bytes as from files", "[recordings]") {
   const auto dir = temp_folder("memory-binary32");
   Layout l;

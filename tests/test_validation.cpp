@@ -244,6 +244,21 @@ TEST_CASE("bad injection profiles are refused with their place") {
     REQUIRE_FALSE(issues.empty());
     CHECK(issues[0].path == where);
   }
+  // Well formed but not judgeable on this unit: inside its deadband, or beyond its room.
+  const SystemDef plant = test::load("scenarios/validation/plant.json");
+  auto run = [&](double mhz) {
+    std::vector<Issue> issues;
+    const auto profile = parse_inject_profile(
+        R"({"name":"x","tests":[{"name":"a","pieces":[{"to_mhz":)" + std::to_string(mhz) +
+            R"(,"hold_s":10}],"require":{"share":0.9,"within_s":30,"max_delay_s":2}}]})",
+        issues);
+    REQUIRE(profile);
+    std::string error;
+    CHECK_FALSE(run_injection(plant, "QH1", *profile, error));
+    return error;
+  };
+  CHECK(run(-8).find("inside the deadband of QH1 (10 mHz)") != std::string::npos);
+  CHECK(run(-4000).find("has only 100 MW of room above its setpoint of 300 MW") != std::string::npos);
 }
 
 TEST_CASE("bad fit arguments are refused with what is wrong and where") {
@@ -287,6 +302,19 @@ TEST_CASE("bad fit arguments are refused with what is wrong and where") {
   kw.playback.recording.power_mw[0].second[5] = 300000.0;
   CHECK(refused(kw).find("sample 6 (t = 0.5 s) has output 300000 MW in \"QH1\", beyond ten times the rating of QH1") !=
         std::string::npos);
+  // Too few samples to pin anything down, and a start the scenario cannot take (3,999 MW from a
+  // 400 MW unit: kW read as MW, say) blamed on the recording, not on a parameter's bound.
+  FitSpec few = spec_with({{"governor.droop", 0.02, 0.1}, {"governor.lag_s", 0.05, 1.0}});
+  few.playback.recording.t_s.resize(12);
+  few.playback.recording.frequency_hz.resize(12);
+  few.playback.recording.power_mw[0].second.resize(12);
+  CHECK(refused(few).find("the recording has 12 sample(s) within the scenario's run; a fit of 2 parameter(s) needs at "
+                          "least 20") != std::string::npos);
+  FitSpec high = spec_with({{"governor.droop", 0.02, 0.1}});
+  for (double& p : high.playback.recording.power_mw[0].second) p = 3999.0;
+  const std::string blamed = refused(high);
+  CHECK(blamed.find("the recording starts QH1 where the scenario cannot") != std::string::npos);
+  CHECK(blamed.find("bound") == std::string::npos);
   std::string error;
   CHECK_FALSE(parse_fit_param("governor.droop=0.1:0.05", error));
   CHECK(error.find("must be below") != std::string::npos);

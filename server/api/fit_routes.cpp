@@ -3,6 +3,7 @@
 // Every problem with a request is answered 400 naming its field before anything runs; the
 // recording is read with the same readers as `droopline fit`, from memory instead of a file.
 #include <algorithm>
+#include <atomic>
 #include <cmath>
 #include <memory>
 #include <nlohmann/json.hpp>
@@ -45,10 +46,18 @@ bool take_slot(Services& s, const Call& c) {
   return false;
 }
 
-// A slot taken by take_slot, given back when the last copy of the handle goes (whichever path the
-// work takes, exceptions included).
-std::shared_ptr<void> held_slot(Services& s) {
-  return std::shared_ptr<void>(nullptr, [&s](void*) { s.counters.replays_active.fetch_sub(1); });
+// A slot taken by take_slot, given back once: by give_back before an answer (so the client's next
+// request finds it free: the work's copies of the handle may outlive the answer a little), or
+// when the last copy of the handle goes (whichever path the work takes, exceptions included).
+using Slot = std::shared_ptr<std::atomic<bool>>;
+Slot held_slot(Services& s) {
+  return Slot(new std::atomic<bool>(true), [&s](std::atomic<bool>* held) {
+    if (held->exchange(false)) s.counters.replays_active.fetch_sub(1);
+    delete held;
+  });
+}
+void give_back(Services& s, const Slot& slot) {
+  if (slot && slot->exchange(false)) s.counters.replays_active.fetch_sub(1);
 }
 
 // Runs `then(scenario_text)` on the workers with the posted scenario, or the loaded one.
@@ -105,13 +114,12 @@ void run_fit_job(const study::FitSpec& spec, StudyJobs::Job& j) {
 }
 
 // The spec of a checked request against the scenario `text`; 400 answered otherwise.
-std::optional<study::FitSpec> fit_spec(const FitRequest& req, const std::string& text, const Respond& respond) {
+std::optional<study::FitSpec> fit_spec(const FitRequest& req, const std::string& text, std::string& refusal) {
   LoadResult loaded = parse_scenario(text);
-  if (!loaded.system)
-    return answer(respond, 400, error_json("invalid scenario", issue_texts(loaded.issues))), std::nullopt;
+  if (!loaded.system) return refusal = error_json("invalid scenario", issue_texts(loaded.issues)), std::nullopt;
   std::vector<std::string> problems;
   auto spec = build_fit_spec(req, loaded.system->def(), problems);
-  if (!spec) return answer(respond, 400, error_json("fit refused", problems)), std::nullopt;
+  if (!spec) return refusal = error_json("fit refused", problems), std::nullopt;
   return spec;
 }
 
@@ -135,15 +143,19 @@ void post_fit(Services& s, Call& c) {
     guarded(respond, [&] {
       std::vector<std::string> problems;
       auto req = read_fit_request(body, problems);
-      if (!req) return answer(respond, 400, error_json("fit refused", problems));
+      if (!req) {
+        give_back(s, slot);
+        return answer(respond, 400, error_json("fit refused", problems));
+      }
       auto posted = req->scenario ? std::optional<std::string>(req->scenario->dump()) : std::nullopt;
       // Shared, not copied: the recording in it may be megabytes, and the callback is copied on its way.
       auto checked = std::make_shared<const FitRequest>(std::move(*req));
       with_scenario(s, std::move(posted), [&s, slot, checked, respond](std::string text) mutable {
         guarded(respond, [&] {
-          auto spec = fit_spec(*checked, text, respond);
-          slot.reset();
-          if (!spec) return;
+          std::string refusal;
+          auto spec = fit_spec(*checked, text, refusal);
+          give_back(s, slot);
+          if (!spec) return answer(respond, 400, std::move(refusal));
           std::string err;
           const std::uint64_t budget = study::fit_budget(*spec);
           auto job = s.jobs.submit(
@@ -191,11 +203,11 @@ void post_injection(Services& s, Call& c) {
   if (!take_slot(s, c)) return;
   auto slot = held_slot(s);
   auto posted = req->scenario ? std::optional<std::string>(req->scenario->dump()) : std::nullopt;
-  with_scenario(s, std::move(posted), [slot, req = std::move(*req), respond = c.respond](std::string text) mutable {
+  with_scenario(s, std::move(posted), [&s, slot, req = std::move(*req), respond = c.respond](std::string text) mutable {
     guarded(respond, [&] {
       int status = 200;
       const json out = run_injection_request(req, text, status);
-      slot.reset();
+      give_back(s, slot);
       answer(respond, status, out.dump(-1, ' ', false, json::error_handler_t::replace));
     });
   });

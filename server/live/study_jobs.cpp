@@ -42,10 +42,15 @@ std::shared_ptr<StudyJobs::Job> StudyJobs::submit(const std::string& kind, nlohm
             " at once); wait for it or cancel it";
     return nullptr;
   }
-  // Forget the oldest finished jobs of this kind beyond the ones kept.
+  // Forget the oldest finished jobs of this kind beyond the ones kept: cancelled and failed ones
+  // first (they have nothing to fetch), so a run of cancelled submissions cannot push out results.
   while (static_cast<std::size_t>(std::count_if(jobs_.begin(), jobs_.end(), of_kind)) >= keep_) {
-    auto it = std::find_if(jobs_.begin(), jobs_.end(),
-                           [&of_kind](const auto& j) { return of_kind(j) && j->finished.load(); });
+    auto it = std::find_if(jobs_.begin(), jobs_.end(), [&of_kind](const auto& j) {
+      return of_kind(j) && j->finished.load(std::memory_order_acquire) && j->status != "done";
+    });
+    if (it == jobs_.end())
+      it = std::find_if(jobs_.begin(), jobs_.end(),
+                        [&of_kind](const auto& j) { return of_kind(j) && j->finished.load(); });
     if (it == jobs_.end()) break;
     if ((*it)->thread.joinable()) (*it)->thread.join();
     jobs_.erase(it);

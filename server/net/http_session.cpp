@@ -64,9 +64,16 @@ void HttpSession::do_read() {
 
 void HttpSession::on_header(beast::error_code ec, std::size_t) {
   if (ec) return refuse_read(ec);
-  // Only a fit carries a recording in its body; every other request keeps the small limit.
+  // Only a fit carries a recording in its body, and only the instructor may post one: every other
+  // request keeps the small limit, so a stranger cannot make the server read 16 MiB for a 401.
+  // (The route's role is still checked by Api::handle; this only decides how much is read.)
   const auto& head = parser_->get();
-  const bool fit = head.method() == http::verb::post && parse_target(head.target()).path == "/api/v1/fits";
+  bool fit = head.method() == http::verb::post && parse_target(head.target()).path == "/api/v1/fits";
+  if (fit) {
+    Request probe;
+    probe.authorization = std::string(head[http::field::authorization]);
+    fit = role_of(probe, ctx_.token, ctx_.seats).role == Role::instructor;
+  }
   body_limit_ = fit ? ctx_.options.max_fit_body_bytes : ctx_.options.max_body_bytes;
   if (const auto length = parser_->content_length(); length && *length > body_limit_)
     return refuse_read(http::error::body_limit);  // decided from the header: nothing more is read

@@ -229,6 +229,11 @@ class FitTests(unittest.TestCase):
         # Every other route keeps 1 MiB.
         s, reply, _ = self.srv.request("POST", "/api/v1/injections", "x" * ((1 << 20) + 1), TOKEN)
         self.assertEqual((s, reply["error"]), (413, "request body larger than 1048576 bytes"))
+        # So does a fit from anyone but the instructor: a stranger cannot make the server read
+        # 16 MiB only to be told 401 (or 403 with a wrong token).
+        for token in (None, "not-the-token-at-all"):
+            s, reply, _ = self.srv.request("POST", "/api/v1/fits", "x" * ((1 << 20) + 1), token)
+            self.assertEqual((s, reply["error"]), (413, "request body larger than 1048576 bytes"))
 
     def test_a_viewer_gets_401(self):
         for method, path, body, why in [("POST", "/api/v1/fits", self.body(), "fits are for the instructor"),

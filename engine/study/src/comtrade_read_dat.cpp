@@ -169,11 +169,20 @@ bool times_of(const ComtradeConfig& cfg, const Samples& s, std::vector<double>& 
     }
     return true;
   }
-  // The interval before a sample is the one of the rate it was taken at.
-  std::size_t k = 0;
+  // The interval before a sample is the one of the rate it was taken at. Each time is counted
+  // from the last sample of the rate before (samples over rate, not a running sum of intervals:
+  // 6,000 sums of 0.1 s come to 600.00000000007 s, and the last sample fell outside a 600 s run).
+  std::size_t k = 0, anchor_i = 0;
+  double anchor_t = 0.0;
   for (std::size_t i = 0; i < t.size(); ++i) {
-    while (i + 1 > cfg.rates[k].end_sample) ++k;
-    t[i] = i == 0 ? 0.0 : t[i - 1] + 1.0 / cfg.rates[k].sample_hz;
+    while (i + 1 > cfg.rates[k].end_sample) {
+      ++k;
+      if (i > 0) {
+        anchor_i = i - 1;
+        anchor_t = t[i - 1];
+      }
+    }
+    t[i] = i == 0 ? 0.0 : anchor_t + static_cast<double>(i - anchor_i) / cfg.rates[k].sample_hz;
   }
   return true;
 }

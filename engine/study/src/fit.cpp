@@ -294,6 +294,26 @@ bool check_fit(const FitSpec& spec, std::string& error) {
     prep = prepare_playback(spec.playback, perr);
     if (!prep) problems.push_back(perr);
   }
+  if (prep) {
+    // A handful of samples cannot pin parameters down: the search would report whatever value it
+    // stopped at as "fitted".
+    const std::size_t need = std::max<std::size_t>(20, 10 * spec.params.size());
+    if (prep->sample_s.size() < need)
+      problems.push_back("the recording has " + std::to_string(prep->sample_s.size()) +
+                         " sample(s) within the scenario's run; a fit of " + std::to_string(spec.params.size()) +
+                         " parameter(s) needs at least " + std::to_string(need));
+    // The unit as the recording starts it, before any parameter is tried: a start the scenario
+    // refuses (an output above the rating, say) is the recording's fault, not a bound's.
+    const LoadResult as_recorded = parse_scenario(prep->scenario.dump());
+    if (!as_recorded.system) {
+      std::string why;
+      for (const Issue& i : as_recorded.issues)
+        if (!i.warning) why += (why.empty() ? "" : "; ") + i.text();
+      problems.push_back("the recording starts " + prep->units[0] +
+                         " where the scenario cannot (" + why + "): the wrong column, unit or base?");
+      prep.reset();
+    }
+  }
   for (const FitParam& fp : spec.params) {
     if (!(fp.lo < fp.hi)) {
       problems.push_back("--param " + fp.path + ": LO (" + fmt_num(fp.lo) + ") must be below HI (" + fmt_num(fp.hi) +

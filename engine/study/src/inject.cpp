@@ -122,6 +122,32 @@ std::optional<std::vector<InjectOutcome>> run_injection(const SystemDef& def, co
                                                         const InjectProfile& profile, std::string& error) {
   const auto unit = std::find_if(def.units.begin(), def.units.end(), [&](const UnitDef& u) { return u.id == unit_id; });
   std::vector<InjectOutcome> out;
+  if (unit == def.units.end()) {
+    (void)playback_scenario(def, {unit_id}, 1.0, error);  // its message names the unit and lists the others
+    return std::nullopt;
+  }
+  // A test that cannot be judged is refused before anything runs: its last level inside the
+  // deadband (no response expected), or a droop answer beyond the unit's room from its setpoint.
+  for (std::size_t k = 0; k < profile.tests.size(); ++k) {
+    const InjectTest& test = profile.tests[k];
+    const double level_mhz = test.pieces.empty() ? 0.0 : test.pieces.back().to_mhz;
+    const double want = droop_response(*unit, def.nominal_hz, level_mhz / 1000.0);
+    const double lo = unit->min_mw.value_or(unit->turbine.type == TurbineType::battery ? -unit->rating_mw : 0.0);
+    const double hi = unit->max_mw.value_or(unit->rating_mw);
+    const double room = want > 0 ? hi - unit->setpoint_mw : unit->setpoint_mw - lo;
+    const std::string where = "profile test " + std::to_string(k + 1) + " \"" + test.name + "\": ";
+    if (want == 0.0) {
+      error = where + "its last level, " + fmt_num(level_mhz) + " mHz, is inside the deadband of " + unit_id + " (" +
+              fmt_num(unit->governor.deadband_hz * 1000) + " mHz): no response is expected, so none can be judged";
+      return std::nullopt;
+    }
+    if (std::abs(want) > room + 1e-9) {
+      error = where + "the droop answer to " + fmt_num(level_mhz) + " mHz is " + fmt_num(want) + " MW, but " + unit_id +
+              " has only " + fmt_num(room) + " MW of room " + (want > 0 ? "above" : "below") +
+              " its setpoint of " + fmt_num(unit->setpoint_mw) + " MW: choose a smaller step (or the setpoint)";
+      return std::nullopt;
+    }
+  }
   for (const InjectTest& test : profile.tests) {
     double end = test.lead_s;
     for (const InjectPiece& p : test.pieces) end += p.over_s + p.hold_s;
