@@ -152,6 +152,10 @@ std::shared_ptr<StudyJobs::Job> find_job(Services& s, const Call& c, const std::
 std::shared_ptr<StudyJobs::Job> finished_job(Services& s, const Call& c, const std::string& kind);
 /// Sets the job's cancel flag and answers its status (DELETE), or a 404.
 void cancel_job(Services& s, const Call& c, const std::string& kind);
+/// Takes one of the worker pool's run slots (replays, assessments, debriefs, fit checks and
+/// injection tests share `Options::max_replays` of them), or answers 429 with `busy` and a
+/// Retry-After and returns false. The caller gives the slot back before it answers.
+bool take_run_slot(Services& s, const Call& c, const std::string& busy);
 /// Answers with the debrief of run `run` ("" = the last) of the journal at `path`, built on the
 /// worker pool within the replay limit (429 beyond it); `extras` from the training records.
 void respond_with_debrief(Services& s, Call& c, std::string path, std::string run, study::DebriefExtras extras);

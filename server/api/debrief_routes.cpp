@@ -16,15 +16,11 @@ constexpr const char* kDebrief =
 }  // namespace
 
 void respond_with_debrief(Services& s, Call& c, std::string path, std::string run, study::DebriefExtras extras) {
-  if (s.counters.replays_active.fetch_add(1) >= s.options.max_replays) {
-    s.counters.replays_active.fetch_sub(1);
+  if (!take_run_slot(s, c,
+                     "too many replays and debriefs at once (at most " + std::to_string(s.options.max_replays) +
+                         "); retry later")) {
     s.counters.replays_refused.fetch_add(1);
-    return c.respond(Reply{429,
-                           "application/json",
-                           error_json("too many replays and debriefs at once (at most " +
-                                      std::to_string(s.options.max_replays) + "); retry later"),
-                           {{"Retry-After", "2"}},
-                           {}});
+    return;
   }
   s.run_on_workers([&s, path, run, extras = std::move(extras), respond = c.respond] {
     std::string error;

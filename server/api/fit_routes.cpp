@@ -33,17 +33,11 @@ void answer(const Respond& respond, int status, std::string body) {
   respond(Reply{status, "application/json", std::move(body), {}, {}});
 }
 
-// Takes one of the worker pool's run slots (shared with replays and assessments), or answers 429.
+// One of the worker pool's run slots, or a 429 answered.
 bool take_slot(Services& s, const Call& c) {
-  if (s.counters.replays_active.fetch_add(1) < s.options.max_replays) return true;
-  s.counters.replays_active.fetch_sub(1);
-  c.respond(Reply{429,
-                  "application/json",
-                  error_json("too many runs at once (at most " + std::to_string(s.options.max_replays) +
-                             " replays, assessments, fit checks and injection tests); retry later"),
-                  {{"Retry-After", "2"}},
-                  {}});
-  return false;
+  return take_run_slot(s, c,
+                       "too many runs at once (at most " + std::to_string(s.options.max_replays) +
+                           " replays, assessments, fit checks and injection tests); retry later");
 }
 
 // A slot taken by take_slot, given back once: by give_back before an answer (so the client's next

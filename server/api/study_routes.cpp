@@ -41,16 +41,10 @@ void replays(Services& s, Call& c) {
                             " unit-steps (duration_s / step_s * units), at most " +
                             fmt_num(s.options.max_replay_unit_steps));
   }
-  if (s.counters.replays_active.fetch_add(1) >= s.options.max_replays) {
-    s.counters.replays_active.fetch_sub(1);
+  if (!take_run_slot(s, c,
+                     "too many replays at once (at most " + std::to_string(s.options.max_replays) + "); retry later")) {
     s.counters.replays_refused.fetch_add(1);
-    Reply busy{
-        429,
-        "application/json",
-        error_json("too many replays at once (at most " + std::to_string(s.options.max_replays) + "); retry later"),
-        {{"Retry-After", "2"}},
-        {}};
-    return c.respond(std::move(busy));
+    return;
   }
   std::vector<Issue> warnings;
   for (const Issue& i : r.issues)
@@ -204,6 +198,13 @@ std::shared_ptr<StudyJobs::Job> finished_job(Services& s, const Call& c, const s
   return job;
 }
 
+bool take_run_slot(Services& s, const Call& c, const std::string& busy) {
+  if (s.counters.replays_active.fetch_add(1) < s.options.max_replays) return true;
+  s.counters.replays_active.fetch_sub(1);
+  c.respond(Reply{429, "application/json", error_json(busy), {{"Retry-After", "2"}}, {}});
+  return false;
+}
+
 void cancel_job(Services& s, const Call& c, const std::string& kind) {
   auto job = find_job(s, c, kind);
   if (!job) return;
@@ -238,10 +239,7 @@ void assess(Services& s, Call& c) {
   std::vector<Issue> issues;
   auto req_def = study::parse_requirements(c.request.body, issues);
   if (!req_def) return c.error(400, "invalid requirements", issue_texts(issues));
-  if (s.counters.replays_active.fetch_add(1) >= s.options.max_replays) {
-    s.counters.replays_active.fetch_sub(1);
-    return c.error(429, "too many runs at once; retry later");
-  }
+  if (!take_run_slot(s, c, "too many runs at once; retry later")) return;
   s.live->scenario([&s, respond = c.respond, requirements = std::move(*req_def)](std::string text) {
     s.run_on_workers([&s, respond, requirements, text = std::move(text)] {
       LoadResult r = parse_scenario(text);
