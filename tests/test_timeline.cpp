@@ -213,6 +213,35 @@ TEST_CASE("a rewind by simulation forward reaches the state the lineage had") {
   CHECK_FALSE(same_bits(run.rows, lived));
 }
 
+TEST_CASE("a checkpoint taken after an action of its own step does not apply it twice on a rewind") {
+  // The live session checkpoints when an alarm is acknowledged, which happens among the actions
+  // due at a step: a command applied at that step before it is in the checkpoint and in the log.
+  Driven run("scenarios/demo_island.json");
+  run.run_to(20.5);
+  run.act({test::load_step("quellan", 25)});  // logged at 20.50 s ...
+  run.timeline.checkpoint(run.state());       // ... and already in this checkpoint of 20.50 s
+  run.act({test::load_step("quellan", 5)});   // after it, the same step
+  run.run_to(23.0);
+  const Rows lived = run.rows;
+  int applied = 0;
+  study::Resimulation hooks;
+  hooks.applied = [&](SavedState&, const study::LoggedActions&) { ++applied; };
+  SavedState back = run.timeline.rewind(std::llround(21.7 / 0.01), hooks);
+  CHECK(applied == 1);  // only the one after the checkpoint
+  CHECK(same_bits({row_of(*back.engine)}, {lived[static_cast<std::size_t>(std::llround(21.7 / 0.01) - 1)]}));
+  // To the checkpoint's own step: the state before that step's actions (from the one of 20 s).
+  applied = 0;
+  back = run.timeline.rewind(2050, hooks);
+  CHECK(applied == 0);
+  CHECK(same_bits({row_of(*back.engine)}, {lived[2049]}));
+  run.resume(std::move(back));
+  run.rows.resize(2050);
+  run.act({test::load_step("quellan", 25)});
+  run.act({test::load_step("quellan", 5)});
+  run.run_to(23.0);
+  CHECK(same_bits(run.rows, lived));
+}
+
 TEST_CASE("a timeline reaches keep_s back with checkpoints every every_s") {
   Driven run("scenarios/demo_three_areas.json");
   run.run_to(150.0);

@@ -8,8 +8,11 @@
 // applying the logged actions at their steps: the engine is deterministic, so the state reached
 // is the one the lineage had.
 //
-// Steps: a checkpoint at step k is taken after step k and what follows it (notices, alarms), before
-// the actions applied at k; a rewind to step k gives that same state. A save point is the state as
+// Steps: a checkpoint at step k is taken after step k and what follows it (notices, alarms),
+// usually before the actions applied at k; one taken among them (the live session checkpoints when
+// an alarm is acknowledged, and an acknowledgement is applied with the actions due at its step)
+// counts those it holds, and a rewind from it applies only the later ones. A rewind to step k gives
+// the state before the actions of k. A save point is the state as
 // it is when saved (actions already applied at its step included).
 //
 // Memory: each checkpoint is a full copy of the engine (measured: 0.24 kB per unit of a mixed
@@ -51,6 +54,9 @@ struct SavedState {
   std::optional<ScriptRunner> script;
   std::optional<AlarmMonitor> alarms;
   std::optional<ObjectiveMonitor> objectives = std::nullopt;  ///< initialised so callers without objectives may leave it out
+  /// As a checkpoint: how many logged actions of its own step it already holds (set by
+  /// Timeline::checkpoint; a rewind from it applies only those after them).
+  std::size_t applied_here = 0;
 
   /// An independent copy (the engine cloned).
   SavedState copy() const;
