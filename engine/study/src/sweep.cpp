@@ -4,7 +4,9 @@
 #include <atomic>
 #include <chrono>
 #include <cmath>
+#include <condition_variable>
 #include <cstdio>
+#include <mutex>
 #include <random>
 #include <set>
 #include <span>
@@ -338,6 +340,15 @@ SweepResult run_sweep(const SweepSpec& spec, std::string& error,
   res.threads = static_cast<unsigned>(std::min<std::size_t>(res.threads, std::max<std::size_t>(1, mine.size())));
   res.rows.resize(mine.size());
   std::atomic<std::size_t> next{0}, done{0};
+  // The caller's thread reports progress every 200 ms and wakes as soon as the last run is done (a
+  // plain sleep kept a sweep of 0.1 s waiting for 0.2 s).
+  std::mutex finished_mutex;
+  std::condition_variable finished;
+  auto count_done = [&](std::size_t n) {
+    if (done.fetch_add(n) + n < mine.size()) return;
+    std::lock_guard lock(finished_mutex);
+    finished.notify_all();
+  };
   // Runs go in groups of consecutive combinations, stepped together when the ensemble is on (one
   // member per lane, sweep_ensemble.cpp), else one by one; either way every row is its one run's.
   const std::size_t group = spec.ensemble ? std::max<std::size_t>(1, Ensemble::lanes()) : 1;
@@ -350,19 +361,20 @@ SweepResult run_sweep(const SweepSpec& spec, std::string& error,
         for (std::size_t i; (i = next.fetch_add(group)) < mine.size();) {
           const std::size_t end = std::min(mine.size(), i + group);
           if (cancel && cancel->load()) {
-            done.fetch_add(end - i);
+            count_done(end - i);
             continue;  // leaves the rows empty
           }
           if (group == 1)
             res.rows[i] = run_one(spec, mine[i], strides);
           else
             sweep_detail::run_group(spec, std::span(mine).subspan(i, end - i), strides, &res.rows[i]);
-          done.fetch_add(end - i);
+          count_done(end - i);
         }
       });
     while (progress && done.load() < mine.size()) {
       progress(done.load(), mine.size());
-      std::this_thread::sleep_for(std::chrono::milliseconds(200));
+      std::unique_lock lock(finished_mutex);
+      finished.wait_for(lock, std::chrono::milliseconds(200), [&] { return done.load() >= mine.size(); });
     }
   }
   res.wall_s = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
