@@ -6,10 +6,12 @@
 #include <algorithm>
 #include <filesystem>
 #include <fstream>
+#include <iostream>
 #include <nlohmann/json.hpp>
 #include <sstream>
 
 #include "bad_scenarios.hpp"
+#include "cli_debrief.hpp"
 #include "cli_run.hpp"
 #include "cli_sweep.hpp"
 #include "droopline/batch.hpp"
@@ -205,5 +207,39 @@ TEST_CASE("replay of a restore: every branch as streamed, and the final lineage 
   const std::string unreachable =
       journal("unreachable.jsonl", {R"({"type":"savepoint","step":100,"taken":3,"id":1,"name":"a"})"});
   CHECK(cli::replay(unreachable, (dir / "unreachable").string(), 0, true) == 2);
+  fs::remove_all(dir);
+}
+
+TEST_CASE("debrief of a journal of several runs says which run it wrote and lists the others") {
+  // A journal kept across two starts of the service: the same exercise run twice, the second cut short.
+  const json x = json::parse(slurp(test::source_path("tests/data/exercise_two_areas.json")));
+  const std::string first(32, 'a'), second(32, 'b');
+  const fs::path dir = temp_dir("debrief-runs");
+  fs::create_directories(dir);
+  {
+    std::ofstream j(dir / "session.jsonl");
+    for (const std::string& run : {first, second}) {
+      j << json{{"type", "scenario"}, {"step", 0}, {"run", run}, {"scenario", x["scenario"]}}.dump() << "\n";
+      j << json{{"type", "exercise"}, {"step", 0}, {"run", run}, {"exercise", x}}.dump() << "\n";
+      j << json{{"type", "stop"}, {"step", run == first ? 1250 : 300}}.dump() << "\n";
+    }
+  }
+  std::ostringstream said;
+  std::streambuf* const was = std::cout.rdbuf(said.rdbuf());
+  const int status = cli::debrief((dir / "session.jsonl").string(), (dir / "d.html").string(), "", false, false);
+  std::cout.rdbuf(was);
+  CHECK(status == 0);
+  INFO(said.str());
+  CHECK(said.str().find("of the last of the journal's 2 runs (" + second + ")") != std::string::npos);
+  CHECK(said.str().find("    " + first + "  " + x["name"].get<std::string>() + ", to t = 12.50 s") != std::string::npos);
+  CHECK(said.str().find("    " + second + "  ") != std::string::npos);
+  CHECK(slurp(dir / "d.html").find(second) != std::string::npos);
+  // Naming a run writes that one and lists nothing.
+  said.str("");
+  std::cout.rdbuf(said.rdbuf());
+  CHECK(cli::debrief((dir / "session.jsonl").string(), (dir / "d.html").string(), first, false, false) == 0);
+  std::cout.rdbuf(was);
+  CHECK(said.str().find("picks another") == std::string::npos);
+  CHECK(slurp(dir / "d.html").find(first) != std::string::npos);
   fs::remove_all(dir);
 }
