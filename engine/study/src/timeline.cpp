@@ -5,7 +5,7 @@
 
 namespace droopline::study {
 
-SavedState SavedState::copy() const { return {engine->clone(), counters, script, alarms, objectives, applied_here}; }
+SavedState SavedState::copy() const { return {engine->clone(), counters, script, alarms, objectives}; }
 
 std::size_t Timeline::copy_bytes(const Engine& engine) {
   // The engine's layout (engine/src/engine_impl.hpp): per slot about 20 arrays of doubles and a
@@ -32,17 +32,17 @@ void Timeline::start(const SavedState& state, TimelineOptions options) {
   now_ = {};
   saves_.clear();
   next_id_ = 1;
-  now_.ring.push_back(std::make_shared<const SavedState>(state.copy()));
+  now_.ring.push_back({std::make_shared<const SavedState>(state.copy())});
 }
 
 void Timeline::checkpoint(SavedState state) {
   const std::int64_t now = state.step();
-  state.applied_here = static_cast<std::size_t>(
+  const auto held = static_cast<std::size_t>(
       std::count_if(now_.log.begin(), now_.log.end(), [&](const LoggedActions& l) { return l.step == now; }));
-  now_.ring.push_back(std::make_shared<const SavedState>(std::move(state)));
+  now_.ring.push_back({std::make_shared<const SavedState>(std::move(state)), held});
   // Keep the latest checkpoint at or before now - keep, and everything after it.
-  while (now_.ring.size() >= 2 && now_.ring[1]->step() <= now - keep_) now_.ring.pop_front();
-  const std::int64_t oldest = now_.ring.front()->step();
+  while (now_.ring.size() >= 2 && now_.ring[1].step() <= now - keep_) now_.ring.pop_front();
+  const std::int64_t oldest = now_.ring.front().step();
   auto first_kept =
       std::find_if(now_.log.begin(), now_.log.end(), [&](const LoggedActions& l) { return l.step >= oldest; });
   now_.log.erase(now_.log.begin(), first_kept);
@@ -55,7 +55,7 @@ void Timeline::applied(std::int64_t step, std::vector<Action> actions, std::stri
 void Timeline::truncate(std::int64_t step) {
   // A checkpoint of that step holding some of its actions holds what is forgotten.
   while (now_.ring.size() > 1 &&
-         (now_.ring.back()->step() > step || (now_.ring.back()->step() == step && now_.ring.back()->applied_here > 0)))
+         (now_.ring.back().step() > step || (now_.ring.back().step() == step && now_.ring.back().applied_here > 0)))
     now_.ring.pop_back();
   while (!now_.log.empty() && now_.log.back().step >= step) now_.log.pop_back();
 }
@@ -86,21 +86,22 @@ std::optional<SavedState> Timeline::restore(std::uint64_t id) {
 }
 
 std::int64_t Timeline::earliest_step(std::int64_t now_step) const {
-  return std::max({now_step - keep_, now_.ring.front()->step(), std::int64_t{0}});
+  return std::max({now_step - keep_, now_.ring.front().step(), std::int64_t{0}});
 }
 
 SavedState Timeline::rewind(std::int64_t to_step, const Resimulation& hooks) {
   // The latest checkpoint before the state asked for (the first one is always at or before it: the
   // caller checked earliest_step). One of that very step holding some of its actions is past it.
   auto from = std::find_if(now_.ring.rbegin(), now_.ring.rend(), [&](const auto& c) {
-    return c->step() < to_step || (c->step() == to_step && c->applied_here == 0);
+    return c.step() < to_step || (c.step() == to_step && c.applied_here == 0);
   });
-  SavedState state = (from == now_.ring.rend() ? now_.ring.front() : *from)->copy();
+  const Checkpoint& start = from == now_.ring.rend() ? now_.ring.front() : *from;
+  SavedState state = start.state->copy();
   if (hooks.begin) hooks.begin(state);
   // Actions logged at the checkpoint's own step and not in it were applied after it was taken.
   auto next =
       std::find_if(now_.log.begin(), now_.log.end(), [&](const LoggedActions& l) { return l.step >= state.step(); });
-  for (std::size_t held = 0; held < state.applied_here && next != now_.log.end() && next->step == state.step(); ++held)
+  for (std::size_t held = 0; held < start.applied_here && next != now_.log.end() && next->step == state.step(); ++held)
     ++next;
   while (state.step() < to_step) {
     for (; next != now_.log.end() && next->step == state.step(); ++next) {
@@ -111,7 +112,6 @@ SavedState Timeline::rewind(std::int64_t to_step, const Resimulation& hooks) {
     if (hooks.stepped) hooks.stepped(state);
   }
   truncate(to_step);
-  state.applied_here = 0;
   return state;
 }
 

@@ -54,9 +54,6 @@ struct SavedState {
   std::optional<ScriptRunner> script;
   std::optional<AlarmMonitor> alarms;
   std::optional<ObjectiveMonitor> objectives = std::nullopt;  ///< initialised so callers without objectives may leave it out
-  /// As a checkpoint: how many logged actions of its own step it already holds (set by
-  /// Timeline::checkpoint; a rewind from it applies only those after them).
-  std::size_t applied_here = 0;
 
   /// An independent copy (the engine cloned).
   SavedState copy() const;
@@ -78,10 +75,18 @@ struct TimelineOptions {
   std::size_t budget_bytes = 256u << 20;  ///< the ring's copies stay within this (estimated)
 };
 
+/// An automatic checkpoint: the state, and how many logged actions of its own step it already
+/// holds (a rewind from it applies only those after them).
+struct Checkpoint {
+  std::shared_ptr<const SavedState> state;
+  std::size_t applied_here = 0;
+  std::int64_t step() const { return state->step(); }
+};
+
 /// The checkpoints and actions of one lineage.
 struct Lineage {
-  std::deque<std::shared_ptr<const SavedState>> ring;  ///< oldest first, steps rising
-  std::vector<LoggedActions> log;                      ///< since the oldest checkpoint, steps rising
+  std::deque<Checkpoint> ring;     ///< oldest first, steps rising
+  std::vector<LoggedActions> log;  ///< since the oldest checkpoint, steps rising
 };
 
 /// A named save point.
@@ -153,7 +158,7 @@ class Timeline {
   static std::size_t copy_bytes(const Engine& engine);
 
  private:
-  std::int64_t last_checkpoint_step() const { return now_.ring.empty() ? -1 : now_.ring.back()->step(); }
+  std::int64_t last_checkpoint_step() const { return now_.ring.empty() ? -1 : now_.ring.back().step(); }
 
   std::int64_t every_ = 0;  // steps between checkpoints
   std::int64_t keep_ = 0;   // steps a rewind reaches back
