@@ -6,7 +6,6 @@
 #include "cli_files.hpp"
 #include "droopline/debrief.hpp"
 #include "droopline/format.hpp"
-#include "droopline/journal_read.hpp"
 
 namespace droopline::cli {
 
@@ -14,10 +13,11 @@ int debrief(const std::string& journal, const std::string& out_file, const std::
             bool quiet) {
   std::string error;
   std::optional<std::string> text;
+  std::vector<study::DebriefRun> runs;
   if (as_json) {
-    if (auto j = study::debrief_json(journal, run_id, {}, error)) text = j->dump(1) + "\n";
+    if (auto j = study::debrief_json(journal, run_id, {}, error, &runs)) text = j->dump(1) + "\n";
   } else {
-    text = study::debrief_html(journal, run_id, {}, error);
+    text = study::debrief_html(journal, run_id, {}, error, &runs);
   }
   if (!text) {
     std::cerr << journal << ": error: " << error << "\n";
@@ -38,17 +38,13 @@ int debrief(const std::string& journal, const std::string& out_file, const std::
   if (quiet) return 0;
   std::cout << "droopline: wrote the debrief to " << out_file << "\n";
   // A journal kept across restarts holds several runs: say which one this is and how to pick another.
-  if (run_id.empty()) {
-    const JournalRead read = read_journal(journal);
-    if (read.runs.size() > 1) {
-      std::cout << "  of the last of the journal's " << read.runs.size() << " runs (" << read.runs.back().run_id
-                << "); --run ID picks another:\n";
-      for (const JournalRun& r : read.runs)
-        std::cout << "    " << (r.run_id.empty() ? std::string("(no id)") : r.run_id) << "  "
-                  << (r.exercise ? r.exercise->def.name : r.system.def().name) << ", to t = "
-                  << fmt_fixed(static_cast<double>(r.last_step) * r.system.def().step_s, 2) << " s"
-                  << (r.end ? (r.end->complete ? ", complete" : ", incomplete: " + r.end->why) : std::string()) << "\n";
-    }
+  if (run_id.empty() && runs.size() > 1) {
+    std::cout << "  of the last of the journal's " << runs.size() << " runs (" << runs.back().run_id
+              << "); --run ID picks another:\n";
+    for (const study::DebriefRun& r : runs)
+      std::cout << "    " << (r.run_id.empty() ? std::string("(no id)") : r.run_id) << "  " << r.name
+                << ", to t = " << fmt_fixed(r.to_t_s, 2) << " s"
+                << (r.ended ? (r.complete ? ", complete" : ", incomplete: " + r.why) : std::string()) << "\n";
   }
   return 0;
 }

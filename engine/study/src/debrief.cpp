@@ -208,10 +208,23 @@ class Resim {
 
 json opt(const std::optional<double>& v) { return v ? json(*v) : json(nullptr); }
 
+DebriefRun summary_of(const JournalRun& r) {
+  DebriefRun s;
+  s.run_id = r.run_id;
+  s.name = r.exercise ? r.exercise->def.name : r.system.def().name;
+  s.to_t_s = static_cast<double>(r.last_step) * r.system.def().step_s;
+  if (r.end) {
+    s.ended = true;
+    s.complete = r.end->complete;
+    s.why = r.end->why;
+  }
+  return s;
+}
+
 }  // namespace
 
 std::optional<Debrief> build_debrief(const std::string& journal_path, const std::string& run_id,
-                                     const DebriefExtras& extras, std::string& error) {
+                                     const DebriefExtras& extras, std::string& error, std::vector<DebriefRun>* runs) {
   JournalRead jr = read_journal(journal_path);
   if (!jr.issues.empty()) {
     error = jr.issues.front().text();
@@ -233,18 +246,21 @@ std::optional<Debrief> build_debrief(const std::string& journal_path, const std:
   }
   const std::optional<FinalLineage> lineage = final_lineage(*run, error);
   if (!lineage) return std::nullopt;
+  if (runs)
+    for (const JournalRun& r : jr.runs) runs->push_back(summary_of(r));
 
   const SystemDef& def = run->system.def();
   Debrief d;
   d.journal = journal_path;
   d.run_id = run->run_id;
   d.is_exercise = run->exercise.has_value();
-  d.name = d.is_exercise ? run->exercise->def.name : def.name;
+  const DebriefRun summary = summary_of(*run);
+  d.name = summary.name;
   d.f0_hz = def.nominal_hz;
   d.limits = d.is_exercise ? run->exercise->def.alarms : alarm_limits_for(def.nominal_hz);
-  if (run->end) {
-    d.complete = run->end->complete;
-    d.why = run->end->why;
+  if (summary.ended) {
+    d.complete = summary.complete;
+    d.why = summary.why;
   } else {
     d.why = "the journal has no end record (the session is still running, or stopped before the exercise ended)";
   }
@@ -271,15 +287,17 @@ std::optional<Debrief> build_debrief(const std::string& journal_path, const std:
 }
 
 std::optional<std::string> debrief_html(const std::string& journal_path, const std::string& run_id,
-                                        const DebriefExtras& extras, std::string& error) {
-  std::optional<Debrief> d = build_debrief(journal_path, run_id, extras, error);
+                                        const DebriefExtras& extras, std::string& error,
+                                        std::vector<DebriefRun>* runs) {
+  std::optional<Debrief> d = build_debrief(journal_path, run_id, extras, error, runs);
   if (!d) return std::nullopt;
   return render_debrief_html(*d);
 }
 
 std::optional<nlohmann::ordered_json> debrief_json(const std::string& journal_path, const std::string& run_id,
-                                                   const DebriefExtras& extras, std::string& error) {
-  std::optional<Debrief> d = build_debrief(journal_path, run_id, extras, error);
+                                                   const DebriefExtras& extras, std::string& error,
+                                                   std::vector<DebriefRun>* runs) {
+  std::optional<Debrief> d = build_debrief(journal_path, run_id, extras, error, runs);
   if (!d) return std::nullopt;
   json seats = json::array(), scores = json::array(), timeline = json::array(), dists = json::array(),
        notes = json::array();

@@ -79,8 +79,10 @@ struct Debrief {
 };
 
 /// Reads the journal and re-simulates the run; nullopt with `error` as debrief_html.
+/// `runs`, when given, receives every run of the journal (as debrief_html).
 std::optional<Debrief> build_debrief(const std::string& journal_path, const std::string& run_id,
-                                     const DebriefExtras& extras, std::string& error);
+                                     const DebriefExtras& extras, std::string& error,
+                                     std::vector<DebriefRun>* runs = nullptr);
 /// The debrief as one self-contained HTML page.
 std::string render_debrief_html(const Debrief& d);
 
