@@ -254,3 +254,70 @@ TEST_CASE("a repeated key holding a container is reported, not thrown") {
   REQUIRE(r.issues.size() == 1);
   CHECK(r.issues[0].text() == "json: duplicate key \"areas\"");
 }
+
+TEST_CASE("a streamed array: each element is handed over once, in order, and left out of the document") {
+  std::vector<std::pair<std::size_t, json>> got;
+  const StreamedArray streamed{"units", [&](json&& e, std::size_t i) { got.emplace_back(i, std::move(e)); }};
+  std::vector<Issue> issues;
+  const auto j = parse_untrusted_json(
+      R"({"a": 1, "units": [{"id": "x", "units": [5]}, 7, [1, [2]], null, {}], "b": {"units": [1]}})", issues,
+      JsonLimits{}, streamed);
+  REQUIRE(j);
+  CHECK(issues.empty());
+  REQUIRE(got.size() == 5);
+  for (std::size_t i = 0; i < got.size(); ++i) CHECK(got[i].first == i);
+  CHECK(got[0].second == json::parse(R"({"id": "x", "units": [5]})"));  // an inner "units" is not streamed
+  CHECK(got[1].second == 7);
+  CHECK(got[2].second == json::parse("[1, [2]]"));
+  CHECK(got[3].second.is_null());
+  CHECK(got[4].second == json::object());
+  CHECK((*j)["units"] == json::array());
+  CHECK((*j)["b"]["units"] == json::parse("[1]"));  // only the root's member
+  CHECK((*j)["a"] == 1);
+
+  // Not an array at the root: nothing is handed over, the value stays for the reader to refuse.
+  got.clear();
+  const auto o = parse_untrusted_json(R"({"units": {"u": [1]}})", issues, JsonLimits{}, streamed);
+  REQUIRE(o);
+  CHECK(got.empty());
+  CHECK((*o)["units"]["u"] == json::parse("[1]"));
+}
+
+TEST_CASE("a streamed array keeps the gate's checks: duplicates and depth inside an element fail the parse") {
+  std::size_t taken = 0;
+  const StreamedArray streamed{"units", [&](json&&, std::size_t) { ++taken; }};
+  std::vector<Issue> issues;
+  CHECK_FALSE(parse_untrusted_json(R"({"units": [{"id": "a"}, {"id": "b", "id": "c"}]})", issues, JsonLimits{},
+                                   streamed));
+  REQUIRE(issues.size() == 1);
+  CHECK(issues[0].text() == "json: duplicate key \"id\"");
+  issues.clear();
+  CHECK_FALSE(parse_untrusted_json(R"({"units": [[[1]]]})", issues, {.max_depth = 3}, streamed));
+  REQUIRE(issues.size() == 1);
+  CHECK(issues[0].text() == "json: line 1, column 13: nested deeper than 3 levels of objects and arrays");
+  issues.clear();
+  CHECK_FALSE(parse_untrusted_json(R"({"units": [1, 2,]})", issues, JsonLimits{}, streamed));
+  REQUIRE(issues.size() == 1);
+  CHECK(issues[0].text().rfind("json: line 1, column 17: syntax error", 0) == 0);
+  CHECK(taken == 4);  // handed over before the failure was known: the caller throws them away
+}
+
+TEST_CASE("a scenario's units are reported in the reading order wherever they sit in the text") {
+  // The units are read while the text is parsed; their problems still come after the areas'
+  // and before the events', as the reader's order has them, even with units first in the file.
+  json base = json::parse(kBase);
+  base["areas"][0]["demand_mw"] = "a lot";
+  base["units"][1]["governor"]["droop"] = "steep";
+  base["events"][0]["at_s"] = "soon";
+  json units_first = json::object();
+  units_first["units"] = base["units"];
+  for (auto& [key, value] : base.items())
+    if (key != "units") units_first[key] = value;
+  const auto a = error_texts(parse_scenario(base.dump()));
+  const auto b = error_texts(parse_scenario(units_first.dump()));
+  CHECK(a == b);
+  REQUIRE(a.size() == 3);
+  CHECK(a[0].rfind("areas[0].demand_mw:", 0) == 0);
+  CHECK(a[1].rfind("units[1].governor.droop:", 0) == 0);
+  CHECK(a[2].rfind("events[0].at_s:", 0) == 0);
+}

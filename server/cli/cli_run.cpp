@@ -46,10 +46,13 @@ std::string opt_text(const std::optional<double>& v, int decimals, const char* u
 }  // namespace
 
 int check(const std::string& file) {
-  std::string text;
-  if (std::ifstream in(file, std::ios::binary); in && fs::is_regular_file(file))
-    text.assign(std::istreambuf_iterator<char>(in), std::istreambuf_iterator<char>());
-  if (study::looks_like_exercise(text)) {
+  std::vector<Issue> unread;
+  const std::optional<std::string> text = read_text_file(file, unread);
+  if (!text) {
+    print_issues(unread, file);
+    return 2;
+  }
+  if (study::looks_like_exercise(*text)) {
     study::ExerciseLoad x = study::load_exercise_file(file);
     print_issues(x.issues, file);
     if (!x.exercise) return 2;
@@ -59,7 +62,7 @@ int check(const std::string& file) {
               << x.exercise->system.def().name << "\"\n";
     return 0;
   }
-  LoadResult r = load_scenario_file(file);
+  LoadResult r = parse_scenario(*text);
   print_issues(r.issues, file);
   if (!r.system) return 2;
   const SystemDef& d = r.system->def();

@@ -12,7 +12,7 @@ using json = nlohmann::ordered_json;
 // key that repeats within one object (the JSON standard leaves duplicates undefined).
 class DomBuilder {
  public:
-  explicit DomBuilder(std::size_t max_depth) : max_depth_(max_depth) {}
+  DomBuilder(std::size_t max_depth, const StreamedArray* streamed) : max_depth_(max_depth), streamed_(streamed) {}
 
   json root;
   std::vector<std::string> dups;
@@ -35,6 +35,7 @@ class DomBuilder {
     // One search of the object: a new key is appended at once (with a null value that the next
     // event replaces); a repeated one is noted and its slot receives the new value.
     auto& obj = stack_.back()->get_ref<json::object_t&>();
+    streamed_key_ = streamed_ && stack_.size() == 1 && k == streamed_->key;
     if (obj.empty()) obj.reserve(8);  // most objects of a scenario have a few keys: one allocation
     auto it = obj.find(k);
     if (it != obj.end()) {
@@ -72,6 +73,7 @@ class DomBuilder {
   }
   bool put(json&& v) {
     insert(std::move(v));
+    hand_over();
     return true;
   }
   bool open(json&& v) {
@@ -79,17 +81,32 @@ class DomBuilder {
       too_deep = true;
       return false;
     }
+    const bool streamed_array = streamed_key_ && stack_.size() == 1 && v.is_array();
     stack_.push_back(insert(std::move(v)));  // an open container gets no sibling until closed
+    if (streamed_array) streaming_ = stack_.back();
     return true;
   }
   bool close() {
+    if (stack_.back() == streaming_) streaming_ = nullptr;
     stack_.pop_back();
+    hand_over();
     return true;
+  }
+  // A value just completed directly inside the streamed array leaves the document for `take`.
+  void hand_over() {
+    if (!streaming_ || stack_.back() != streaming_) return;
+    auto& arr = streaming_->get_ref<json::array_t&>();
+    streamed_->take(std::move(arr.back()), streamed_count_++);
+    arr.pop_back();
   }
 
   std::size_t max_depth_;
   std::vector<json*> stack_;
   json* slot_ = nullptr;  // the value of the key just read in the innermost object
+  const StreamedArray* streamed_;
+  bool streamed_key_ = false;  // the key just read is the root's streamed member
+  json* streaming_ = nullptr;  // the streamed array while it is open
+  std::size_t streamed_count_ = 0;
 };
 
 // Byte offset of the bracket that opens level max_depth + 1 (outside strings), or the end.
@@ -129,6 +146,11 @@ std::string line_column(std::string_view text, std::size_t offset) {
 }  // namespace
 
 std::optional<json> parse_untrusted_json(std::string_view text, std::vector<Issue>& issues, const JsonLimits& limits) {
+  return parse_untrusted_json(text, issues, limits, StreamedArray{});
+}
+
+std::optional<json> parse_untrusted_json(std::string_view text, std::vector<Issue>& issues, const JsonLimits& limits,
+                                         const StreamedArray& streamed) {
   if (text.size() > limits.max_bytes) {
     issues.push_back({"json", "text of " + std::to_string(text.size()) + " bytes is longer than the limit of " +
                                   std::to_string(limits.max_bytes) + " bytes",
@@ -140,7 +162,7 @@ std::optional<json> parse_untrusted_json(std::string_view text, std::vector<Issu
     issues.push_back({"json", line_column(text, nul) + ": a NUL byte, which JSON text cannot hold", false});
     return std::nullopt;
   }
-  DomBuilder dom(limits.max_depth);
+  DomBuilder dom(limits.max_depth, streamed.take ? &streamed : nullptr);
   if (!json::sax_parse(text.begin(), text.end(), &dom)) {
     if (dom.too_deep) {
       issues.push_back({"json", line_column(text, too_deep_at(text, limits.max_depth)) +

@@ -420,25 +420,18 @@ ExerciseLoad parse_exercise(std::string_view json_text, const std::string& base_
 
 ExerciseLoad load_exercise_file(const std::string& path) {
   ExerciseLoad out;
-  std::error_code ec;
-  if (!std::filesystem::is_regular_file(path, ec)) {
-    out.issues.push_back({"file", "\"" + path + "\" is not a readable file", false});
-    return out;
-  }
-  std::ifstream in(path, std::ios::binary);
-  std::string text((std::istreambuf_iterator<char>(in)), std::istreambuf_iterator<char>());
-  if (!in && !in.eof()) {
-    out.issues.push_back({"file", "cannot read \"" + path + "\"", false});
-    return out;
-  }
+  const std::optional<std::string> text = read_text_file(path, out.issues);
+  if (!text) return out;
   std::string base = std::filesystem::path(path).parent_path().string();
   if (base.empty()) base = ".";
-  return parse_exercise(text, base);
+  return parse_exercise(*text, base);
 }
 
 bool looks_like_exercise(std::string_view json_text) {
+  // Only the root's keys matter: a fleet's units are dropped as they are parsed, not kept.
   std::vector<Issue> ignored;
-  auto j = parse_untrusted_json(json_text, ignored);
+  const StreamedArray drop_units{"units", [](nlohmann::ordered_json&&, std::size_t) {}};
+  auto j = parse_untrusted_json(json_text, ignored, JsonLimits{}, drop_units);
   return j && j->is_object() && (j->contains("seats") || j->contains("script"));
 }
 

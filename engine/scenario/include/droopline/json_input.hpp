@@ -5,6 +5,7 @@
 /// deeper than the limit and text longer than the limit are refused with where it happened, and
 /// a key repeated within one object is an error rather than a silent last-one-wins.
 #include <cstddef>
+#include <functional>
 #include <optional>
 #include <string_view>
 #include <vector>
@@ -28,5 +29,22 @@ std::optional<nlohmann::ordered_json> parse_untrusted_json(std::string_view text
 /// The same, reporting the first problem as one `json: ...` text (for a single error message).
 std::optional<nlohmann::ordered_json> parse_untrusted_json(std::string_view text, std::string& error,
                                                            const JsonLimits& limits = {});
+
+/// An array member of the root object whose elements are handed over one by one as each is
+/// complete, instead of being kept in the document: a large array (a fleet's units) is read
+/// without its whole document in memory at once. The returned document holds that member as an
+/// empty array. `take` receives each element (any JSON value) and its index; when the parse
+/// fails (syntax, depth, a duplicate key anywhere, including inside an element already handed
+/// over), whatever `take` built must be thrown away, as the text was not valid.
+struct StreamedArray {
+  std::string_view key;
+  std::function<void(nlohmann::ordered_json&& element, std::size_t index)> take;
+};
+
+/// parse_untrusted_json with the root object's member `streamed.key` handed over element by
+/// element (see StreamedArray). Errors and limits are those of the plain parse.
+std::optional<nlohmann::ordered_json> parse_untrusted_json(std::string_view text, std::vector<Issue>& issues,
+                                                           const JsonLimits& limits,
+                                                           const StreamedArray& streamed);
 
 }  // namespace droopline

@@ -26,6 +26,9 @@ struct LoadResult {
 LoadResult parse_scenario(std::string_view json_text);
 /// Reads a file and parses it; an unreadable file is one error under the path "file".
 LoadResult load_scenario_file(const std::string& path);
+/// The whole text of a regular file in one read, or nothing with one error under the path
+/// "file" (not a regular file: a folder would "open" and report a huge size; or a read failed).
+std::optional<std::string> read_text_file(const std::string& path, std::vector<Issue>& issues);
 
 /// Commands parsed from one JSON body (an object or an array of objects), without `at_s`.
 struct CommandParse {
