@@ -6,40 +6,36 @@ namespace droopline::server {
 
 void Hub::join(const std::shared_ptr<WebsocketSession>& s) {
   std::lock_guard lock(mutex_);
-  sessions_.push_back(s);
+  auto next = std::make_shared<List>(*sessions_);
+  next->push_back(s);
+  sessions_ = std::move(next);
 }
 
 void Hub::leave(const WebsocketSession* s) {
   std::lock_guard lock(mutex_);
-  std::erase_if(sessions_, [s](const std::weak_ptr<WebsocketSession>& w) {
+  auto next = std::make_shared<List>(*sessions_);
+  std::erase_if(*next, [s](const std::weak_ptr<WebsocketSession>& w) {
     auto p = w.lock();
     return !p || p.get() == s;
   });
+  sessions_ = std::move(next);
+}
+
+std::shared_ptr<const Hub::List> Hub::list() const {
+  std::lock_guard lock(mutex_);
+  return sessions_;
 }
 
 void Hub::broadcast(const Outgoing& msg) {
-  std::vector<std::weak_ptr<WebsocketSession>> copy;
-  {
-    std::lock_guard lock(mutex_);
-    copy = sessions_;
-  }
-  for (auto& w : copy)
-    if (auto s = w.lock()) s->deliver(msg);
+  for (const auto& w : *list())
+    if (auto s = w.lock()) WebsocketSession::deliver(std::move(s), msg);
 }
 
 void Hub::close_all(const std::string& reason) {
-  std::vector<std::weak_ptr<WebsocketSession>> copy;
-  {
-    std::lock_guard lock(mutex_);
-    copy = sessions_;
-  }
-  for (auto& w : copy)
+  for (const auto& w : *list())
     if (auto s = w.lock()) s->close(websocket::close_code::going_away, reason);
 }
 
-std::size_t Hub::size() const {
-  std::lock_guard lock(mutex_);
-  return sessions_.size();
-}
+std::size_t Hub::size() const { return list()->size(); }
 
 }  // namespace droopline::server

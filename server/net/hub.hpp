@@ -25,8 +25,13 @@ class Hub {
   std::size_t size() const;
 
  private:
+  using List = std::vector<std::weak_ptr<WebsocketSession>>;
+  // Copied on join and leave (rare), never on a broadcast (20 a second): a broadcast takes the
+  // current list under the lock and walks it outside.
+  std::shared_ptr<const List> list() const;
+
   mutable std::mutex mutex_;
-  std::vector<std::weak_ptr<WebsocketSession>> sessions_;
+  std::shared_ptr<const List> sessions_ = std::make_shared<const List>();
 };
 
 }  // namespace droopline::server

@@ -114,7 +114,7 @@ void WebsocketSession::on_read(beast::error_code ec, std::size_t) {
 }
 
 void WebsocketSession::reply(std::string text) {
-  deliver({std::make_shared<const std::string>(std::move(text)), false});
+  deliver(shared_from_this(), {std::make_shared<const std::string>(std::move(text)), false});
 }
 
 void WebsocketSession::handle_message(const std::string& text) {
@@ -215,8 +215,9 @@ void WebsocketSession::handle_message(const std::string& text) {
   ctx_.api->handle(call, std::move(respond));
 }
 
-void WebsocketSession::deliver(const Outgoing& msg) {
-  net::post(ws_.get_executor(), [self = shared_from_this(), msg] { self->enqueue(msg); });
+void WebsocketSession::deliver(std::shared_ptr<WebsocketSession> self, const Outgoing& msg) {
+  auto executor = self->ws_.get_executor();
+  net::post(executor, [self = std::move(self), msg] { self->enqueue(msg); });
 }
 
 void WebsocketSession::enqueue(const Outgoing& msg) {

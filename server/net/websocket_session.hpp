@@ -17,8 +17,8 @@ class WebsocketSession : public std::enable_shared_from_this<WebsocketSession> {
 
   /// Accepts the upgrade request, then greets the client and joins the hub.
   void run(http::request<http::string_body> req);
-  /// Queues a message (any thread).
-  void deliver(const Outgoing& msg);
+  /// Queues a message for `self` (any thread); takes the hub's reference rather than making one.
+  static void deliver(std::shared_ptr<WebsocketSession> self, const Outgoing& msg);
   /// Sends a close frame with `reason` (any thread).
   void close(websocket::close_code code, const std::string& reason);
 
