@@ -62,6 +62,15 @@ std::string quote_cut(std::string_view text) {
   return out + (text.size() > kMax ? "...\"" : "\"");
 }
 
+void unknown_fields(const json& j, std::initializer_list<std::string_view> known, std::vector<std::string>& problems,
+                    const std::string& where) {
+  std::string list;
+  for (std::string_view k : known) (list += list.empty() ? "" : ", ") += k;
+  for (auto it = j.begin(); it != j.end(); ++it)
+    if (std::find(known.begin(), known.end(), it.key()) == known.end())
+      problems.push_back(where + quote_cut(it.key()) + ": unknown field (expected " + list + ")");
+}
+
 std::string error_json(const std::string& message, const std::vector<std::string>& issues) {
   constexpr std::size_t kMaxIssues = 200;
   json j{{"error", clip_text(message)}};

@@ -4,11 +4,14 @@
 // requests and WebSocket control messages both come through here, so one route, one role rule
 // and one set of messages serve both. Handlers answer later, from any thread, through `Respond`.
 #include <functional>
+#include <initializer_list>
 #include <memory>
 #include <optional>
 #include <string>
 #include <utility>
 #include <vector>
+
+#include <nlohmann/json_fwd.hpp>
 
 #include "http_target.hpp"
 #include "seats.hpp"
@@ -127,6 +130,11 @@ std::string error_json(const std::string& message, const std::vector<std::string
 
 /// A client-supplied text quoted in a message: printable ASCII, cut to 120 characters, in quotes.
 std::string quote_cut(std::string_view text);
+
+/// Appends a problem `where"key": unknown field (expected a, b, c)` for each field of the object
+/// `j` outside `known` (the body routes refuse what they would otherwise ignore).
+void unknown_fields(const nlohmann::ordered_json& j, std::initializer_list<std::string_view> known,
+                    std::vector<std::string>& problems, const std::string& where = "");
 
 /// The error texts of `issues` (warnings left out).
 std::vector<std::string> issue_texts(const std::vector<Issue>& issues);

@@ -22,16 +22,6 @@ constexpr std::size_t kMaxParams = 8;
 constexpr unsigned kMaxStarts = 32;
 constexpr std::size_t kMaxName = 120;  // column names and the file name shown in messages
 
-// Fields of `j` outside `known` as problems `where"key": unknown field (expected ...)`.
-void unknown_fields(const json& j, const std::vector<std::string>& known, const std::string& where,
-                    std::vector<std::string>& problems) {
-  std::string list;
-  for (const std::string& k : known) list += (list.empty() ? "" : ", ") + k;
-  for (auto it = j.begin(); it != j.end(); ++it)
-    if (std::find(known.begin(), known.end(), it.key()) == known.end())
-      problems.push_back(where + quote_cut(it.key()) + ": unknown field (expected " + list + ")");
-}
-
 // A short printable name (a column, a file name); false with a problem at `field`.
 bool read_name(const json& j, const std::string& key, const std::string& field, std::string& out,
                std::vector<std::string>& problems) {
@@ -79,11 +69,11 @@ void read_recording_body(const json& r, PostedRecording& rec, std::vector<std::s
   rec.comtrade = format == "comtrade";
   rec.name = rec.comtrade ? "recording.cfg" : "recording.csv";
   if (rec.comtrade)
-    unknown_fields(r, {"format", "cfg", "dat", "dat_base64", "frequency_column", "power_column", "base_mw", "base_hz"},
-                   "recording.", problems);
+    unknown_fields(r, {"format", "cfg", "dat", "dat_base64", "frequency_column", "power_column", "base_mw", "base_hz"}, problems,
+                   "recording.");
   else
-    unknown_fields(r, {"format", "text", "time_column", "frequency_column", "power_column", "base_mw", "base_hz"},
-                   "recording.", problems);
+    unknown_fields(r, {"format", "text", "time_column", "frequency_column", "power_column", "base_mw", "base_hz"}, problems,
+                   "recording.");
   auto text_field = [&](const std::string& key, std::string& out) {
     if (!r.contains(key)) return false;
     if (!r[key].is_string() || r[key].get<std::string>().empty()) {
@@ -215,7 +205,7 @@ std::optional<FitRequest> read_fit_request(std::string_view body, std::vector<st
   const auto j = object_body(body, "{\"unit\", \"params\", \"recording\", ...}", problems);
   if (!j) return std::nullopt;
   FitRequest req;
-  unknown_fields(*j, {"scenario", "unit", "params", "starts", "seed", "threshold_hz", "recording", "name"}, "",
+  unknown_fields(*j, {"scenario", "unit", "params", "starts", "seed", "threshold_hz", "recording", "name"},
                  problems);
   read_scenario_and_unit(*j, req.scenario, req.unit, problems);
   if (!j->contains("params") || !(*j)["params"].is_array() || (*j)["params"].empty() ||
@@ -317,7 +307,7 @@ std::optional<InjectionRequest> read_injection_request(std::string_view body, st
   const auto j = object_body(body, "{\"unit\", \"profile\", \"scenario\"?}", problems);
   if (!j) return std::nullopt;
   InjectionRequest req;
-  unknown_fields(*j, {"scenario", "unit", "profile"}, "", problems);
+  unknown_fields(*j, {"scenario", "unit", "profile"}, problems);
   read_scenario_and_unit(*j, req.scenario, req.unit, problems);
   if (!j->contains("profile") || !(*j)["profile"].is_object()) {
     problems.push_back("profile: required, an injection-test profile {\"name\", \"note\", \"tests\": [...]}");

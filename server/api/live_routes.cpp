@@ -254,6 +254,9 @@ void control(Services& s, Call& c) {
     return c.error(400,
                    "body must be {\"action\": \"pause\" | \"resume\" | \"reset\" | \"speed\" | \"rewind\" | \"end\", "
                    "\"speed\": x, \"to_s\": t}");
+  std::vector<std::string> unknown;
+  unknown_fields(j, {"action", "speed", "to_s"}, unknown);
+  if (!unknown.empty()) return c.error(400, unknown.front());
   const std::string action = j.contains("action") && j["action"].is_string() ? j["action"].get<std::string>() : "";
   if (action == "pause") return s.live->pause(answer(c));
   if (action == "resume") return s.live->resume(answer(c));

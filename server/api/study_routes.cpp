@@ -62,10 +62,7 @@ void replays(Services& s, Call& c) {
 // The sweep asked for in `j`, or the problems with it.
 std::vector<std::string> read_sweep(const json& j, study::SweepSpec& spec, std::string& metric) {
   std::vector<std::string> problems;
-  for (auto it = j.begin(); it != j.end(); ++it)
-    if (it.key() != "scenario" && it.key() != "vary" && it.key() != "sample" && it.key() != "seed" &&
-        it.key() != "metric")
-      problems.push_back(quote_cut(it.key()) + ": unknown field (expected scenario, vary, sample, seed, metric)");
+  unknown_fields(j, {"scenario", "vary", "sample", "seed", "metric"}, problems);
   if (!j.contains("vary") || !j["vary"].is_array() || j["vary"].empty())
     problems.push_back("vary: required, a list of \"PATH=VALUES\"");
   else

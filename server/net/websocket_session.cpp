@@ -207,7 +207,12 @@ void WebsocketSession::handle_message(const std::string& text) {
     call.body = j["commands"].dump();
   } else if (type == "control") {
     call.target = "/api/v1/control";
-    call.body = text;  // {"type": "control", "action": ..., "speed": ...}: the route reads action and speed
+    // {"type": "control", "id": ..., "action": ..., "speed": ..., "to_s": ...}: the route gets the
+    // body HTTP would carry (the message's own fields go), and refuses any other field as it would.
+    json body = j;
+    body.erase("type");
+    body.erase("id");
+    call.body = safe_dump(body);
   } else {
     reply(safe_dump(json{{"type", "error"}, {"id", id}, {"error", "unknown message type \"" + clip_text(type, 64) + "\" (expected auth, commands, control)"}}));
     return;

@@ -326,6 +326,9 @@ BAD_STUDY = [
     ("GET", "/api/v1/history?from_s=30&to_s=10", None, 400, "from_s must not lie after to_s"),
     ("POST", "/api/v1/control", {"action": "speed", "speed": 1e308}, 400, "speed: must lie within [0.1, 100]"),
     ("POST", "/api/v1/control", {"action": 5}, 400, "action"),
+    ("POST", "/api/v1/control", {"action": "rewind", "to_s": 0.5, "x": 1}, 400,
+     "\\\"x\\\": unknown field (expected action, speed, to_s)"),
+    ("POST", "/api/v1/control", {"action": "pause", "type": "control"}, 400, "\\\"type\\\": unknown field"),
     ("POST", "/api/v1/control", {"action": "rewind", "to_s": 1e300}, 400,
      "to_s: must lie within the last 600 s of this lineage and not ahead of now"),
     ("POST", "/api/v1/control", {"action": "rewind", "to_s": -0.01}, 400, "to_s: must lie within the last 600 s"),
@@ -476,6 +479,8 @@ class AttackFindingsTests(DemoServerCase):
                 out["action"] = await next_of(ws, "reply")
                 await ws.send(json.dumps({"type": "commands", "id": 3}))
                 out["commands"] = await next_of(ws, "reply")
+                await ws.send(json.dumps({"type": "control", "id": 4, "action": "speed", "speed": 2, "sped": 3}))
+                out["unknown"] = await next_of(ws, "reply")
                 return out
         out = run(go())
         self.assertIn("text frames holding JSON", out["binary"]["error"])
@@ -484,6 +489,9 @@ class AttackFindingsTests(DemoServerCase):
         self.assertEqual(out["speed"]["body"]["error"], "speed: must lie within [0.1, 100], got 500")
         self.assertIn('action: must be one of "pause", "resume", "reset", "speed", "rewind", "end", got "fly"', out["action"]["body"]["error"])
         self.assertIn("commands: required", out["commands"]["body"]["error"])
+        # The message's own "type" and "id" are not the route's; any other field is refused as over HTTP.
+        self.assertEqual(out["unknown"]["status"], 400)
+        self.assertEqual(out["unknown"]["body"]["error"], '"sped": unknown field (expected action, speed, to_s)')
 
 
 def ours(m):
