@@ -78,6 +78,21 @@ void HttpSession::on_header(beast::error_code ec, std::size_t) {
   if (const auto length = parser_->content_length(); length && *length > body_limit_)
     return refuse_read(http::error::body_limit);  // decided from the header: nothing more is read
   parser_->body_limit(body_limit_);
+  // A client that asked to be told before sending its body (curl does for bodies over 1 KiB) is
+  // told now that the header passed; otherwise it would wait a second or so and then send anyway.
+  if (head.version() == 11 && beast::iequals(head[http::field::expect], "100-continue") && !parser_->is_done()) {
+    static constexpr std::string_view kContinue = "HTTP/1.1 100 Continue\r\n\r\n";
+    net::async_write(stream_, net::buffer(kContinue.data(), kContinue.size()),
+                     [self = shared_from_this()](beast::error_code write_ec, std::size_t) {
+                       if (write_ec) return self->refuse_read(write_ec);
+                       self->read_body();
+                     });
+    return;
+  }
+  read_body();
+}
+
+void HttpSession::read_body() {
   http::async_read(stream_, buffer_, *parser_, beast::bind_front_handler(&HttpSession::on_read, shared_from_this()));
 }
 

@@ -21,6 +21,8 @@ class HttpSession : public std::enable_shared_from_this<HttpSession> {
  private:
   void do_read();
   void on_header(beast::error_code ec, std::size_t bytes);
+  /// Reads the rest of the request (its body) under the limit on_header set.
+  void read_body();
   void on_read(beast::error_code ec, std::size_t bytes);
   void refuse_read(beast::error_code ec);
   /// Writes one response (string, file or empty body); one write in flight per connection.

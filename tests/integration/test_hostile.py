@@ -391,6 +391,46 @@ class LingeringCloseTests(DemoServerCase):
         self.assertLess(sent, 64 << 20)
 
 
+class ExpectContinueTests(DemoServerCase):
+    """RFC 9110 10.1.1: a client sending `Expect: 100-continue` waits for a 100 before its body
+    (curl does so for bodies over 1 MiB); the server answers 100 once the header passed, or the
+    final status at once when the header already decides it."""
+
+    def exchange(self, head, body):
+        with socket.create_connection(("127.0.0.1", self.srv.port), timeout=5) as s:
+            s.sendall(head)
+            s.settimeout(0.8)  # a client gives up waiting after about a second and sends anyway
+            try:
+                first = s.recv(65536)
+            except socket.timeout:
+                first = b""
+            s.settimeout(10)
+            data = b""
+            if first.startswith(b"HTTP/1.1 100 "):
+                s.sendall(body)
+                while not data.endswith(b"}") or b"\r\n\r\n" not in data:
+                    chunk = s.recv(65536)
+                    if not chunk:
+                        break
+                    data += chunk
+            return first, data
+
+    def test_the_header_passing_is_answered_with_100_then_the_reply(self):
+        body = json.dumps({"action": "speed", "speed": 1}).encode()
+        head = (f"POST /api/v1/control HTTP/1.1\r\nHost: x\r\nAuthorization: Bearer {TOKEN}\r\n"
+                f"Expect: 100-Continue\r\nContent-Length: {len(body)}\r\nConnection: close\r\n\r\n").encode()
+        first, data = self.exchange(head, body)
+        self.assertTrue(first.startswith(b"HTTP/1.1 100 Continue\r\n\r\n"), first[:80])
+        self.assertTrue(data.startswith(b"HTTP/1.1 200 "), data[:80])
+
+    def test_a_body_over_the_limit_gets_413_without_100(self):
+        head = (f"POST /api/v1/commands HTTP/1.1\r\nHost: x\r\nAuthorization: Bearer {TOKEN}\r\n"
+                f"Expect: 100-continue\r\nContent-Length: {64 << 20}\r\n\r\n").encode()
+        first, _ = self.exchange(head, b"")
+        self.assertTrue(first.startswith(b"HTTP/1.1 413 "), first[:80])
+        self.assertIn(b"larger than 1048576 bytes", first)
+
+
 def demo_with(change):
     """The demo scenario as a dict, changed by `change(dict)`."""
     with open(os.path.join(test_server.SRC, "scenarios", "demo_three_areas.json")) as fh:
