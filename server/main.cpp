@@ -22,6 +22,7 @@
 #include "cli_validation.hpp"
 #include "cli_sweep.hpp"
 #include "droopline/kernel_choice.hpp"
+#include "droopline/playback.hpp"
 #include "serve.hpp"
 
 namespace {
@@ -361,7 +362,7 @@ Command playback_command(CLI::App& root) {
       ->required()
       ->check(kFileExists);
   add_recording(*sub, a->rec, true);
-  add_real(*sub, "--threshold-hz", a->threshold_hz, 1e-6, 10, "HZ",
+  add_real(*sub, "--threshold-hz", a->threshold_hz, droopline::study::kMinThresholdHz, droopline::study::kMaxThresholdHz, "HZ",
            "an excursion is |f - f0| beyond this (default: the widest deadband + 0.01)");
   sub->add_option("--out-dir", a->out_dir, "write playback.csv, playback.json and plots here")->type_name("DIR");
   sub->add_flag("--json", a->json, "print the comparison as JSON");

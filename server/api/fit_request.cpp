@@ -69,11 +69,11 @@ void read_recording_body(const json& r, PostedRecording& rec, std::vector<std::s
   rec.comtrade = format == "comtrade";
   rec.name = rec.comtrade ? "recording.cfg" : "recording.csv";
   if (rec.comtrade)
-    unknown_fields(r, {"format", "cfg", "dat", "dat_base64", "frequency_column", "power_column", "base_mw", "base_hz"}, problems,
-                   "recording.");
+    unknown_fields(r, {"format", "cfg", "dat", "dat_base64", "frequency_column", "power_column", "base_mw", "base_hz"},
+                   problems, "recording.");
   else
-    unknown_fields(r, {"format", "text", "time_column", "frequency_column", "power_column", "base_mw", "base_hz"}, problems,
-                   "recording.");
+    unknown_fields(r, {"format", "text", "time_column", "frequency_column", "power_column", "base_mw", "base_hz"},
+                   problems, "recording.");
   auto text_field = [&](const std::string& key, std::string& out) {
     if (!r.contains(key)) return false;
     if (!r[key].is_string() || r[key].get<std::string>().empty()) {
@@ -152,7 +152,10 @@ void read_scenario_and_unit(const json& j, std::optional<json>& scenario, std::s
     else
       problems.push_back("scenario: must be an object (a scenario)");
   }
-  if (!j.contains("unit") || !j["unit"].is_string() || j["unit"].get<std::string>().empty())
+  if (j.contains("unit") && !j["unit"].is_string())
+    problems.push_back(std::string("unit: must be a string, the id of a unit of the scenario, got ") +
+                       j["unit"].type_name());
+  else if (!j.contains("unit") || j["unit"].get<std::string>().empty())
     problems.push_back("unit: required, the id of a unit of the scenario");
   else
     unit = j["unit"].get<std::string>();
@@ -205,8 +208,7 @@ std::optional<FitRequest> read_fit_request(std::string_view body, std::vector<st
   const auto j = object_body(body, "{\"unit\", \"params\", \"recording\", ...}", problems);
   if (!j) return std::nullopt;
   FitRequest req;
-  unknown_fields(*j, {"scenario", "unit", "params", "starts", "seed", "threshold_hz", "recording", "name"},
-                 problems);
+  unknown_fields(*j, {"scenario", "unit", "params", "starts", "seed", "threshold_hz", "recording", "name"}, problems);
   read_scenario_and_unit(*j, req.scenario, req.unit, problems);
   if (!j->contains("params") || !(*j)["params"].is_array() || (*j)["params"].empty() ||
       (*j)["params"].size() > kMaxParams) {
@@ -245,7 +247,10 @@ std::optional<FitRequest> read_fit_request(std::string_view body, std::vector<st
       req.seed = (*j)["seed"].get<std::uint64_t>();
   }
   // An excursion beyond 5 Hz would be a collapse, not a governor response.
-  read_number(*j, "threshold_hz", "threshold_hz", 0.0, 5.0, true, req.threshold_hz, problems);
+  // Below 1 mHz an excursion would be measurement noise (frequency transducers resolve about
+  // 1 mHz: common practice), so every sample would count.
+  read_number(*j, "threshold_hz", "threshold_hz", study::kMinThresholdHz, study::kMaxThresholdHz, false,
+              req.threshold_hz, problems);
   if (!j->contains("recording"))
     problems.push_back("recording: required, {\"format\": \"csv\", \"text\": ...} or {\"format\": \"comtrade\", ...}");
   else

@@ -65,8 +65,8 @@ void each(Reader& r, const ijson& obj, const std::string& key, const std::string
 UnitDef read_unit(Reader& r, const ijson& u, const std::string& p) {
   UnitDef ud;
   if (r.object(u, p,
-               {"id", "area", "rating_mw", "inertia_s", "setpoint_mw", "min_mw", "max_mw", "ramp_mw_per_s",
-                "agc_share", "online", "start_up_s", "governor", "turbine"})) {
+               {"id", "area", "rating_mw", "inertia_s", "setpoint_mw", "min_mw", "max_mw", "ramp_mw_per_s", "agc_share",
+                "online", "start_up_s", "governor", "turbine"})) {
     r.string(u, "id", p, ud.id, true);
     r.string(u, "area", p, ud.area, true);
     r.number(u, "rating_mw", p, ud.rating_mw, true);

@@ -96,12 +96,19 @@ struct PlaybackResult {
   std::vector<std::string> warnings;
 };
 
+/// The excursion thresholds a caller may ask for (Hz): below 1 mHz an excursion would be
+/// measurement noise (frequency transducers resolve about 1 mHz: common practice), so every sample
+/// would count; above 5 Hz no credible event would.
+inline constexpr double kMinThresholdHz = 0.001;
+/// The largest excursion threshold (Hz); see kMinThresholdHz.
+inline constexpr double kMaxThresholdHz = 5.0;
+
 /// A scenario, the units played and the recording with one power series per unit (same order).
 struct PlaybackSpec {
   SystemDef def;                   ///< the scenario as loaded
   std::vector<std::string> units;  ///< unit ids, one per power series of the recording
   Recording recording;
-  std::optional<double> threshold_hz;  ///< default: the widest deadband + 0.01 Hz
+  std::optional<double> threshold_hz;  ///< default: the widest deadband + 0.01 Hz; else within the range below
 };
 
 /// A playback prepared once for many runs (a fit runs it for each trial of its parameters).
