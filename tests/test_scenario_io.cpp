@@ -249,7 +249,7 @@ TEST_CASE("every shipped scenario validates and runs to its end") {
 TEST_CASE("a repeated key holding a container is reported, not thrown") {
   auto c = parse_commands(R"([{"kind": "tie_trip", "tie": "t", "tie": ["k"]}, {"kind": false}])");
   REQUIRE_FALSE(c.issues.empty());
-  CHECK(c.issues[0].text() == "json: duplicate key \"tie\"");
+  CHECK(c.issues[0].text() == "json: duplicate key \"tie\" in [0]");
   LoadResult r = parse_scenario(R"({"name": "x", "areas": [], "areas": [{"id": "a", "x": {"y": 1}}]})");
   REQUIRE(r.issues.size() == 1);
   CHECK(r.issues[0].text() == "json: duplicate key \"areas\"");
@@ -290,7 +290,7 @@ TEST_CASE("a streamed array keeps the gate's checks: duplicates and depth inside
   CHECK_FALSE(parse_untrusted_json(R"({"units": [{"id": "a"}, {"id": "b", "id": "c"}]})", issues, JsonLimits{},
                                    streamed));
   REQUIRE(issues.size() == 1);
-  CHECK(issues[0].text() == "json: duplicate key \"id\"");
+  CHECK(issues[0].text() == "json: duplicate key \"id\" in units[1]");
   issues.clear();
   CHECK_FALSE(parse_untrusted_json(R"({"units": [[[1]]]})", issues, {.max_depth = 3}, streamed));
   REQUIRE(issues.size() == 1);
@@ -320,4 +320,29 @@ TEST_CASE("a scenario's units are reported in the reading order wherever they si
   CHECK(a[0].rfind("areas[0].demand_mw:", 0) == 0);
   CHECK(a[1].rfind("units[1].governor.droop:", 0) == 0);
   CHECK(a[2].rfind("events[0].at_s:", 0) == 0);
+}
+
+TEST_CASE("a duplicate key says which object holds it, and a flood of them is counted, not listed") {
+  LoadResult r = parse_scenario(
+      R"({"areas": [{"id": "a", "agc": {"kp": 1, "kp": 2}}], "units": [{}, {"turbine": {"type": "steam", "type": "gas"}}]})");
+  REQUIRE(r.issues.size() == 2);
+  CHECK(r.issues[0].text() == "json: duplicate key \"kp\" in areas[0].agc");
+  CHECK(r.issues[1].text() == "json: duplicate key \"type\" in units[1].turbine");
+  std::string flood = "{\"a\": 1";
+  for (int i = 0; i < 5000; ++i) flood += ", \"a\": 1";
+  LoadResult f = parse_scenario(flood + "}");
+  REQUIRE(f.issues.size() == 101);
+  CHECK(f.issues[100].text() == "json: 4900 more duplicate keys not listed");
+}
+
+TEST_CASE("a text of many bad units lists the first thousand problems and counts the rest") {
+  std::string text = "{\"units\": [";
+  for (int i = 0; i < 3000; ++i) text += (i ? ",{}" : "{}");
+  LoadResult r = parse_scenario(text + "]}");
+  CHECK_FALSE(r.system);
+  // areas and duration_s are missing (2), then each of the 3,000 units lacks id, area, rating_mw,
+  // setpoint_mw, turbine and inertia_s (18,000): 1,000 listed, the rest counted.
+  REQUIRE(r.issues.size() == 1001);
+  CHECK(r.issues[0].text() == "duration_s: required");
+  CHECK(r.issues[1000].text() == "17002 more problems not listed (the first 1000 are)");
 }

@@ -256,16 +256,24 @@ void control(Services& s, Call& c) {
                    "\"speed\": x, \"to_s\": t}");
   std::vector<std::string> unknown;
   unknown_fields(j, {"action", "speed", "to_s"}, unknown);
-  if (!unknown.empty()) return c.error(400, unknown.front());
+  if (!unknown.empty()) return c.error(400, unknown.size() == 1 ? unknown.front() : "unknown fields", unknown);
   const std::string action = j.contains("action") && j["action"].is_string() ? j["action"].get<std::string>() : "";
+  // "speed" goes with the speed action and "to_s" with rewind only: a field the action would
+  // ignore is a mistake worth saying (a pause sent with a speed does not change the speed).
+  for (const auto& [field, owner] : {std::pair{"speed", "speed"}, std::pair{"to_s", "rewind"}})
+    if (j.contains(field) && action != owner)
+      return c.error(400, std::string(field) + ": only with \"action\": \"" + owner + "\"");
   if (action == "pause") return s.live->pause(answer(c));
   if (action == "resume") return s.live->resume(answer(c));
   if (action == "reset") return s.live->reset(answer(c));
   if (action == "end") return s.live->end_exercise("instructor", answer(c));
   if (action == "rewind") {
     // JSON numbers are finite; the session checks the range against its lineage.
-    if (!j.contains("to_s") || !j["to_s"].is_number())
+    if (!j.contains("to_s"))
       return c.error(400, "to_s: required, the simulation time to go back to (s), a number");
+    if (!j["to_s"].is_number())
+      return c.error(400, std::string("to_s: must be a number (the simulation time to go back to, s), got ") +
+                              j["to_s"].type_name());
     return s.live->rewind(j["to_s"].get<double>(), "instructor", answer(c));
   }
   if (action != "speed")
@@ -273,7 +281,9 @@ void control(Services& s, Call& c) {
         400, "action: must be one of \"pause\", \"resume\", \"reset\", \"speed\", \"rewind\", \"end\", got " +
                  (j.contains("action") ? clip_text(j["action"].dump(-1, ' ', false, json::error_handler_t::replace), 64)
                                        : std::string("nothing")));
-  if (!j.contains("speed") || !j["speed"].is_number()) return c.error(400, "speed: required, a number from 0.1 to 100");
+  if (!j.contains("speed")) return c.error(400, "speed: required, a number from 0.1 to 100");
+  if (!j["speed"].is_number())
+    return c.error(400, std::string("speed: must be a number from 0.1 to 100, got ") + j["speed"].type_name());
   const double speed = j["speed"].get<double>();
   if (!(speed >= 0.1 && speed <= 100.0))
     return c.error(400, "speed: must lie within [0.1, 100], got " + fmt_num(speed));

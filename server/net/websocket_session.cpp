@@ -142,6 +142,17 @@ void WebsocketSession::handle_message(const std::string& text) {
     id = given;
   }
   const std::string type = j["type"].get<std::string>();
+  // Each message takes its own fields and no others (a control message's are the route's, checked
+  // there); a field the server would ignore is refused, as every HTTP body route does.
+  std::vector<std::string> unknown;
+  if (type == "auth") unknown_fields(j, {"type", "id", "token", "name"}, unknown);
+  if (type == "commands") unknown_fields(j, {"type", "id", "commands"}, unknown);
+  if (!unknown.empty()) {
+    std::string all;
+    for (const std::string& u : unknown) (all += all.empty() ? "" : "; ") += u;
+    reply(safe_dump(json{{"type", "error"}, {"id", id}, {"error", all}}));
+    return;
+  }
   if (type == "auth") {
     const bool given = j.contains("token") && j["token"].is_string();
     Proof proof = given ? prove(j["token"].get_ref<const std::string&>(), ctx_.token, ctx_.seats) : Proof{};

@@ -298,7 +298,7 @@ BAD_STUDY = [
      "recording.dat_base64: character"),
     ("POST", "/api/v1/fits", [], 400, "body: must be a JSON object"),
     ("POST", "/api/v1/injections", {"unit": "G1", "profile": {"tests": 5}}, 400, "profile.tests"),
-    ("POST", "/api/v1/injections", {"unit": ["G1"], "profile": {}}, 400, "unit: required"),
+    ("POST", "/api/v1/injections", {"unit": ["G1"], "profile": {}}, 400, "unit: must be a string, the id of a unit of the scenario, got array"),
     ("POST", "/api/v1/modes", {"name": 5}, 400, "name: must be a string"),
     ("POST", "/api/v1/modes", [1, 2], 400, "must be an object"),
     ("GET", "/api/v1/modes?damping_threshold=x", None, 400, "damping_threshold: must be a decimal number"),
@@ -329,10 +329,13 @@ BAD_STUDY = [
     ("POST", "/api/v1/control", {"action": "rewind", "to_s": 0.5, "x": 1}, 400,
      "\\\"x\\\": unknown field (expected action, speed, to_s)"),
     ("POST", "/api/v1/control", {"action": "pause", "type": "control"}, 400, "\\\"type\\\": unknown field"),
+    ("POST", "/api/v1/control", {"action": "pause", "speed": 5}, 400, "speed: only with \\\"action\\\": \\\"speed\\\""),
+    ("POST", "/api/v1/control", {"action": "speed", "speed": 1, "to_s": 3}, 400, "to_s: only with"),
+    ("POST", "/api/v1/control", {"action": "speed", "speed": {"a": 1}}, 400, "speed: must be a number from 0.1 to 100, got object"),
     ("POST", "/api/v1/control", {"action": "rewind", "to_s": 1e300}, 400,
      "to_s: must lie within the last 600 s of this lineage and not ahead of now"),
     ("POST", "/api/v1/control", {"action": "rewind", "to_s": -0.01}, 400, "to_s: must lie within the last 600 s"),
-    ("POST", "/api/v1/control", {"action": "rewind", "to_s": "5"}, 400, "to_s: required, the simulation time"),
+    ("POST", "/api/v1/control", {"action": "rewind", "to_s": "5"}, 400, "to_s: must be a number (the simulation time to go back to, s), got string"),
     ("POST", "/api/v1/savepoints", [1], 400, "body must be {\\\"name\\\""),
     ("POST", "/api/v1/savepoints", {"name": ["a"]}, 400, "name: must be a string (cut to 64 bytes)"),
     ("POST", "/api/v1/savepoints", {"nam": "a"}, 400, "\\\"nam\\\": unknown field"),
@@ -521,6 +524,11 @@ class AttackFindingsTests(DemoServerCase):
                 out["commands"] = await next_of(ws, "reply")
                 await ws.send(json.dumps({"type": "control", "id": 4, "action": "speed", "speed": 2, "sped": 3}))
                 out["unknown"] = await next_of(ws, "reply")
+                await ws.send(json.dumps({"type": "commands", "id": 5, "junk": 1,
+                                          "commands": {"kind": "load_step", "area": "oskany", "mw": 1}}))
+                out["commands_junk"] = await next_of(ws, "error")
+                await ws.send(json.dumps({"type": "auth", "id": 6, "token": TOKEN, "junk": 1}))
+                out["auth_junk"] = await next_of(ws, "error")
                 return out
         out = run(go())
         self.assertIn("text frames holding JSON", out["binary"]["error"])
@@ -532,6 +540,9 @@ class AttackFindingsTests(DemoServerCase):
         # The message's own "type" and "id" are not the route's; any other field is refused as over HTTP.
         self.assertEqual(out["unknown"]["status"], 400)
         self.assertEqual(out["unknown"]["body"]["error"], '"sped": unknown field (expected action, speed, to_s)')
+        self.assertEqual(out["commands_junk"]["id"], 5)
+        self.assertEqual(out["commands_junk"]["error"], '"junk": unknown field (expected type, id, commands)')
+        self.assertEqual(out["auth_junk"]["error"], '"junk": unknown field (expected type, id, token, name)')
 
 
 def ours(m):

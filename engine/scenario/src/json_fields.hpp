@@ -53,9 +53,34 @@ inline const char* type_name(const ijson& j) {
 // Reads fields out of JSON objects, recording every problem with its path.
 class Reader {
  public:
+  /// Problems listed at most; past it they are only counted (a text of a million bad units would
+  /// otherwise take gigabytes to list and nobody reads past the first screens).
+  static constexpr std::size_t kMaxListed = 1000;
+
   explicit Reader(std::vector<Issue>& issues) : issues_(issues) {}
 
-  void error(const std::string& path, const std::string& message) { issues_.push_back({path, message, false}); }
+  void error(const std::string& path, const std::string& message) {
+    if (issues_.size() >= kMaxListed) {
+      ++unlisted_;
+      return;
+    }
+    issues_.push_back({path, message, false});
+  }
+  /// Moves another reader's problems here (as many as are still listed) and its count.
+  void take(std::vector<Issue>&& more, std::size_t more_unlisted) {
+    for (Issue& issue : more) {
+      if (issues_.size() >= kMaxListed) {
+        ++unlisted_;
+        continue;
+      }
+      issues_.push_back(std::move(issue));
+    }
+    unlisted_ += more_unlisted;
+  }
+  /// Problems found but not listed.
+  std::size_t unlisted() const { return unlisted_; }
+  /// Whether any problem was found.
+  bool failed() const { return !issues_.empty() || unlisted_ > 0; }
 
   bool object(const ijson& j, const std::string& path, std::initializer_list<std::string_view> allowed) {
     if (!j.is_object()) {
@@ -142,6 +167,7 @@ class Reader {
 
  private:
   std::vector<Issue>& issues_;
+  std::size_t unlisted_ = 0;
 };
 
 /// File names of the enumerations.

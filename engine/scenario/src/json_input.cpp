@@ -14,8 +14,11 @@ class DomBuilder {
  public:
   DomBuilder(std::size_t max_depth, const StreamedArray* streamed) : max_depth_(max_depth), streamed_(streamed) {}
 
+  static constexpr std::size_t kMaxListed = 100;  // duplicate keys named; the rest are counted
+
   json root;
-  std::vector<std::string> dups;
+  std::vector<std::string> dups;  // each `"key"` and, below the root, ` in PATH` of its object
+  std::size_t dup_count = 0;
   std::size_t error_byte = 0;
   std::string error_text;
   bool too_deep = false;
@@ -39,7 +42,8 @@ class DomBuilder {
     if (obj.empty()) obj.reserve(8);  // most objects of a scenario have a few keys: one allocation
     auto it = obj.find(k);
     if (it != obj.end()) {
-      dups.push_back(k);
+      ++dup_count;
+      if (dups.size() < kMaxListed) dups.push_back("\"" + k + "\"" + (stack_.size() > 1 ? " in " + path_here() : ""));
       slot_ = &it->second;
     } else {
       obj.emplace_back(std::move(k), json());
@@ -91,6 +95,25 @@ class DomBuilder {
     stack_.pop_back();
     hand_over();
     return true;
+  }
+  // Where the innermost open container sits, as `units[3].governor` (the scenario's own path
+  // style): an open container is always its parent's last element or the value of one key.
+  std::string path_here() const {
+    std::string path;
+    for (std::size_t i = 1; i < stack_.size(); ++i) {
+      const json* parent = stack_[i - 1];
+      if (parent->is_array()) {
+        const std::size_t index = parent == streaming_ ? streamed_count_ : parent->size() - 1;
+        path += "[" + std::to_string(index) + "]";
+        continue;
+      }
+      for (const auto& [key, value] : parent->get_ref<const json::object_t&>())
+        if (&value == stack_[i]) {
+          (path += path.empty() ? "" : ".") += key;
+          break;
+        }
+    }
+    return path;
   }
   // A value just completed directly inside the streamed array leaves the document for `take`.
   void hand_over() {
@@ -176,8 +199,10 @@ std::optional<json> parse_untrusted_json(std::string_view text, std::vector<Issu
     issues.push_back({"json", line_column(text, dom.error_byte > 0 ? dom.error_byte - 1 : 0) + ": " + what, false});
     return std::nullopt;
   }
-  for (const std::string& k : dom.dups) issues.push_back({"json", "duplicate key \"" + k + "\"", false});
-  if (!dom.dups.empty()) return std::nullopt;
+  for (const std::string& d : dom.dups) issues.push_back({"json", "duplicate key " + d, false});
+  if (dom.dup_count > dom.dups.size())
+    issues.push_back({"json", std::to_string(dom.dup_count - dom.dups.size()) + " more duplicate keys not listed", false});
+  if (dom.dup_count > 0) return std::nullopt;
   return std::move(dom.root);
 }
 

@@ -88,19 +88,27 @@ UnitDef read_unit(Reader& r, const ijson& u, const std::string& p) {
 
 // About how many units the text holds (every unit has a "turbine"), so that their vector is
 // allocated once instead of growing by doubling (each growth moved every unit read so far and
-// touched fresh pages: a third of a 10,000-unit load's page faults). Never more than one unit per
-// 64 bytes of text: a text that names "turbine" everywhere costs no more than a real fleet would.
-std::size_t units_in(std::string_view text) {
+// touched fresh pages: a third of a 10,000-unit load's page faults). At most one unit per 80
+// bytes, the shortest a valid unit can be written (a battery with its five required fields), so a
+// text naming "turbine" everywhere reserves no more than the same length of real units would, and
+// nothing for a text the gate will refuse as too long. Only a hint: without the memory, no reserve.
+void reserve_units(std::vector<UnitDef>& units, std::string_view text) {
+  constexpr std::size_t kShortestUnitBytes = 80;
+  if (text.size() > JsonLimits{}.max_bytes) return;
   constexpr std::string_view kKey = "\"turbine\"";
   std::size_t n = 0;
   for (std::size_t at = text.find(kKey); at != std::string_view::npos; at = text.find(kKey, at + kKey.size())) ++n;
-  return std::min(n, text.size() / 64);
+  try {
+    units.reserve(std::min(n, text.size() / kShortestUnitBytes));
+  } catch (const std::bad_alloc&) {  // the vector grows as units come instead
+  }
 }
 
 // The fleet's units, read one by one while the text is parsed.
 struct StreamedUnits {
-  std::vector<UnitDef> units;
+  std::vector<UnitDef> units;  // kept only while none had a problem: after one, nothing is built
   std::vector<Issue> issues;
+  std::size_t unlisted = 0;
 };
 
 SystemDef read_system(Reader& r, const ijson& j, StreamedUnits& units) {
@@ -171,7 +179,7 @@ SystemDef read_system(Reader& r, const ijson& j, StreamedUnits& units) {
   // The units were read as the parse handed them over (see parse_scenario); their problems go
   // here, in the order a read of the whole document would report them.
   if (r.array(j, "units", "", true)) {
-    for (Issue& issue : units.issues) r.error(issue.path, issue.message);
+    r.take(std::move(units.issues), units.unlisted);
     d.units = std::move(units.units);
   }
 
@@ -193,15 +201,22 @@ LoadResult parse_scenario(std::string_view json_text) {
   // the parser has it and then dropped, so the document of the whole fleet never exists at once
   // (for 10,000 units that document was some 30 MB of small allocations).
   StreamedUnits units;
-  units.units.reserve(units_in(json_text));
+  reserve_units(units.units, json_text);
   Reader unit_reader(units.issues);
   const StreamedArray streamed{"units", [&](ijson&& u, std::size_t i) {
-                                 units.units.push_back(read_unit(unit_reader, u, "units[" + std::to_string(i) + "]"));
+                                 UnitDef unit = read_unit(unit_reader, u, "units[" + std::to_string(i) + "]");
+                                 if (!unit_reader.failed()) units.units.push_back(std::move(unit));
                                }};
   auto j = parse_untrusted_json(json_text, out.issues, JsonLimits{}, streamed);
   if (!j) return out;
+  units.unlisted = unit_reader.unlisted();
   Reader r(out.issues);
   SystemDef def = read_system(r, *j, units);
+  if (r.unlisted() > 0)
+    out.issues.push_back({"",
+                          std::to_string(r.unlisted()) + " more problems not listed (the first " +
+                              std::to_string(Reader::kMaxListed) + " are)",
+                          false});
   if (!out.issues.empty()) return out;  // shape errors first: semantics would only echo them
   CheckResult checked = check(std::move(def));
   out.issues = std::move(checked.issues);
