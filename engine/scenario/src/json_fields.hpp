@@ -3,6 +3,7 @@
 // records every problem with its path, the file names of the enumerations, and the fields of
 // each command kind.
 #include <algorithm>
+#include <cstdint>
 #include <initializer_list>
 #include <nlohmann/json.hpp>
 #include <optional>
@@ -53,14 +54,13 @@ inline const char* type_name(const ijson& j) {
 // Reads fields out of JSON objects, recording every problem with its path.
 class Reader {
  public:
-  /// Problems listed at most; past it they are only counted (a text of a million bad units would
-  /// otherwise take gigabytes to list and nobody reads past the first screens).
-  static constexpr std::size_t kMaxListed = 1000;
-
-  explicit Reader(std::vector<Issue>& issues) : issues_(issues) {}
+  /// Records problems in `issues`; past `max_listed` of them they are only counted (the scenario
+  /// loader's limit: a text of a million bad units would otherwise take gigabytes to list).
+  explicit Reader(std::vector<Issue>& issues, std::size_t max_listed = SIZE_MAX)
+      : issues_(issues), max_listed_(max_listed) {}
 
   void error(const std::string& path, const std::string& message) {
-    if (issues_.size() >= kMaxListed) {
+    if (issues_.size() >= max_listed_) {
       ++unlisted_;
       return;
     }
@@ -69,7 +69,7 @@ class Reader {
   /// Moves another reader's problems here (as many as are still listed) and its count.
   void take(std::vector<Issue>&& more, std::size_t more_unlisted) {
     for (Issue& issue : more) {
-      if (issues_.size() >= kMaxListed) {
+      if (issues_.size() >= max_listed_) {
         ++unlisted_;
         continue;
       }
@@ -167,6 +167,7 @@ class Reader {
 
  private:
   std::vector<Issue>& issues_;
+  std::size_t max_listed_;
   std::size_t unlisted_ = 0;
 };
 

@@ -195,6 +195,10 @@ SystemDef read_system(Reader& r, const ijson& j, StreamedUnits& units) {
 
 }  // namespace
 
+// Problems a scenario lists; past them they are counted (a text of a million bad units would
+// otherwise take gigabytes to list, and nobody reads past the first screens).
+constexpr std::size_t kMaxListedProblems = 1000;
+
 LoadResult parse_scenario(std::string_view json_text) {
   LoadResult out;
   // A fleet's units are most of a scenario's text: each is read into its definition as soon as
@@ -202,7 +206,7 @@ LoadResult parse_scenario(std::string_view json_text) {
   // (for 10,000 units that document was some 30 MB of small allocations).
   StreamedUnits units;
   reserve_units(units.units, json_text);
-  Reader unit_reader(units.issues);
+  Reader unit_reader(units.issues, kMaxListedProblems);
   const StreamedArray streamed{"units", [&](ijson&& u, std::size_t i) {
                                  UnitDef unit = read_unit(unit_reader, u, "units[" + std::to_string(i) + "]");
                                  if (!unit_reader.failed()) units.units.push_back(std::move(unit));
@@ -210,12 +214,12 @@ LoadResult parse_scenario(std::string_view json_text) {
   auto j = parse_untrusted_json(json_text, out.issues, JsonLimits{}, streamed);
   if (!j) return out;
   units.unlisted = unit_reader.unlisted();
-  Reader r(out.issues);
+  Reader r(out.issues, kMaxListedProblems);
   SystemDef def = read_system(r, *j, units);
   if (r.unlisted() > 0)
     out.issues.push_back({"",
                           std::to_string(r.unlisted()) + " more problems not listed (the first " +
-                              std::to_string(Reader::kMaxListed) + " are)",
+                              std::to_string(kMaxListedProblems) + " are)",
                           false});
   if (!out.issues.empty()) return out;  // shape errors first: semantics would only echo them
   CheckResult checked = check(std::move(def));
