@@ -9,6 +9,7 @@
 #include <future>
 #include <string>
 
+#include "droopline/journal_read.hpp"
 #include "records_store.hpp"
 #include "support.hpp"
 
@@ -257,6 +258,32 @@ TEST_CASE("a run left running is marked incomplete and completed from its journa
   CHECK(actions[2]["t_s"] == Approx(3.0));
   CHECK(actions[2]["commands"][0]["area"] == "vellmark");
   CHECK((*run)["ended_s"] == Approx(3.0));
+}
+
+// Found in a CI rehearsal: a run journalled to /dev/full (the fault tests' always-full disk) was
+// left running in the records beside it, and the next start read /dev/full as its journal, an
+// endless line, until memory ran out. A journal that is not a regular file is not read.
+TEST_CASE("a run left running with a device as its journal is marked incomplete without reading it") {
+  const fs::path dir = temp_dir("recover-device");
+  const fs::path file = dir / "records.sqlite3";
+  const std::string other = "fedcba9876543210fedcba9876543210";
+  {
+    RecordsStore store(file.string());
+    REQUIRE(store.ok());
+    store.run_started(start_of(kRun, "/dev/zero"));
+    store.run_started(start_of(other, dir.string()));  // a folder is not a journal either
+    store.flush();
+  }
+  RecordsStore store(file.string());  // recovery at open: returns, does not read forever
+  REQUIRE(store.ok());
+  for (const std::string& id : {kRun, other}) {
+    std::string error;
+    auto run = store.run(id, error);
+    REQUIRE(run);
+    CHECK((*run)["status"] == "incomplete");
+    CHECK((*run)["actions"].empty());
+  }
+  CHECK(droopline::read_journal("/dev/zero").issues.at(0).text() == "journal: \"/dev/zero\" is not a regular file");
 }
 
 TEST_CASE("CSV cells are quoted and never run as formulas") {

@@ -126,6 +126,13 @@ bool read_run_id(const json& j, std::string& out, std::string& error) {
 
 JournalRead read_journal(const std::string& path) {
   JournalRead out;
+  // A journal is a file the service appended to. A device (`--journal /dev/full`, a disk that is
+  // always full) reads as an endless line: read, it would take every byte of memory.
+  std::error_code ec;
+  if (!std::filesystem::is_regular_file(path, ec)) {
+    out.issues.push_back({"journal", "\"" + path + "\" is not a regular file", false});
+    return out;
+  }
   std::ifstream in(path);
   if (!in) {
     out.issues.push_back({"journal", "cannot read \"" + path + "\"", false});
