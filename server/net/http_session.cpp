@@ -78,7 +78,7 @@ void HttpSession::on_header(beast::error_code ec, std::size_t) {
   if (const auto length = parser_->content_length(); length && *length > body_limit_)
     return refuse_read(http::error::body_limit);  // decided from the header: nothing more is read
   parser_->body_limit(body_limit_);
-  // A client that asked to be told before sending its body (curl does for bodies over 1 KiB) is
+  // A client that asked to be told before sending its body (curl 7.88 does for bodies over 1 MiB) is
   // told now that the header passed; otherwise it would wait a second or so and then send anyway.
   if (head.version() == 11 && beast::iequals(head[http::field::expect], "100-continue") && !parser_->is_done()) {
     static constexpr std::string_view kContinue = "HTTP/1.1 100 Continue\r\n\r\n";

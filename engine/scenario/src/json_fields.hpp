@@ -59,22 +59,10 @@ class Reader {
   explicit Reader(std::vector<Issue>& issues, std::size_t max_listed = SIZE_MAX)
       : issues_(issues), max_listed_(max_listed) {}
 
-  void error(const std::string& path, const std::string& message) {
-    if (issues_.size() >= max_listed_) {
-      ++unlisted_;
-      return;
-    }
-    issues_.push_back({path, message, false});
-  }
+  void error(const std::string& path, const std::string& message) { add({path, message, false}); }
   /// Moves another reader's problems here (as many as are still listed) and its count.
   void take(std::vector<Issue>&& more, std::size_t more_unlisted) {
-    for (Issue& issue : more) {
-      if (issues_.size() >= max_listed_) {
-        ++unlisted_;
-        continue;
-      }
-      issues_.push_back(std::move(issue));
-    }
+    for (Issue& issue : more) add(std::move(issue));
     unlisted_ += more_unlisted;
   }
   /// Problems found but not listed.
@@ -166,6 +154,13 @@ class Reader {
   }
 
  private:
+  void add(Issue&& issue) {
+    if (issues_.size() >= max_listed_)
+      ++unlisted_;
+    else
+      issues_.push_back(std::move(issue));
+  }
+
   std::vector<Issue>& issues_;
   std::size_t max_listed_;
   std::size_t unlisted_ = 0;
