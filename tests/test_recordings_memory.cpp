@@ -15,7 +15,7 @@ const std::string kShipped = std::string(DROOPLINE_SOURCE_DIR) + "/scenarios/val
 
 std::string file_text(const std::string& path) {
   std::vector<Issue> issues;
-  auto text = detail::read_file(path, issues);
+  auto text = read_text_file(path, issues);
   REQUIRE(text);
   return *text;
 }
@@ -138,4 +138,18 @@ TEST_CASE("errors from memory name the place with the name given", "[recordings]
   REQUIRE(issues.size() == 1);
   CHECK(issues[0].path.rfind("posted.cfg line ", 0) == 0);
   CHECK(issues[0].message.find("unknown file type \"PACKED\"") != std::string::npos);
+}
+
+TEST_CASE("a recording path that is a device or a folder is refused, not read forever", "[recordings]") {
+  // /dev/zero never ends: read as a stream it would take all of memory before any error.
+  for (const std::string& path : std::vector<std::string>{"/dev/zero", "/dev/null", DROOPLINE_SOURCE_DIR}) {
+    for (const std::string ext : {".csv", ".cfg"}) {
+      std::vector<Issue> issues;
+      const auto r =
+          ext == ".csv" ? read_csv_recording(path, qh1(), issues) : read_comtrade_recording(path, qh1(), issues);
+      CHECK_FALSE(r);
+      INFO(issues_text(issues));
+      CHECK(issues_text(issues).find("\"" + path + "\" is not a readable file") != std::string::npos);
+    }
+  }
 }

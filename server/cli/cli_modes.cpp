@@ -1,8 +1,6 @@
 // `droopline modes` (small-signal modes) and `droopline assess` (requirement checks).
 #include <cstdio>
-#include <fstream>
 #include <iostream>
-#include <sstream>
 
 #include "cli_modes.hpp"
 #include "droopline/format.hpp"
@@ -60,15 +58,14 @@ int assess(const std::string& file, const std::string& requirements_file, bool a
     for (const Issue& i : r.issues) std::cerr << file << ": " << (i.warning ? "warning: " : "error: ") << i.text() << "\n";
     return 2;
   }
-  std::ifstream in(requirements_file, std::ios::binary);
-  if (!in) {
-    std::cerr << requirements_file << ": error: cannot read the file\n";
+  std::vector<Issue> unread;
+  const std::optional<std::string> text = read_text_file(requirements_file, unread);
+  if (!text) {
+    std::cerr << requirements_file << ": error: " << unread.front().text() << "\n";
     return 2;
   }
-  std::stringstream text;
-  text << in.rdbuf();
   std::vector<Issue> issues;
-  const auto req = study::parse_requirements(text.str(), issues);
+  const auto req = study::parse_requirements(*text, issues);
   if (!req) {
     for (const Issue& i : issues) std::cerr << requirements_file << ": error: " << i.text() << "\n";
     return 2;

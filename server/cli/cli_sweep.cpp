@@ -2,10 +2,8 @@
 
 #include <algorithm>
 #include <cmath>
-#include <fstream>
 #include <iostream>
 #include <set>
-#include <sstream>
 
 #include <nlohmann/json.hpp>
 
@@ -138,10 +136,10 @@ int merge(const std::vector<std::string>& shard_dirs, const std::string& out_dir
   json all = json::array();
   for (const std::string& dir : shard_dirs) {
     const std::string file = (fs::path(dir) / "sweep.json").string();
-    std::ifstream in(file, std::ios::binary);
-    const std::string text((std::istreambuf_iterator<char>(in)), std::istreambuf_iterator<char>());
-    std::string bad;
-    const auto parsed = parse_untrusted_json(text, bad);
+    std::vector<Issue> unread;
+    const std::optional<std::string> text = read_text_file(file, unread);
+    std::string bad = text ? "" : unread.front().text();
+    const auto parsed = text ? parse_untrusted_json(*text, bad) : std::nullopt;
     const json doc = parsed ? *parsed : json(json::value_t::discarded);
     if (doc.is_discarded() || !doc.is_object() || !doc.contains("sweep")) {
       std::cerr << file << ": error: not a sweep result (" << (bad.empty() ? "missing, or no \"sweep\" object" : bad) << ")\n";

@@ -215,7 +215,7 @@ int inject(const InjectArgs& args) {
   const auto def = load(args.scenario_file);
   if (!def) return 2;
   std::vector<Issue> issues;
-  const auto text = study::detail::read_file(args.profile, issues);
+  const auto text = read_text_file(args.profile, issues);
   const auto profile = text ? study::parse_inject_profile(*text, issues) : std::nullopt;
   if (!profile) {
     for (const Issue& i : issues) std::cerr << args.profile << ": error: " << i.text() << "\n";

@@ -3,9 +3,7 @@
 #include <csignal>
 #include <filesystem>
 #include <cstdlib>
-#include <fstream>
 #include <random>
-#include <sstream>
 
 #include <spdlog/spdlog.h>
 
@@ -94,10 +92,11 @@ int serve(Options options) {
   if (!r.system) return 2;
 
   if (!opt.token_file.empty()) {
-    std::ifstream in(opt.token_file);
-    std::getline(in, ctx.token);
+    std::vector<Issue> unread;  // a regular file only: a device or a pipe would never end
+    const std::optional<std::string> text = read_text_file(opt.token_file, unread);
+    if (text) ctx.token = text->substr(0, text->find('\n'));
     while (!ctx.token.empty() && std::isspace(static_cast<unsigned char>(ctx.token.back()))) ctx.token.pop_back();
-    if (!in && ctx.token.empty()) {
+    if (!text) {
       spdlog::error("cannot read the token file \"{}\"", opt.token_file);
       return 2;
     }

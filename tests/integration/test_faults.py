@@ -311,6 +311,14 @@ class JournalDiskTests(unittest.TestCase):
         self.assertIn(f'cannot open journal "{missing}" for appending: No such file or directory',
                       proc.stdout + proc.stderr)
 
+    def test_token_file_that_never_ends_stops_the_start(self):
+        # /dev/zero is one endless line: read as a stream it would take all of memory.
+        proc = subprocess.run([test_server.BIN, "serve", "--scenario", scenario("demo_island.json"), "--listen",
+                               f"127.0.0.1:{test_server.free_port()}", "--token-file", "/dev/zero"],
+                              capture_output=True, text=True, timeout=20)
+        self.assertEqual(proc.returncode, 2)
+        self.assertIn('cannot read the token file "/dev/zero"', proc.stdout + proc.stderr)
+
     @unittest.skipUnless(can_mount(), "needs root and mount(8) for a small tmpfs")
     def test_disk_fills_and_turns_read_only_during_the_session(self):
         mnt = tempfile.mkdtemp(prefix="droopline-mnt-")

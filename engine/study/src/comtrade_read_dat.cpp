@@ -13,6 +13,7 @@
 
 #include "droopline/format.hpp"
 #include "droopline/recording.hpp"
+#include "droopline/scenario_io.hpp"
 
 namespace droopline::study {
 namespace {
@@ -292,7 +293,7 @@ std::optional<Recording> read_comtrade_recording(const std::string& path, const 
           out.push_back({path, "no data file beside it (" + stem + ".dat or .DAT)", false});
           return std::nullopt;
         }
-        auto read = detail::read_file(dat_path, out);
+        auto read = read_text_file(dat_path, out);
         if (!read) return std::nullopt;
         dat_text = std::move(*read);
         return std::string_view(dat_text);

@@ -4,10 +4,9 @@
 #include <cctype>
 #include <charconv>
 #include <cmath>
-#include <fstream>
-#include <iterator>
 
 #include "droopline/format.hpp"
+#include "droopline/scenario_io.hpp"
 
 namespace droopline::study {
 namespace detail {
@@ -29,20 +28,6 @@ bool parse_number(std::string_view field, double& out) {
   if (ec != std::errc() || end != field.data() + field.size() || !std::isfinite(v)) return false;
   out = v;
   return true;
-}
-
-std::optional<std::string> read_file(const std::string& path, std::vector<Issue>& issues) {
-  std::ifstream in(path, std::ios::binary);
-  if (!in) {
-    issues.push_back({path, "cannot read the file", false});
-    return std::nullopt;
-  }
-  std::string text((std::istreambuf_iterator<char>(in)), std::istreambuf_iterator<char>());
-  if (in.bad()) {
-    issues.push_back({path, "read error", false});
-    return std::nullopt;
-  }
-  return text;
 }
 
 // The lines of `text` without their ends (LF or CRLF), with a byte order mark dropped.
@@ -153,7 +138,7 @@ bool check_options(const RecordingOptions& options, std::vector<Issue>& issues) 
 std::optional<std::string> read_checked(const std::string& path, const RecordingOptions& options,
                                         std::vector<Issue>& issues) {
   if (!check_options(options, issues)) return std::nullopt;
-  return read_file(path, issues);
+  return read_text_file(path, issues);  // a regular file only: a device or pipe would never end
 }
 
 std::optional<std::vector<std::size_t>> choose(const std::vector<std::string>& names,

@@ -107,8 +107,6 @@ bool parse_number(std::string_view field, double& out);
 std::string_view trim(std::string_view field);
 /// The lines of `text` without their ends (LF or CRLF), a byte order mark dropped.
 std::vector<std::string_view> lines_of(std::string_view text);
-/// The text of a file, or an issue naming it.
-std::optional<std::string> read_file(const std::string& path, std::vector<Issue>& issues);
 /// Fills samples marked missing by linear interpolation in time (held at the ends); the count filled.
 std::size_t fill_missing(const std::vector<double>& t_s, std::vector<double>& values, const std::vector<char>& missing);
 /// Moves every series onto a uniform grid at `hz` from the first to the last time, linearly, and
