@@ -22,6 +22,7 @@
 //   views.js       droop and power-angle canvases
 import { app, $, fmt } from '/state.js';
 import { connect, startsRun } from '/connection.js';
+import { dropNotesAfter } from '/commands.js';
 import { buildCharts, loadHistory, addFrame, redrawCharts, resizeCharts } from '/charts.js';
 import { renderStatic, renderLive, renderClock, renderDisturbance, logEvent, clearRun } from '/live.js';
 import { wireControls, fillChoices, unlockWith } from '/controls.js';
@@ -131,6 +132,8 @@ if (view !== 'records') connect({
       clearRun();
       showEnded(false);
     }
+    // Whoever took the session back (a reset, a step back, a save point), notes of later changes go.
+    if (startsRun(e) || e.type === 'restored') dropNotesAfter(e.t_s ?? 0);
     takeEvent(e);
   },
   disturbance: (d) => {

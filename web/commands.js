@@ -34,13 +34,23 @@ export function describeCommand(c) {
   }
 }
 
-/** A transient note that `what` was applied at simulation time `t_s` (kept 8 s, newest on top). */
+/**
+ * A transient note that `what` was applied at simulation time `t_s` (kept 8 s, newest on top).
+ * Notes from later than `t_s` go: after a reset or a step back they told of a run that is gone.
+ */
 export function noteApplied(what, t_s) {
   const box = $('applied');
+  if (t_s != null) dropNotesAfter(t_s);
   const note = el('p', { className: 'note', textContent: `Applied${t_s != null ? ` at t = ${fmt(t_s, 2)} s` : ''}: ${what}` });
+  if (t_s != null) note.dataset.t = String(t_s);
   box.prepend(note);
   while (box.children.length > 4) box.lastChild.remove();
   setTimeout(() => note.remove(), 8000);
+}
+
+/** Removes the notes of changes applied after simulation time `t_s` (the session went back before them). */
+export function dropNotesAfter(t_s) {
+  for (const note of [...$('applied').children]) if (note.dataset.t != null && Number(note.dataset.t) > t_s) note.remove();
 }
 
 /**

@@ -268,6 +268,11 @@ for (const vp of VIEWPORTS) {
     await page.click('#confirm-yes');
     // The page rejoins: the new run's clock starts again from 0.
     await page.waitForFunction(() => window.droopline.connected && window.droopline.last?.t_s < 5 && window.droopline.data.freq[0][0] === 0, null, { timeout: 8000 });
+    // The note of the step applied before the reset goes with its run (notes otherwise stay 8 s);
+    // the reset's own stays.
+    const notes = await page.locator('#applied .note').allTextContents();
+    assert.ok(!notes.some((t) => /load step/.test(t)), `the old run's note is gone: ${notes}`);
+    assert.ok(notes.some((t) => /reset to t = 0/.test(t)), `the reset is acknowledged: ${notes}`);
     await page.waitForTimeout(500);
     const check = async (p, where) => {
       const texts = await logTexts(p);
