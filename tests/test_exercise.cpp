@@ -76,6 +76,16 @@ TEST_CASE("exercise file: the test exercise loads with its seats, script ids and
   CHECK(d.alarms.tie_loading_pct == 10.0);
   CHECK(looks_like_exercise(file_json().dump()));
   CHECK_FALSE(looks_like_exercise(file_json()["scenario"].dump()));
+  // The same keys written with escapes are the same keys; the names inside a string are not keys.
+  std::string escaped = file_json().dump();
+  for (const std::string key : {"\"seats\"", "\"script\""})
+    escaped.replace(escaped.find(key), key.size(), "\"\\u0073" + key.substr(2));
+  REQUIRE(escaped.find("\"seats\"") == std::string::npos);
+  REQUIRE(escaped.find("\"script\"") == std::string::npos);
+  CHECK(looks_like_exercise(escaped));
+  nlohmann::ordered_json named = file_json()["scenario"];
+  named["name"] = "\"seats\" and \"script\"";
+  CHECK_FALSE(looks_like_exercise(named.dump()));
 }
 
 TEST_CASE("exercise file: 60 Hz defaults differ from 50 Hz ones") {
