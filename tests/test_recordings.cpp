@@ -155,6 +155,38 @@ TEST_CASE("two sampling rates go onto one uniform grid", "[recordings]") {
   }
 }
 
+TEST_CASE("timestamps that disagree with the .cfg rate are warned of, and the times follow the rate", "[recordings]") {
+  const auto dir = temp_folder("stamps");
+  Layout l = plant("1999", "ASCII");
+  l.rates = {{10.0, 12}};
+  // Timestamps in microseconds (the 1999 unit): `step_us` apart, each off by `wobble_us` at odd samples.
+  const auto record = [&](const std::string& name, std::uint32_t step_us, std::uint32_t wobble_us,
+                          std::uint32_t start_us) {
+    std::vector<Row> rows;
+    for (std::uint32_t i = 0; i < 12; ++i)
+      rows.push_back({start_us + step_us * i + (i % 2) * wobble_us, {double(i), 0.0, 0.0}, {}});
+    return read_ok(write_record(dir, name, l, rows), channels("F", {"G1.P"}));
+  };
+  const auto stamp_warnings = [](const Recording& r) {
+    std::vector<std::string> w;
+    for (const std::string& x : r.warnings)
+      if (x.find("timestamps disagree") != std::string::npos) w.push_back(x);
+    return w;
+  };
+  // Twice the rate's interval: 1.1 s late by the last sample (2.2 s by its stamp, 1.1 s by the rate).
+  const Recording slow = record("slow", 200000, 0, 0);
+  REQUIRE(stamp_warnings(slow).size() == 1);
+  CHECK(stamp_warnings(slow)[0] ==
+        "the .dat's timestamps disagree with the .cfg's sampling rate by up to 1.1 s (" + (dir / "slow.dat").string() +
+            " line 12: 2.2 s by its timestamp, 1.1 s by the rate); the times follow the rate");
+  for (std::size_t i = 0; i < 12; ++i) CHECK(slow.t_s[i] == Approx(0.1 * double(i)).margin(kTol));
+  // Within half an interval (a recorder's clock a little off), from a non-zero start, and stamps
+  // left at 0: no warning.
+  CHECK(stamp_warnings(record("wobble", 100000, 40000, 5000000)).empty());
+  CHECK(stamp_warnings(record("zeros", 0, 0, 0)).empty());
+  CHECK(stamp_warnings(record("late", 100000, 60000, 0)).size() == 1);
+}
+
 TEST_CASE("missing samples are interpolated in time and counted", "[recordings]") {
   for (const std::string ft : {"ASCII", "BINARY", "BINARY32"}) {
     DYNAMIC_SECTION(ft) {

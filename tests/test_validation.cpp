@@ -65,6 +65,22 @@ TEST_CASE("a grid run's own recording played back reproduces each unit's output 
   CHECK(std::abs(*r->units[0].excursions[0].measured_10s_mw - *r->units[0].excursions[0].simulated_10s_mw) < 1e-6);
 }
 
+TEST_CASE("what the recording's reader repaired or assumed reaches the playback's warnings (a fit takes the same list)") {
+  SystemDef def = test::load("scenarios/demo_three_areas.json");
+  for (AreaDef& a : def.areas) a.agc.enabled = false;
+  PlaybackSpec spec;
+  spec.def = def;
+  spec.units = {"O1"};
+  spec.recording = record_grid_run(def, "oskany", spec.units, 30.0);
+  spec.recording.warnings = {"channel \"O1.P\": 3 missing samples filled by interpolation"};
+  std::string error;
+  const auto r = run_playback(spec, error);
+  INFO(error);
+  REQUIRE(r);
+  REQUIRE_FALSE(r->warnings.empty());
+  CHECK(r->warnings.front() == spec.recording.warnings.front());
+}
+
 TEST_CASE("a recording that starts off nominal is played back from a unit settled there, not from rest") {
   SystemDef def = test::load("scenarios/demo_three_areas.json");
   for (AreaDef& a : def.areas) a.agc.enabled = false;  // the offset after the load step at 10 s stays

@@ -188,6 +188,40 @@ bool times_of(const ComtradeConfig& cfg, const Samples& s, std::vector<double>& 
   return true;
 }
 
+// When the .cfg gives sampling rates the times come from them and the .dat's timestamps are not
+// used; a recorder whose timestamps tell another story (a wrong rate in the .cfg, samples lost)
+// is worth a warning: by how much, and where. Half the shortest interval is let pass (timestamps
+// are whole counts of their unit), and so are timestamps that never change (a writer that leaves
+// them at 0 because the rate is what counts).
+std::optional<std::string> stamps_disagree(const ComtradeConfig& cfg, const Samples& s, const std::vector<double>& t) {
+  if (cfg.rates.empty()) return std::nullopt;
+  double top_hz = 0.0;
+  for (const ComtradeRate& r : cfg.rates) top_hz = std::max(top_hz, r.sample_hz);
+  const double unit_s = cfg.timemult * cfg.timestamp_unit_s;
+  std::optional<std::size_t> first;
+  std::size_t worst = 0;
+  double worst_d = 0.0;
+  bool moved = false;
+  for (std::size_t i = 0; i < t.size(); ++i) {
+    if (s.stamp_missing[i]) continue;
+    if (!first) {
+      first = i;
+      continue;
+    }
+    moved = moved || s.stamp[i] != s.stamp[*first];
+    const double d = (s.stamp[i] - s.stamp[*first]) * unit_s - (t[i] - t[*first]);
+    if (std::abs(d) > std::abs(worst_d)) {
+      worst_d = d;
+      worst = i;
+    }
+  }
+  if (!moved || !(std::abs(worst_d) > 0.5 / top_hz)) return std::nullopt;
+  const double by_stamp = t[*first] + (s.stamp[worst] - s.stamp[*first]) * unit_s;
+  return "the .dat's timestamps disagree with the .cfg's sampling rate by up to " + fmt_num(std::abs(worst_d)) +
+         " s (" + s.where(worst) + ": " + fmt_num(by_stamp) + " s by its timestamp, " + fmt_num(t[worst]) +
+         " s by the rate); the times follow the rate";
+}
+
 // MW or Hz per recorded unit, for the units a plant recorder writes; nothing for others.
 std::optional<double> unit_factor(const std::string& unit, bool frequency) {
   if (frequency) {
@@ -228,6 +262,7 @@ std::optional<Recording> read_comtrade(
                                                             : read_binary(*cfg, chosen, *dat, dat_path, s, issues);
   Recording rec;
   if (!ok || !times_of(*cfg, s, rec.t_s, issues)) return std::nullopt;
+  if (auto w = stamps_disagree(*cfg, s, rec.t_s)) rec.warnings.push_back(std::move(*w));
   if (rec.t_s.size() < 2) {
     issues.push_back({dat_path, "needs at least two samples, has " + std::to_string(rec.t_s.size()), false});
     return std::nullopt;

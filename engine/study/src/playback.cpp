@@ -246,6 +246,7 @@ std::optional<PreparedPlayback> prepare_playback(const PlaybackSpec& spec, std::
   if (!plausible(spec, error)) return std::nullopt;
   SystemDef def = spec.def;
   PreparedPlayback prep{json(), spec.units, FrequencyTrack({}, {}), {}, {}, {}, 0, {}};
+  prep.warnings = rec.warnings;  // what the reader repaired or assumed comes first
   for (std::size_t u = 0; u < spec.units.size(); ++u)
     for (UnitDef& d : def.units)
       if (d.id == spec.units[u]) {
