@@ -188,6 +188,13 @@ bool times_of(const ComtradeConfig& cfg, const Samples& s, std::vector<double>& 
   return true;
 }
 
+// The highest of the .cfg's sampling rates (0 without any).
+double highest_rate(const ComtradeConfig& cfg) {
+  double top = 0.0;
+  for (const ComtradeRate& r : cfg.rates) top = std::max(top, r.sample_hz);
+  return top;
+}
+
 // When the .cfg gives sampling rates the times come from them and the .dat's timestamps are not
 // used; a recorder whose timestamps tell another story (a wrong rate in the .cfg, samples lost)
 // is worth a warning: by how much, and where. Half the shortest interval is let pass (timestamps
@@ -195,8 +202,7 @@ bool times_of(const ComtradeConfig& cfg, const Samples& s, std::vector<double>& 
 // them at 0 because the rate is what counts).
 std::optional<std::string> stamps_disagree(const ComtradeConfig& cfg, const Samples& s, const std::vector<double>& t) {
   if (cfg.rates.empty()) return std::nullopt;
-  double top_hz = 0.0;
-  for (const ComtradeRate& r : cfg.rates) top_hz = std::max(top_hz, r.sample_hz);
+  const double top_hz = highest_rate(cfg);
   const double unit_s = cfg.timemult * cfg.timestamp_unit_s;
   std::optional<std::size_t> first;
   std::size_t worst = 0;
@@ -301,9 +307,8 @@ std::optional<Recording> read_comtrade(
       rec.power_mw.emplace_back(ch.ch_id, std::move(v));
   }
   if (cfg->rates.size() > 1 && !options.resample_hz) {
-    double top = 0.0;
-    for (const ComtradeRate& r : cfg->rates) top = std::max(top, r.sample_hz);
-    if (!detail::resample(rec, top, std::to_string(cfg->rates.size()) + " sampling rates: resampled", issues))
+    if (!detail::resample(rec, highest_rate(*cfg), std::to_string(cfg->rates.size()) + " sampling rates: resampled",
+                          issues))
       return std::nullopt;
   }
   if (!detail::finish(rec, options, issues)) return std::nullopt;
