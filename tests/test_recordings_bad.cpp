@@ -88,7 +88,8 @@ std::vector<Bad> table() {
   secondary.analogs[1] = {"G1.P", "MW", 0.05, 0.0, 0.0, 5.0, "S"};
   Layout two_rates = base();
   two_rates.rates = {{10.0, 10}, {5.0, 8}};
-  Layout unknown_ft = base("BINARY64"), float_1999 = base("FLOAT32"), rev2005 = base();
+  Layout unknown_ft = base("BINARY64"), float_1999 = base("FLOAT32"), rev2005 = base(), huge_mult = base();
+  huge_mult.timemult = 1e308;  // finite, and every timestamp times it is infinite
   rev2005.revision = "2005";
   RecordingOptions fine_grid = opts("f", {"p1"});
   fine_grid.resample_hz = 1e6;
@@ -119,6 +120,7 @@ std::vector<Bad> table() {
        record(base(), rows_of(10), [](std::string& c) { replace_once(c, ",0.05,100,", ",0.05x,100,"); }),
        {"bad.cfg line 4", "multiplier a \"0.05x\" is not a number"}},
       {"unknown file type", record(unknown_ft, rows_of(10)), {"bad.cfg line 11", "unknown file type \"BINARY64\""}},
+      {"absurd time multiplier", record(huge_mult, rows_of(10, true)), {"bad.cfg line 12", "must be at most 1e6"}},
       {"FLOAT32 in a 1999 record", record(float_1999, rows_of(10)), {"bad.cfg line 11", "needs revision 2013"}},
       {"PS flag neither P nor S",
        record(base(), rows_of(10), [](std::string& c) { replace_once(c, ",1,1,P\r\n", ",1,1,Q\r\n"); }),

@@ -239,6 +239,9 @@ std::optional<ComtradeConfig> parse_comtrade_cfg(std::string_view text, const st
   }
   if (!r.next("time multiplier", 1, f) || !r.number(f[0], "timemult", cfg.timemult)) return std::nullopt;
   if (!(cfg.timemult > 0.0)) return r.fail("timemult " + fmt_num(cfg.timemult) + " must be above 0"), std::nullopt;
+  // A factor on counts of microseconds (or nanoseconds): beyond a million, one count is over a
+  // second and sums of them run to infinity; no recorder writes that.
+  if (cfg.timemult > 1e6) return r.fail("timemult " + fmt_num(cfg.timemult) + " must be at most 1e6"), std::nullopt;
   if (cfg.revision == 2013) {
     // time_code,local_code (offsets from UTC) and tmq_code,leapsec: read for their place only.
     if (!r.next("time code", 2, f) || !r.next("time quality", 2, f)) return std::nullopt;
