@@ -208,6 +208,8 @@ Command serve_command(CLI::App& root) {
   sub->add_option("--web", o.web_root, "static files to serve")->type_name("DIR")->capture_default_str();
   add_real(*sub, "--speed", o.speed, 0.1, 100, "X", "simulated seconds per wall second")->capture_default_str();
   add_real(*sub, "--frame-rate", o.frame_hz, 0.1, 100, "HZ", "telemetry frames per second")->capture_default_str();
+  sub->add_flag("--wake-every-step", o.wake_every_step,
+                "wake the loop at every step's deadline (default: once per frame, running the steps due)");
   add_real(*sub, "--history", o.history_s, 1, 86400, "S", "seconds of history kept for late joiners")->capture_default_str();
   sub->add_option("--allow-origin", o.allow_origins, "also accept WebSocket upgrades from this Origin (repeatable)")
       ->type_name("URL")

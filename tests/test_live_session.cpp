@@ -17,6 +17,7 @@
 #include <thread>
 
 #include "droopline/journal_read.hpp"
+#include "droopline/format.hpp"
 #include "droopline/scenario_io.hpp"
 #include "live_session.hpp"
 #include "study_jobs.hpp"
@@ -419,4 +420,122 @@ TEST_CASE("study jobs: cancelled and failed jobs are forgotten before results, s
   CHECK(jobs.find("fit", kept));  // the one result is still there after ten junk jobs
   for (int i = 0; i < 4; ++i) run("done");
   CHECK_FALSE(jobs.find("fit", kept));  // newer results do push it out, oldest first
+}
+
+TEST_CASE("the loop wakes once per frame by default, at every step when asked, and keeps the same simulated pace") {
+  // Counted from the session's own counters: a wake is one entry of the lateness histogram.
+  struct Seen {
+    std::uint64_t steps, frames, wakes;
+  };
+  auto watch = [](bool per_frame) {
+    LiveConfig cfg;
+    cfg.wake_per_frame = per_frame;
+    LiveSession s(demo(), cfg, [](const Outgoing&) {});
+    std::this_thread::sleep_for(std::chrono::milliseconds(1500));
+    Seen seen{s.counters().steps.load(), s.counters().frames.load(), 0};
+    for (const auto& c : s.counters().lag_counts) seen.wakes += c.load();
+    s.stop();
+    return seen;
+  };
+  const Seen frame = watch(true);
+  const Seen step = watch(false);
+  INFO("once per frame: " << frame.steps << " steps, " << frame.frames << " frames, " << frame.wakes << " wakes");
+  INFO("every step: " << step.steps << " steps, " << step.frames << " frames, " << step.wakes << " wakes");
+  // 1.5 s at speed 1 and a 0.01 s step: some 150 steps and 30 frames either way.
+  for (const Seen& s : {frame, step}) {
+    CHECK(s.steps >= 120);
+    CHECK(s.steps <= 152);
+    CHECK(s.frames >= 24);
+    CHECK(s.frames <= 32);
+  }
+  CHECK(frame.wakes <= frame.frames + 1);  // the steps due run in one go before each frame
+  CHECK(frame.steps >= 4 * frame.wakes);   // 5 steps a frame at 20 frames/s
+  CHECK(step.wakes >= 3 * step.frames);    // about one wake per step
+}
+
+TEST_CASE("a command sent between frames is scheduled by the wall clock, not the last step run") {
+  LiveConfig cfg;
+  cfg.frame_hz = 1.0;  // one wake a second: the engine runs up to 100 steps behind the wall clock
+  LiveSession s(demo(), cfg, [](const Outgoing&) {});
+  std::this_thread::sleep_for(std::chrono::milliseconds(1500));  // half-way between two frames
+  const auto before = on_loop<std::int64_t>(s, [](Engine& e) { return e.step_index(); });
+  const LiveSession::Result r = call([&](auto done) { s.apply({load_step(10)}, "instructor", std::nullopt, done); });
+  REQUIRE(r.status == 200);
+  const auto& body = r.data;
+  INFO(body.dump() << " (engine at step " << before << " when it was sent)");
+  // Sent some 50 steps after the last wake (at 1 s, step 100): scheduled at about step 150 + the
+  // journal lead (2 steps), not at the step the engine stood at when it arrived.
+  const double applied_t = body["t_s"].get<double>();
+  CHECK(before <= 110);
+  CHECK(applied_t >= 1.4);
+  CHECK(applied_t <= 2.1);
+  s.stop();
+}
+
+TEST_CASE("a frame, written as text, holds every area, unit and tie as JSON reads it back, exactly") {
+  const std::unique_ptr<Engine> engine = test::make(demo().def());
+  Engine& e = *engine;
+  for (int i = 0; i < 150; ++i) e.step();
+  const Resolved step = resolve_all(e.system(), std::vector<Command>{load_step(40)});
+  REQUIRE(step.issues.empty());
+  REQUIRE(e.apply_all(step.actions).ok);
+  for (int i = 0; i < 80; ++i) e.step();
+  const json f = json::parse(frame_json(e, 12.5, false, 2.0));
+  CHECK(f["type"] == "frame");
+  CHECK(f["t_s"].get<double>() == e.time_s());
+  CHECK(f["wall_s"].get<double>() == 12.5);
+  CHECK(f["step"].get<std::int64_t>() == e.step_index());
+  CHECK(f["paused"] == false);
+  CHECK(f["speed"].get<double>() == 2.0);
+  const SystemDef& d = e.def();
+  REQUIRE(f["areas"].size() == d.areas.size());
+  for (std::size_t a = 0; a < d.areas.size(); ++a) {
+    const AreaState s = e.area(AreaId{static_cast<std::uint32_t>(a)});
+    const json& j = f["areas"][d.areas[a].id];
+    CHECK(j["f_hz"].get<double>() == s.f_hz);
+    CHECK(j["rocof_hz_per_s"].get<double>() == s.rocof_hz_per_s);
+    CHECK(j["generation_mw"].get<double>() == s.generation_mw);
+    CHECK(j["export_mw"].get<double>() == s.export_mw);
+    CHECK(j["ace_mw"].get<double>() == s.ace_mw);
+    CHECK(j["agc_enabled"] == s.agc_enabled);
+    CHECK(j["agc_mode"] == to_string(s.agc_mode));
+    CHECK(j["island"] == s.island);
+    CHECK(j.size() == 13);
+  }
+  REQUIRE(f["units"].size() == d.units.size());
+  int batteries = 0;
+  for (std::size_t u = 0; u < d.units.size(); ++u) {
+    const UnitState s = e.unit(UnitId{static_cast<std::uint32_t>(u)});
+    const json& j = f["units"][d.units[u].id];
+    CHECK(j["p_mw"].get<double>() == s.p_mw);
+    CHECK(j["headroom_down_mw"].get<double>() == s.headroom_down_mw);
+    CHECK(j["droop"].get<double>() == s.droop);
+    CHECK(j["mode"] == to_string(s.mode));
+    CHECK(j["status"] == to_string(s.status));
+    const bool battery = d.units[u].turbine.type == TurbineType::battery;
+    batteries += battery;
+    CHECK(j.contains("energy_mwh") == battery);
+    if (battery) CHECK(j["energy_mwh"].get<double>() == s.energy_mwh);
+  }
+  CHECK(batteries > 0);
+  REQUIRE(f["ties"].size() == d.ties.size());
+  for (std::size_t t = 0; t < d.ties.size(); ++t) {
+    const TieState s = e.tie(TieId{static_cast<std::uint32_t>(t)});
+    const json& j = f["ties"][d.ties[t].id];
+    CHECK(j["flow_mw"].get<double>() == s.flow_mw);
+    CHECK(j["angle_deg"].get<double>() == s.angle_deg);
+    CHECK(j["in_service"] == s.in_service);
+  }
+}
+
+TEST_CASE("text written as a JSON string reads back the same, as nlohmann's own writer escapes it") {
+  for (const std::string& text : {std::string("plain"), std::string("quote \" and back\\slash"),
+                                 std::string("tab\tnew\nline \x01 \x1f end"), std::string("\xc3\xa9t\xc3\xa9"),
+                                 std::string("")}) {
+    std::string out;
+    append_json_string(out, text);
+    INFO(out);
+    CHECK(json::parse(out).get<std::string>() == text);
+    if (text.find_first_of("\t\n") == std::string::npos) CHECK(out == json(text).dump());
+  }
 }

@@ -96,13 +96,13 @@ std::string metrics_text(const Services& s) {
   };
   auto count = [](const std::atomic<std::uint64_t>& c) { return static_cast<double>(c.load()); };
   metric("droopline_steps_total", "counter", "Engine steps taken.", count(l.steps));
-  metric("droopline_step_overruns_total", "counter", "Loop wakes more than one step behind the deadline.",
+  metric("droopline_step_overruns_total", "counter", "Loop wakes more than one step late.",
          count(l.overruns));
   metric("droopline_step_slips_total", "counter", "Times the schedule was rebased after a bounded catch-up.",
          count(l.slips));
-  metric("droopline_loop_lag_seconds", "gauge", "Lateness of the last step against its deadline.", l.lag_s.load());
+  metric("droopline_loop_lag_seconds", "gauge", "Lateness of the last loop wake against its time.", l.lag_s.load());
   metric("droopline_loop_lag_max_seconds", "gauge", "Worst lateness since start.", l.jitter_max_s.load());
-  o << "# HELP droopline_loop_lateness_seconds Lateness of each loop wake against its step deadline.\n"
+  o << "# HELP droopline_loop_lateness_seconds Lateness of each loop wake against its time (the next frame, or each step with --wake-every-step).\n"
        "# TYPE droopline_loop_lateness_seconds histogram\n";
   std::uint64_t cumulative = 0;
   for (std::size_t b = 0; b < LiveCounters::kLagBuckets; ++b) {

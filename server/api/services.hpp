@@ -29,6 +29,7 @@ struct Options {
   std::vector<std::string> allow_origins;  ///< extra Origins allowed to open the stream
   double speed = 1.0;
   double frame_hz = 20.0;
+  bool wake_every_step = false;  ///< the loop wakes at each step's deadline, not once per frame
   double history_s = 600.0;
   std::size_t max_body_bytes = 1 << 20;      ///< HTTP body limit
   std::size_t max_fit_body_bytes = 16 << 20;  ///< HTTP body limit of POST /api/v1/fits (a recording inside)

@@ -204,7 +204,7 @@ void LiveSession::alarms(bool active_only, Done done) {
 }
 
 void LiveSession::ack_alarm(std::uint64_t id, std::string author, std::optional<SeatScope> scope, Done done) {
-  post([this, id, author = std::move(author), scope = std::move(scope), done = std::move(done)](Engine& e) {
+  post([this, id, author = std::move(author), scope = std::move(scope), done = std::move(done)](Engine&) {
     if (!alarms_) return done(refused(404, live_detail::kNoExercise));
     if (ended_) return done(refused(409, refusal()));
     const study::Alarm* a = alarms_->find(id);
@@ -222,7 +222,7 @@ void LiveSession::ack_alarm(std::uint64_t id, std::string author, std::optional<
     if (a->acked_by) return done(already(*a));
     // Journal before it takes effect, as a command: the debrief and the records read it from there.
     pipeline_.submit_effect(
-        json{{"type", "ack"}, {"step", 0}, {"alarm", id}, {"by", author}}, e.step_index() + lead_steps(),
+        json{{"type", "ack"}, {"step", 0}, {"alarm", id}, {"by", author}}, command_step(),
         [this, id, author, already](Engine& now) {
           if (!alarms_ || !alarms_->find(id)) return refused(404, "no alarm " + std::to_string(id));
           if (!alarms_->acknowledge(id, author, now.time_s())) return already(*alarms_->find(id));

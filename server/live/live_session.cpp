@@ -99,6 +99,14 @@ std::int64_t LiveSession::lead_steps() const {
   return static_cast<std::int64_t>(std::ceil(config_.journal_lead_s * speed_.load() / def().step_s));
 }
 
+std::int64_t LiveSession::command_step() const {
+  const std::int64_t at = engine_->step_index();
+  if (paused_.load()) return at;
+  const double since_base_s = std::chrono::duration<double>(clock::now() - base_wall_).count();
+  const auto due_now = base_step_ + static_cast<std::int64_t>(std::floor(since_base_s * speed_.load() / def().step_s));
+  return std::max(at, due_now) + lead_steps();
+}
+
 study::SavedState LiveSession::saved_now() const {
   return {engine_->clone(), {announced_, reported_, frame_count_, 0}, script_, alarms_, objectives_};
 }
@@ -162,11 +170,15 @@ void LiveSession::run() {
                               static_cast<double>(step - base_step_) * step_wall));
     };
     std::int64_t next = engine_->step_index() + 1;
-    if (now < deadline(next)) {
+    // When to wake: at the next step's deadline, or (wake_per_frame) at the next frame if steps
+    // fall due before it; a frame due before the next step is sent on its own.
+    auto wake_at = deadline(next);
+    if (config_.wake_per_frame && wake_at < next_frame_) wake_at = next_frame_;
+    if (now < wake_at) {
       std::unique_lock lock(tasks_mutex_);
-      tasks_cv_.wait_until(lock, std::min(deadline(next), next_frame_),
+      tasks_cv_.wait_until(lock, std::min(wake_at, next_frame_),
                            [&] { return stop_.load() || !tasks_.empty() || pending_ready(); });
-      if (clock::now() < deadline(next)) {
+      if (clock::now() < wake_at) {
         if (clock::now() >= next_frame_) {
           lock.unlock();
           emit_frame(wall_now_s());
@@ -174,9 +186,10 @@ void LiveSession::run() {
         continue;
       }
     }
-    // Due: run the steps whose deadlines have passed, at most max_catchup_steps of them.
+    // Due: run the steps whose deadlines have passed, at most max_catchup_steps more than one
+    // wake's share of them.
     const auto woke = clock::now();
-    const double late_s = std::chrono::duration<double>(woke - deadline(next)).count();
+    const double late_s = std::chrono::duration<double>(woke - wake_at).count();
     counters_.lag_s = late_s;
     counters_.record_lag(std::max(0.0, late_s));
     if (late_s > counters_.jitter_max_s.load()) counters_.jitter_max_s = late_s;
@@ -188,8 +201,10 @@ void LiveSession::run() {
         last_overrun_log_ = woke;
       }
     }
+    const int per_wake = config_.wake_per_frame ? static_cast<int>(std::ceil(1.0 / (config_.frame_hz * step_wall))) : 1;
+    const int limit = config_.max_catchup_steps + per_wake;
     int ran = 0;
-    while (ran < config_.max_catchup_steps && clock::now() >= deadline(engine_->step_index() + 1)) {
+    while (ran < limit && clock::now() >= deadline(engine_->step_index() + 1)) {
       apply_due();
       if (due_unwritten()) break;
       engine_->step();
@@ -309,7 +324,7 @@ void LiveSession::apply(std::vector<Command> commands, std::string author, std::
                                 "command refused, nothing applied: outside what seat \"" + scope->seat + "\" may do",
                                 std::move(outside));
     }
-    pipeline_.submit(e, std::move(commands), std::move(author), e.step_index() + lead_steps(), std::move(done));
+    pipeline_.submit(e, std::move(commands), std::move(author), command_step(), std::move(done));
   });
 }
 

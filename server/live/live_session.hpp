@@ -41,7 +41,11 @@ struct LiveConfig {
   double speed = 1.0;            ///< simulated seconds per wall second, 0.1 .. 100
   double frame_hz = 20.0;        ///< telemetry frames per wall second
   double history_s = 600.0;      ///< simulated seconds of history kept for late joiners
-  int max_catchup_steps = 20;    ///< a late loop runs at most this many steps per wake, then slips
+  int max_catchup_steps = 20;    ///< a late loop runs at most this many steps per wake beyond those due, then slips
+  /// true: the loop sleeps until the next frame and then runs the steps due by then in one go
+  /// (one wake-up per frame; simulated time, commands and frames are the same, computed up to a
+  /// frame interval later in wall time); false: it wakes at every step's deadline.
+  bool wake_per_frame = true;
   std::string journal_path;      ///< empty: no journal
   /// Wall time a command is scheduled ahead so that its journal record is on disk before the loop
   /// reaches it; the loop waits at that step only if the disk is slower than this.
@@ -265,6 +269,9 @@ class LiveSession {
 
   /// Simulation steps a command is scheduled ahead so that its journal record gets there first.
   std::int64_t lead_steps() const;
+  /// The step a command from outside is scheduled for: lead_steps() after the step due now by
+  /// the wall clock (with one wake per frame the engine may not have run it yet).
+  std::int64_t command_step() const;
   /// After each step: the script's due events into the pipeline, the alarm monitor fed.
   void exercise_after_step();
   /// A script event handed out by the runner, submitted as a command by "script".

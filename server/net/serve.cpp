@@ -124,6 +124,7 @@ int serve(Options options) {
   LiveConfig lc;
   lc.speed = opt.speed;
   lc.frame_hz = opt.frame_hz;
+  lc.wake_per_frame = !opt.wake_every_step;
   lc.history_s = opt.history_s;
   lc.journal_path = opt.journal;
   ctx.records = open_records(opt);

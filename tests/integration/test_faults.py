@@ -30,9 +30,9 @@ import test_server
 from test_server import TOKEN, Server, run
 
 SANITIZED = bool(os.environ.get("DROOPLINE_SANITIZED"))
-# The loop's bound: 99 % of wakes within half a step (5 ms) of their deadline (10 ms under the
-# sanitizers, whose instrumentation slows every thread), and never a slip (a catch-up longer
-# than 20 steps). Typical figures are far inside it (p99 <= 500 us in the benchmarks).
+# The loop's bound: 99 % of wakes within half a step (5 ms) of their time (the next frame; each
+# step's deadline with --wake-every-step), 10 ms under the sanitizers, whose instrumentation slows
+# every thread, and never a slip (a catch-up longer than a frame's steps and 20 more). Typical figures are far inside it (p99 <= 500 us in the benchmarks).
 P99_BOUND_S = 0.01 if SANITIZED else 0.005
 
 

@@ -18,5 +18,8 @@ std::string clip_text(std::string_view text, std::size_t max = 300);
 void append_exact(std::string& out, double v);
 /// As append_exact, but `null` for a value JSON cannot hold (infinity, NaN).
 void append_json_number(std::string& out, double v);
+/// Appends `text` as a JSON string, quotes included: `"` and `\` escaped, control characters as
+/// \u00XX, everything else (UTF-8 included) as it is.
+void append_json_string(std::string& out, std::string_view text);
 
 }  // namespace droopline
