@@ -171,9 +171,14 @@ void LiveSession::run() {
     };
     std::int64_t next = engine_->step_index() + 1;
     // When to wake: at the next step's deadline, or (wake_per_frame) at the next frame if steps
-    // fall due before it; a frame due before the next step is sent on its own.
+    // fall due before it, or sooner at a waiting command's step; a frame due before the next step
+    // is sent on its own.
     auto wake_at = deadline(next);
-    if (config_.wake_per_frame && wake_at < next_frame_) wake_at = next_frame_;
+    if (config_.wake_per_frame && wake_at < next_frame_) {
+      wake_at = next_frame_;
+      // A command waiting is applied at its step's time, not up to a frame later.
+      if (const std::int64_t waiting = pipeline_.next_step(); waiting >= next) wake_at = std::min(wake_at, deadline(waiting));
+    }
     if (now < wake_at) {
       std::unique_lock lock(tasks_mutex_);
       tasks_cv_.wait_until(lock, std::min(wake_at, next_frame_),
