@@ -61,6 +61,11 @@ class Server:
             except subprocess.TimeoutExpired:
                 self.proc.kill()
                 return -9
+        # It ended on its own: say how, with what it printed last (a sanitizer's report goes
+        # there, and the pipe is otherwise never read after the start).
+        rest = self.proc.stdout.read() if self.proc.stdout else ""
+        print(f"\nthe server had already exited with {self.proc.returncode}; its last output:\n{rest[-20000:]}",
+              file=sys.stderr)
         return self.proc.returncode
 
     def request(self, method, path, body=None, token=None, headers=None, timeout=10):
