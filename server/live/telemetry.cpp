@@ -10,35 +10,33 @@
 namespace droopline {
 namespace {
 using json = nlohmann::ordered_json;
-}  // namespace
 
-namespace {
 // Pieces of a frame written straight as text: a frame goes out 20 times a second whatever the
 // number of clients, and building a JSON document to print it cost most of the idle loop's time.
-void field(std::string& out, const char* name, double v) {
-  out += ",\"";
+// `,"name":` : the start of a field (without the comma for an object's first).
+void key(std::string& out, const char* name, bool first = false) {
+  out += first ? "\"" : ",\"";
   out += name;
   out += "\":";
+}
+void field(std::string& out, const char* name, double v) {
+  key(out, name);
   append_json_number(out, v);
 }
 void field(std::string& out, const char* name, bool v) {
-  out += ",\"";
-  out += name;
-  out += v ? "\":true" : "\":false";
+  key(out, name);
+  out += v ? "true" : "false";
 }
 void field(std::string& out, const char* name, const char* v) {
-  out += ",\"";
-  out += name;
-  out += "\":";
+  key(out, name);
   append_json_string(out, v);
 }
 // `"id":{"first":v` : the opening of one member of a map, its first field written.
 void open_member(std::string& out, bool first_member, const std::string& id, const char* name, double v) {
   if (!first_member) out += ',';
   append_json_string(out, id);
-  out += ":{\"";
-  out += name;
-  out += "\":";
+  out += ":{";
+  key(out, name, true);
   append_json_number(out, v);
 }
 }  // namespace
