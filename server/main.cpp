@@ -11,6 +11,8 @@
 #include <iostream>
 #include <memory>
 #include <string>
+#include <string_view>
+#include <utility>
 #include <vector>
 
 #include <CLI/CLI.hpp>
@@ -400,6 +402,13 @@ Command inject_command(CLI::App& root) {
   return {sub, [a] { return droopline::cli::inject(*a); }};
 }
 
+/// Every subcommand by name, in the order `droopline --help` lists them.
+const std::pair<std::string_view, Command (*)(CLI::App&)> kCommands[] = {
+    {"check", check_command},   {"run", run_command},         {"serve", serve_command},   {"replay", replay_command},
+    {"sweep", sweep_command},   {"merge", merge_command},     {"modes", modes_command},   {"assess", assess_command},
+    {"record", record_command}, {"debrief", debrief_command}, {"playback", playback_command},
+    {"fit", fit_command},       {"inject", inject_command}};
+
 }  // namespace
 
 int main(int argc, char** argv) {
@@ -422,11 +431,14 @@ int main(int argc, char** argv) {
     return std::string("droopline ") + DROOPLINE_VERSION + " (" + droopline::kernels_in_use() + " kernels" +
            (droopline::kernel_variants_built() ? "" : ", the only ones in this build") + ")";
   });
-  const std::vector<Command> commands{check_command(app),  run_command(app),    serve_command(app),
-                                      replay_command(app), sweep_command(app),  merge_command(app),
-                                      modes_command(app),  assess_command(app), record_command(app),
-                                      debrief_command(app),
-                                      playback_command(app), fit_command(app), inject_command(app)};
+  // When the first argument names a subcommand only that one is set up: setting up all thirteen,
+  // with their options and checks, was a quarter of the instructions a small `run` executed.
+  // Anything else (help, --version, a misspelt command) sets them all up, to list or suggest them.
+  std::vector<Command> commands;
+  for (const auto& [name, set_up] : kCommands)
+    if (argc > 1 && std::string_view(argv[1]) == name) commands.push_back(set_up(app));
+  if (commands.empty())
+    for (const auto& [name, set_up] : kCommands) commands.push_back(set_up(app));
   app.set_help_all_flag("--help-all", "every command's options");  // after the subcommands: theirs have none
   static char help_flag[] = "--help";
   if (argc > 1 && std::string(argv[1]) == "help") argv[1] = help_flag;  // `droopline help` is `droopline --help`
