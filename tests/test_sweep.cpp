@@ -45,6 +45,9 @@ TEST_CASE("value lists: explicit, ranges with the end included, and their errors
       {"x=", "expected PATH="},
       {"x=1,abc", "\"abc\" is not a number"},
       {"x=1,,2", "\"\" is not a number"},
+      {"x=0x1p-5,1", "\"0x1p-5\" is not a number"},  // decimal only, as in scenarios and recordings
+      {"x=1,+-2", "\"+-2\" is not a number"},
+      {"x=0:inf:1", "is not START:STOP:STEP"},
       {"x=1:2", "is not START:STOP:STEP"},
       {"x=1:2:3:4", "is not START:STOP:STEP"},
       {"x=0:1:0", "STEP must be > 0"},

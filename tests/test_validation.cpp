@@ -336,5 +336,12 @@ TEST_CASE("bad fit arguments are refused with what is wrong and where") {
   CHECK(error.find("must be below") != std::string::npos);
   CHECK_FALSE(parse_fit_param("governor.droop=a:0.05", error));
   CHECK(error.find("must be numbers") != std::string::npos);
+  for (const char* not_decimal : {"governor.droop=0x1p-5:0.05", "governor.droop=0.01:+-0.05", "governor.droop=0.01:nan"}) {
+    INFO(not_decimal);
+    error.clear();
+    CHECK_FALSE(parse_fit_param(not_decimal, error));
+    CHECK(error.find("must be numbers") != std::string::npos);
+  }
+  REQUIRE(parse_fit_param("governor.droop=+0.01:5e-2", error));  // one plus and exponents are decimal
   CHECK(check_fit(spec_with({{"governor.droop", 0.02, 0.1}}), error));
 }

@@ -13,6 +13,7 @@
 
 #include "droopline/format.hpp"
 #include "droopline/plot_svg.hpp"
+#include "droopline/recording.hpp"
 #include "droopline/scenario_io.hpp"
 #include "droopline/sweep.hpp"
 #include "droopline/task_pool.hpp"
@@ -30,16 +31,9 @@ std::optional<FitParam> parse_fit_param(const std::string& spec, std::string& er
     return std::nullopt;
   }
   p.path = spec.substr(0, eq);
-  auto number = [](const std::string& s, double& out) {
-    std::size_t used = 0;
-    try {
-      out = std::stod(s, &used);
-    } catch (...) {
-      return false;
-    }
-    return used == s.size() && std::isfinite(out);
-  };
-  if (!number(spec.substr(eq + 1, colon - eq - 1), p.lo) || !number(spec.substr(colon + 1), p.hi)) {
+  // Decimal numbers as everywhere else (no hex, NaN or infinity).
+  if (!detail::parse_number(spec.substr(eq + 1, colon - eq - 1), p.lo) ||
+      !detail::parse_number(spec.substr(colon + 1), p.hi)) {
     error = "--param \"" + clip_text(spec, 80) + "\": LO and HI must be numbers (PATH=LO:HI)";
     return std::nullopt;
   }

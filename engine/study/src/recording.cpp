@@ -21,7 +21,8 @@ std::string_view trim(std::string_view field) {
 bool parse_number(std::string_view field, double& out) {
   field = trim(field);
   if (field.empty()) return false;
-  if (field.front() == '+') field.remove_prefix(1);  // from_chars refuses a leading plus
+  // from_chars refuses a leading plus; one plus is allowed, not "+-1".
+  if (field.front() == '+' && field.size() > 1 && field[1] != '-') field.remove_prefix(1);
   double v = 0.0;
   const auto [end, ec] = std::from_chars(field.data(), field.data() + field.size(), v);
   // from_chars reads "nan" and "inf"; a recording holding them is broken, not a value.

@@ -16,6 +16,7 @@
 #include "droopline/engine.hpp"
 #include "droopline/ensemble.hpp"
 #include "droopline/format.hpp"
+#include "droopline/recording.hpp"
 #include "droopline/scenario_io.hpp"
 #include "sweep_run.hpp"
 
@@ -23,13 +24,6 @@ namespace droopline::study {
 namespace {
 
 using json = nlohmann::ordered_json;
-
-bool parse_double(const std::string& text, double& out) {
-  if (text.empty()) return false;
-  char* end = nullptr;
-  out = std::strtod(text.c_str(), &end);
-  return end == text.c_str() + text.size() && std::isfinite(out);
-}
 
 std::string join_ids(const json& arr) {
   std::string out;
@@ -182,7 +176,7 @@ std::optional<Vary> parse_vary(const std::string& spec, std::string& error) {
     std::size_t start = 0;
     for (int i = 0; i < 3; ++i) {
       const std::size_t end = i < 2 ? values.find(':', start) : values.size();
-      if (end == std::string::npos || !parse_double(values.substr(start, end - start), a[i]))
+      if (end == std::string::npos || !detail::parse_number(values.substr(start, end - start), a[i]))
         return bad("\"" + values + "\" is not START:STOP:STEP with three numbers");
       start = end + 1;
     }
@@ -198,7 +192,7 @@ std::optional<Vary> parse_vary(const std::string& spec, std::string& error) {
       std::size_t end = values.find(',', start);
       if (end == std::string::npos) end = values.size();
       double x;
-      if (!parse_double(values.substr(start, end - start), x))
+      if (!detail::parse_number(values.substr(start, end - start), x))
         return bad("\"" + values.substr(start, end - start) + "\" is not a number");
       v.values.push_back(x);
       start = end + 1;
