@@ -311,6 +311,13 @@ TEST_CASE("CSV cells are quoted and never run as formulas") {
   CHECK_THAT(*csv, Catch::Contains("2027-01-15,Morning pickup at Tarnwick," + kRun +
                                    ",running,north,'=cmd|' /C calc'!A0,62.5,62.5\r\n"));
   CHECK_THAT(*csv, Catch::Contains(",running,south,,90.0,90.0\r\n"));
+  // Scores to one decimal, as the debrief shows them (the records keep every digit).
+  store.scores(kRun, 70.0, seat_scores(200.0 / 3.0, 90));
+  store.flush();
+  csv = store.export_csv({}, error);
+  REQUIRE(csv);
+  CHECK_THAT(*csv, Catch::Contains(",66.7,66.7\r\n"));
+  CHECK_THAT(*csv, !Catch::Contains("66.66"));
 }
 
 TEST_CASE(

@@ -6,6 +6,7 @@
 #include <utility>
 #include <vector>
 
+#include "droopline/format.hpp"
 #include "records_store.hpp"
 
 namespace droopline::records {
@@ -239,6 +240,12 @@ std::optional<json> RecordsStore::trainees(std::string& error) const {
   return out;
 }
 
+namespace {
+// A score out of 100 to one decimal, as the debrief and the records page show it (the stored value
+// keeps every digit); empty when there is none.
+std::string score_cell(const json& score) { return score.is_number() ? fmt_fixed(score.get<double>(), 1) : ""; }
+}  // namespace
+
 std::optional<std::string> RecordsStore::export_csv(const RunFilter& filter, std::string& error) const {
   Db db;
   json list;
@@ -260,12 +267,11 @@ std::optional<std::string> RecordsStore::export_csv(const RunFilter& filter, std
       out += csv_cell(run["started"].get<std::string>().substr(0, 10)) + "," +
              csv_cell(run["exercise"].get<std::string>()) + "," + run["run_id"].get<std::string>() + "," +
              run["status"].get<std::string>() + "," + csv_cell(seat["seat"].get<std::string>()) + "," +
-             csv_cell(names) + "," + (seat["score"].is_number() ? seat["score"].dump() : "");
+             csv_cell(names) + "," + score_cell(seat["score"]);
       for (const std::string& id : objectives) {
         out += ",";
         for (const json& o : seat["objectives"])
-          if (o.is_object() && o.value("objective", "") == id && o.contains("score") && o["score"].is_number())
-            out += o["score"].dump();
+          if (o.is_object() && o.value("objective", "") == id && o.contains("score")) out += score_cell(o["score"]);
       }
       out += "\r\n";
     }
