@@ -55,7 +55,7 @@ void LiveSession::stop() {
   const std::string why = "the service stopped";
   std::string lines = run_open_ ? end_record(false, why).dump() + "\n" : std::string();
   lines += json{{"type", "stop"}, {"step", engine_->step_index()}}.dump();
-  if (!journal_failed_ && !pipeline_.journal().append_now(lines))
+  if (!journal_failed_ && pipeline_.journal().ok() && !pipeline_.journal().append_now(lines))
     spdlog::error("{}", pipeline_.journal().error());  // replay then runs to the last command
   close_run(false, why, true);
 }

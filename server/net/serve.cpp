@@ -10,6 +10,7 @@
 #include "droopline/scenario_io.hpp"
 #include "droopline/exercise.hpp"
 #include "http_session.hpp"
+#include "journal.hpp"
 #include "listener.hpp"
 #include "server.hpp"
 #include "websocket_session.hpp"
@@ -90,6 +91,12 @@ int serve(Options options) {
   for (const Issue& i : r.issues)
     (i.warning ? spdlog::warn("{}: {}", file, i.text()) : spdlog::error("{}: {}", file, i.text()));
   if (!r.system) return 2;
+  // The journal next: a session that cannot keep one does not start, with one message, before a
+  // token is printed, records are opened beside it or the loop starts.
+  if (const Journal journal(opt.journal); !journal.ok()) {
+    spdlog::error("{}", journal.error());
+    return 1;
+  }
 
   if (!opt.token_file.empty()) {
     std::vector<Issue> unread;  // a regular file only: a device or a pipe would never end

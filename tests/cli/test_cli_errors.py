@@ -176,6 +176,17 @@ class BadCommandLines(unittest.TestCase):
             lines.append(line[4:])
         self.assertEqual("\n".join(lines).rstrip("\n") + "\n", droopline(["run", "--help"]).stdout)
 
+    def test_a_journal_that_cannot_be_opened_stops_serve_with_one_message(self):
+        # Before: records were opened beside it, the loop started, and the failure was told twice.
+        p = subprocess.run([BIN] + SERVE + ["--journal", "/proc/no-such-folder/journal.jsonl"],
+                           capture_output=True, text=True, timeout=20)
+        said = p.stdout + p.stderr  # the log goes to stdout
+        self.assertEqual(p.returncode, 1, said)
+        self.assertEqual(len([line for line in said.splitlines() if "journal" in line]), 1, said)
+        self.assertIn('cannot open journal "/proc/no-such-folder/journal.jsonl" for appending', said)
+        for later in ("token", "records", "real-time loop", "listening"):
+            self.assertNotIn(later, said)
+
     def test_accepted_forms(self):
         # The values the old hand-written parsers took keep their meaning: decimal whole numbers
         # (a leading zero is not octal), repeated options (the last wins).
