@@ -252,6 +252,8 @@ TEST_CASE("bad injection profiles are refused with their place") {
        "tests[0].pieces"},
       {R"({"name":"x","tests":[{"name":"a","pieces":[{"to_mhz":-200,"hold_s":10,"extra":1}],"require":{"share":1,"within_s":30,"max_delay_s":2}}]})",
        "tests[0].pieces[0].extra"},
+      {R"({"name":"x","tests":[{"name":"a","pieces":[{"to_mhz":-200,"hold_s":10}],"require":{"share":1,"within_s":3,"max_delay_s":5}}]})",
+       "tests[0].require.max_delay_s"},
   };
   for (const auto& [text, where] : cases) {
     std::vector<Issue> issues;

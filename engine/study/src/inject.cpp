@@ -82,6 +82,12 @@ std::optional<InjectProfile> parse_inject_profile(std::string_view text, std::ve
       bounded(r, rp + ".hold_s", q.hold_s, 0.0, kMaxTimeS, false);
       bounded(r, rp + ".max_delay_s", q.max_delay_s, 0.0, kMaxTimeS, false);
       bounded(r, rp + ".started_share", q.started_share, 0.0, q.share, true);
+      // The delay is how long the response may take to start, within_s how long to reach `share`:
+      // a start allowed later than the whole response would make the delay check say nothing.
+      if (q.max_delay_s > q.within_s)
+        r.error(rp + ".max_delay_s", "the response may start at most " + fmt_num(q.max_delay_s) +
+                                         " s after the change but must be complete within " + fmt_num(q.within_s) +
+                                         " s; max_delay_s must not exceed within_s");
     }
     if (!test.pieces.empty() && test.pieces.back().to_mhz == 0.0)
       r.error(tp + ".pieces", "the last piece must leave the frequency off nominal (its to_mhz is the level judged)");
