@@ -160,6 +160,8 @@ std::shared_ptr<StudyJobs::Job> find_job(Services& s, const Call& c, const std::
 std::shared_ptr<StudyJobs::Job> finished_job(Services& s, const Call& c, const std::string& kind);
 /// Sets the job's cancel flag and answers its status (DELETE), or a 404.
 void cancel_job(Services& s, const Call& c, const std::string& kind);
+/// `{"jobs": [status, ...]}` of the jobs of `kind` still held, newest first.
+void list_jobs(Services& s, const Call& c, const std::string& kind);
 /// Takes one of the worker pool's run slots (replays, assessments, debriefs, fit checks and
 /// injection tests share `Options::max_replays` of them), or answers 429 with `busy` and a
 /// Retry-After and returns false. The caller gives the slot back before it answers.

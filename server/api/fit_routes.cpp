@@ -164,6 +164,8 @@ void post_fit(Services& s, Call& c) {
   });
 }
 
+void list_fits(Services& s, Call& c) { list_jobs(s, c, "fit"); }
+
 void get_fit(Services& s, Call& c) {
   if (auto job = find_job(s, c, "fit")) c.reply(200, StudyJobs::status_json(*job).dump());
 }
@@ -213,6 +215,7 @@ void add_fit_routes(std::vector<Route>& routes) {
   const Role instructor = Role::instructor;
   routes.insert(routes.end(), {
                                   {Verb::post, "/api/v1/fits", instructor, kFits, post_fit},
+                                  {Verb::get, "/api/v1/fits", Role::viewer, "", list_fits},
                                   {Verb::get, "/api/v1/fits/{id}", Role::viewer, "", get_fit},
                                   {Verb::delete_, "/api/v1/fits/{id}", instructor, kFits, delete_fit},
                                   {Verb::get, "/api/v1/fits/{id}/result", instructor, kFitResult, fit_result},

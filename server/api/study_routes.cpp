@@ -209,7 +209,15 @@ void cancel_job(Services& s, const Call& c, const std::string& kind) {
   c.reply(200, StudyJobs::status_json(*job).dump());
 }
 
+void list_jobs(Services& s, const Call& c, const std::string& kind) {
+  nlohmann::ordered_json jobs = nlohmann::ordered_json::array();
+  for (const auto& job : s.jobs.list(kind)) jobs.push_back(StudyJobs::status_json(*job));
+  c.reply(200, nlohmann::ordered_json{{"jobs", std::move(jobs)}}.dump());
+}
+
 namespace {
+
+void list_sweeps(Services& s, Call& c) { list_jobs(s, c, "sweep"); }
 
 void get_sweep(Services& s, Call& c) {
   if (auto job = find_job(s, c, "sweep")) c.reply(200, StudyJobs::status_json(*job).dump());
@@ -283,6 +291,7 @@ void add_study_routes(std::vector<Route>& routes) {
   routes.insert(routes.end(), {
                                   {Verb::post, "/api/v1/replays", instructor, kWorkers, replays},
                                   {Verb::post, "/api/v1/sweeps", instructor, kSweeps, post_sweep},
+                                  {Verb::get, "/api/v1/sweeps", Role::viewer, "", list_sweeps},
                                   {Verb::get, "/api/v1/sweeps/{id}", Role::viewer, "", get_sweep},
                                   {Verb::delete_, "/api/v1/sweeps/{id}", instructor, kSweeps, delete_sweep},
                                   {Verb::get, "/api/v1/sweeps/{id}/result", Role::viewer, "", sweep_result},

@@ -81,6 +81,14 @@ std::shared_ptr<StudyJobs::Job> StudyJobs::find(const std::string& kind, const s
   return nullptr;
 }
 
+std::vector<std::shared_ptr<StudyJobs::Job>> StudyJobs::list(const std::string& kind) const {
+  std::lock_guard lock(mutex_);
+  std::vector<std::shared_ptr<Job>> out;
+  for (auto it = jobs_.rbegin(); it != jobs_.rend(); ++it)
+    if ((*it)->kind == kind) out.push_back(*it);
+  return out;
+}
+
 nlohmann::ordered_json StudyJobs::status_json(const Job& j) {
   const bool finished = j.finished.load(std::memory_order_acquire);
   nlohmann::ordered_json out{{"id", j.id},

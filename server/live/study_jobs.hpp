@@ -13,6 +13,7 @@
 #include <nlohmann/json.hpp>
 #include <string>
 #include <thread>
+#include <vector>
 
 namespace droopline::server {
 
@@ -54,6 +55,8 @@ class StudyJobs {
   std::shared_ptr<Job> submit(const std::string& kind, nlohmann::ordered_json info, Work work, std::string& error);
   /// The job of `kind` with `id`, or nullptr.
   std::shared_ptr<Job> find(const std::string& kind, const std::string& id) const;
+  /// The jobs of `kind` still held (running, and the last finished ones), newest first.
+  std::vector<std::shared_ptr<Job>> list(const std::string& kind) const;
   /// `{"id", "kind", "status", "done", "total", ...info, "error"?, "wall_s"?, "result"?}`.
   static nlohmann::ordered_json status_json(const Job& job);
 

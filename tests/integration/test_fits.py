@@ -182,6 +182,10 @@ class FitTests(unittest.TestCase):
         self.assertEqual(s, 409, body)
         s, body, _ = self.srv.request("GET", "/api/v1/fits/999")
         self.assertEqual(s, 404, body)
+        s, listed, _ = self.srv.request("GET", "/api/v1/fits")
+        self.assertEqual(s, 200, listed)
+        self.assertIn(st["id"], [j["id"] for j in listed["jobs"]])
+        self.assertEqual(next(j for j in listed["jobs"] if j["id"] == st["id"])["status"], "cancelled")
 
     def test_bad_bodies_are_refused_naming_the_field(self):
         bad_csv = self.csv.replace("\n0.1,", "\n0.1,x", 1)

@@ -386,6 +386,12 @@ class StreamTests(ThreeAreaServerCase):
         self.assertLess(st["done"], 801)
         s, body, _ = self.srv.request("GET", "/api/v1/sweeps/999")
         self.assertEqual(s, 404)
+        # The list: both jobs, newest first, each as its own route gives it; no token needed.
+        s, listed, _ = self.srv.request("GET", "/api/v1/sweeps")
+        self.assertEqual(s, 200, listed)
+        self.assertEqual([j["id"] for j in listed["jobs"]], [big["id"], job])
+        self.assertEqual(listed["jobs"][1], self.srv.request("GET", f"/api/v1/sweeps/{job}")[1])
+        self.assertEqual(listed["jobs"][0]["status"], "cancelled")
 
     def test_static_files(self):
         s, body, r = self.srv.request("GET", "/")
