@@ -338,6 +338,39 @@ TEST_CASE("objectives: a seat's weighted mean on chosen numbers", "[objectives]"
   CHECK(out["objectives"][0]["measured"].is_null());
 }
 
+TEST_CASE("objectives: alarm to acknowledgement counts the seat's own acknowledgements only", "[objectives]") {
+  // e2 trips at 1 s: its alarms concern the east desk. The instructor acknowledges the first of
+  // them at 3 s, the east desk the rest at 5 s; the measure is the mean over the desk's own.
+  json j = json::parse(test::read_source(kFile));
+  j["objectives"] = json::parse(R"([{"id": "ack", "seat": "east-desk", "measure": "alarm_to_ack_s", "target": 30}])");
+  Run run(test::load_ok(j.dump()));
+  run.run_to(1.0);
+  run.act("instructor", test::unit_cmd(CommandKind::unit_trip, "e2"));
+  run.run_to(3.0);
+  std::vector<const Alarm*> east;
+  for (const Alarm& a : run.alarms.alarms())
+    if (std::count(a.areas.begin(), a.areas.end(), 1u)) east.push_back(&a);
+  REQUIRE(east.size() >= 2);
+  const std::uint64_t by_instructor = east[0]->id;
+  REQUIRE(run.alarms.acknowledge(by_instructor, "instructor", run.engine->time_s()));
+  run.run_to(5.0);
+  std::vector<double> own;
+  for (const Alarm& a : run.alarms.alarms())
+    if (std::count(a.areas.begin(), a.areas.end(), 1u) && !a.acked_by) {
+      REQUIRE(run.alarms.acknowledge(a.id, "east-desk", run.engine->time_s()));
+      own.push_back(run.engine->time_s() - a.raised_s);
+    }
+  REQUIRE(!own.empty());
+  run.run_to(6.0);
+  const std::vector<SeatScore> sc = run.objectives.scores(&run.alarms);
+  const ObjectiveResult& ack = sc[1].objectives.at(0);
+  REQUIRE(ack.objective == "ack");
+  CHECK(ack.samples.size() == own.size());  // the instructor's one left out
+  double sum = 0;
+  for (double v : own) sum += v;
+  CHECK(ack.measured.value() == Approx(sum / static_cast<double>(own.size())).margin(1e-9));
+}
+
 TEST_CASE("objectives: bad entries are refused with their path", "[objectives]") {
   json base = json::parse(test::read_source(kFile));
   auto with = [&](const char* objectives) {

@@ -237,6 +237,9 @@ ObjectiveResult ObjectiveMonitor::result(const Track& tr, const AlarmMonitor* al
       if (!concerns(a, seat.areas)) continue;
       std::optional<double> done;
       if (d.measure == Measure::alarm_to_ack_s) {
+        // Only the seat's own acknowledgements measure it: an alarm the instructor or another seat
+        // acknowledged first is not the seat's to answer, and is left out.
+        if (a.acked_by && *a.acked_by != seat.id) continue;
         done = a.acked_s;
       } else {
         auto it = std::lower_bound(seat.action_s.begin(), seat.action_s.end(), a.raised_s - 1e-9);
