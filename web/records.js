@@ -113,9 +113,9 @@ function runCard(run) {
   return card;
 }
 
-async function refreshRuns() {
+async function refreshRuns(asked) {
   const r = await apiFor('records', `/api/v1/records/runs${query()}`);
-  if (!r) return;
+  if (!r || asked !== reads) return;  // a newer filter's answer is coming
   $('records-run-count').textContent = `${r.runs.length} run${r.runs.length === 1 ? '' : 's'}`;
   $('records-runs').replaceChildren(...(r.runs.length ? r.runs.map(runCard)
     : [el('p', { className: 'empty', textContent: query() ? 'no run matches these filters' : 'no runs recorded yet' })]));
@@ -176,9 +176,9 @@ function traineeBlock(t) {
   return block;
 }
 
-async function refreshProgress() {
+async function refreshProgress(asked) {
   const r = await apiFor('records-progress', '/api/v1/records/trainees');
-  if (!r) return;
+  if (!r || asked !== reads) return;
   const wanted = $('records-trainee').value.trim();
   const shown = wanted ? r.trainees.filter((t) => t.name === wanted) : r.trainees;
   $('records-progress').replaceChildren(...(shown.length ? shown.map(traineeBlock)
@@ -211,10 +211,15 @@ async function exportCsv() {
 
 // ------------------------------------------------------------------ wiring
 
+// Each refresh is numbered: answers to an older one (the filter changed again before they came)
+// are dropped, so a slow answer never replaces a newer one.
+let reads = 0;
+
 /** Everything read again (once unlocked, after a filter changes). */
 export async function refreshRecords() {
+  const asked = ++reads;
   if (!(await refreshStatus())) return;
-  await Promise.all([refreshRuns(), refreshProgress()]);
+  await Promise.all([refreshRuns(asked), refreshProgress(asked)]);
 }
 
 /** Makes the records panels from their template and wires them. */

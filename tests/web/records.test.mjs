@@ -111,7 +111,10 @@ test('filtering by a trainee narrows the runs and the progress; the progress lin
   await page.click('#records-filter button[type=submit]');
   await page.waitForFunction(() => document.querySelectorAll('#records-runs .record-run').length === 2
     && document.querySelectorAll('#records-progress .trainee-progress').length === 1, null, { timeout: 5000 });
+  // The runs and the progress are drawn from two answers: the old progress can still be there
+  // when the runs are new (a run here once read no line at all), so wait for hers.
   const ilse = page.locator('.trainee-progress[data-trainee="Ilse Varda"]');
+  await ilse.locator('svg.progress-line').first().waitFor({ timeout: 5000 });
   assert.equal(await ilse.locator('svg.progress-line').count(), 2, 'one line per exercise');
   assert.equal(await ilse.locator('svg.progress-line circle.point').count(), 2);
   const labels = await ilse.locator('svg.progress-line text.score').allTextContents();
