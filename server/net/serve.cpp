@@ -91,13 +91,8 @@ int serve(Options options) {
   for (const Issue& i : r.issues)
     (i.warning ? spdlog::warn("{}: {}", file, i.text()) : spdlog::error("{}: {}", file, i.text()));
   if (!r.system) return 2;
-  // The journal next: a session that cannot keep one does not start, with one message, before a
-  // token is printed, records are opened beside it or the loop starts.
-  if (const Journal journal(opt.journal); !journal.ok()) {
-    spdlog::error("{}", journal.error());
-    return 1;
-  }
 
+  bool made_token = false;  // printed once the session is sure to start (below)
   if (!opt.token_file.empty()) {
     std::vector<Issue> unread;  // a regular file only: a device or a pipe would never end
     const std::optional<std::string> text = read_text_file(opt.token_file, unread);
@@ -115,8 +110,7 @@ int serve(Options options) {
     ctx.token = env;
   } else {
     ctx.token = make_token();
-    std::printf("instructor token (printed once): %s\n", ctx.token.c_str());
-    std::fflush(stdout);
+    made_token = true;
   }
 
   raise_descriptor_limit(opt.max_connections);
@@ -127,6 +121,17 @@ int serve(Options options) {
   if (ec) {
     spdlog::error("--listen: \"{}\" is not an IP address", opt.host);
     return 2;
+  }
+  // The journal once the arguments are known good (opening it creates the file): a session that
+  // cannot keep one does not start, with one message, before a token is printed, records are
+  // opened beside it or the loop starts.
+  if (const Journal journal(opt.journal); !journal.ok()) {
+    spdlog::error("{}", journal.error());
+    return 1;
+  }
+  if (made_token) {
+    std::printf("instructor token (printed once): %s\n", ctx.token.c_str());
+    std::fflush(stdout);
   }
   LiveConfig lc;
   lc.speed = opt.speed;
