@@ -10,6 +10,7 @@ import asyncio
 import base64
 import http.client
 import json
+import math
 import os
 import re
 import resource
@@ -61,8 +62,16 @@ class FaultCase(unittest.TestCase):
         wakes = [a - b for a, b in zip(after, before)]
         total = wakes[-1]
         self.assertGreater(total, 0, "the loop did not run")
-        within = next(b for b, n in zip(bounds, wakes) if n >= 0.99 * total)
-        self.assertLessEqual(within, P99_BOUND_S, f"loop lateness p99 <= {within} s over {total} wakes")
+        # 99 % within the bound, the 1 % rounded up: a test's few hundred wakes would otherwise
+        # make "p99" mean "every wake", and one scheduler hiccup of a shared machine (seen once in
+        # CI: one wake of 99 between 10 and 100 ms late) is not the loop's fault. A loop that is
+        # late by habit still fails, and a long stall is a slip, checked next.
+        inside = next(n for b, n in zip(bounds, wakes) if b >= P99_BOUND_S)
+        allowed = math.ceil(0.01 * total)
+        histogram = ", ".join(f"<= {b:g} s: {n}" for b, n in zip(bounds, wakes))
+        self.assertLessEqual(total - inside, allowed,
+                             f"{total - inside} of {total} wakes later than {P99_BOUND_S} s "
+                             f"(at most {allowed}); cumulative wakes {histogram}")
         self.assertEqual(slips, slips_before, "the loop slipped its schedule")
         s, _, _ = self.srv.request("GET", "/healthz")
         self.assertEqual(s, 200)
