@@ -275,6 +275,45 @@ TEST_CASE("records from droopline's COMTRADE writer read back within its resolut
   for (int i = 0; i < n; ++i) CHECK(r.t_s[i] == Approx(0.1 * i).margin(1e-6));  // times from the first sample
 }
 
+TEST_CASE("a COMTRADE record longer than 71 minutes counts its timestamps within 32 bits", "[recordings]") {
+  // 2^32 microseconds is 71.6 minutes: past it the writer raises the time multiplier (tens of
+  // microseconds, then hundreds), so every timestamp fits a binary form's 32 bits and the 1999
+  // revision's ten digits, and timestamp x multiplier still gives each sample's time.
+  const auto dir = temp_folder("long");
+  for (const double hours : {1.0, 3.0, 30.0}) {
+    INFO(hours << " h");
+    ComtradeInput in;
+    in.station = "Kestrel Bay";
+    in.columns = {"t_s", "north.f_hz", "g1.p_mw"};
+    in.sample_hz = 0.1;
+    const int n = static_cast<int>(hours * 360.0) + 1;
+    for (int i = 0; i < n; ++i) in.rows.insert(in.rows.end(), {10.0 * i, 50.0 + 1e-3 * (i % 7), 100.0 + i % 3});
+    const ComtradeRecord rec = make_comtrade(in);
+    REQUIRE(rec.error.empty());
+    std::vector<Issue> issues;
+    const auto cfg = parse_comtrade_cfg(rec.cfg, "long.cfg", issues);
+    REQUIRE(cfg);
+    CHECK(cfg->timemult == (hours < 71.0 / 60.0 ? 1.0 : hours < 710.0 / 60.0 ? 10.0 : 100.0));
+    // Each .dat line: sample number, timestamp, values.
+    std::size_t at = 0;
+    for (int i = 0; i < n; ++i) {
+      const std::size_t end = rec.dat.find("\r\n", at);
+      REQUIRE(end != std::string::npos);
+      const std::string line = rec.dat.substr(at, end - at);
+      at = end + 2;
+      const std::size_t c1 = line.find(','), c2 = line.find(',', c1 + 1);
+      const long long stamp = std::stoll(line.substr(c1 + 1, c2 - c1 - 1));
+      REQUIRE(stamp < 4294967295LL);
+      REQUIRE(static_cast<double>(stamp) * cfg->timemult * 1e-6 == Approx(10.0 * i).margin(cfg->timemult * 1e-6));
+    }
+    write(dir / "long.cfg", rec.cfg);
+    write(dir / "long.dat", rec.dat);
+    const Recording r = read_ok((dir / "long.cfg").string(), channels("north.f_hz", {"g1.p_mw"}));
+    REQUIRE(r.t_s.size() == static_cast<std::size_t>(n));
+    CHECK(r.t_s.back() == Approx(10.0 * (n - 1)));
+  }
+}
+
 TEST_CASE("CSV: quoted names, comma or semicolon, per unit, several power columns", "[recordings]") {
   const auto dir = temp_folder("csv");
   std::vector<double> t, f, p1, p2;

@@ -73,14 +73,22 @@ ComtradeRecord make_comtrade(const ComtradeInput& in) {
   };
   cfg += stamp(at(t_first)) + "\r\n";
   cfg += stamp(at(std::clamp(in.trigger_s, t_first, in.rows[(n - 1) * w]))) + "\r\n";
-  cfg += "ASCII\r\n1\r\n";  // file type; time multiplier (timestamps in microseconds)
+  // Timestamps count microseconds times the multiplier. The 1999 revision gives the field at most
+  // ten digits, and a binary form holds it in 32 bits with all ones meaning "missing", so a record
+  // longer than 71 minutes counts in tens (then hundreds...) of microseconds: the last timestamp
+  // stays below 2^32 - 1 and any reader or converter keeps the times. The sampling rate above is
+  // what readers take the times from; the timestamps say the same, coarser on a long record.
+  const double span_us = (in.rows[(n - 1) * w] - t_first) * 1e6;
+  double timemult = 1.0;
+  while (std::llround(span_us / timemult) >= 4294967295LL) timemult *= 10.0;
+  cfg += "ASCII\r\n" + std::to_string(std::llround(timemult)) + "\r\n";  // file type; time multiplier
 
   std::string& dat = out.dat;
   dat.reserve(n * (16 + nch * 8));
   char buf[32];
   for (std::size_t r = 0; r < n; ++r) {
-    const long long us = std::llround((in.rows[r * w] - t_first) * 1e6);
-    std::snprintf(buf, sizeof buf, "%zu,%lld", r + 1, us);
+    const long long stamp_count = std::llround((in.rows[r * w] - t_first) * 1e6 / timemult);
+    std::snprintf(buf, sizeof buf, "%zu,%lld", r + 1, stamp_count);
     dat += buf;
     for (std::size_t c = 0; c < nch; ++c) {
       const long long x = std::llround((in.rows[r * w + c + 1] - b[c]) / a[c]);
