@@ -101,9 +101,12 @@ TEST_CASE("the dispatch answers 405 with Allow, 404 under /api/, and leaves page
   const Reply put = dispatch(api, Verb::put, "/api/v1/state");
   CHECK(put.status == 405);
   REQUIRE(put.headers.size() == 1);
-  CHECK(put.headers[0].second == "GET");
-  CHECK(dispatch(api, Verb::delete_, "/api/v1/scenario").headers[0].second == "GET, PUT");
-  CHECK(dispatch(api, Verb::post, "/api/v1/sweeps/1/result").headers[0].second == "GET");
+  CHECK(put.headers[0].second == "GET, HEAD");
+  CHECK(dispatch(api, Verb::delete_, "/api/v1/scenario").headers[0].second == "GET, HEAD, PUT");
+  CHECK(dispatch(api, Verb::post, "/api/v1/sweeps/1/result").headers[0].second == "GET, HEAD");
+  // HEAD takes the GET route (the session drops the body); a route without GET refuses it.
+  CHECK(dispatch(api, Verb::head, "/api/v1/openapi.json").file == "/openapi.json");
+  CHECK(dispatch(api, Verb::head, "/api/v1/commands").status == 405);
   CHECK(dispatch(api, Verb::get, "/api/v1/nothing").status == 404);
   CHECK(dispatch(api, Verb::get, "/api/v1/stream").status == 426);
   CHECK(dispatch(api, Verb::get, "/api/v1/openapi.json").file == "/openapi.json");

@@ -187,10 +187,14 @@ bool Api::handle(const Request& req, Respond respond) {
   const Route* route = nullptr;
   std::string allow;
   std::vector<std::string> params;
+  // HEAD is answered by the GET route (the session sends the headers only), as HTTP asks of
+  // every server that takes GET (RFC 9110, 9.3.2).
+  const Verb verb = req.verb == Verb::head ? Verb::get : req.verb;
   for (const Route& r : routes_) {
     if (!matches(r.pattern, path, params)) continue;
     allow += (allow.empty() ? "" : ", ") + std::string(verb_name(r.verb));
-    if (r.verb == req.verb && !route) {
+    if (r.verb == Verb::get) allow += ", HEAD";
+    if (r.verb == verb && !route) {
       route = &r;
       call.params = params;
     }

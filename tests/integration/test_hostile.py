@@ -158,6 +158,25 @@ class StaticFileTests(unittest.TestCase):
         self.assertEqual(body, b"")
         self.assertIn(f"Content-Length: {os.path.getsize(os.path.join(self.web, 'app.js'))}".encode(), head)
 
+    def test_head_on_the_api_answers_as_get_without_the_body(self):
+        # RFC 9110, 9.3.2: HEAD is GET without the content; the API's GET routes take it too.
+        _, got, ghead = raw_request(self.srv.port, "/api/v1/scenario")
+        status, body, head = raw_request(self.srv.port, "/api/v1/scenario", "HEAD")
+        self.assertEqual(status, 200)
+        self.assertEqual(body, b"")
+        self.assertIn(f"Content-Length: {len(got)}".encode(), head)
+        self.assertIn(b"Content-Type: application/json", head)
+        # A route without GET still refuses HEAD, and says which methods it takes.
+        status, body, head = raw_request(self.srv.port, "/api/v1/commands", "HEAD")
+        self.assertEqual(status, 405)
+        self.assertEqual(body, b"")
+        self.assertIn(b"Allow: POST", head)
+        status, body, head = raw_request(self.srv.port, "/api/v1/state", "DELETE")
+        self.assertEqual(status, 405)
+        self.assertIn(b"Allow: GET, HEAD", head)
+        status, body, _ = raw_request(self.srv.port, "/api/v1/nothing", "HEAD")
+        self.assertEqual((status, body), (404, b""))
+
     def test_errors_quote_the_path_briefly_and_safely(self):
         status, body, _ = raw_request(self.srv.port, "/" + "b" * 400 + ".js")
         self.assertEqual(status, 404)
