@@ -1,5 +1,6 @@
 #include "droopline/json_input.hpp"
 
+#include <cstring>
 #include <string>
 
 namespace droopline {
@@ -212,5 +213,16 @@ std::optional<json> parse_untrusted_json(std::string_view text, std::string& err
   if (!j) error = issues.front().text();
   return j;
 }
+
+namespace detail {
+
+std::size_t find_text(std::string_view text, std::string_view needle, std::size_t from) noexcept {
+  if (from > text.size()) return std::string_view::npos;
+  if (needle.empty()) return from;
+  const void* at = memmem(text.data() + from, text.size() - from, needle.data(), needle.size());
+  return at ? static_cast<std::size_t>(static_cast<const char*>(at) - text.data()) : std::string_view::npos;
+}
+
+}  // namespace detail
 
 }  // namespace droopline

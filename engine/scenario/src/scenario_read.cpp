@@ -5,6 +5,7 @@
 
 #include "droopline/format.hpp"
 #include "droopline/json_input.hpp"
+#include "droopline/page_hint.hpp"
 #include "droopline/scenario_io.hpp"
 #include "json_fields.hpp"
 
@@ -97,9 +98,12 @@ void reserve_units(std::vector<UnitDef>& units, std::string_view text) {
   if (text.size() > JsonLimits{}.max_bytes) return;
   constexpr std::string_view kKey = "\"turbine\"";
   std::size_t n = 0;
-  for (std::size_t at = text.find(kKey); at != std::string_view::npos; at = text.find(kKey, at + kKey.size())) ++n;
+  for (std::size_t at = detail::find_text(text, kKey); at != std::string_view::npos;
+       at = detail::find_text(text, kKey, at + kKey.size()))
+    ++n;
   try {
     units.reserve(std::min(n, text.size() / kShortestUnitBytes));
+    detail::prepare_pages(units.data(), units.capacity() * sizeof(UnitDef));
   } catch (const std::bad_alloc&) {  // the vector grows as units come instead
   }
 }
@@ -237,7 +241,10 @@ std::optional<std::string> read_text_file(const std::string& path, std::vector<I
   std::ifstream in(path, std::ios::binary | std::ios::ate);
   std::string text;
   if (in) {
-    text.resize(static_cast<std::size_t>(in.tellg()));
+    const auto size = static_cast<std::size_t>(in.tellg());
+    text.reserve(size);
+    detail::prepare_pages(text.data(), size);
+    text.resize(size);
     in.seekg(0);
     in.read(text.data(), static_cast<std::streamsize>(text.size()));
   }

@@ -430,7 +430,7 @@ ExerciseLoad load_exercise_file(const std::string& path) {
 bool looks_like_exercise(std::string_view json_text) {
   // A text that holds neither key name, nor any \u escape that could spell one, is no exercise:
   // a fleet's scenario is not parsed twice (here, then to be read) only to find that out.
-  const auto has = [&](std::string_view s) { return json_text.find(s) != std::string_view::npos; };
+  const auto has = [&](std::string_view s) { return detail::find_text(json_text, s) != std::string_view::npos; };
   if (!has("\"seats\"") && !has("\"script\"") && !has("\\u")) return false;
   // Only the root's keys matter: a fleet's units are dropped as they are parsed, not kept.
   std::vector<Issue> ignored;

@@ -47,4 +47,12 @@ std::optional<nlohmann::ordered_json> parse_untrusted_json(std::string_view text
                                                            const JsonLimits& limits,
                                                            const StreamedArray& streamed);
 
+namespace detail {
+/// Where `needle` first occurs in `text` at or after `from`, or npos: the quick look into a
+/// scenario's text before it is parsed. `std::string_view::find` stops at every occurrence of the
+/// needle's first byte, and a JSON key starts with a quote, found every few bytes; this searches
+/// the whole needle (glibc's memmem), some three times faster on a fleet's text.
+std::size_t find_text(std::string_view text, std::string_view needle, std::size_t from = 0) noexcept;
+}  // namespace detail
+
 }  // namespace droopline
