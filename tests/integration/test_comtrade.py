@@ -13,6 +13,7 @@ import os
 import subprocess
 import sys
 import tempfile
+import scratch  # noqa: F401,E402  (every temporary folder under one, removed at exit)
 
 BIN, SRC = sys.argv[1], sys.argv[2]
 SCENARIO = os.path.join(SRC, "scenarios", "demo_three_areas.json")

@@ -11,6 +11,7 @@ import resource
 import subprocess
 import sys
 import tempfile
+import scratch  # noqa: F401,E402  (every temporary folder under one, removed at exit)
 
 BIN, SRC = sys.argv[1], sys.argv[2]
 with open(os.path.join(SRC, "scenarios", "textbook_isolated_station.json")) as fh:

@@ -14,6 +14,7 @@ import subprocess
 import sys
 import tempfile
 import unittest
+import scratch  # noqa: F401,E402  (every temporary folder under one, removed at exit)
 
 BIN = SRC = None
 

@@ -18,6 +18,7 @@ import time
 import unittest
 
 import websockets
+import scratch  # noqa: F401,E402  (every temporary folder under one, removed at exit)
 
 BIN = SRC = None
 TOKEN = "integration-test-token-0123456789"
