@@ -1,4 +1,5 @@
 // The routes of the live session: reads for everyone, changes for the instructor.
+#include <algorithm>
 #include <cmath>
 #include <nlohmann/json.hpp>
 #include <sstream>
@@ -95,6 +96,9 @@ std::string metrics_text(const Services& s) {
       << name << ' ' << fmt_exact(value) << '\n';
   };
   auto count = [](const std::atomic<std::uint64_t>& c) { return static_cast<double>(c.load()); };
+  metric("droopline_loop_realtime", "gauge",
+         "1 when the loop runs at a real-time priority, 0 at normal priority (network threads then yield to it).",
+         std::max(0, l.realtime.load()));
   metric("droopline_steps_total", "counter", "Engine steps taken.", count(l.steps));
   metric("droopline_step_overruns_total", "counter", "Loop wakes more than one step late.",
          count(l.overruns));

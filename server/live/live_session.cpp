@@ -46,6 +46,12 @@ LiveSession::LiveSession(const CheckedSystem& system, LiveConfig config, Sink si
 
 LiveSession::~LiveSession() { stop(); }
 
+bool LiveSession::realtime() const {
+  std::unique_lock lock(tasks_mutex_);
+  tasks_cv_.wait(lock, [&] { return counters_.realtime.load() >= 0; });
+  return counters_.realtime.load() == 1;
+}
+
 void LiveSession::stop() {
   if (stop_.exchange(true)) return;
   tasks_cv_.notify_all();
@@ -134,10 +140,16 @@ void LiveSession::run() {
   // needs the privilege (root or CAP_SYS_NICE), so without it the loop runs at normal priority.
   sched_param sp{};
   sp.sched_priority = 10;
-  if (pthread_setschedparam(pthread_self(), SCHED_FIFO, &sp) == 0)
+  const bool realtime = pthread_setschedparam(pthread_self(), SCHED_FIFO, &sp) == 0;
+  if (realtime)
     spdlog::info("real-time loop running at SCHED_FIFO priority {}", sp.sched_priority);
   else
     spdlog::info("real-time loop at normal priority (no privilege for SCHED_FIFO)");
+  {
+    std::lock_guard lock(tasks_mutex_);
+    counters_.realtime = realtime ? 1 : 0;
+  }
+  tasks_cv_.notify_all();
   while (!stop_.load()) {
     // Tasks first: they run between steps, at the current simulation time.
     std::vector<Task> tasks;

@@ -55,6 +55,9 @@ struct LiveConfig {
 
 /// Counters for /metrics (read from any thread).
 struct LiveCounters {
+  /// 1 once the loop runs at a real-time priority, 0 once it found it has no privilege for one,
+  /// -1 until it has tried.
+  std::atomic<int> realtime{-1};
   std::atomic<std::uint64_t> steps{0};
   std::atomic<std::uint64_t> overruns{0};       ///< wakes later than one step behind the deadline
   std::atomic<std::uint64_t> slips{0};          ///< schedule given up and rebased
@@ -98,6 +101,8 @@ class LiveSession {
 
   /// False when the journal could not be opened (the reason in journal_error()).
   bool journal_ok() const { return pipeline_.journal().ok() && !journal_failed_; }
+  /// Whether the loop thread got its real-time priority; waits (microseconds) for it to try.
+  bool realtime() const;
   /// Why the journal could not be opened or written.
   const std::string& journal_error() const { return pipeline_.journal().error(); }
 
@@ -312,8 +317,8 @@ class LiveSession {
   std::atomic<double> speed_{1.0};
   std::atomic<bool> paused_{false};
   std::atomic<bool> stop_{false};
-  std::mutex tasks_mutex_;
-  std::condition_variable tasks_cv_;
+  mutable std::mutex tasks_mutex_;
+  mutable std::condition_variable tasks_cv_;
   std::vector<Task> tasks_;
 
   // The running exercise (loop thread only): the script and the alarm monitor are values, so a

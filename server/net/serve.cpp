@@ -19,6 +19,10 @@ namespace droopline::server {
 
 namespace {
 
+// Network and worker threads' niceness above the loop's when the loop has no real-time priority:
+// a scheduler weight about a third of the loop's.
+constexpr int kNetworkNiceness = 5;
+
 // Every connection is a descriptor, and a refused one is one too until its 503 is written: ask
 // for the hard limit (common practice for servers) and warn when even that is below the
 // connection limit plus room for files.
@@ -152,6 +156,14 @@ int serve(Options options) {
   if (!ctx.live->journal_ok()) {
     spdlog::error("{}", ctx.live->journal_error());
     return 1;
+  }
+  // Without the privilege for a real-time loop, the loop's share of the cores is what the
+  // scheduler's fairness gives it; lowering the priority of this thread before it starts the
+  // network and worker threads (which take it over) lets the loop go first when a flood of
+  // requests or a sweep keeps them busy. Any thread may lower its own priority.
+  if (!ctx.live->realtime()) {
+    if (setpriority(PRIO_PROCESS, 0, getpriority(PRIO_PROCESS, 0) + kNetworkNiceness) == 0)
+      spdlog::info("network and worker threads at niceness +{}, so the loop goes first", kNetworkNiceness);
   }
   ctx.replay_pool = std::make_unique<net::thread_pool>(std::max<std::size_t>(1, opt.replay_workers));
   ctx.run_on_workers = [pool = ctx.replay_pool.get()](std::function<void()> job) { net::post(*pool, std::move(job)); };

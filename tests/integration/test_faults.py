@@ -447,5 +447,59 @@ def main():
     unittest.main(argv=[sys.argv[0], "-v", *sys.argv[3:]], exit=True)
 
 
+def thread_priorities(pid):
+    """{thread id: (niceness, scheduling policy)} of a process, from /proc (proc(5): stat fields
+    19 and 41, counted after the command name's closing parenthesis)."""
+    out = {}
+    for tid in os.listdir(f"/proc/{pid}/task"):
+        with open(f"/proc/{pid}/task/{tid}/stat") as fh:
+            fields = fh.read().rsplit(")", 1)[1].split()
+        out[int(tid)] = (int(fields[16]), int(fields[38]))
+    return out
+
+
+class LoopPriorityTests(unittest.TestCase):
+    """The loop goes first: at SCHED_FIFO with the privilege, else the network and worker threads
+    yield to it by niceness (README, Live service)."""
+
+    def check(self, srv, expect_realtime):
+        realtime = srv.metric("droopline_loop_realtime")
+        threads = thread_priorities(srv.proc.pid)
+        fifo = [tid for tid, (_, policy) in threads.items() if policy == 1]  # SCHED_FIFO
+        if expect_realtime is not None:
+            self.assertEqual(realtime, 1 if expect_realtime else 0, threads)
+        if realtime == 1:
+            self.assertEqual(len(fifo), 1, threads)  # the loop, and only the loop
+            self.assertEqual(threads[srv.proc.pid][0], 0, threads)
+        else:
+            self.assertEqual(fifo, [], threads)
+            self.assertEqual(threads[srv.proc.pid][0], 5, threads)  # the main thread runs the network
+            self.assertIn(0, [nice for nice, _ in threads.values()], threads)  # the loop kept its own
+
+    def test_as_started(self):
+        srv = Server(scenario("demo_island.json"))
+        try:
+            self.check(srv, None)
+        finally:
+            srv.stop()
+
+    def test_without_the_privilege(self):
+        if os.geteuid() != 0 or not shutil.which("setpriv"):
+            self.skipTest("needs root and setpriv to drop the privilege")
+        wrapper = os.path.join(tempfile.mkdtemp(prefix="droopline-prio-"), "unprivileged")
+        with open(wrapper, "w") as fh:
+            fh.write(f'#!/bin/sh\nexec setpriv --bounding-set=-sys_nice --inh-caps=-sys_nice "{test_server.BIN}" "$@"\n')
+        os.chmod(wrapper, 0o755)
+        binary, test_server.BIN = test_server.BIN, wrapper
+        try:
+            srv = Server(scenario("demo_island.json"))
+        finally:
+            test_server.BIN = binary
+        try:
+            self.check(srv, False)
+        finally:
+            srv.stop()
+
+
 if __name__ == "__main__":
     main()
