@@ -421,7 +421,16 @@ void record(Services& s, Call& c) {
   c.respond(std::move(r));
 }
 
-void stream(Services&, Call& c) { c.error(426, "/api/v1/stream is a WebSocket: send an upgrade request"); }
+// A plain request to the stream (an upgrade goes to the WebSocket session before the routes):
+// 426 names the protocol to upgrade to, as RFC 9110 (15.5.22) asks.
+void stream(Services&, Call& c) {
+  Reply r;
+  r.status = 426;
+  r.body = error_json("/api/v1/stream is a WebSocket: send an upgrade request");
+  r.headers.emplace_back("Upgrade", "websocket");
+  r.headers.emplace_back("Connection", "Upgrade");  // the sender of Upgrade names it there too (7.8)
+  c.respond(std::move(r));
+}
 
 void openapi(Services&, Call& c) {
   Reply r;

@@ -176,6 +176,11 @@ class StaticFileTests(unittest.TestCase):
         self.assertIn(b"Allow: GET, HEAD", head)
         status, body, _ = raw_request(self.srv.port, "/api/v1/nothing", "HEAD")
         self.assertEqual((status, body), (404, b""))
+        # 426 names the protocol to upgrade to (RFC 9110, 15.5.22), GET or HEAD.
+        for method in ("GET", "HEAD"):
+            status, body, head = raw_request(self.srv.port, "/api/v1/stream", method)
+            self.assertEqual(status, 426)
+            self.assertIn(b"Upgrade: websocket", head)
 
     def test_errors_quote_the_path_briefly_and_safely(self):
         status, body, _ = raw_request(self.srv.port, "/" + "b" * 400 + ".js")

@@ -5,6 +5,7 @@ WebSocket clients (Debian's python3-websockets). Every test is bounded in time a
     /usr/bin/python3 test_server.py DROOPLINE_BINARY SOURCE_DIR
 """
 import asyncio
+import datetime
 import http.client
 import json
 import os
@@ -341,6 +342,32 @@ class StreamTests(ThreeAreaServerCase):
         self.assertIn("part: must be cfg or dat", body["error"])
         s, body, _ = self.srv.request("GET", "/api/v1/record?from_s=5000&to_s=6000")
         self.assertEqual(s, 404)
+
+    def test_comtrade_trigger_at_the_first_disturbance_in_the_window(self):
+        # As `droopline record` puts it (README, Recording): not at the window's start.
+        time.sleep(1.0)  # a second of history before the step
+        s, _, _ = self.srv.request("POST", "/api/v1/commands", {"kind": "load_step", "area": "dreyholt", "mw": 40}, TOKEN)
+        self.assertEqual(s, 200)
+        posted = time.time()
+        at = None
+        while at is None and time.time() < posted + 10:
+            time.sleep(0.2)
+            _, ev, _ = self.srv.request("GET", "/api/v1/events?since=0")
+            times = [e["at_s"] for e in ev["events"] if e.get("type") == "disturbance"]
+            at = max(times) if times else None
+        self.assertIsNotNone(at, "no disturbance announced")
+        time.sleep(1.0)
+        from_s = at - 0.35
+        _, rows, _ = self.srv.request("GET", f"/api/v1/history?format=csv&from_s={from_s}&to_s={at + 1}")
+        t_first = float(rows.decode().split("\n")[1].split(",")[0])
+        s, cfg, _ = self.srv.request("GET", f"/api/v1/record?from_s={from_s}&to_s={at + 1}&part=cfg")
+        self.assertEqual(s, 200)
+        lines = cfg.decode().split("\r\n")
+        n_analog = int(lines[1].split(",")[1][:-1])
+        stamp = lambda line: datetime.datetime.strptime(line, "%d/%m/%Y,%H:%M:%S.%f")
+        start, trigger = stamp(lines[2 + n_analog + 3]), stamp(lines[2 + n_analog + 4])
+        self.assertAlmostEqual((trigger - start).total_seconds(), at - t_first, delta=2e-6)
+        self.assertGreater((trigger - start).total_seconds(), 0.2)
 
     def wait_sweep(self, job, timeout_s):
         """Polls a sweep job until it is no longer running (or the time is up); its last status."""
