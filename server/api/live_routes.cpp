@@ -422,14 +422,11 @@ void record(Services& s, Call& c) {
 }
 
 // A plain request to the stream (an upgrade goes to the WebSocket session before the routes):
-// 426 names the protocol to upgrade to, as RFC 9110 (15.5.22) asks.
+// 426 names the protocol to upgrade to (RFC 9110 15.5.22), and a sender of Upgrade lists it in
+// Connection too (7.8).
 void stream(Services&, Call& c) {
-  Reply r;
-  r.status = 426;
-  r.body = error_json("/api/v1/stream is a WebSocket: send an upgrade request");
-  r.headers.emplace_back("Upgrade", "websocket");
-  r.headers.emplace_back("Connection", "Upgrade");  // the sender of Upgrade names it there too (7.8)
-  c.respond(std::move(r));
+  c.respond(Reply{426, "application/json", error_json("/api/v1/stream is a WebSocket: send an upgrade request"),
+                  {{"Upgrade", "websocket"}, {"Connection", "Upgrade"}}, {}});
 }
 
 void openapi(Services&, Call& c) {

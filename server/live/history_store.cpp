@@ -1,7 +1,6 @@
 #include "history_store.hpp"
 
 #include <algorithm>
-#include <cmath>
 
 #include "droopline/scenario_io.hpp"
 
@@ -66,19 +65,8 @@ study::ComtradeRecord HistoryStore::record(double from_s, double to_s) const {
   }
   in.rows = rows_within(in.columns.size(), rows, from_s, to_s);
   // The trigger at the first disturbance from the window's start on, as `droopline record` puts
-  // it (make_comtrade keeps it inside the window); the disturbances are in the event log.
-  // (An entry is replaced at the log's end as its disturbance's figures fill in, so the earliest
-  // is searched for, not the first found.)
-  double first = INFINITY;
-  for (const std::string& text : events_.all()) {
-    if (text.find("\"disturbance\"") == std::string::npos) continue;
-    const auto event = nlohmann::json::parse(text, nullptr, false);
-    if (!event.is_object() || event.value("type", "") != "disturbance" || !event.contains("at_s") ||
-        !event["at_s"].is_number())
-      continue;
-    if (const double at = event["at_s"].get<double>(); at >= from_s) first = std::min(first, at);
-  }
-  in.trigger_s = std::isfinite(first) ? first : from_s;
+  // it (make_comtrade keeps it inside the window).
+  in.trigger_s = events_.first_disturbance_from(from_s).value_or(from_s);
   return study::make_comtrade(in);
 }
 

@@ -167,7 +167,8 @@ std::shared_ptr<const std::string> EventLog::add(json event, std::int64_t distur
     auto old = std::find_if(entries_.begin(), entries_.end(), [&](const Entry& e) { return e.disturbance == disturbance; });
     if (old != entries_.end()) entries_.erase(old);
   }
-  entries_.push_back({seq_, *text, disturbance});
+  const json* at = disturbance >= 0 && event.contains("at_s") ? &event["at_s"] : nullptr;
+  entries_.push_back({seq_, *text, disturbance, at && at->is_number() ? at->get<double>() : NAN});
   while (entries_.size() > kKept) entries_.pop_front();
   return text;
 }
@@ -191,6 +192,16 @@ std::vector<std::string> EventLog::all() const {
   out.reserve(entries_.size());
   for (const Entry& e : entries_) out.push_back(e.text);
   return out;
+}
+
+std::optional<double> EventLog::first_disturbance_from(double from_s) const {
+  std::lock_guard lock(mutex_);
+  // An entry is replaced at the log's end as its disturbance's figures fill in: the earliest is
+  // searched for, not the first found.
+  std::optional<double> first;
+  for (const Entry& e : entries_)
+    if (e.at_s >= from_s && (!first || e.at_s < *first)) first = e.at_s;
+  return first;
 }
 
 void EventLog::clear() {

@@ -7,6 +7,7 @@
 #include <deque>
 #include <mutex>
 #include <memory>
+#include <optional>
 #include <string>
 #include <string_view>
 #include <vector>
@@ -61,6 +62,8 @@ class EventLog {
   std::string since(std::uint64_t since) const;
   /// Every entry's text, oldest first.
   std::vector<std::string> all() const;
+  /// The earliest start (simulated s) of a disturbance in the log at or after `from_s`, if any.
+  std::optional<double> first_disturbance_from(double from_s) const;
   /// Empties the log (the numbering goes on).
   void clear();
 
@@ -69,6 +72,7 @@ class EventLog {
     std::uint64_t seq;
     std::string text;
     std::int64_t disturbance;
+    double at_s;  ///< a disturbance's start (simulated s); NaN for other events
   };
   mutable std::mutex mutex_;
   std::deque<Entry> entries_;
