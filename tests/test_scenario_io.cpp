@@ -258,7 +258,7 @@ TEST_CASE("a repeated key holding a container is reported, not thrown") {
 
 TEST_CASE("a streamed array: each element is handed over once, in order, and left out of the document") {
   std::vector<std::pair<std::size_t, json>> got;
-  const StreamedArray streamed{"units", [&](json&& e, std::size_t i) { got.emplace_back(i, std::move(e)); }};
+  const StreamedArray streamed{"units", [&](json&& e, std::size_t i) { got.emplace_back(i, std::move(e)); }, {}};
   std::vector<Issue> issues;
   const auto j = parse_untrusted_json(
       R"({"a": 1, "units": [{"id": "x", "units": [5]}, 7, [1, [2]], null, {}], "b": {"units": [1]}})", issues,
@@ -286,7 +286,7 @@ TEST_CASE("a streamed array: each element is handed over once, in order, and lef
 
 TEST_CASE("a streamed array keeps the gate's checks: duplicates and depth inside an element fail the parse") {
   std::size_t taken = 0;
-  const StreamedArray streamed{"units", [&](json&&, std::size_t) { ++taken; }};
+  const StreamedArray streamed{"units", [&](json&&, std::size_t) { ++taken; }, {}};
   std::vector<Issue> issues;
   CHECK_FALSE(parse_untrusted_json(R"({"units": [{"id": "a"}, {"id": "b", "id": "c"}]})", issues, JsonLimits{},
                                    streamed));

@@ -8,6 +8,7 @@
 #include <nlohmann/json.hpp>
 #include <optional>
 #include <set>
+#include <span>
 #include <string>
 #include <string_view>
 #include <utility>
@@ -71,6 +72,9 @@ class Reader {
   bool failed() const { return !issues_.empty() || unlisted_ > 0; }
 
   bool object(const ijson& j, const std::string& path, std::initializer_list<std::string_view> allowed) {
+    return object(j, path, std::span<const std::string_view>(allowed.begin(), allowed.size()));
+  }
+  bool object(const ijson& j, const std::string& path, std::span<const std::string_view> allowed) {
     if (!j.is_object()) {
       error(path, std::string("must be an object, got ") + type_name(j));
       return false;

@@ -24,18 +24,24 @@ class DomBuilder {
   std::string error_text;
   bool too_deep = false;
 
-  bool null() { return put(json(nullptr)); }
-  bool boolean(bool v) { return put(json(v)); }
-  bool number_integer(json::number_integer_t v) { return put(json(v)); }
-  bool number_unsigned(json::number_unsigned_t v) { return put(json(v)); }
-  bool number_float(json::number_float_t v, const std::string&) { return put(json(v)); }
-  bool string(std::string& v) { return put(json(std::move(v))); }
-  bool binary(json::binary_t& v) { return put(json(std::move(v))); }
-  bool start_object(std::size_t) { return open(json::object()); }
-  bool start_array(std::size_t) { return open(json::array()); }
-  bool end_object() { return close(); }
-  bool end_array() { return close(); }
+  // While an element of the streamed array is recorded (see JsonEvents), events go to the record.
+  bool null() { return recording() ? record({Kind::null}) : put(json(nullptr)); }
+  bool boolean(bool v) { return recording() ? record({Kind::boolean, v}) : put(json(v)); }
+  bool number_integer(json::number_integer_t v) { return recording() ? record({Kind::integer, false, v}) : put(json(v)); }
+  bool number_unsigned(json::number_unsigned_t v) {
+    return recording() ? record({Kind::unsigned_integer, false, 0, v}) : put(json(v));
+  }
+  bool number_float(json::number_float_t v, const std::string&) {
+    return recording() ? record({Kind::floating, false, 0, 0, v}) : put(json(v));
+  }
+  bool string(std::string& v) { return recording() ? record_text(Kind::string, v) : put(json(std::move(v))); }
+  bool binary(json::binary_t& v) { return put(json(std::move(v))); }  // never from JSON text
+  bool start_object(std::size_t) { return records() ? record_open(Kind::object) : open(json::object()); }
+  bool start_array(std::size_t) { return records() ? record_open(Kind::array) : open(json::array()); }
+  bool end_object() { return recording() ? record_close() : close(); }
+  bool end_array() { return recording() ? record_close() : close(); }
   bool key(std::string& k) {
+    if (recording()) return record_text(Kind::key, k);
     // One search of the object: a new key is appended at once (with a null value that the next
     // event replaces); a repeated one is noted and its slot receives the new value.
     auto& obj = stack_.back()->get_ref<json::object_t&>();
@@ -59,6 +65,85 @@ class DomBuilder {
   }
 
  private:
+  using Kind = JsonEvents::Kind;
+
+  // Events of an element longer than this are not kept: what was recorded is built into the
+  // element's document and the rest goes there directly (a unit is some 40 events; a long array
+  // inside an element would otherwise take several times the memory of its document).
+  static constexpr std::size_t kMaxRecorded = 4096;
+
+  // Whether the event at hand goes to the record of the element being recorded.
+  bool recording() {
+    if (recording_ == 0) return false;
+    if (element_.events.size() < kMaxRecorded) return true;
+    recording_ = 0;
+    build_recorded();
+    return false;
+  }
+  // A container opening directly inside the streamed array, when its elements are offered as
+  // events first; or one opening inside such an element.
+  bool records() {
+    return recording() || (streaming_ && !replaying_ && stack_.back() == streaming_ && streamed_->read_events);
+  }
+  // The recorded events into the document, exactly as the parser would have built them
+  // (duplicate keys noted); the element goes to `take` when it closes.
+  void build_recorded() {
+    replaying_ = true;
+    for (const JsonEvents::Event& e : element_.events) replay(e);
+    replaying_ = false;
+  }
+  bool record(JsonEvents::Event&& e) {
+    element_.events.push_back(std::move(e));
+    return true;
+  }
+  bool record_text(Kind kind, const std::string& text) {
+    JsonEvents::Event e{kind};
+    e.text_at = static_cast<std::uint32_t>(element_.text.size());
+    e.text_size = static_cast<std::uint32_t>(text.size());
+    element_.text += text;
+    return record(std::move(e));
+  }
+  bool record_open(Kind kind) {
+    if (recording_ == 0) {
+      element_.events.clear();
+      element_.text.clear();
+    }
+    if (stack_.size() + recording_ >= max_depth_) {  // the same limit as open() applies
+      too_deep = true;
+      return false;
+    }
+    ++recording_;
+    return record({kind});
+  }
+  bool record_close() {
+    record({Kind::close});
+    if (--recording_ > 0) return true;
+    if (streamed_->read_events(element_, streamed_count_)) {
+      ++streamed_count_;
+      return true;
+    }
+    build_recorded();  // declined
+    return true;
+  }
+  void replay(const JsonEvents::Event& e) {
+    switch (e.kind) {
+      case Kind::null: put(json(nullptr)); break;
+      case Kind::boolean: put(json(e.boolean)); break;
+      case Kind::integer: put(json(e.integer)); break;
+      case Kind::unsigned_integer: put(json(e.unsigned_integer)); break;
+      case Kind::floating: put(json(e.floating)); break;
+      case Kind::string: put(json(std::string(element_.text_of(e)))); break;
+      case Kind::key: {
+        std::string k(element_.text_of(e));
+        key(k);
+        break;
+      }
+      case Kind::object: open(json::object()); break;
+      case Kind::array: open(json::array()); break;
+      case Kind::close: close(); break;
+    }
+  }
+
   json* insert(json&& v) {
     if (stack_.empty()) {
       root = std::move(v);
@@ -131,6 +216,9 @@ class DomBuilder {
   bool streamed_key_ = false;  // the key just read is the root's streamed member
   json* streaming_ = nullptr;  // the streamed array while it is open
   std::size_t streamed_count_ = 0;
+  JsonEvents element_;         // the streamed element being recorded
+  std::size_t recording_ = 0;  // containers of it open; 0: not recording
+  bool replaying_ = false;     // building a declined element's document from its events
 };
 
 // Byte offset of the bracket that opens level max_depth + 1 (outside strings), or the end.

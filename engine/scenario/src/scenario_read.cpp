@@ -15,8 +15,42 @@ using namespace detail;  // the JSON reader (json_fields.hpp)
 
 namespace {
 
+// The fields of a unit, of its governor and of its turbine, and which of the turbine's each
+// type takes (bits of kTurbineFields, in the order of TurbineType): one list for both readers.
+constexpr std::string_view kUnitFields[] = {"id", "area", "rating_mw", "inertia_s", "setpoint_mw",
+                                            "min_mw", "max_mw", "ramp_mw_per_s", "agc_share", "online",
+                                            "start_up_s", "governor", "turbine"};
+constexpr std::string_view kGovernorFields[] = {"mode", "droop", "deadband_hz", "deadband", "lag_s", "integral_s"};
+constexpr std::string_view kTurbineFields[] = {"type", "steam_chest_s", "reheat_s", "hp_fraction", "water_s",
+                                               "temporary_droop", "reset_s", "fuel_s", "combustion_s",
+                                               "load_limit_mw", "response_s", "synthetic_inertia_s",
+                                               "rocof_filter_s", "energy_mwh", "soc"};
+
+// Where `name` is in `names`, or -1.
+template <std::size_t N>
+constexpr int index_of(const std::string_view (&names)[N], std::string_view name) {
+  for (std::size_t i = 0; i < N; ++i)
+    if (names[i] == name) return static_cast<int>(i);
+  return -1;
+}
+
+// A set of `names` as bits of their places.
+template <std::size_t N>
+constexpr std::uint32_t bits_of(const std::string_view (&names)[N], std::initializer_list<std::string_view> which) {
+  std::uint32_t bits = 0;
+  for (std::string_view n : which) bits |= 1u << index_of(names, n);
+  return bits;
+}
+constexpr std::uint32_t kTurbineTakes[] = {
+    bits_of(kTurbineFields, {"type", "steam_chest_s"}),                             // steam
+    bits_of(kTurbineFields, {"type", "steam_chest_s", "reheat_s", "hp_fraction"}),  // reheat
+    bits_of(kTurbineFields, {"type", "water_s", "temporary_droop", "reset_s"}),     // hydro
+    bits_of(kTurbineFields, {"type", "fuel_s", "combustion_s", "load_limit_mw"}),   // gas
+    bits_of(kTurbineFields, {"type", "response_s", "synthetic_inertia_s", "rocof_filter_s", "energy_mwh", "soc"})};
+static_assert(std::size(kTurbineTakes) == static_cast<std::size_t>(TurbineType::battery) + 1);
+
 void read_governor(Reader& r, const ijson& j, const std::string& p, GovernorDef& g) {
-  if (!r.object(j, p, {"mode", "droop", "deadband_hz", "deadband", "lag_s", "integral_s"})) return;
+  if (!r.object(j, p, kGovernorFields)) return;
   r.choice(j, "mode", p, kModeNames, g.mode);
   r.number(j, "droop", p, g.droop);
   r.number(j, "deadband_hz", p, g.deadband_hz);
@@ -31,15 +65,9 @@ void read_turbine(Reader& r, const ijson& j, const std::string& p, TurbineDef& t
     return;
   }
   if (!r.choice(j, "type", p, kTurbineNames, t.type, true)) return;
-  static const std::vector<std::vector<std::string_view>> kAllowed = {
-      {"type", "steam_chest_s"},
-      {"type", "steam_chest_s", "reheat_s", "hp_fraction"},
-      {"type", "water_s", "temporary_droop", "reset_s"},
-      {"type", "fuel_s", "combustion_s", "load_limit_mw"},
-      {"type", "response_s", "synthetic_inertia_s", "rocof_filter_s", "energy_mwh", "soc"}};
-  const auto& allowed = kAllowed[static_cast<std::size_t>(t.type)];
+  const std::uint32_t takes = kTurbineTakes[static_cast<std::size_t>(t.type)];
   for (auto it = j.begin(); it != j.end(); ++it)
-    if (std::find(allowed.begin(), allowed.end(), it.key()) == allowed.end())
+    if (const int f = index_of(kTurbineFields, it.key()); f < 0 || !(takes >> f & 1u))
       r.error(join(p, it.key()), "unknown field for a " + std::string(to_string(t.type)) + " turbine");
   r.number(j, "steam_chest_s", p, t.steam_chest_s);
   r.number(j, "reheat_s", p, t.reheat_s);
@@ -65,9 +93,7 @@ void each(Reader& r, const ijson& obj, const std::string& key, const std::string
 
 UnitDef read_unit(Reader& r, const ijson& u, const std::string& p) {
   UnitDef ud;
-  if (r.object(u, p,
-               {"id", "area", "rating_mw", "inertia_s", "setpoint_mw", "min_mw", "max_mw", "ramp_mw_per_s", "agc_share",
-                "online", "start_up_s", "governor", "turbine"})) {
+  if (r.object(u, p, kUnitFields)) {
     r.string(u, "id", p, ud.id, true);
     r.string(u, "area", p, ud.area, true);
     r.number(u, "rating_mw", p, ud.rating_mw, true);
@@ -86,6 +112,132 @@ UnitDef read_unit(Reader& r, const ijson& u, const std::string& p) {
   }
   return ud;
 }
+
+// A unit read from its parse events when nothing about it needs a word: every key known (and
+// present once), every value of its field's type, every name one of the names, everything that
+// is required there. Anything else is declined and read_unit reads the unit's document, with
+// its messages; so for the units taken here read_unit would have found no problem and set the
+// same fields to the same values (`fuzz_scenario` and `test_scenario_io` compare the two reads).
+// Most of a fleet's load was building, reading and freeing each unit's small document.
+class UnitEvents {
+ public:
+  explicit UnitEvents(const JsonEvents& element) : ev_(element.events), el_(element) {}
+
+  bool read(UnitDef& ud) {
+    std::uint32_t seen = 0;
+    const bool ok = object(kUnitFields, seen, [&](int f) {
+      switch (f) {
+        case 0: return text(ud.id);
+        case 1: return text(ud.area);
+        case 2: return number(ud.rating_mw);
+        case 3: return number(ud.inertia_s);
+        case 4: return number(ud.setpoint_mw);
+        case 5: return number(ud.min_mw);
+        case 6: return number(ud.max_mw);
+        case 7: return number(ud.ramp_mw_per_s);
+        case 8: return number(ud.agc_share);
+        case 9: return flag(ud.online);
+        case 10: return number(ud.start_up_s);
+        case 11: return governor(ud.governor);
+        default: return turbine(ud.turbine);
+      }
+    });
+    constexpr std::uint32_t kRequired = bits_of(kUnitFields, {"id", "area", "rating_mw", "setpoint_mw", "turbine"});
+    constexpr std::uint32_t kInertia = bits_of(kUnitFields, {"inertia_s"});  // of a synchronous unit
+    return ok && (seen & kRequired) == kRequired && (ud.turbine.type == TurbineType::battery || seen & kInertia) &&
+           at_ == ev_.size();
+  }
+
+ private:
+  using Kind = JsonEvents::Kind;
+
+  // An object at hand whose keys are all among `names`, each once (noted in `seen`), and whose
+  // values `read_field(place of the key in names)` takes.
+  template <std::size_t N, class F>
+  bool object(const std::string_view (&names)[N], std::uint32_t& seen, F&& read_field) {
+    if (ev_[at_++].kind != Kind::object) return false;
+    while (ev_[at_].kind == Kind::key) {
+      const int f = index_of(names, el_.text_of(ev_[at_++]));
+      if (f < 0 || seen & 1u << f) return false;
+      seen |= 1u << f;
+      if (!read_field(f)) return false;
+    }
+    return ev_[at_++].kind == Kind::close;
+  }
+  bool number(double& out) {
+    if (!JsonEvents::is_number(ev_[at_])) return false;
+    out = JsonEvents::number(ev_[at_++]);
+    return true;
+  }
+  bool number(std::optional<double>& out) {
+    double v = 0.0;
+    if (!number(v)) return false;
+    out = v;
+    return true;
+  }
+  bool text(std::string& out) {
+    if (ev_[at_].kind != Kind::string) return false;
+    out = el_.text_of(ev_[at_++]);
+    return true;
+  }
+  bool flag(bool& out) {
+    if (ev_[at_].kind != Kind::boolean) return false;
+    out = ev_[at_++].boolean;
+    return true;
+  }
+  template <class E>
+  bool choice(const std::vector<std::pair<const char*, E>>& options, E& out) {
+    if (ev_[at_].kind != Kind::string) return false;
+    const std::string_view name = el_.text_of(ev_[at_++]);
+    for (const auto& [n, value] : options)
+      if (name == n) {
+        out = value;
+        return true;
+      }
+    return false;
+  }
+  bool governor(GovernorDef& g) {
+    std::uint32_t seen = 0;
+    return object(kGovernorFields, seen, [&](int f) {
+      switch (f) {
+        case 0: return choice(kModeNames, g.mode);
+        case 1: return number(g.droop);
+        case 2: return number(g.deadband_hz);
+        case 3: return choice(kDeadbandNames, g.deadband);
+        case 4: return number(g.lag_s);
+        default: return number(g.integral_s);
+      }
+    });
+  }
+  bool turbine(TurbineDef& t) {
+    std::uint32_t seen = 0;
+    const bool ok = object(kTurbineFields, seen, [&](int f) {
+      switch (f) {
+        case 0: return choice(kTurbineNames, t.type);
+        case 1: return number(t.steam_chest_s);
+        case 2: return number(t.reheat_s);
+        case 3: return number(t.hp_fraction);
+        case 4: return number(t.water_s);
+        case 5: return number(t.temporary_droop);
+        case 6: return number(t.reset_s);
+        case 7: return number(t.fuel_s);
+        case 8: return number(t.combustion_s);
+        case 9: return number(t.load_limit_mw);
+        case 10: return number(t.response_s);
+        case 11: return number(t.synthetic_inertia_s);
+        case 12: return number(t.rocof_filter_s);
+        case 13: return number(t.energy_mwh);
+        default: return number(t.soc);
+      }
+    });
+    // A type, and only the fields that type takes (the type may come after them).
+    return ok && (seen & 1u) && (seen & ~kTurbineTakes[static_cast<std::size_t>(t.type)]) == 0;
+  }
+
+  const std::vector<JsonEvents::Event>& ev_;
+  const JsonEvents& el_;
+  std::size_t at_ = 0;
+};
 
 // About how many units the text holds (every unit has a "turbine"), so that their vector is
 // allocated once instead of growing by doubling (each growth moved every unit read so far and
@@ -203,7 +355,9 @@ SystemDef read_system(Reader& r, const ijson& j, StreamedUnits& units) {
 // otherwise take gigabytes to list, and nobody reads past the first screens).
 constexpr std::size_t kMaxListedProblems = 1000;
 
-LoadResult parse_scenario(std::string_view json_text) {
+LoadResult parse_scenario(std::string_view json_text) { return detail::parse_scenario(json_text, {}); }
+
+LoadResult detail::parse_scenario(std::string_view json_text, const ParseOptions& options) {
   LoadResult out;
   // A fleet's units are most of a scenario's text: each is read into its definition as soon as
   // the parser has it and then dropped, so the document of the whole fleet never exists at once
@@ -211,10 +365,25 @@ LoadResult parse_scenario(std::string_view json_text) {
   StreamedUnits units;
   reserve_units(units.units, json_text);
   Reader unit_reader(units.issues, kMaxListedProblems);
-  const StreamedArray streamed{"units", [&](ijson&& u, std::size_t i) {
-                                 UnitDef unit = read_unit(unit_reader, u, "units[" + std::to_string(i) + "]");
-                                 if (!unit_reader.failed()) units.units.push_back(std::move(unit));
-                               }};
+  StreamedArray streamed{"units", [&](ijson&& u, std::size_t i) {
+                           UnitDef unit = read_unit(unit_reader, u, "units[" + std::to_string(i) + "]");
+                           if (!unit_reader.failed()) units.units.push_back(std::move(unit));
+                         },
+                         {}};
+  if (options.units_from_events)
+    streamed.read_events = [&](const JsonEvents& element, std::size_t) {
+      std::vector<UnitDef>& kept = units.units;
+      if (unit_reader.failed()) {  // nothing is kept after a problem: only whether it has one
+        UnitDef scratch;
+        return UnitEvents(element).read(scratch);
+      }
+      if (UnitEvents(element).read(kept.emplace_back())) {
+        if (options.units_read_from_events) ++*options.units_read_from_events;
+        return true;
+      }
+      kept.pop_back();
+      return false;
+    };
   auto j = parse_untrusted_json(json_text, out.issues, JsonLimits{}, streamed);
   if (!j) return out;
   units.unlisted = unit_reader.unlisted();

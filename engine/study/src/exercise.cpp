@@ -434,7 +434,7 @@ bool looks_like_exercise(std::string_view json_text) {
   if (!has("\"seats\"") && !has("\"script\"") && !has("\\u")) return false;
   // Only the root's keys matter: a fleet's units are dropped as they are parsed, not kept.
   std::vector<Issue> ignored;
-  const StreamedArray drop_units{"units", [](nlohmann::ordered_json&&, std::size_t) {}};
+  const StreamedArray drop_units{"units", [](nlohmann::ordered_json&&, std::size_t) {}, {}};
   auto j = parse_untrusted_json(json_text, ignored, JsonLimits{}, drop_units);
   return j && j->is_object() && (j->contains("seats") || j->contains("script"));
 }

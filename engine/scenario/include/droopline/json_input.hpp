@@ -5,7 +5,9 @@
 /// deeper than the limit and text longer than the limit are refused with where it happened, and
 /// a key repeated within one object is an error rather than a silent last-one-wins.
 #include <cstddef>
+#include <cstdint>
 #include <functional>
+#include <string>
 #include <optional>
 #include <string_view>
 #include <vector>
@@ -36,9 +38,42 @@ std::optional<nlohmann::ordered_json> parse_untrusted_json(std::string_view text
 /// empty array. `take` receives each element (any JSON value) and its index; when the parse
 /// fails (syntax, depth, a duplicate key anywhere, including inside an element already handed
 /// over), whatever `take` built must be thrown away, as the text was not valid.
+/// One element of a streamed array as the parser's events, in order: a record reused for every
+/// element, so that a reader can take a well-formed element without a document being built for it.
+struct JsonEvents {
+  enum class Kind : std::uint8_t { null, boolean, integer, unsigned_integer, floating, string, key, object, array, close };
+  struct Event {
+    Kind kind;
+    bool boolean = false;
+    std::int64_t integer = 0;
+    std::uint64_t unsigned_integer = 0;
+    double floating = 0.0;
+    std::uint32_t text_at = 0, text_size = 0;  ///< a string's or key's bytes in `text`
+  };
+  std::vector<Event> events;
+  std::string text;  ///< the strings and keys, back to back
+
+  std::string_view text_of(const Event& e) const { return std::string_view(text).substr(e.text_at, e.text_size); }
+  /// A number event's value as a double, as nlohmann's get<double>() gives it.
+  static double number(const Event& e) {
+    return e.kind == Kind::floating  ? e.floating
+           : e.kind == Kind::integer ? static_cast<double>(e.integer)
+                                     : static_cast<double>(e.unsigned_integer);
+  }
+  static bool is_number(const Event& e) {
+    return e.kind == Kind::integer || e.kind == Kind::unsigned_integer || e.kind == Kind::floating;
+  }
+};
+
 struct StreamedArray {
   std::string_view key;
   std::function<void(nlohmann::ordered_json&& element, std::size_t index)> take;
+  /// Optional: offered each element that is an object or array, as its events, before any
+  /// document is built for it. Returns true when it has taken the element; false hands it to
+  /// `take` as a document instead. It must decline any element with a key repeated within one
+  /// of its objects (the gate's duplicate check runs on the document), and in practice anything
+  /// it would have a problem to report about, so that problems are reported in one place.
+  std::function<bool(const JsonEvents& element, std::size_t index)> read_events;
 };
 
 /// parse_untrusted_json with the root object's member `streamed.key` handed over element by

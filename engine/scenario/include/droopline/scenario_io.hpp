@@ -24,6 +24,15 @@ struct LoadResult {
 /// Parses JSON text into a checked system (definition and initial flows). Unknown fields, wrong types, missing required
 /// fields, duplicate keys and every semantic problem of validate() are reported together.
 LoadResult parse_scenario(std::string_view json_text);
+namespace detail {
+struct ParseOptions {
+  /// A fleet's well-formed units read straight from the parser's events (the default); false
+  /// reads every unit from its own small document, as the tests compare.
+  bool units_from_events = true;
+  std::size_t* units_read_from_events = nullptr;  ///< when set, counts them (for the tests)
+};
+LoadResult parse_scenario(std::string_view json_text, const ParseOptions& options);
+}  // namespace detail
 /// Reads a file and parses it; an unreadable file is one error under the path "file".
 LoadResult load_scenario_file(const std::string& path);
 /// The whole text of a regular file in one read, or nothing with one error under the path
