@@ -52,6 +52,14 @@ inline const char* type_name(const ijson& j) {
   }
 }
 
+/// The value an enumeration's file name stands for, or nullptr.
+template <class E>
+const E* value_named(const std::vector<std::pair<const char*, E>>& options, std::string_view name) {
+  for (const auto& [n, value] : options)
+    if (name == n) return &value;
+  return nullptr;
+}
+
 // Reads fields out of JSON objects, recording every problem with its path.
 class Reader {
  public:
@@ -135,14 +143,12 @@ class Reader {
               const std::vector<std::pair<const char*, E>>& options, E& out, bool required = false) {
     const ijson* v = field(obj, key, path, required);
     if (!v) return false;
-    std::string names;
-    for (auto& [name, value] : options) {
-      if (v->is_string() && v->get<std::string>() == name) {
-        out = value;
-        return true;
-      }
-      names += (names.empty() ? "" : ", ") + std::string("\"") + name + "\"";
+    if (const E* named = v->is_string() ? value_named(options, v->get_ref<const std::string&>()) : nullptr) {
+      out = *named;
+      return true;
     }
+    std::string names;
+    for (auto& option : options) names += (names.empty() ? "" : ", ") + std::string("\"") + option.first + "\"";
     error(join(path, key), "must be one of " + names + ", got " +
                                (v->is_string() ? "\"" + v->get<std::string>() + "\"" : type_name(*v)));
     return false;

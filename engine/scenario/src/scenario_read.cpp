@@ -188,13 +188,9 @@ class UnitEvents {
   template <class E>
   bool choice(const std::vector<std::pair<const char*, E>>& options, E& out) {
     if (ev_[at_].kind != Kind::string) return false;
-    const std::string_view name = el_.text_of(ev_[at_++]);
-    for (const auto& [n, value] : options)
-      if (name == n) {
-        out = value;
-        return true;
-      }
-    return false;
+    const E* named = value_named(options, el_.text_of(ev_[at_++]));
+    if (named) out = *named;
+    return named != nullptr;
   }
   bool governor(GovernorDef& g) {
     std::uint32_t seen = 0;

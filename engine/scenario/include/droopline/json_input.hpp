@@ -7,8 +7,8 @@
 #include <cstddef>
 #include <cstdint>
 #include <functional>
-#include <string>
 #include <optional>
+#include <string>
 #include <string_view>
 #include <vector>
 
@@ -32,12 +32,6 @@ std::optional<nlohmann::ordered_json> parse_untrusted_json(std::string_view text
 std::optional<nlohmann::ordered_json> parse_untrusted_json(std::string_view text, std::string& error,
                                                            const JsonLimits& limits = {});
 
-/// An array member of the root object whose elements are handed over one by one as each is
-/// complete, instead of being kept in the document: a large array (a fleet's units) is read
-/// without its whole document in memory at once. The returned document holds that member as an
-/// empty array. `take` receives each element (any JSON value) and its index; when the parse
-/// fails (syntax, depth, a duplicate key anywhere, including inside an element already handed
-/// over), whatever `take` built must be thrown away, as the text was not valid.
 /// One element of a streamed array as the parser's events, in order: a record reused for every
 /// element, so that a reader can take a well-formed element without a document being built for it.
 struct JsonEvents {
@@ -65,6 +59,12 @@ struct JsonEvents {
   }
 };
 
+/// An array member of the root object whose elements are handed over one by one as each is
+/// complete, instead of being kept in the document: a large array (a fleet's units) is read
+/// without its whole document in memory at once. The returned document holds that member as an
+/// empty array. `take` receives each element (any JSON value) and its index; when the parse
+/// fails (syntax, depth, a duplicate key anywhere, including inside an element already handed
+/// over), whatever `take` built must be thrown away, as the text was not valid.
 struct StreamedArray {
   std::string_view key;
   std::function<void(nlohmann::ordered_json&& element, std::size_t index)> take;
