@@ -22,9 +22,7 @@ namespace fs = std::filesystem;
 
 /// A fresh folder per test case.
 inline fs::path temp_folder(const std::string& name) {
-  const fs::path p =
-      fs::temp_directory_path() / ("droopline-test-recordings-" + name + "-" + std::to_string(::getpid()));
-  fs::remove_all(p);
+  const fs::path p = test::scratch_path("recordings-" + name);
   fs::create_directories(p);
   return p;
 }

@@ -2,14 +2,35 @@
 // Helpers shared by the test executables.
 #include <catch2/catch.hpp>
 
+#include <unistd.h>
+
 #include <cmath>
+#include <filesystem>
 #include <string>
+#include <system_error>
 #include <vector>
 
 #include "droopline/engine.hpp"
 #include "droopline/scenario_io.hpp"
 
 namespace test {
+
+/// A path in the system's temporary folder named for `name` and this process, nothing there yet;
+/// removed, with whatever the test put there, when the test program ends.
+inline std::filesystem::path scratch_path(const std::string& name) {
+  struct Cleanup {
+    std::vector<std::filesystem::path> paths;
+    ~Cleanup() {
+      std::error_code ec;
+      for (const auto& p : paths) std::filesystem::remove_all(p, ec);
+    }
+  };
+  static Cleanup cleanup;
+  const auto p = std::filesystem::temp_directory_path() / ("droopline-test-" + name + "-" + std::to_string(::getpid()));
+  std::filesystem::remove_all(p);
+  cleanup.paths.push_back(p);
+  return p;
+}
 
 inline std::string source_path(const std::string& rel) {
   return std::string(DROOPLINE_SOURCE_DIR) + "/" + rel;

@@ -25,9 +25,7 @@ namespace fs = std::filesystem;
 namespace {
 
 fs::path temp_dir(const std::string& name) {
-  fs::path p = fs::temp_directory_path() / ("droopline-test-cli-" + name + "-" + std::to_string(::getpid()));
-  fs::remove_all(p);
-  return p;
+  return test::scratch_path("cli-" + name);
 }
 
 fs::path fresh_dir(const std::string& name) { return temp_dir("sweep-" + name); }

@@ -22,8 +22,7 @@ using droopline::records::RunFilter;
 namespace {
 
 fs::path temp_dir(const std::string& name) {
-  fs::path d = fs::temp_directory_path() / ("droopline-records-" + name + "-" + std::to_string(::getpid()));
-  fs::remove_all(d);
+  fs::path d = test::scratch_path("records-" + name);
   fs::create_directories(d);
   return d;
 }

@@ -93,6 +93,22 @@ TEST_CASE("untrusted JSON: nesting and size are bounded before anything walks th
   CHECK(issues[0].text() == "json: text of 9 bytes is longer than the limit of 4 bytes");
 }
 
+TEST_CASE("a number beyond a double's range is named, with where it is") {
+  std::vector<Issue> issues;
+  CHECK_FALSE(parse_untrusted_json("{\"a\": 1,\n \"b\": -1e400}", issues));
+  REQUIRE(issues.size() == 1);
+  CHECK(issues[0].text() == "json: line 2, column 12: the number -1e400 is beyond the range of a double "
+                            "(about 1.8e308 in magnitude)");
+  // A long one is cut in the message; the largest double itself still reads.
+  issues.clear();
+  CHECK_FALSE(parse_untrusted_json("[" + std::string(400, '9') + "]", issues));
+  REQUIRE(issues.size() == 1);
+  CHECK(issues[0].text().find("the number " + std::string(40, '9') + "... is beyond") != std::string::npos);
+  issues.clear();
+  CHECK(parse_untrusted_json("[1.7976931348623157e308, 4.9e-324, 1e-400]", issues));
+  CHECK(issues.empty());
+}
+
 TEST_CASE("a folder or a missing file given as the scenario is one clear error") {
   for (const std::string& path : {fs::temp_directory_path().string(), std::string("/nonexistent/scenario.json")}) {
     LoadResult r = load_scenario_file(path);

@@ -48,7 +48,11 @@ std::unique_ptr<Engine> Engine::create(const CheckedSystem& system) {
 }
 
 std::unique_ptr<Engine> Engine::clone() const {
-  return std::unique_ptr<Engine>(new Engine(std::make_unique<Impl>(*impl_)));
+  auto copy = std::make_unique<Impl>(*impl_);
+  // The copied kernel calls point into this engine's arrays. The key alone would not always tell:
+  // a copy of a copy may be given the very addresses of an engine since destroyed.
+  copy->calls_key[0] = nullptr;
+  return std::unique_ptr<Engine>(new Engine(std::move(copy)));
 }
 
 void Engine::step() { impl_->step(); }

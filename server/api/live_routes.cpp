@@ -19,6 +19,7 @@ using json = nlohmann::ordered_json;
 // Why a route needs the instructor token, in words a trainee can act on.
 constexpr const char* kChanges = "only the instructor can change the simulation";
 // Why a route needs a seat's join code (or the instructor token).
+constexpr std::size_t kMaxBatchCommands = 100;
 constexpr const char* kOperates = "only an operator seat or the instructor can send commands";
 // Why the seat list is the instructor's: it holds the join codes.
 constexpr const char* kSeats = "only the instructor sees the seats' join codes";
@@ -230,6 +231,11 @@ void put_scenario(Services& s, Call& c) {
 void commands(Services& s, Call& c) {
   CommandParse cp = parse_commands(c.request.body);
   if (!cp.issues.empty()) return c.error(400, "invalid command; nothing applied", issue_texts(cp.issues));
+  // Each command is an event every client is sent and keeps: a batch is what an operator does at
+  // one moment, not a flood that would fill every screen's queue at once.
+  if (cp.commands.size() > kMaxBatchCommands)
+    return c.error(413, "a batch holds at most " + std::to_string(kMaxBatchCommands) + " commands, this one " +
+                            std::to_string(cp.commands.size()) + "; nothing applied");
   std::optional<SeatScope> scope;
   if (!seat_scope(s, c, scope)) return;
   std::string author = scope ? scope->seat : "instructor";

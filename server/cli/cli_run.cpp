@@ -8,6 +8,8 @@
 #include <cstdlib>
 #include <filesystem>
 #include <fstream>
+#include <map>
+#include <tuple>
 #include <iostream>
 
 #include <nlohmann/json.hpp>
@@ -214,6 +216,9 @@ int replay(const std::string& journal, const std::string& out_dir, int run_numbe
   };
   // A restore or rewind: go on from `st`; the batches journalled before it and not taken were
   // refused by it.
+  // final_lineage: the rows of each save point's own lineage, as they stood when it was taken (a
+  // restore may lead onto a course since rewound past, whose rows `buf` no longer holds).
+  std::map<std::uint64_t, std::pair<std::string, decltype(row_ends)>> saved_rows;
   auto go_back = [&](study::SavedState st, const JournalMark& mark) {
     engine = std::move(st.engine);
     notices.resize(st.counters.notices);
@@ -227,6 +232,7 @@ int replay(const std::string& journal, const std::string& out_dir, int run_numbe
       if (!timeline.can_save() || timeline.next_id() != mark.id)
         return "save point id " + std::to_string(mark.id) + " out of order";
       timeline.save(mark.name, saved_now());
+      if (final_lineage) saved_rows[mark.id] = {buf, row_ends};
       return "";
     }
     if (mark.kind == Kind::restore) {
@@ -234,6 +240,7 @@ int replay(const std::string& journal, const std::string& out_dir, int run_numbe
       if (!st) return "no save point " + std::to_string(mark.id) + " before it";
       if (st->step() != mark.to_step)
         return "save point " + std::to_string(mark.id) + " is not at step " + std::to_string(mark.to_step);
+      if (final_lineage) std::tie(buf, row_ends) = saved_rows.at(mark.id);
       go_back(std::move(*st), mark);
       return "";
     }

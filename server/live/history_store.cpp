@@ -29,6 +29,17 @@ void HistoryStore::drop_after(double t_s) {
   rows_.drop_after(t_s);
 }
 
+std::shared_ptr<const std::vector<double>> HistoryStore::copy_rows(std::size_t budget_bytes) const {
+  std::lock_guard lock(mutex_);
+  if (rows_.size() * rows_.width() * sizeof(double) > budget_bytes) return nullptr;
+  return std::make_shared<const std::vector<double>>(rows_.flat());
+}
+
+void HistoryStore::put_rows(const std::shared_ptr<const std::vector<double>>& rows) {
+  std::lock_guard lock(mutex_);
+  rows_.assign(rows ? *rows : std::vector<double>{});
+}
+
 void HistoryStore::fill(HelloSnapshot& snap) const {
   std::lock_guard lock(mutex_);
   snap.scenario_json = scenario_json_;

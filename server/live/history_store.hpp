@@ -24,6 +24,11 @@ class HistoryStore {
   void push(const std::vector<double>& row);
   /// Drops the rows after `t_s` (a restore or rewind went back there; the event log stays).
   void drop_after(double t_s);
+  /// The rows kept now, flat (a save point keeps them); null when they take more than `budget_bytes`.
+  std::shared_ptr<const std::vector<double>> copy_rows(std::size_t budget_bytes) const;
+  /// The rows replaced by a save point's copy (a restore: the history becomes the save point's own,
+  /// whichever course it was taken on); null empties them.
+  void put_rows(const std::shared_ptr<const std::vector<double>>& rows);
   /// The greeting's copy of the scenario, columns, rows and events.
   void fill(HelloSnapshot& snap) const;
   /// Rows within [from_s, to_s], every `every_s` (0 = all), as CSV or JSON.

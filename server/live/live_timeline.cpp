@@ -48,6 +48,9 @@ void LiveSession::save(std::string name, std::string author, Done done) {
                       "save point", done))
       return;
     const study::SavePoint& sp = timeline_.save(name, saved_now());
+    auto rows = store_.copy_rows(kSavedRowsBytes - saved_rows_bytes_);
+    if (rows) saved_rows_bytes_ += rows->size() * sizeof(double);
+    saved_rows_[id] = std::move(rows);
     const json which{{"id", id}, {"name", name}};
     push_event(json{{"type", "event"},
                     {"t_s", sp.t_s},
@@ -146,7 +149,10 @@ void LiveSession::go_back(study::SavedState state, double from_t_s, const study:
   if (script_) script_->rewound(engine_->step_index());  // its firings refused above are due again
   checkpoint_ = engine_->clone();
   halted_.clear();  // the state gone back to is a good one
-  store_.drop_after(t_s);
+  if (savepoint)
+    store_.put_rows(saved_rows_[savepoint->id]);  // its own course's rows (none kept: from here on)
+  else
+    store_.drop_after(t_s);
   rebase();
   const json which = savepoint ? json{{"id", savepoint->id}, {"name", savepoint->name}} : json(nullptr);
   const std::string text =

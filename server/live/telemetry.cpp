@@ -148,6 +148,13 @@ void HistoryRing::drop_after(double t_s) {
   while (count_ > 0 && data_[((start_ + count_ - 1) % cap_) * width_] > t_s + 1e-9) --count_;
 }
 
+void HistoryRing::assign(const std::vector<double>& flat) {
+  const std::size_t rows = width_ ? flat.size() / width_ : 0, kept = std::min(rows, cap_);
+  start_ = 0;
+  count_ = kept;
+  std::copy_n(flat.end() - static_cast<std::ptrdiff_t>(kept * width_), kept * width_, data_.begin());
+}
+
 std::vector<double> HistoryRing::flat() const {
   std::vector<double> out;
   out.reserve(count_ * width_);

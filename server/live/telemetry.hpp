@@ -26,6 +26,8 @@ class HistoryRing {
   void push(const std::vector<double>& row);  ///< row.size() == width(); the oldest row gives way
   /// Drops the newest rows whose time (the first value) lies after `t_s` (a restore went back).
   void drop_after(double t_s);
+  /// The rows replaced by `flat` (rows of width(), oldest first; the newest that fit are kept).
+  void assign(const std::vector<double>& flat);
   std::size_t width() const { return width_; }
   std::size_t size() const { return count_; }
   /// All rows, oldest first, concatenated.

@@ -105,6 +105,8 @@ void HttpSession::refuse_read(beast::error_code ec) {
     return;
   }
   if (ec == http::error::body_limit) {
+    // Refused from the header, whose method is known: a HEAD is answered with the headers only.
+    head_ = parser_->get().method() == http::verb::head;
     return send_then_linger(
         json_response(11, false, 413, error_json("request body larger than " + std::to_string(body_limit_) + " bytes")));
   }
@@ -219,6 +221,14 @@ void HttpSession::handle(HttpRequest&& req) {
   call.target = std::string(req.target());
   if (req.count(http::field::authorization)) call.authorization = std::string(req[http::field::authorization]);
   call.body = std::move(req.body());
+  // A method this server has no use for anywhere is not implemented (RFC 9110, 9.1: 501); 405 is
+  // for a known method on a resource that does not take it.
+  if (call.verb == Verb::other) {
+    Response res = json_response(version, keep, 501,
+                                 error_json("method " + quote_cut(std::string(req.method_string())) +
+                                            " is not implemented; this server takes GET, HEAD, POST, PUT and DELETE"));
+    return send(std::move(res));
+  }
   // The reply may come from any thread: it is carried back to this connection's strand.
   auto respond = [self = shared_from_this(), version, keep](Reply reply) {
     net::post(self->stream_.get_executor(), [self, version, keep, reply = std::move(reply)]() mutable {

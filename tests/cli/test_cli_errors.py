@@ -5,7 +5,9 @@ stderr that names the option; nothing on stdout.
 
     /usr/bin/python3 test_cli_errors.py DROOPLINE_BINARY SOURCE_DIR
 """
+import atexit
 import os
+import shutil
 import subprocess
 import sys
 import tempfile
@@ -15,6 +17,7 @@ BIN, SRC = sys.argv[1], sys.argv[2]
 SCENARIO = os.path.join(SRC, "scenarios", "demo_island.json")
 REQ = os.path.join(SRC, "scenarios", "requirements", "grid_code_example.json")
 OUT = os.path.join(tempfile.mkdtemp(prefix="droopline-cli-"), "out")
+atexit.register(shutil.rmtree, os.path.dirname(OUT), True)
 MISSING = os.path.join(SRC, "no-such-file.json")
 EXERCISE = os.path.join(SRC, "tests", "data", "exercise_two_areas.json")
 

@@ -176,6 +176,19 @@ class StaticFileTests(unittest.TestCase):
         self.assertIn(b"Allow: GET, HEAD", head)
         status, body, _ = raw_request(self.srv.port, "/api/v1/nothing", "HEAD")
         self.assertEqual((status, body), (404, b""))
+        # A HEAD refused from its header (a body over the limit) is still headers only.
+        status, body, head = raw_request(self.srv.port, "/api/v1/scenario", "HEAD", b"Content-Length: 99999999\r\n")
+        self.assertEqual((status, body), (413, b""))
+        self.assertIn(b"Content-Length: ", head)
+
+    def test_a_method_the_server_does_not_implement_gets_501(self):
+        # RFC 9110, 9.1: an unrecognized or unimplemented method is 501, on the API and the page alike;
+        # 405 stays for a known method on a resource that does not take it.
+        for target in ("/api/v1/state", "/", "/api/v1/nothing"):
+            for method in ("PROPFIND", "PATCH", "OPTIONS", "BREW"):
+                status, body, _ = raw_request(self.srv.port, target, method)
+                self.assertEqual(status, 501, (method, target))
+                self.assertIn(f'method "{method}" is not implemented', json.loads(body)["error"])
         # 426 names the protocol to upgrade to (RFC 9110, 15.5.22), GET or HEAD.
         for method in ("GET", "HEAD"):
             status, body, head = raw_request(self.srv.port, "/api/v1/stream", method)

@@ -69,6 +69,22 @@ class TimelineTests(unittest.TestCase):
         self.branch_from = reply["t_s"]
         return reply
 
+    def replay_checked(self, final):
+        """Stops the server; its journal must replay every branch as streamed and, with
+        --final-lineage, the history `final` it ended with. The replayed rows."""
+        self.assertEqual(self.srv.stop(), 0)
+        out, out_final = tempfile.mkdtemp(), tempfile.mkdtemp()
+        subprocess.run([test_server.BIN, "replay", self.srv.journal, "--out", out, "--quiet"], check=True, timeout=120)
+        subprocess.run([test_server.BIN, "replay", self.srv.journal, "--out", out_final, "--quiet", "--final-lineage"],
+                       check=True, timeout=120)
+        with open(os.path.join(out, "series.csv"), "rb") as fh:
+            header, replayed = rows_of(fh.read())
+        self.assertEqual(header, rows_of(final)[0])
+        self.assertEqual([line for _, line in replayed], [line for _, line in self.streamed])
+        with open(os.path.join(out_final, "series.csv"), "rb") as fh:
+            self.assertEqual(fh.read(), final)
+        return replayed
+
     def load_step(self, mw):
         reply = self.call("POST", "/api/v1/commands", {"kind": "load_step", "area": "oskany", "mw": mw})
         self.assertEqual(reply["by"], "instructor")
@@ -135,18 +151,33 @@ class TimelineTests(unittest.TestCase):
         self.assertEqual(self.history(), final)
 
         # The journal replays every branch as it was streamed, and the final lineage on request.
-        self.assertEqual(self.srv.stop(), 0)
-        out, out_final = tempfile.mkdtemp(), tempfile.mkdtemp()
-        subprocess.run([test_server.BIN, "replay", self.srv.journal, "--out", out, "--quiet"], check=True, timeout=120)
-        subprocess.run([test_server.BIN, "replay", self.srv.journal, "--out", out_final, "--quiet", "--final-lineage"],
-                       check=True, timeout=120)
-        with open(os.path.join(out, "series.csv"), "rb") as fh:
-            header, replayed = rows_of(fh.read())
-        self.assertEqual(header, rows_of(final)[0])
-        self.assertEqual([line for _, line in replayed], [line for _, line in self.streamed])
+        replayed = self.replay_checked(final)
         self.assertEqual(sum(1 for a, b in zip(replayed, replayed[1:]) if b[0] < a[0]), 3)  # time went back 3 times
-        with open(os.path.join(out_final, "series.csv"), "rb") as fh:
-            self.assertEqual(fh.read(), final)
+
+    def test_a_save_point_on_a_course_since_rewound_past_is_restored_and_replayed(self):
+        # Saved at t_a, rewound to before it, then the save point restored: forward in time, onto a
+        # course the rewind left. Then again from a later time on a new course.
+        t0 = self.run_past(1.0)
+        self.load_step(30)
+        t_a = self.run_past(t0 + 3.0)
+        saved = self.call("POST", "/api/v1/savepoints", {"name": "after the step"})
+        first_course = self.history(0.0, t_a)
+        self.run_past(t_a + 1.0)
+        self.go_back("/api/v1/control", {"action": "rewind", "to_s": t0 - 0.5})
+        restored = self.go_back(f"/api/v1/savepoints/{saved['id']}/restore")
+        self.assertEqual(restored["t_s"], t_a)
+        self.run_past(t_a + 1.0)
+        self.go_back("/api/v1/control", {"action": "rewind", "to_s": t0 - 0.5})
+        self.load_step(-20)  # a new course, past the save point's time
+        self.run_past(t_a + 2.0)
+        self.go_back(f"/api/v1/savepoints/{saved['id']}/restore")
+        self.run_past(t_a + 1.5)
+        final = self.history()
+        self.assertEqual(self.history(0.0, t_a), first_course)  # the save point's course, not the last one
+        self.branch_ends()
+        s, debrief, _ = self.srv.request("GET", "/api/v1/debrief", None, TOKEN)
+        self.assertEqual(s, 200, debrief)
+        self.replay_checked(final)
 
     def test_a_save_point_name_is_cut_and_a_run_keeps_fifty(self):
         first = self.call("POST", "/api/v1/savepoints", {"name": "é" * 40})  # 80 bytes of UTF-8

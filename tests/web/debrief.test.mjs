@@ -6,13 +6,12 @@
 import { test, before, after } from 'node:test';
 import assert from 'node:assert/strict';
 import { execFileSync } from 'node:child_process';
-import { mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
-import { tmpdir } from 'node:os';
+import { readFileSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { pathToFileURL } from 'node:url';
-import { SRC, BIN, SHOTS, VIEWPORTS, size, freePort, tokenFile, startServer, stopServer, launchBrowser, collectErrors } from './harness.mjs';
+import { SRC, BIN, SHOTS, VIEWPORTS, size, freePort, tokenFile, scratchDir, startServer, stopServer, launchBrowser, collectErrors } from './harness.mjs';
 
-const DIR = mkdtempSync(join(tmpdir(), 'droopline-debrief-'));
+const DIR = scratchDir('droopline-debrief-');
 const RUN = '0123456789abcdef0123456789abcdef';
 let browser;
 

@@ -7,9 +7,8 @@
 import { test, before, after } from 'node:test';
 import assert from 'node:assert/strict';
 import { join } from 'node:path';
-import { mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
-import { tmpdir } from 'node:os';
-import { SRC, SHOTS, VIEWPORTS, size, freePort, tokenFile, startServer, stopServer, launchBrowser, collectErrors } from './harness.mjs';
+import { readFileSync, writeFileSync } from 'node:fs';
+import { SRC, SHOTS, VIEWPORTS, size, freePort, tokenFile, scratchDir, startServer, stopServer, launchBrowser, collectErrors } from './harness.mjs';
 
 const TOKEN = 'exercise-test-token-0123456789abcdef';
 const LAPTOP = VIEWPORTS[0];
@@ -39,7 +38,7 @@ function exerciseWithObjectives() {
     { id: 'band', measure: 'time_outside_standard_s', target: 5, weight: 2 },
     { id: 'ack', seat: 'east-desk', measure: 'alarm_to_ack_s', target: 10 },
   ];
-  const path = join(mkdtempSync(join(tmpdir(), 'droopline-web-')), 'exercise.json');
+  const path = join(scratchDir('droopline-web-'), 'exercise.json');
   writeFileSync(path, JSON.stringify(ex));
   return path;
 }

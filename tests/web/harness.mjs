@@ -2,7 +2,7 @@
 // chromium through playwright-core, the viewports, and a page's console errors.
 //   DROOPLINE_BIN, DROOPLINE_SRC, SCREENSHOT_DIR come from ctest (tests/CMakeLists.txt).
 import { spawn } from 'node:child_process';
-import { mkdtempSync, writeFileSync, mkdirSync } from 'node:fs';
+import { mkdtempSync, writeFileSync, mkdirSync, rmSync } from 'node:fs';
 import { createServer } from 'node:net';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
@@ -26,9 +26,20 @@ export function freePort() {
   });
 }
 
+// Scratch folders go when the test process ends (after every server it started has stopped).
+const scratch = [];
+process.on('exit', () => { for (const dir of scratch) rmSync(dir, { recursive: true, force: true }); });
+
+/** A fresh folder under the system's temporary folder, removed when the test process exits. */
+export function scratchDir(prefix) {
+  const dir = mkdtempSync(join(tmpdir(), prefix));
+  scratch.push(dir);
+  return dir;
+}
+
 /** A folder with the instructor token's file in it. */
 export function tokenFile(token) {
-  const dir = mkdtempSync(join(tmpdir(), 'droopline-web-'));
+  const dir = scratchDir('droopline-web-');
   writeFileSync(join(dir, 'token'), token + '\n');
   return join(dir, 'token');
 }

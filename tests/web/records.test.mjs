@@ -6,10 +6,9 @@
 //   node --test tests/web/records.test.mjs   (DROOPLINE_BIN, DROOPLINE_SRC, SCREENSHOT_DIR set)
 import { test, before, after } from 'node:test';
 import assert from 'node:assert/strict';
-import { mkdtempSync, readFileSync } from 'node:fs';
-import { tmpdir } from 'node:os';
+import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
-import { SRC, SHOTS, VIEWPORTS, size, freePort, tokenFile, startServer, stopServer, launchBrowser, collectErrors } from './harness.mjs';
+import { SRC, SHOTS, VIEWPORTS, size, freePort, tokenFile, scratchDir, startServer, stopServer, launchBrowser, collectErrors } from './harness.mjs';
 
 const TOKEN = 'records-test-token-0123456789abcdef';
 const HOSTILE = '<img src=x onerror=alert(1)>';
@@ -46,7 +45,7 @@ async function run(trainees) {
 }
 
 before(async () => {
-  const dir = mkdtempSync(join(tmpdir(), 'droopline-records-'));
+  const dir = scratchDir('droopline-records-');
   port = await freePort();
   server = await startServer(port, ['--exercise', FIRST, '--journal', join(dir, 'journal.jsonl'), '--records', join(dir, 'records.sqlite3'),
     '--speed', '20', '--token-file', tokenFile(TOKEN)]);

@@ -9,10 +9,9 @@
 //   node --test tests/web/validation.test.mjs   (DROOPLINE_BIN, DROOPLINE_SRC, SCREENSHOT_DIR set)
 import { test, before, after } from 'node:test';
 import assert from 'node:assert/strict';
-import { mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
-import { tmpdir } from 'node:os';
+import { readFileSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
-import { SRC, SHOTS, VIEWPORTS, size, freePort, tokenFile, startServer, stopServer, launchBrowser, collectErrors } from './harness.mjs';
+import { SRC, SHOTS, VIEWPORTS, size, freePort, tokenFile, scratchDir, startServer, stopServer, launchBrowser, collectErrors } from './harness.mjs';
 
 const TOKEN = 'validation-test-token-0123456789abcdef';
 const DIR = join(SRC, 'scenarios', 'validation');
@@ -67,7 +66,7 @@ function binaryCopy() {
 }
 
 before(async () => {
-  work = mkdtempSync(join(tmpdir(), 'droopline-validation-'));
+  work = scratchDir('droopline-validation-');
   port = await freePort();
   server = await startServer(port, ['--scenario', join(DIR, 'plant.json'), '--token-file', tokenFile(TOKEN)]);
   browser = await launchBrowser();

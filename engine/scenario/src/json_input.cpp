@@ -58,9 +58,14 @@ class DomBuilder {
     }
     return true;
   }
-  bool parse_error(std::size_t byte, const std::string&, const nlohmann::detail::exception& e) {
+  bool parse_error(std::size_t byte, const std::string& token, const nlohmann::detail::exception& e) {
     error_byte = byte;
-    error_text = e.what();
+    if (e.id == 406) {  // nlohmann's out_of_range.406: a number no double can hold
+      const std::string shown = token.size() > 40 ? token.substr(0, 40) + "..." : token;
+      error_text = "the number " + shown + " is beyond the range of a double (about 1.8e308 in magnitude)";
+    } else {
+      error_text = e.what();
+    }
     return false;
   }
 

@@ -27,7 +27,7 @@ std::string mark_text(const SystemDef& def, const JournalMark& m) {
       return "save point " + std::to_string(m.id) + " \"" + m.name + "\" kept";
     case JournalMark::Kind::restore:
       return "save point " + std::to_string(m.id) +
-             " restored: back to t = " + fmt_fixed(static_cast<double>(m.to_step) * step_s, 2) + " s";
+             " restored: on from t = " + fmt_fixed(static_cast<double>(m.to_step) * step_s, 2) + " s";
     case JournalMark::Kind::rewind:
       return "rewound to t = " + fmt_fixed(static_cast<double>(m.to_step) * step_s, 2) + " s";
   }

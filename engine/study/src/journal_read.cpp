@@ -39,8 +39,10 @@ bool read_mark(const json& j, const std::string& type, JournalMark& m, std::stri
     return false;
   if (m.kind != JournalMark::Kind::savepoint && !count_field(j, "to_step", to_step, error)) return false;
   m.to_step = static_cast<std::int64_t>(to_step);
-  if (m.kind != JournalMark::Kind::savepoint && m.to_step > m.step) {
-    error = "to_step: must not lie after the record's step";
+  // A rewind goes back on its own course; a restore goes to its save point wherever that lies (on
+  // a course since rewound past, perhaps later than now).
+  if (m.kind == JournalMark::Kind::rewind && m.to_step > m.step) {
+    error = "to_step: a rewind must not lie after the record's step";
     return false;
   }
   if (m.kind == JournalMark::Kind::savepoint) {
