@@ -19,6 +19,7 @@
 #include "droopline/journal_read.hpp"
 #include "droopline/format.hpp"
 #include "droopline/scenario_io.hpp"
+#include "journal.hpp"
 #include "live_session.hpp"
 #include "study_jobs.hpp"
 #include "support.hpp"
@@ -548,4 +549,33 @@ TEST_CASE("text written as a JSON string reads back the same, as nlohmann's own 
     CHECK(json::parse(out).get<std::string>() == text);
     if (text.find_first_of("\t\n") == std::string::npos) CHECK(out == json(text).dump());
   }
+}
+
+TEST_CASE("a journal whose last record a crash cut short is cut back to whole lines before it goes on") {
+  const std::string path = test::scratch_path("torn-journal.jsonl").string();
+  const std::string whole = R"({"type":"stop","step":7})";
+  auto contents = [&] {
+    std::ifstream in(path, std::ios::binary);
+    return std::string(std::istreambuf_iterator<char>(in), {});
+  };
+  auto write = [&](const std::string& bytes) { std::ofstream(path, std::ios::binary | std::ios::trunc) << bytes; };
+  // Torn after whole lines: the part is cut off, and said so.
+  write(whole + "\n" + R"({"type":"commands","step":9,"comm)");
+  {
+    Journal j(path);
+    CHECK(j.ok());
+    CHECK(j.repaired().find("its last record was cut short (33 bytes") != std::string::npos);
+    CHECK(contents() == whole + "\n");
+    REQUIRE(j.append(whole));
+  }
+  CHECK(contents() == whole + "\n" + whole + "\n");
+  // Whole lines only, or an empty file: nothing to repair.
+  CHECK(Journal(path).repaired().empty());
+  CHECK(contents() == whole + "\n" + whole + "\n");
+  write("");
+  CHECK(Journal(path).repaired().empty());
+  // A first record torn (no whole line at all), longer than one read: all of it goes.
+  write(std::string(10000, 'x'));
+  CHECK_FALSE(Journal(path).repaired().empty());
+  CHECK(contents().empty());
 }

@@ -23,6 +23,39 @@ Journal::Journal(std::string path) : path_(std::move(path)) {
     return;
   }
   ::close(fd);
+  cut_torn_tail();
+}
+
+void Journal::cut_torn_tail() {
+  // A crash in the middle of a record (a kill, a power cut) leaves part of a line at the end. The
+  // reader skips a torn last line, but not one with the next record glued onto it: cut it off so
+  // the next record starts a line of its own.
+  const int fd = ::open(path_.c_str(), O_RDWR | O_CLOEXEC);
+  if (fd < 0) return;  // not readable: appending still works, and replay will say what it finds
+  struct stat st {};
+  if (::fstat(fd, &st) != 0 || !S_ISREG(st.st_mode) || st.st_size == 0) {
+    ::close(fd);
+    return;
+  }
+  char buf[4096];
+  off_t end = st.st_size, keep = 0;
+  bool found = false;
+  while (end > 0 && !found) {
+    const off_t from = end > static_cast<off_t>(sizeof buf) ? end - static_cast<off_t>(sizeof buf) : 0;
+    const ssize_t n = ::pread(fd, buf, static_cast<std::size_t>(end - from), from);
+    if (n != end - from) break;  // unreadable: leave it as it is
+    for (ssize_t i = n - 1; i >= 0; --i)
+      if (buf[i] == '\n') {
+        keep = from + i + 1;
+        found = true;
+        break;
+      }
+    end = from;
+  }
+  if ((found || end == 0) && keep < st.st_size && ::ftruncate(fd, keep) == 0 && ::fdatasync(fd) == 0)
+    repaired_ = "journal \"" + path_ + "\": its last record was cut short (" + std::to_string(st.st_size - keep) +
+                " bytes, a crash while it was written): cut off, the new records start on a line of their own";
+  ::close(fd);
 }
 
 bool Journal::append(const std::string& json_line) {

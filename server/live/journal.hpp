@@ -55,6 +55,8 @@ class Journal {
   bool ok() const { return ok_; }
   const std::string& error() const { return error_; }
   const std::string& path() const { return path_; }
+  /// What opening the file repaired ("" when nothing): a torn last record cut off.
+  const std::string& repaired() const { return repaired_; }
 
   /// Appends one line and makes it durable (write + fdatasync). On failure: false, nothing of the
   /// line left in the file, `error()` says why and `http_status()` is 507 for a full disk or
@@ -64,8 +66,10 @@ class Journal {
 
  private:
   std::string path_;
+  void cut_torn_tail();
   bool ok_ = true;
   std::string error_;
+  std::string repaired_;
   int status_ = 500;
 };
 
@@ -98,6 +102,7 @@ class JournalWriter {
   bool append_now(const std::string& json_line);
   const std::string& error() const { return journal_.error(); }
   int http_status() const { return journal_.http_status(); }
+  const std::string& repaired() const { return journal_.repaired(); }
 
  private:
   void run();

@@ -38,6 +38,7 @@ LiveSession::LiveSession(const CheckedSystem& system, LiveConfig config, Sink si
           counters_.commands, counters_.commands_refused) {
   speed_ = std::clamp(config_.speed, 0.1, 100.0);
   exercise_ = std::move(exercise);
+  if (!pipeline_.journal().repaired().empty()) spdlog::warn("{}", pipeline_.journal().repaired());
   if (pipeline_.journal().ok() && !journal_new_run(system.def(), exercise_ ? &*exercise_ : nullptr, ""))
     journal_failed_ = true;
   start_engine(system);
