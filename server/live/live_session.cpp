@@ -97,7 +97,7 @@ void LiveSession::start_engine(const CheckedSystem& system) {
   pipeline_.reset_taken();
   start_exercise();  // before the first checkpoint, which keeps the script and the alarms
   timeline_.start(saved_now(), {kRewindS, 10.0});
-  saved_rows_.clear();
+  saved_shown_.clear();
   saved_rows_bytes_ = 0;
   open_run();
   rebase();

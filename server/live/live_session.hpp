@@ -303,10 +303,14 @@ class LiveSession {
   std::size_t announced_ = 0;  // disturbances already sent as begun
   std::uint64_t frame_count_ = 0;
   study::Timeline timeline_;  // save points, checkpoints and the actions since (the run's lineage)
-  // Each save point's history rows as they stood (null: over the budget), so a restore onto a course
-  // since rewound past shows that course's rows; all together at most kSavedRowsBytes.
+  // Each save point's history rows (null: over the budget) and event log as they stood, so a restore
+  // onto a course since rewound past shows that course's; the rows all together at most kSavedRowsBytes.
   static constexpr std::size_t kSavedRowsBytes = std::size_t{64} << 20;
-  std::map<std::uint64_t, std::shared_ptr<const std::vector<double>>> saved_rows_;
+  struct SavedShown {
+    std::shared_ptr<const std::vector<double>> rows;
+    std::deque<EventLog::Entry> events;
+  };
+  std::map<std::uint64_t, SavedShown> saved_shown_;
   std::size_t saved_rows_bytes_ = 0;
   std::unique_ptr<Engine> checkpoint_;  // the last state found finite, about a second back
   std::int64_t checkpoint_every_ = 100;  // steps

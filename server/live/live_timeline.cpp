@@ -50,7 +50,7 @@ void LiveSession::save(std::string name, std::string author, Done done) {
     const study::SavePoint& sp = timeline_.save(name, saved_now());
     auto rows = store_.copy_rows(kSavedRowsBytes - saved_rows_bytes_);
     if (rows) saved_rows_bytes_ += rows->size() * sizeof(double);
-    saved_rows_[id] = std::move(rows);
+    saved_shown_[id].rows = std::move(rows);
     const json which{{"id", id}, {"name", name}};
     push_event(json{{"type", "event"},
                     {"t_s", sp.t_s},
@@ -58,6 +58,7 @@ void LiveSession::save(std::string name, std::string author, Done done) {
                     {"text", "save point \"" + name + "\" kept at t = " + fmt_fixed(sp.t_s, 2) + " s"},
                     {"by", author},
                     {"savepoint", which}});
+    saved_shown_[id].events = store_.events().entries();  // its own entry included
     done(accepted(json{{"id", id}, {"name", name}, {"t_s", sp.t_s}, {"step", sp.step}}));
   });
 }
@@ -149,10 +150,14 @@ void LiveSession::go_back(study::SavedState state, double from_t_s, const study:
   if (script_) script_->rewound(engine_->step_index());  // its firings refused above are due again
   checkpoint_ = engine_->clone();
   halted_.clear();  // the state gone back to is a good one
-  if (savepoint)
-    store_.put_rows(saved_rows_[savepoint->id]);  // its own course's rows (none kept: from here on)
-  else
+  if (savepoint) {  // its own course's rows (none kept: from here on) and events
+    SavedShown& kept = saved_shown_[savepoint->id];
+    store_.put_rows(kept.rows);
+    store_.events().put_entries(kept.events);
+  } else {
     store_.drop_after(t_s);
+    store_.events().drop_after(t_s);
+  }
   rebase();
   const json which = savepoint ? json{{"id", savepoint->id}, {"name", savepoint->name}} : json(nullptr);
   const std::string text =

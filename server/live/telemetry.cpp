@@ -175,7 +175,9 @@ std::shared_ptr<const std::string> EventLog::add(json event, std::int64_t distur
     if (old != entries_.end()) entries_.erase(old);
   }
   const json* at = disturbance >= 0 && event.contains("at_s") ? &event["at_s"] : nullptr;
-  entries_.push_back({seq_, *text, disturbance, at && at->is_number() ? at->get<double>() : NAN});
+  const double at_s = at && at->is_number() ? at->get<double>() : NAN;
+  const json* t = event.contains("t_s") ? &event["t_s"] : nullptr;
+  entries_.push_back({seq_, *text, disturbance, at_s, disturbance >= 0 ? at_s : t && t->is_number() ? t->get<double>() : NAN});
   while (entries_.size() > kKept) entries_.pop_front();
   return text;
 }
@@ -214,6 +216,21 @@ std::optional<double> EventLog::first_disturbance_from(double from_s) const {
 void EventLog::clear() {
   std::lock_guard lock(mutex_);
   entries_.clear();
+}
+
+std::deque<EventLog::Entry> EventLog::entries() const {
+  std::lock_guard lock(mutex_);
+  return entries_;
+}
+
+void EventLog::put_entries(std::deque<Entry> entries) {
+  std::lock_guard lock(mutex_);
+  entries_ = std::move(entries);
+}
+
+void EventLog::drop_after(double t_s) {
+  std::lock_guard lock(mutex_);
+  std::erase_if(entries_, [&](const Entry& e) { return e.t_s > t_s + 1e-9; });
 }
 
 std::vector<std::string> split_on(std::string_view text, std::string_view separator) {

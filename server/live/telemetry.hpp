@@ -57,6 +57,13 @@ struct HelloSnapshot {
 /// each update so that since() hands out what changed.
 class EventLog {
  public:
+  struct Entry {
+    std::uint64_t seq;
+    std::string text;
+    std::int64_t disturbance;
+    double at_s;  ///< a disturbance's start (simulated s); NaN for other events
+    double t_s;   ///< when it happened (simulated s; a disturbance: its start); NaN when unknown
+  };
   /// Numbers `event` (adds "seq"), logs it, and returns its text for the clients. `disturbance`:
   /// its index when the event is a disturbance (replaces the entry of that index), else -1.
   std::shared_ptr<const std::string> add(nlohmann::ordered_json event, std::int64_t disturbance = -1);
@@ -68,14 +75,15 @@ class EventLog {
   std::optional<double> first_disturbance_from(double from_s) const;
   /// Empties the log (the numbering goes on).
   void clear();
+  /// Drops the entries of what happened after `t_s` (simulated s): a restore or rewind went back
+  /// there, and on the course that goes on from it none of that has happened (a disturbance still
+  /// shown as being measured would also tell the trainees what the script does next).
+  void drop_after(double t_s);
+  /// The entries now (a save point keeps them), and put back in their place (a restore to it).
+  std::deque<Entry> entries() const;
+  void put_entries(std::deque<Entry> entries);
 
  private:
-  struct Entry {
-    std::uint64_t seq;
-    std::string text;
-    std::int64_t disturbance;
-    double at_s;  ///< a disturbance's start (simulated s); NaN for other events
-  };
   mutable std::mutex mutex_;
   std::deque<Entry> entries_;
   std::uint64_t seq_ = 0;

@@ -110,7 +110,9 @@ class TimelineTests(unittest.TestCase):
         back = [e for e in events if e["type"] == "restored"]
         self.assertEqual(len(back), 1)
         self.assertEqual((back[0]["by"], back[0]["t_s"], back[0]["savepoint"]["id"]), ("instructor", t0, saved["id"]))
-        self.assertTrue(any(e.get("kind") == "command" and e.get("by") == "instructor" for e in events))
+        # The log is the save point's: its own entry kept, the commands sent after it gone with them.
+        self.assertTrue(any(e.get("kind") == "savepoint" for e in events))
+        self.assertFalse(any(e.get("kind") == "command" for e in events), events)
 
         # The same command again: the same rows, bit for bit.
         self.load_step(40)
@@ -174,6 +176,15 @@ class TimelineTests(unittest.TestCase):
         self.run_past(t_a + 1.5)
         final = self.history()
         self.assertEqual(self.history(0.0, t_a), first_course)  # the save point's course, not the last one
+        # So is the event log: the first course's load step, none of the last course's, nothing of
+        # either after the save point but the restores.
+        events = self.call("GET", "/api/v1/events")["events"]
+        commands = [e["text"] for e in events if e.get("kind") == "command"]
+        self.assertEqual(len(commands), 1, commands)
+        self.assertIn("30", commands[0])
+        later = [e for e in events if e.get("t_s", e.get("at_s", 0)) > t_a + 1e-9 and e["type"] != "restored"
+                 and e.get("kind") not in ("pause", "resume")]  # the last run_past's own
+        self.assertEqual(later, [])
         self.branch_ends()
         s, debrief, _ = self.srv.request("GET", "/api/v1/debrief", None, TOKEN)
         self.assertEqual(s, 200, debrief)
