@@ -11,6 +11,7 @@
 #include "droopline/alarms.hpp"
 #include "droopline/debrief.hpp"
 #include "droopline/exercise.hpp"
+#include "droopline/format.hpp"
 #include "droopline/journal_read.hpp"
 #include "droopline/objectives.hpp"
 #include "support.hpp"
@@ -384,4 +385,36 @@ TEST_CASE("debrief: bad journals are named by line, and a torn last line ends th
     CHECK(d["scores"].empty());
     CHECK(d["status"]["end_s"].get<double>() == Approx(4.0));
   }
+}
+
+TEST_CASE("debrief: each disturbance's settling deviation, measured and predicted, is from its own pre-event frequency",
+          "[debrief]") {
+  // Two load steps 60 s apart: the second starts from the first's settled frequency, well off
+  // nominal, so a prediction measured from nominal instead would show the first step's deviation too.
+  const json x = exercise_json();
+  const Exercise ex = exercise_of(x);
+  const Plan p{ex.system.def().step_s};
+  const json more{{"kind", "load_step"}, {"area", "west"}, {"mw", 30}};
+  JournalFile f({
+      json{{"type", "scenario"}, {"step", 0}, {"run", kRun}, {"scenario", x["scenario"]}}.dump(),
+      batch(p.at(2), more, "instructor").dump(),
+      batch(p.at(62), more, "instructor").dump(),
+      json{{"type", "end"}, {"step", p.at(122)}, {"complete", false}, {"why", "ended by the instructor"}}.dump(),
+  });
+  const json d = debrief_of(f.path);
+  REQUIRE(d["disturbances"].size() == 2);
+  const json& second = d["disturbances"][1];
+  const double pre = second.at("pre_hz").get<double>(), predicted = second.at("predicted_settling_hz").get<double>();
+  REQUIRE(std::fabs(pre - ex.system.def().nominal_hz) > 0.005);
+  std::string error;
+  const std::optional<std::string> html = debrief_html(f.path.string(), "", {}, error);
+  REQUIRE(html);
+  // The second table's settling-deviation row: measured and predicted, both from pre_hz.
+  std::size_t at = html->find("<h3>2. ");
+  REQUIRE(at != std::string::npos);
+  at = html->find("<td>settling deviation</td>", at);
+  REQUIRE(at != std::string::npos);
+  const std::string row = html->substr(at, html->find("</tr>", at) - at);
+  CHECK(row.find(fmt_fixed(second["settling_hz"].get<double>() - pre, 3) + " Hz") != std::string::npos);
+  CHECK(row.find(fmt_fixed(predicted - pre, 3) + " Hz") != std::string::npos);
 }

@@ -328,6 +328,7 @@ std::optional<nlohmann::ordered_json> debrief_json(const std::string& journal_pa
                          {"zenith", x.zenith},
                          {"nadir_hz", opt(x.nadir_hz)},
                          {"nadir_at_s", opt(x.nadir_at_s)},
+                         {"pre_hz", x.pre_hz},
                          {"settling_hz", opt(x.settling_hz)},
                          {"predicted_settling_hz", x.predicted_settling_hz},
                          {"response_mw_per_0p1hz", opt(x.response_mw_per_0p1hz)},

@@ -285,7 +285,7 @@ std::string disturbances(const Debrief& d) {
          "</td><td class=\"num\">" + fmt_fixed(x.predicted_settling_hz, 3) + " Hz</td></tr>\n";
     h += "<tr><td>settling deviation</td><td class=\"num\">" +
          fixed(x.settling_hz ? std::optional(*x.settling_hz - x.pre_hz) : std::nullopt, 3, " Hz") +
-         "</td><td class=\"num\">" + fmt_fixed(x.predicted_settling_hz - d.f0_hz, 3) + " Hz</td></tr>\n";
+         "</td><td class=\"num\">" + fmt_fixed(x.predicted_settling_hz - x.pre_hz, 3) + " Hz</td></tr>\n";
     h += std::string("<tr><td>") + (x.zenith ? "zenith" : "nadir") + "</td><td class=\"num\">" +
          fixed(x.nadir_hz, 3, " Hz") +
          (x.nadir_at_s ? " at +" + fmt_fixed(*x.nadir_at_s - x.at_s, 2) + " s" : std::string()) +
