@@ -62,6 +62,25 @@ TEST_CASE("isolated station: measured values, margins and the unit on its droop 
   CHECK_FALSE(never.measured);
   CHECK(never.result == "not tested");
   CHECK_FALSE(a.passed);  // the settling limit failed
+  CHECK((a.failed == 1 && a.untested == 1));
+  CHECK(verdict_text(a) == "requirements NOT met: 1 failed");
+}
+
+TEST_CASE("a requirement never tested keeps the verdict from met, and one on a missing unit is refused") {
+  const SystemDef def = test::load("scenarios/textbook_isolated_station.json");
+  const Requirements never = parse_ok(R"({"name": "t", "unit_response": [
+      {"units": ["unit1"], "deviation_mhz": 2000, "within_s": 5, "share_min": 1, "source": "never"}]})");
+  CHECK(requirement_issues(def, never).empty());
+  const Assessment a = assess(def, never);
+  CHECK_FALSE(a.passed);
+  CHECK((a.failed == 0 && a.untested == 1));
+  CHECK(verdict_text(a) == "not shown met: 1 of 1 not tested (the run never reached their case)");
+  const Requirements typo = parse_ok(R"({"name": "t", "unit_response": [
+      {"deviation_mhz": 200, "within_s": 30, "share_min": 1, "source": "s"},
+      {"units": ["unit1", "UNIT1"], "deviation_mhz": 200, "within_s": 30, "share_min": 1, "source": "s"}]})");
+  const std::vector<Issue> issues = requirement_issues(def, typo);
+  REQUIRE(issues.size() == 1);
+  CHECK(issues[0].text() == "unit_response[1].units[1]: no unit \"UNIT1\" in the scenario (unit ids are case-sensitive)");
 }
 
 TEST_CASE("the shipped example requirements parse and every figure names its source") {

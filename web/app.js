@@ -25,7 +25,7 @@ import { connect, startsRun } from '/connection.js';
 import { dropNotesAfter } from '/commands.js';
 import { buildCharts, loadHistory, addFrame, redrawCharts, resizeCharts } from '/charts.js';
 import { renderStatic, renderLive, renderClock, renderDisturbance, logEvent, clearRun } from '/live.js';
-import { wireControls, fillChoices, unlockWith } from '/controls.js';
+import { wireControls, fillChoices, unlockWith, syncUnitForm } from '/controls.js';
 import { wireStudies, clearSweepNote } from '/studies.js';
 import { wireValidation, validationScenario } from '/validation.js';
 import { takeAlarms, alarmMessage, fetchAlarms } from '/alarms.js';
@@ -71,6 +71,18 @@ function takeEvent(e) {
   feedEvent(e);
 }
 
+// A new run (a reset or a load): what was said or kept about the last one goes, so that no old
+// refusal stays on screen and the debrief's save link cannot save the last run's report.
+function forgetLastRun() {
+  for (const out of document.querySelectorAll('output.error')) out.textContent = '';
+  const save = $('debrief-save');
+  if (save && !save.hidden) {
+    if (save.href.startsWith('blob:')) URL.revokeObjectURL(save.href);
+    save.removeAttribute('href');
+    save.hidden = true;
+  }
+}
+
 async function onHello(msg) {
   app.scenario = msg.scenario;
   app.columns = msg.columns;
@@ -79,6 +91,7 @@ async function onHello(msg) {
   buildCharts();
   renderStatic();
   fillChoices(app.scenario);
+  app.formStale = true;
   validationScenario(app.scenario);
   loadHistory(msg.history);
   takeAlarms(msg.alarms ?? [], { replace: true });
@@ -124,6 +137,12 @@ if (view !== 'records') connect({
   hello: onHello,
   frame: (f) => {
     app.last = f;
+    // The unit form was filled at the greeting from the frame before it (a rewind, a reset): now
+    // from the state as it is, so Set never sends a value from another moment.
+    if (app.formStale) {
+      app.formStale = false;
+      syncUnitForm();
+    }
     addFrame(f);
     scheduleRedraw();
   },
@@ -131,6 +150,7 @@ if (view !== 'records') connect({
     if (startsRun(e)) {
       clearRun();
       showEnded(false);
+      forgetLastRun();
     }
     // Whoever took the session back (a reset, a step back, a save point), notes of later changes go.
     if (startsRun(e) || e.type === 'restored') dropNotesAfter(e.t_s ?? 0);

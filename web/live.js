@@ -53,6 +53,13 @@ export function renderClock(f) {
   $('sim-time').textContent = f.t_s.toFixed(1);
   $('speed-badge').textContent = `${f.speed}x`;
   $('paused-badge').hidden = !f.paused;
+  // The speed choice follows the session's (another instructor's screen or a script may change it),
+  // except while it is being chosen.
+  const speed = $('speed-select'), now = String(f.speed);
+  if (speed && document.activeElement !== speed && speed.value !== now) {
+    if (![...speed.options].some((o) => o.value === now)) speed.add(new Option(now));
+    speed.value = now;
+  }
 }
 
 /** A frame: tables and the operating points on the sharing views. */

@@ -13,6 +13,7 @@ export const app = {
   scenario: null,
   columns: [],         // the series columns the hello names ("t_s", "<area>.f_hz", ...)
   last: null,          // the latest frame
+  formStale: false,    // the unit form waits for the first frame after a greeting
   charts: {},
   data: {},            // chart data arrays
   view,                // 'overview', 'wall', 'seat', 'instructor' or 'records'

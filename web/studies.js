@@ -59,7 +59,8 @@ async function assessFile() {
     return;
   }
   fillTable($('assess-table'), ASSESS_COLUMNS, body.checks, { rowClass: (c) => (c.result === 'fail' ? 'fail' : '') });
-  $('assess-verdict').textContent = body.passed ? 'All requirements met.' : 'Requirements NOT met.';
+  const verdict = body.verdict ?? (body.passed ? 'all requirements met' : 'requirements NOT met');
+  $('assess-verdict').textContent = `${verdict[0].toUpperCase()}${verdict.slice(1)}.`;
 }
 
 const SWEEP_FOR_INSTRUCTOR = 'Sweeps are for the instructor: unlock with the instructor token to run one.';

@@ -249,9 +249,13 @@ void assess(Services& s, Call& c) {
     s.run_on_workers([&s, respond, requirements, text = std::move(text)] {
       LoadResult r = parse_scenario(text);
       std::string body;
-      if (r.system) body = study::assessment_to_json(study::assess(r.system->def(), requirements), requirements).dump();
+      std::vector<Issue> bad;
+      if (r.system) bad = study::requirement_issues(r.system->def(), requirements);
+      if (r.system && bad.empty())
+        body = study::assessment_to_json(study::assess(r.system->def(), requirements), requirements).dump();
       s.counters.replays_active.fetch_sub(1);
       if (!r.system) return answer(respond, 400, error_json("invalid scenario", issue_texts(r.issues)));
+      if (!bad.empty()) return answer(respond, 400, error_json("invalid requirements", issue_texts(bad)));
       answer(respond, 200, std::move(body));
     });
   });

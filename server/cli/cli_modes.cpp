@@ -70,6 +70,10 @@ int assess(const std::string& file, const std::string& requirements_file, bool a
     for (const Issue& i : issues) std::cerr << requirements_file << ": error: " << i.text() << "\n";
     return 2;
   }
+  if (const std::vector<Issue> bad = study::requirement_issues(r.system->def(), *req); !bad.empty()) {
+    for (const Issue& i : bad) std::cerr << requirements_file << ": error: " << i.text() << "\n";
+    return 2;
+  }
   const study::Assessment a = study::assess(r.system->def(), *req);
   if (as_json) {
     std::cout << to_text(study::assessment_to_json(a, *req)) << "\n";
@@ -86,7 +90,7 @@ int assess(const std::string& file, const std::string& requirements_file, bool a
                 c.result == "fail" ? "FAIL" : c.result.c_str());
     if (!c.detail.empty()) std::printf("    %s\n", c.detail.c_str());
   }
-  std::cout << (a.passed ? "all requirements met" : "requirements NOT met") << " (sources: --json, or the requirements file)\n"
+  std::cout << study::verdict_text(a) << " (sources: --json, or the requirements file)\n"
             << "A training and study result: settings are for qualified engineers to validate against plant models and the grid code.\n";
   return a.passed ? 0 : 3;
 }

@@ -63,12 +63,11 @@ void Listener::on_accept(beast::error_code ec, tcp::socket socket) {
 // Over the limit: a short 503 written without reading the request, then close.
 void Listener::refuse(tcp::socket socket) {
   auto s = std::make_shared<tcp::socket>(std::move(socket));
+  static const std::string kError = "{\"error\":\"too many connections; the server is at its limit\"}";
   auto body = std::make_shared<std::string>(
-      "HTTP/1.1 503 Service Unavailable\r\nContent-Type: "
-      "application/json\r\nConnection: close\r\n"
-      "Retry-After: 1\r\nContent-Length: 63\r\n\r\n"
-      "{\"error\":\"too many connections; the server is at its limit\"}\n  ");
-  body->resize(body->size() - 2);
+      "HTTP/1.1 503 Service Unavailable\r\nContent-Type: application/json\r\nConnection: close\r\n"
+      "Retry-After: 1\r\nContent-Length: " +
+      std::to_string(kError.size()) + "\r\n\r\n" + kError);
   net::async_write(*s, net::buffer(*body), [s, body](beast::error_code, std::size_t) {
     beast::error_code ignored;
     s->shutdown(tcp::socket::shutdown_both, ignored);

@@ -646,6 +646,13 @@ class BadInputTests(unittest.TestCase):
             refused = [s for s in readable if b"503 Service Unavailable" in s.recv(200)]
             self.assertGreaterEqual(len(refused), 10)  # everyone past the limit was told, at once
             self.assertLessEqual(len(socks) - len(refused), 40)
+            # A real client reads the refusal whole: its Content-Length is its body's.
+            c = http.client.HTTPConnection("127.0.0.1", self.srv.port, timeout=5)
+            c.request("GET", "/healthz")
+            r = c.getresponse()
+            self.assertEqual((r.status, json.loads(r.read())["error"]),
+                             (503, "too many connections; the server is at its limit"))
+            c.close()
         finally:
             for s in socks:
                 s.close()

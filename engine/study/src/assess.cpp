@@ -248,16 +248,41 @@ Assessment assess(const SystemDef& def, const Requirements& req) {
     }
   }
   for (CheckRow& r : out.rows) {
-    if (!r.measured) continue;
+    if (!r.measured) {
+      ++out.untested;
+      continue;
+    }
     r.margin = r.relation == ">=" ? *r.measured - r.limit : r.limit - *r.measured;
     r.result = r.margin >= 0 ? "pass" : "fail";
-    out.passed = out.passed && r.result != "fail";
+    if (r.result == "fail") ++out.failed;
   }
+  out.passed = out.failed == 0 && out.untested == 0;
   return out;
 }
 
+std::vector<Issue> requirement_issues(const SystemDef& def, const Requirements& req) {
+  std::vector<Issue> issues;
+  for (std::size_t i = 0; i < req.responses.size(); ++i)
+    for (std::size_t k = 0; k < req.responses[i].units.size(); ++k) {
+      const std::string& id = req.responses[i].units[k];
+      if (std::none_of(def.units.begin(), def.units.end(), [&](const UnitDef& u) { return u.id == id; }))
+        issues.push_back({"unit_response[" + std::to_string(i) + "].units[" + std::to_string(k) + "]",
+                          "no unit \"" + id + "\" in the scenario (unit ids are case-sensitive)", false});
+    }
+  return issues;
+}
+
+std::string verdict_text(const Assessment& a) {
+  if (a.failed > 0) return "requirements NOT met: " + std::to_string(a.failed) + " failed";
+  if (a.untested > 0)
+    return "not shown met: " + std::to_string(a.untested) + " of " + std::to_string(a.rows.size()) +
+           " not tested (the run never reached their case)";
+  return "all requirements met";
+}
+
 json assessment_to_json(const Assessment& a, const Requirements& req) {
-  json j{{"requirements", req.name}, {"passed", a.passed}, {"checks", json::array()}};
+  json j{{"requirements", req.name}, {"passed", a.passed},   {"failed", a.failed},
+         {"untested", a.untested},   {"verdict", verdict_text(a)}, {"checks", json::array()}};
   for (const CheckRow& r : a.rows) {
     json c{{"requirement", r.requirement}, {"relation", r.relation}, {"limit", r.limit}, {"unit", r.unit},
            {"measured", r.measured ? json(*r.measured) : json(nullptr)}, {"margin", r.measured ? json(r.margin) : json(nullptr)},

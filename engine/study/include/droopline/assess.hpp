@@ -55,8 +55,18 @@ struct CheckRow {
 
 struct Assessment {
   std::vector<CheckRow> rows;
-  bool passed = true;  ///< no row failed
+  bool passed = true;         ///< every row tested and none failed
+  std::size_t untested = 0;   ///< rows whose case never arose (not shown met, not failed)
+  std::size_t failed = 0;
 };
+
+/// What `req` names that `def` does not have (`unit_response[0].units[1]: no unit "hy" in the
+/// scenario`): a requirement on a unit that is not there would otherwise never be tested.
+std::vector<Issue> requirement_issues(const SystemDef& def, const Requirements& req);
+
+/// The verdict in words: "all requirements met", "requirements NOT met: 2 failed", or "not shown
+/// met: 3 of 5 not tested (the run never reached their case)".
+std::string verdict_text(const Assessment& a);
 
 /// Runs the (validated) scenario to its end and checks it.
 Assessment assess(const SystemDef& def, const Requirements& req);
