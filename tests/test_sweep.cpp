@@ -53,7 +53,7 @@ TEST_CASE("value lists: explicit, ranges with the end included, and their errors
       {"x=0:1:0", "STEP must be > 0"},
       {"x=2:1:0.5", "STOP 1 is below START 2"},
       {"x=1,2,1", "a value is listed twice"},
-      {"x=0:1e9:1", "more than a million values"},
+      {"x=0:1e9:1", "1e+09 values, more than the 1e+06"},
   };
   for (const auto& [spec, msg] : bad) {
     INFO(spec);
@@ -61,6 +61,52 @@ TEST_CASE("value lists: explicit, ranges with the end included, and their errors
     CHECK_FALSE(parse_vary(spec, err));
     CHECK_THAT(err, Catch::Contains(msg));
   }
+}
+
+TEST_CASE("a sweep's fields and values are bounded before any range is expanded") {
+  std::string err;
+  std::vector<std::string> many(17, "x=1,2");
+  CHECK_FALSE(parse_varies(many, err));
+  CHECK(err == "17 fields varied, at most 16");
+  // 600,000 values, then 500,000 more: the second is refused against what is left.
+  err.clear();
+  CHECK_FALSE(parse_varies({"a=0:599999:1", "b=0:499999:1"}, err));
+  CHECK(err == "--vary b: 500000 values, more than the 400000 left of a sweep's 1e+06");
+  err.clear();
+  CHECK_FALSE(parse_varies({"a=0:999998:1", "b=1,2"}, err));
+  CHECK_THAT(err, Catch::Contains("more than the 1 values left of a sweep's 1e+06"));
+  auto fine = parse_varies({"a=0:9:1", "b=1,2"}, err);
+  REQUIRE(fine);
+  CHECK(fine->size() == 2);
+}
+
+TEST_CASE("a field varied twice, by one path or by an id and an index, is refused, as is a huge grid unsampled") {
+  SweepSpec spec;
+  spec.scenario = scenario_json("scenarios/demo_three_areas.json");
+  const std::string first_id = spec.scenario["units"][0]["id"].get<std::string>();
+  std::string err;
+  spec.vary = *parse_varies({"units[" + first_id + "].governor.droop=0.03,0.05", "units[0].governor.droop=0.04"}, err);
+  run_sweep(spec, err);
+  CHECK(err == "--vary units[0].governor.droop: the same field as --vary units[" + first_id +
+                   "].governor.droop (/units/0/governor/droop); vary each field once");
+  err.clear();
+  spec.vary = *parse_varies({"events[0].mw=10,20", "events[0].mw=30"}, err);
+  run_sweep(spec, err);
+  CHECK_THAT(err, Catch::Contains("the same field as --vary events[0].mw"));
+  // 990 x 990 x 100 combinations: refused whole, taken as a sample.
+  err.clear();
+  spec.vary = *parse_varies({"units[0].governor.droop=0.01:0.999:0.001", "units[1].governor.droop=0.01:0.999:0.001",
+                             "events[0].mw=1:100:1"},
+                            err);
+  REQUIRE(err.empty());
+  run_sweep(spec, err);
+  CHECK(err == "the grid has 98010000 combinations, more than the 10000000 a sweep runs whole; use --sample N "
+               "(or fewer values)");
+  err.clear();
+  spec.sample = 2;
+  const SweepResult r = run_sweep(spec, err);
+  CHECK(err.empty());
+  CHECK(r.rows.size() == 2);
 }
 
 TEST_CASE("paths resolve by id or index and say where they fail") {

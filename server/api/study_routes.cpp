@@ -63,17 +63,19 @@ void replays(Services& s, Call& c) {
 std::vector<std::string> read_sweep(const json& j, study::SweepSpec& spec, std::string& metric) {
   std::vector<std::string> problems;
   unknown_fields(j, {"scenario", "vary", "sample", "seed", "metric"}, problems);
-  if (!j.contains("vary") || !j["vary"].is_array() || j["vary"].empty())
+  if (!j.contains("vary") || !j["vary"].is_array() || j["vary"].empty()) {
     problems.push_back("vary: required, a list of \"PATH=VALUES\"");
-  else
-    for (const auto& v : j["vary"]) {
-      std::string err;
-      auto parsed = v.is_string() ? study::parse_vary(v.get<std::string>(), err) : std::nullopt;
-      if (!parsed)
-        problems.push_back(v.is_string() ? err : "vary: each entry must be a string PATH=VALUES");
-      else
-        spec.vary.push_back(std::move(*parsed));
-    }
+  } else if (std::any_of(j["vary"].begin(), j["vary"].end(), [](const json& v) { return !v.is_string(); })) {
+    problems.push_back("vary: each entry must be a string PATH=VALUES");
+  } else {
+    // The limits on fields and values are checked as the entries are read, before any is expanded.
+    std::string err;
+    auto parsed = study::parse_varies(j["vary"].get<std::vector<std::string>>(), err);
+    if (!parsed)
+      problems.push_back("vary: " + err);
+    else
+      spec.vary = std::move(*parsed);
+  }
   if (j.contains("sample")) {
     if (!j["sample"].is_number_unsigned() || j["sample"].get<std::uint64_t>() == 0)
       problems.push_back("sample: must be a whole number >= 1");
@@ -148,6 +150,8 @@ void post_sweep(Services& s, Call& c) {
     LoadResult r = parse_scenario(scenario_text);
     if (!r.system) return answer(respond, 400, error_json("invalid scenario", issue_texts(r.issues)));
     spec.scenario = scenario_to_json(r.system->def());
+    if (std::string paths = study::check_vary_paths(spec.scenario, spec.vary); !paths.empty())
+      return answer(respond, 400, error_json(paths));
     // Each axis at its smallest and largest value must give a valid scenario: an absurd value is
     // refused now, not found in every row later.
     for (const auto& v : spec.vary)

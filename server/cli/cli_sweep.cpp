@@ -94,14 +94,14 @@ int sweep(const SweepArgs& args) {
   spec.shards = args.shards;
   spec.threads = args.threads;
   spec.ensemble = args.ensemble;
-  for (const std::string& v : args.vary) {
+  {
     std::string error;
-    auto parsed = study::parse_vary(v, error);
+    auto parsed = study::parse_varies(args.vary, error);
     if (!parsed) {
       std::cerr << "droopline: " << error << "\n";
       return 2;
     }
-    spec.vary.push_back(std::move(*parsed));
+    spec.vary = std::move(*parsed);
   }
   std::string error;
   Progress progress(!args.quiet && ::isatty(STDERR_FILENO), "runs", "");

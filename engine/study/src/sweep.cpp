@@ -158,7 +158,7 @@ const std::vector<std::string>& metric_names() {
   return names;
 }
 
-std::optional<Vary> parse_vary(const std::string& spec, std::string& error) {
+std::optional<Vary> parse_vary(const std::string& spec, std::string& error, std::size_t max_values) {
   const auto eq = spec.find('=');
   if (eq == std::string::npos || eq == 0 || eq + 1 == spec.size()) {
     error = "--vary \"" + spec + "\": expected PATH=V1,V2,... or PATH=START:STOP:STEP";
@@ -183,7 +183,10 @@ std::optional<Vary> parse_vary(const std::string& spec, std::string& error) {
     if (!(a[2] > 0.0)) return bad("STEP must be > 0, got " + fmt_num(a[2]));
     if (a[1] < a[0]) return bad("STOP " + fmt_num(a[1]) + " is below START " + fmt_num(a[0]));
     const double count = std::floor((a[1] - a[0]) / a[2] + 1e-9) + 1.0;
-    if (count > 1e6) return bad("more than a million values");
+    if (count > static_cast<double>(max_values))
+      return bad(fmt_num(count) + " values, more than the " + fmt_num(static_cast<double>(max_values)) +
+                 (max_values < kMaxVaryValues ? " left of a sweep's " + fmt_num(static_cast<double>(kMaxVaryValues))
+                                              : std::string()));
     for (std::int64_t i = 0; i < static_cast<std::int64_t>(count); ++i)
       v.values.push_back(a[0] + static_cast<double>(i) * a[2]);  // no accumulated rounding
   } else {
@@ -195,12 +198,50 @@ std::optional<Vary> parse_vary(const std::string& spec, std::string& error) {
       if (!detail::parse_number(values.substr(start, end - start), x))
         return bad("\"" + values.substr(start, end - start) + "\" is not a number");
       v.values.push_back(x);
+      if (v.values.size() > max_values)
+        return bad("more than the " + fmt_num(static_cast<double>(max_values)) + " values " +
+                   (max_values < kMaxVaryValues ? "left of a sweep's " + fmt_num(static_cast<double>(kMaxVaryValues))
+                                                : std::string("a field may take")));
       start = end + 1;
     }
   }
   std::set<double> distinct(v.values.begin(), v.values.end());
   if (distinct.size() != v.values.size()) return bad("a value is listed twice");
   return v;
+}
+
+std::optional<std::vector<Vary>> parse_varies(const std::vector<std::string>& specs, std::string& error) {
+  if (specs.size() > kMaxVaried) {
+    error = std::to_string(specs.size()) + " fields varied, at most " + std::to_string(kMaxVaried);
+    return std::nullopt;
+  }
+  std::vector<Vary> out;
+  std::size_t used = 0;
+  for (const std::string& s : specs) {
+    auto v = parse_vary(s, error, kMaxVaryValues - used);
+    if (!v) return std::nullopt;
+    used += v->values.size();
+    out.push_back(std::move(*v));
+  }
+  return out;
+}
+
+std::string check_vary_paths(const json& scenario, const std::vector<Vary>& vary) {
+  // Each path set to a value nothing else holds: where the scenario then differs is the field it
+  // names, whatever selector reached it.
+  std::vector<std::string> fields;
+  for (const Vary& v : vary) {
+    json probe = scenario;
+    std::string error;
+    if (!set_path(probe, v.path, -1.2345678912345e300, error)) return "--vary " + error;
+    const json diff = json::diff(scenario, probe);
+    fields.push_back(diff.empty() ? v.path : diff[0]["path"].get<std::string>());
+    for (std::size_t k = 0; k + 1 < fields.size(); ++k)
+      if (fields[k] == fields.back())
+        return "--vary " + v.path + ": the same field as --vary " + vary[k].path + " (" + fields.back() +
+               "); vary each field once";
+  }
+  return "";
 }
 
 bool set_path(json& scenario, const std::string& path, double value, std::string& error) {
@@ -307,20 +348,21 @@ SweepResult run_sweep(const SweepSpec& spec, std::string& error,
     error = "--shard " + std::to_string(spec.shard) + "/" + std::to_string(spec.shards) + ": I must lie within 1..N";
     return res;
   }
+  if (error = check_vary_paths(spec.scenario, spec.vary); !error.empty()) return res;
   std::uint64_t grid = 1;
   std::vector<std::uint64_t> strides(spec.vary.size());
   for (std::size_t k = spec.vary.size(); k-- > 0;) {
-    json probe = spec.scenario;
-    if (!set_path(probe, spec.vary[k].path, spec.vary[k].values.front(), error)) {
-      error = "--vary " + error;
-      return res;
-    }
     strides[k] = grid;
     grid *= spec.vary[k].values.size();
     if (grid > (1ULL << 40)) {
       error = "the grid has more than 2^40 combinations; use --sample N";
       return res;
     }
+  }
+  if (!spec.sample && grid > kMaxGridRuns) {
+    error = "the grid has " + std::to_string(grid) + " combinations, more than the " + std::to_string(kMaxGridRuns) +
+            " a sweep runs whole; use --sample N (or fewer values)";
+    return res;
   }
   res.grid_size = grid;
   res.fingerprint = sweep_fingerprint(spec);

@@ -24,9 +24,23 @@ struct Vary {
   std::vector<double> values;
 };
 
-/// Parses `PATH=V1,V2,...` or `PATH=START:STOP:STEP` (STOP included when the steps reach it).
-/// Returns nullopt with `error` set when malformed.
-std::optional<Vary> parse_vary(const std::string& spec, std::string& error);
+/// Parses `PATH=V1,V2,...` or `PATH=START:STOP:STEP` (STOP included when the steps reach it), of
+/// at most `max_values` values (a range is counted before it is expanded). Returns nullopt with
+/// `error` set when malformed.
+std::optional<Vary> parse_vary(const std::string& spec, std::string& error, std::size_t max_values = 1000000);
+
+/// At most this many varied fields in a sweep, with at most this many values over all of them
+/// (every value is held before the first run), and without a sample at most this many runs.
+inline constexpr std::size_t kMaxVaried = 16;
+inline constexpr std::size_t kMaxVaryValues = 1000000;
+inline constexpr std::uint64_t kMaxGridRuns = 10000000;
+
+/// Parses every `PATH=VALUES` of a sweep within those limits: nullopt with `error` on the first problem.
+std::optional<std::vector<Vary>> parse_varies(const std::vector<std::string>& specs, std::string& error);
+
+/// "" when every path names a number of `scenario` and no two name the same one (`units[V1]` and
+/// `units[0]` may be one unit); else the problem, naming the paths.
+std::string check_vary_paths(const nlohmann::ordered_json& scenario, const std::vector<Vary>& vary);
 
 /// Sets the field a path names; false with `error` saying which part did not resolve.
 bool set_path(nlohmann::ordered_json& scenario, const std::string& path, double value, std::string& error);
