@@ -2,6 +2,7 @@
 // fitted to it, and against injected test deviations.
 #include "cli_validation.hpp"
 
+#include <algorithm>
 #include <cstdio>
 #include <fstream>
 #include <iostream>
@@ -137,6 +138,10 @@ int fit(const FitArgs& args) {
     auto fp = study::parse_fit_param(p, error);
     if (!fp) {
       std::cerr << "droopline: error: " << error << "\n";
+      return 2;
+    }
+    if (std::any_of(params.begin(), params.end(), [&](const study::FitParam& q) { return q.path == fp->path; })) {
+      std::cerr << "droopline: error: --param " << fp->path << " is given twice: fit each parameter once\n";
       return 2;
     }
     params.push_back(*fp);
