@@ -100,6 +100,15 @@ std::optional<Recording> read_csv_recording_text(std::string_view text, const st
       issues.push_back({where, "a quote is left open", false});
       continue;
     }
+    // A row of another width has lost or gained a field somewhere (a thousands separator, a
+    // value split in two): which value belongs to which column can no longer be told.
+    if (fields.size() != header.size()) {
+      issues.push_back({where, std::to_string(fields.size()) + " fields where the header has " +
+                                   std::to_string(header.size()) +
+                                   (sep == ',' ? " (a comma inside a number, such as a thousands separator?)" : ""),
+                        false});
+      continue;
+    }
     for (std::size_t w = 0; w < wanted.size(); ++w) {
       const std::string at = where + " column \"" + clip_text(wanted[w], 60) + "\"";
       double v = 0.0;
