@@ -104,12 +104,19 @@ int record(const RecordArgs& args) {
   }
   const std::unique_ptr<Engine> created = Engine::create(*r.system);
   Engine& e = *created;
-  const double to = std::min(args.to_s, r.system->def().duration_s);
-  if (!(args.from_s < to)) {
-    std::cerr << "droopline: --from " << fmt_num(args.from_s) << " must lie before --to " << fmt_num(to) << " (the run ends at "
-              << fmt_num(r.system->def().duration_s) << " s)\n";
+  const double duration = r.system->def().duration_s, to = std::min(args.to_s, duration);
+  if (args.from_s >= duration) {
+    std::cerr << "droopline: --from " << fmt_num(args.from_s) << " lies at or after the end of the run (duration_s "
+              << fmt_num(duration) << " s)\n";
     return 2;
   }
+  if (!(args.from_s < to)) {
+    std::cerr << "droopline: --from " << fmt_num(args.from_s) << " must lie before --to " << fmt_num(args.to_s) << "\n";
+    return 2;
+  }
+  if (args.to_s < 1e300 && args.to_s > duration)
+    std::cerr << "droopline: warning: --to " << fmt_num(args.to_s) << " lies after the end of the run: the record ends at "
+              << fmt_num(duration) << " s (duration_s)\n";
   study::ComtradeInput in;
   in.station = r.system->def().name;
   in.columns = e.series_columns();

@@ -96,6 +96,8 @@ CASES = [
     (["assess", SCENARIO, "--requirements", REQ, "--csv"], "--csv"),
     (RECORD + ["--from", "soon"], "--from"),
     (RECORD + ["--to", "2e9"], "--to"),
+    (RECORD + ["--from", "1e8"], "lies at or after the end of the run (duration_s "),
+    (RECORD + ["--from", "30", "--to", "20"], "--from 30 must lie before --to 20"),
     (RECORD + ["--start", "yesterday"], "--start"),
     (RECORD + ["--start", "2026-13-01T00:00:00Z"], "--start"),
     (RECORD + ["--name", "a/b"], "--name"),
