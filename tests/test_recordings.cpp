@@ -275,6 +275,30 @@ TEST_CASE("records from droopline's COMTRADE writer read back within its resolut
   for (int i = 0; i < n; ++i) CHECK(r.t_s[i] == Approx(0.1 * i).margin(1e-6));  // times from the first sample
 }
 
+TEST_CASE("a channel that barely moves is scaled no finer than 0.1 uHz or 1 W, so it reads as flat", "[recordings]") {
+  ComtradeInput in;
+  in.station = "Kestrel Bay";
+  in.columns = {"t_s", "north.f_hz", "g1.p_mw"};
+  in.sample_hz = 10.0;
+  for (int i = 0; i < 50; ++i)  // rounding noise in the last digits, as a settled run has
+    in.rows.insert(in.rows.end(), {0.1 * i, 50.0 + 1e-13 * (i % 3), 120.0 - 1e-12 * (i % 2)});
+  const ComtradeRecord rec = make_comtrade(in);
+  REQUIRE(rec.error.empty());
+  std::vector<Issue> issues;
+  const auto cfg = parse_comtrade_cfg(rec.cfg, "flat.cfg", issues);
+  REQUIRE(cfg);
+  CHECK(cfg->analogs[0].a == 1e-7);
+  CHECK(cfg->analogs[1].a == 1e-6);
+  // Every count is 0: the values are the offset b.
+  std::size_t at = 0;
+  while (at < rec.dat.size()) {
+    const std::size_t end = rec.dat.find("\r\n", at);
+    const std::string line = rec.dat.substr(at, end - at);
+    at = end + 2;
+    CHECK(line.substr(line.find(',', line.find(',') + 1)) == ",0,0");
+  }
+}
+
 TEST_CASE("a COMTRADE record longer than 71 minutes counts its timestamps within 32 bits", "[recordings]") {
   // 2^32 microseconds is 71.6 minutes: past it the writer raises the time multiplier (tens of
   // microseconds, then hundreds), so every timestamp fits a binary form's 32 bits and the 1999

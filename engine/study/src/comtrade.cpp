@@ -55,10 +55,12 @@ ComtradeRecord make_comtrade(const ComtradeInput& in) {
   cfg = clean(in.station) + "," + clean(in.device) + ",1999\r\n";
   cfg += std::to_string(nch) + "," + std::to_string(nch) + "A,0D\r\n";
   for (std::size_t c = 0; c < nch; ++c) {
-    b[c] = 0.5 * (lo[c] + hi[c]);
-    a[c] = hi[c] > lo[c] ? (hi[c] - lo[c]) / (2.0 * (kSpan - 1.0)) : 1e-6;
     const std::string& col = in.columns[c + 1];
     const std::string unit = col.size() > 3 && col.compare(col.size() - 3, 3, "_hz") == 0 ? "Hz" : "MW";
+    // The range over the counts, but no finer than 0.1 uHz or 1 W: a channel that barely moves
+    // (rounding in the last digits) would otherwise spread its noise over all the counts.
+    b[c] = 0.5 * (lo[c] + hi[c]);
+    a[c] = std::max((hi[c] - lo[c]) / (2.0 * (kSpan - 1.0)), unit == "Hz" ? 1e-7 : 1e-6);
     const std::string element = col.substr(0, std::min(col.size(), col.rfind('.')));
     // An,ch_id,ph,ccbm,uu,a,b,skew,min,max,primary,secondary,PS
     cfg += std::to_string(c + 1) + "," + clean(col) + ",," + clean(element) + "," + unit + "," + fmt_exact(a[c]) + "," +
