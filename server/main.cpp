@@ -219,6 +219,9 @@ Command serve_command(CLI::App& root) {
       ->multi_option_policy(CLI::MultiOptionPolicy::TakeAll);
   add_count(*sub, "--max-connections", o.max_connections, std::size_t{1}, std::size_t{100000}, "open connections at most")
       ->capture_default_str();
+  add_count(*sub, "--max-connections-per-address", o.max_connections_per_address, std::size_t{1}, std::size_t{100000},
+            "open connections from one address at most (this machine's own not counted)")
+      ->capture_default_str();
   sub->add_option("--log-level", a->level, "trace, debug, info, warn, error, critical or off")
       ->type_name("LEVEL")
       ->capture_default_str()

@@ -35,6 +35,9 @@ struct Options {
   std::size_t max_fit_body_bytes = 16 << 20;  ///< HTTP body limit of POST /api/v1/fits (a recording inside)
   std::size_t max_message_bytes = 64 << 10;  ///< WebSocket message limit
   std::size_t max_connections = 256;
+  /// Open connections from one address at most (127.0.0.1 and ::1 exempt: this machine, or a TLS
+  /// proxy in front), so one machine on the LAN cannot take every place and lock the room out.
+  std::size_t max_connections_per_address = 32;
   std::size_t client_queue = 64;  ///< queued messages per client before old frames drop
   /// Kernel send buffer per streaming socket. Bounded (instead of the kernel's autotuning, which
   /// goes to megabytes) so a client that stops reading is noticed by the queue above within

@@ -7,10 +7,20 @@
 namespace droopline::server {
 namespace {
 
-// Holds one place under the connection limit for as long as a session keeps it.
-std::shared_ptr<void> take_slot(Context& ctx) {
+// Holds one place under the connection limit, and under its address's, for as long as a session
+// keeps it. `address` is empty for an address the per-address limit does not count.
+std::shared_ptr<void> take_slot(Context& ctx, PerAddress& per, std::string address) {
   ctx.counters.connections.fetch_add(1);
-  return std::shared_ptr<void>(nullptr, [&ctx](void*) { ctx.counters.connections.fetch_sub(1); });
+  return std::shared_ptr<void>(nullptr, [&ctx, &per, address = std::move(address)](void*) {
+    ctx.counters.connections.fetch_sub(1);
+    if (!address.empty()) per.release(address);
+  });
+}
+
+// This machine's own addresses: the operator, or a TLS proxy in front that carries every client.
+bool exempt(const net::ip::address& a) {
+  if (a.is_v6() && a.to_v6().is_v4_mapped()) return exempt(net::ip::make_address_v4(net::ip::v4_mapped, a.to_v6()));
+  return a == net::ip::address_v4::loopback() || a == net::ip::address_v6::loopback();
 }
 
 }  // namespace
@@ -41,11 +51,17 @@ void Listener::do_accept() {
 void Listener::on_accept(beast::error_code ec, tcp::socket socket) {
   if (ec == net::error::operation_aborted) return;
   if (!ec) {
+    beast::error_code peer_ec;
+    const tcp::endpoint peer = socket.remote_endpoint(peer_ec);
+    const std::string address = peer_ec || exempt(peer.address()) ? std::string() : peer.address().to_string();
     if (ctx_.counters.connections.load() >= ctx_.options.max_connections) {
       ctx_.counters.refused.fetch_add(1);
-      refuse(std::move(socket));
+      refuse(std::move(socket), "too many connections; the server is at its limit");
+    } else if (!address.empty() && !ctx_.per_address.take(address, ctx_.options.max_connections_per_address)) {
+      ctx_.counters.refused.fetch_add(1);
+      refuse(std::move(socket), "too many connections from this address");
     } else {
-      std::make_shared<HttpSession>(std::move(socket), ctx_, take_slot(ctx_))->run();
+      std::make_shared<HttpSession>(std::move(socket), ctx_, take_slot(ctx_, ctx_.per_address, address))->run();
     }
   } else if (!ctx_.stopping.load()) {
     // Out of descriptors (EMFILE/ENFILE) or memory: pause instead of spinning
@@ -61,9 +77,26 @@ void Listener::on_accept(beast::error_code ec, tcp::socket socket) {
 }
 
 // Over the limit: a short 503 written without reading the request, then close.
-void Listener::refuse(tcp::socket socket) {
+bool PerAddress::take(const std::string& address, std::size_t most) {
+  std::lock_guard lock(mutex_);
+  std::size_t& n = open_[address];
+  if (n >= most) {
+    if (n == 0) open_.erase(address);
+    return false;
+  }
+  ++n;
+  return true;
+}
+
+void PerAddress::release(const std::string& address) {
+  std::lock_guard lock(mutex_);
+  auto it = open_.find(address);
+  if (it != open_.end() && --it->second == 0) open_.erase(it);
+}
+
+void Listener::refuse(tcp::socket socket, const std::string& why) {
   auto s = std::make_shared<tcp::socket>(std::move(socket));
-  static const std::string kError = "{\"error\":\"too many connections; the server is at its limit\"}";
+  const std::string kError = "{\"error\":\"" + why + "\"}";
   auto body = std::make_shared<std::string>(
       "HTTP/1.1 503 Service Unavailable\r\nContent-Type: application/json\r\nConnection: close\r\n"
       "Retry-After: 1\r\nContent-Length: " +

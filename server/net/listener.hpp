@@ -1,9 +1,10 @@
 #pragma once
 // Accepts connections on one endpoint and hands each to an HttpSession, up to
-// the connection limit (past it: a short 503 written without reading the
-// request). Out of descriptors, it pauses accepting for 50 ms instead of
-// spinning.
+// the connection limit and the limit per client address (past either: a short
+// 503 written without reading the request). Out of descriptors, it pauses
+// accepting for 50 ms instead of spinning.
 #include <memory>
+#include <string>
 
 #include "server.hpp"
 
@@ -20,7 +21,7 @@ class Listener : public std::enable_shared_from_this<Listener> {
  private:
   void do_accept();
   void on_accept(beast::error_code ec, tcp::socket socket);
-  void refuse(tcp::socket socket);
+  void refuse(tcp::socket socket, const std::string& why);
 
   net::io_context& ioc_;
   tcp::acceptor acceptor_;

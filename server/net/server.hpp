@@ -9,6 +9,7 @@
 #include <memory>
 #include <mutex>
 #include <string>
+#include <unordered_map>
 #include <vector>
 
 #include <utility>  // before Boost 1.74's asio, whose awaitable.hpp uses std::exchange unincluded
@@ -30,7 +31,20 @@ namespace websocket = beast::websocket;
 using tcp = net::ip::tcp;
 
 /// Shared by every session of one server: the API's services plus what only the network needs.
+/// Open connections per client address (thread-safe).
+class PerAddress {
+ public:
+  /// Counts one more from `address` unless it has `most` open already (then false).
+  bool take(const std::string& address, std::size_t most);
+  void release(const std::string& address);
+
+ private:
+  std::mutex mutex_;
+  std::unordered_map<std::string, std::size_t> open_;
+};
+
 struct Context : Services {
+  PerAddress per_address;                      ///< open connections by client address
   net::io_context* ioc = nullptr;
   Hub hub;                                     ///< the streaming clients
   std::unique_ptr<net::thread_pool> replay_pool;  ///< the worker pool behind `run_on_workers`

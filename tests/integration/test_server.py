@@ -646,19 +646,42 @@ class BadInputTests(unittest.TestCase):
             refused = [s for s in readable if b"503 Service Unavailable" in s.recv(200)]
             self.assertGreaterEqual(len(refused), 10)  # everyone past the limit was told, at once
             self.assertLessEqual(len(socks) - len(refused), 40)
-            # A real client reads the refusal whole: its Content-Length is its body's.
-            c = http.client.HTTPConnection("127.0.0.1", self.srv.port, timeout=5)
-            c.request("GET", "/healthz")
-            r = c.getresponse()
-            self.assertEqual((r.status, json.loads(r.read())["error"]),
-                             (503, "too many connections; the server is at its limit"))
-            c.close()
         finally:
             for s in socks:
                 s.close()
         time.sleep(0.5)
         s, _, _ = self.srv.request("GET", "/healthz")
         self.assertEqual(s, 200)  # served again once the others left
+
+
+    def test_one_address_gets_at_most_32_connections_and_this_machine_is_not_counted(self):
+        # A stranger on the LAN holding every place would lock the room out: one address (here
+        # 127.0.0.2, another loopback address the limit counts) gets 32; 127.0.0.1 is exempt.
+        import select
+        socks = []
+        try:
+            for _ in range(36):
+                socks.append(socket.create_connection(("127.0.0.1", self.srv.port), timeout=5,
+                                                      source_address=("127.0.0.2", 0)))
+            time.sleep(0.5)
+            readable, _, _ = select.select(socks, [], [], 1.0)
+            refused = [s for s in readable if b"too many connections from this address" in s.recv(300)]
+            self.assertEqual(len(refused), 4)
+            # A real client reads the refusal whole: its Content-Length is its body's.
+            c = http.client.HTTPConnection("127.0.0.1", self.srv.port, timeout=5, source_address=("127.0.0.2", 0))
+            c.request("GET", "/healthz")
+            r = c.getresponse()
+            self.assertEqual((r.status, json.loads(r.read())["error"]), (503, "too many connections from this address"))
+            c.close()
+            s, _, _ = self.srv.request("GET", "/healthz")
+            self.assertEqual(s, 200)
+        finally:
+            for s in socks:
+                s.close()
+        time.sleep(0.5)
+        with socket.create_connection(("127.0.0.1", self.srv.port), timeout=5, source_address=("127.0.0.2", 0)) as s:
+            s.sendall(b"GET /healthz HTTP/1.1\r\nHost: x\r\nConnection: close\r\n\r\n")
+            self.assertTrue(s.recv(100).startswith(b"HTTP/1.1 200"))  # its places came back
 
 
 class LifecycleTests(unittest.TestCase):
