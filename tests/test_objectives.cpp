@@ -235,7 +235,8 @@ TEST_CASE("objectives: each measure against the test's own working from the engi
       to_action.push_back(200.0 - a.raised_s);
     if (a.raised_s <= s.ack_at) {
       REQUIRE(a.acked_s);
-      to_ack.push_back(s.ack_at - a.raised_s);
+      // One that had cleared before it was acknowledged went unanswered while it stood: left out.
+      if (!a.cleared_s || *a.cleared_s + 1e-9 >= s.ack_at) to_ack.push_back(s.ack_at - a.raised_s);
     } else if (!a.cleared_s) {
       to_ack.push_back(200.0 - a.raised_s);
     }
@@ -439,4 +440,25 @@ TEST_CASE("objectives: every shipped exercise reads back from its JSON as it was
     CHECK(again.def.objectives.size() == first.exercise->def.objectives.size());
     if (path.find("scenarios/exercises") != std::string::npos) CHECK(first.exercise->def.objectives.size() >= 3);
   }
+}
+
+TEST_CASE("objectives: an acknowledgement after the alarm cleared does not count against the seat", "[objectives]") {
+  // e2 trips at 1 s; a frequency alarm of the east desk clears on its own as frequency recovers.
+  // Acknowledged long after, it is left out, as it was before the acknowledgement.
+  json j = json::parse(test::read_source(kFile));
+  j["objectives"] = json::parse(R"([{"id": "ack", "seat": "east-desk", "measure": "alarm_to_ack_s", "target": 30}])");
+  Run run(test::load_ok(j.dump()));
+  run.run_to(1.0);
+  run.act("instructor", test::unit_cmd(CommandKind::unit_trip, "e2"));
+  run.run_to(90.0);
+  const Alarm* cleared = nullptr;
+  for (const Alarm& a : run.alarms.alarms())
+    if (std::count(a.areas.begin(), a.areas.end(), 1u) && a.cleared_s && !a.acked_by) cleared = &a;
+  REQUIRE(cleared);
+  const std::vector<SeatScore> before = run.objectives.scores(&run.alarms);
+  const std::size_t samples = before[1].objectives.at(0).samples.size();
+  REQUIRE(run.alarms.acknowledge(cleared->id, "east-desk", run.engine->time_s()));
+  const std::vector<SeatScore> after = run.objectives.scores(&run.alarms);
+  CHECK(after[1].objectives.at(0).samples.size() == samples);
+  CHECK(after[1].objectives.at(0).measured == before[1].objectives.at(0).measured);
 }

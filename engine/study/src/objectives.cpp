@@ -240,6 +240,9 @@ ObjectiveResult ObjectiveMonitor::result(const Track& tr, const AlarmMonitor* al
         // Only the seat's own acknowledgements measure it: an alarm the instructor or another seat
         // acknowledged first is not the seat's to answer, and is left out.
         if (a.acked_by && *a.acked_by != seat.id) continue;
+        // Acknowledged only after it had cleared: it went unanswered while it stood, and is left
+        // out as one never acknowledged is (the late acknowledgement does not count against it).
+        if (a.acked_s && a.cleared_s && *a.acked_s > *a.cleared_s + 1e-9) continue;
         done = a.acked_s;
       } else {
         auto it = std::lower_bound(seat.action_s.begin(), seat.action_s.end(), a.raised_s - 1e-9);
