@@ -179,6 +179,17 @@ TEST_CASE("the records survive a reopen") {
   CHECK(store.runs(f, error)->size() == 1);
   f.trainee = "Nobody Here";
   CHECK(store.runs(f, error)->empty());
+  f.trainee = "brenn";  // any part of the name, any case, as typed into the records page's box
+  CHECK(store.runs(f, error)->size() == 1);
+  // The CSV for one trainee: the seats that trainee sat at, not the run's others.
+  auto mine = store.export_csv(f, error);
+  REQUIRE(mine);
+  CHECK(mine->find("Tomas Brenn") != std::string::npos);
+  CHECK(mine->find("Ilse Marrow") == std::string::npos);
+  CHECK(std::count(mine->begin(), mine->end(), '\n') == 2);  // the header and one seat
+  f = {};
+  f.exercise = "NOT THERE";
+  CHECK(store.runs(f, error)->empty());
   f = {};
   f.from = "2027-01-16";
   CHECK(store.runs(f, error)->empty());

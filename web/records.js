@@ -180,7 +180,8 @@ async function refreshProgress(asked) {
   const r = await apiFor('records-progress', '/api/v1/records/trainees');
   if (!r || asked !== reads) return;
   const wanted = $('records-trainee').value.trim();
-  const shown = wanted ? r.trainees.filter((t) => t.name === wanted) : r.trainees;
+  // As the server filters the runs: any part of the name, whatever the case.
+  const shown = wanted ? r.trainees.filter((t) => t.name.toLowerCase().includes(wanted.toLowerCase())) : r.trainees;
   $('records-progress').replaceChildren(...(shown.length ? shown.map(traineeBlock)
     : [el('p', { className: 'empty', textContent: wanted ? 'no attempts by this trainee' : 'no trainees yet' })]));
   $('records-trainee-names').replaceChildren(...r.trainees.map((t) => el('option', { value: t.name })));

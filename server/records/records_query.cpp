@@ -22,13 +22,14 @@ constexpr const char* kRunSelect =
     "r.started_at, 'unixepoch'), r.status, "
     "r.why, r.ended_s, r.journal_path, strftime('%Y-%m-%dT%H:%M:%SZ', "
     "r.ended_at, 'unixepoch') FROM runs r ";
-// The filter (parameters ?1..?4) and the limit (?5), newest first.
+// The filter (parameters ?1..?4) and the limit (?5), newest first. Exercise and trainee match
+// any part of the name, whatever the case (ASCII letters; what an instructor types in a box).
 constexpr const char* kFilter =
-    "WHERE (?1 = '' OR r.exercise = ?1) AND (?2 = '' OR date(r.started_at, "
+    "WHERE (?1 = '' OR instr(lower(r.exercise), lower(?1)) > 0) AND (?2 = '' OR date(r.started_at, "
     "'unixepoch') >= ?2) "
     "AND (?3 = '' OR date(r.started_at, 'unixepoch') <= ?3) "
     "AND (?4 = '' OR EXISTS (SELECT 1 FROM trainees t WHERE t.run_id = "
-    "r.run_id AND t.name = ?4)) "
+    "r.run_id AND instr(lower(t.name), lower(?4)) > 0)) "
     "ORDER BY r.started_at DESC, r.rowid DESC LIMIT ?5";
 
 // The seats table keeps a seat's areas as one text, comma-separated (area ids
@@ -260,10 +261,21 @@ std::optional<std::string> RecordsStore::export_csv(const RunFilter& filter, std
   std::string out = "date,exercise,run_id,status,seat,trainee,score";
   for (const std::string& o : objectives) out += "," + csv_cell(o);
   out += "\r\n";
+  // With a trainee asked for, only the seats that trainee sat at (the run's other seats are others').
+  auto lower = [](std::string s) {
+    for (char& ch : s) ch = static_cast<char>(std::tolower(static_cast<unsigned char>(ch)));
+    return s;
+  };
+  const std::string wanted = lower(filter.trainee);
   for (const json& run : list)
     for (const json& seat : run["seats"]) {
       std::string names;
-      for (const json& n : seat["trainees"]) names += (names.empty() ? "" : "; ") + n.get<std::string>();
+      bool theirs = wanted.empty();
+      for (const json& n : seat["trainees"]) {
+        names += (names.empty() ? "" : "; ") + n.get<std::string>();
+        theirs = theirs || lower(n.get<std::string>()).find(wanted) != std::string::npos;
+      }
+      if (!theirs) continue;
       out += csv_cell(run["started"].get<std::string>().substr(0, 10)) + "," +
              csv_cell(run["exercise"].get<std::string>()) + "," + run["run_id"].get<std::string>() + "," +
              run["status"].get<std::string>() + "," + csv_cell(seat["seat"].get<std::string>()) + "," +

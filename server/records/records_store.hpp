@@ -34,8 +34,8 @@ struct Status {
 /// The filters of the run list and the CSV export (already validated: see
 /// `check_filter`).
 struct RunFilter {
-  std::string trainee;   ///< exact trainee name ("" any)
-  std::string exercise;  ///< exact exercise name ("" any)
+  std::string trainee;   ///< a part of a trainee's name, any case ("" any)
+  std::string exercise;  ///< a part of the exercise's name, any case ("" any)
   std::string from;      ///< YYYY-MM-DD, runs started that day or later (UTC); "" any
   std::string to;        ///< YYYY-MM-DD, runs started that day or earlier (UTC); "" any
 };

@@ -158,10 +158,11 @@ test('Export CSV downloads the filtered runs: one row per run and seat under the
   const runIds = await page.$$eval('.record-run', (xs) => xs.map((x) => x.dataset.run));
   for (const id of runIds) assert.equal(lines.filter((l) => l.includes(id)).length, 2);
   assert.ok(lines.some((l) => l.includes('Tomas Reel')) && lines.some((l) => l.includes(HOSTILE)));
-  await page.fill('#records-trainee', 'Tomas Reel');
+  // A trainee's part of a name, in another case: only the seat that trainee sat at.
+  await page.fill('#records-trainee', 'tomas');
   lines = await read();
-  assert.equal(lines.length, 1 + 2, lines.join('\n'));
-  assert.ok(lines.slice(1).every((l) => l.includes(runIds[1])));
+  assert.equal(lines.length, 1 + 1, lines.join('\n'));
+  assert.ok(lines[1].includes(runIds[1]) && lines[1].includes('Tomas Reel'), lines[1]);
   assert.deepEqual(errors, []);
   await context.close();
 });
