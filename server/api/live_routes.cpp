@@ -125,6 +125,8 @@ std::string metrics_text(const Services& s) {
   metric("droopline_clients", "gauge", "Open streaming clients.", count(n.clients));
   metric("droopline_connections", "gauge", "Open TCP connections.", count(n.connections));
   metric("droopline_connections_refused_total", "counter", "Connections refused at the limit.", count(n.refused));
+  metric("droopline_auth_refused_total", "counter", "Tokens and join codes refused (HTTP and WebSocket).",
+         count(n.auth_refused));
   metric("droopline_frames_encoded_total", "counter", "Telemetry frames encoded.", count(l.frames));
   metric("droopline_frames_sent_total", "counter", "Telemetry frames delivered to clients.", count(n.frames_sent));
   metric("droopline_frames_dropped_total", "counter", "Telemetry frames dropped for slow clients.",

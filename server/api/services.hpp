@@ -61,6 +61,7 @@ struct NetCounters {
   std::atomic<std::uint64_t> replays{0};          ///< replays run
   std::atomic<std::uint64_t> replays_refused{0};  ///< replays refused (busy or too large)
   std::atomic<std::uint64_t> replays_active{0};   ///< replays (and assessments) running or queued
+  std::atomic<std::uint64_t> auth_refused{0};     ///< tokens and join codes refused
 };
 
 /// The state one server's routes share (the network layer's Context extends it).

@@ -76,6 +76,8 @@ void LiveSession::open_run() {
   ended_ = false;
   next_scores_s_ = kScoresEveryS;
   notes_.clear();
+  names_in_run_.clear();
+  for (const auto& [seat, name] : trainees_) names_in_run_[seat].insert(name);
   if (!exercise_) trainees_.clear();
   // The trainees still at their seats after a reset belong to the new run as well.
   for (const auto& [seat, name] : trainees_)
@@ -152,6 +154,12 @@ void LiveSession::trainee(std::string seat, std::string name, Done done) {
     bool known = false;
     for (const study::SeatDef& s : exercise_->def.seats) known = known || s.id == seat;
     if (!known) return done(refused(403, "seat \"" + seat + "\" is not part of the running exercise"));
+    // A desk is sat at by a few trainees in a run, not hundreds: each name goes into the records.
+    std::set<std::string>& names = names_in_run_[seat];
+    if (!names.count(name) && names.size() >= kMaxNamesPerSeat)
+      return done(refused(409, "seat \"" + seat + "\" has had " + std::to_string(kMaxNamesPerSeat) +
+                                   " trainees in this run, the most it records (a reset or a new exercise starts a new run)"));
+    names.insert(name);
     trainees_[seat] = name;
     journal_record(json{{"type", "trainee"}, {"step", e.step_index()}, {"seat", seat}, {"name", name}});
     if (config_.run_log && run_open_) config_.run_log->trainee_joined(run_id_, seat, name, e.time_s());

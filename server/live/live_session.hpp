@@ -12,6 +12,7 @@
 #include <iterator>
 #include <functional>
 #include <map>
+#include <set>
 #include <memory>
 #include <mutex>
 #include <optional>
@@ -346,6 +347,8 @@ class LiveSession {
   bool ended_ = false;            // the exercise ended: commands refused until a reset or load
   double next_scores_s_ = 60.0;   // the records get the scores when simulation time reaches this
   std::map<std::string, std::string> trainees_;  // seat id -> trainee name (the exercise's seats)
+  static constexpr std::size_t kMaxNamesPerSeat = 8;
+  std::map<std::string, std::set<std::string>> names_in_run_;  // seat id -> every name given this run
   struct Note {
     std::uint64_t id;
     double t_s;

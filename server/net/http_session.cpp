@@ -229,6 +229,23 @@ void HttpSession::handle(HttpRequest&& req) {
                                             " is not implemented; this server takes GET, HEAD, POST, PUT and DELETE"));
     return send(std::move(res));
   }
+  // A refused token or join code is answered after a second: guessing a code over one connection
+  // then takes months, not hours (the limit per address bounds the connections).
+  if (call.authorization && role_of(call, ctx_.token, ctx_.seats).refused_status) {
+    ctx_.counters.auth_refused.fetch_add(1);
+    beast::error_code peer_ec;
+    const auto peer = stream_.socket().remote_endpoint(peer_ec);
+    spdlog::info("client {}: a token or join code refused", peer_ec ? std::string("?") : peer.address().to_string());
+    auto timer = std::make_shared<net::steady_timer>(stream_.get_executor(), std::chrono::seconds(1));
+    timer->async_wait([self = shared_from_this(), timer, call = std::move(call), version, keep](beast::error_code) mutable {
+      self->dispatch(std::move(call), version, keep);
+    });
+    return;
+  }
+  dispatch(std::move(call), version, keep);
+}
+
+void HttpSession::dispatch(Request call, unsigned version, bool keep) {
   // The reply may come from any thread: it is carried back to this connection's strand.
   auto respond = [self = shared_from_this(), version, keep](Reply reply) {
     net::post(self->stream_.get_executor(), [self, version, keep, reply = std::move(reply)]() mutable {

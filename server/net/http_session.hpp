@@ -40,6 +40,7 @@ class HttpSession : public std::enable_shared_from_this<HttpSession> {
   void upgrade(HttpRequest&& req);
   /// Hands the request to the API's route table; what is not the API's is a page file.
   void handle(HttpRequest&& req);
+  void dispatch(Request call, unsigned version, bool keep);  // to the API, else the page's files
   /// Writes the API's reply (on this connection's strand).
   void answer(unsigned version, bool keep_alive, Reply reply);
 

@@ -15,6 +15,7 @@ using json = nlohmann::ordered_json;
 constexpr std::uint64_t kMaxDropStreak = 200;
 // Events and replies are never dropped; a client holding this many unsent has stopped reading.
 constexpr std::size_t kMaxQueuedEvents = 4096;
+constexpr auto kAuthRetry = std::chrono::seconds(1);  // after a refused token or code
 // Messages quote what the client sent; invalid UTF-8 in it is replaced, never thrown on.
 std::string safe_dump(const json& j) { return j.dump(-1, ' ', false, json::error_handler_t::replace); }
 constexpr std::size_t kMaxIdChars = 64;  // longest string id echoed back
@@ -155,7 +156,19 @@ void WebsocketSession::handle_message(const std::string& text) {
   }
   if (type == "auth") {
     const bool given = j.contains("token") && j["token"].is_string();
+    const auto now = std::chrono::steady_clock::now();
+    if (given && now < next_auth_)
+      return reply(safe_dump(json{{"type", "auth"},
+                                  {"id", id},
+                                  {"ok", false},
+                                  {"role", role_name(role_)},
+                                  {"error", "too soon after a refused token or code: wait a second, then try again"}}));
     Proof proof = given ? prove(j["token"].get_ref<const std::string&>(), ctx_.token, ctx_.seats) : Proof{};
+    if (given && proof.refused_status) {
+      next_auth_ = now + kAuthRetry;
+      ctx_.counters.auth_refused.fetch_add(1);
+      spdlog::info("client {}: a token or join code refused", peer_);
+    }
     // A seat's trainee may give their name with the code: checked before the role changes, so a bad
     // name leaves the client as it was.
     std::string bad_name;

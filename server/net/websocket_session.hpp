@@ -1,6 +1,7 @@
 #pragma once
 // One streaming client: its own strand, one write in flight, a bounded queue in which old
 // telemetry frames give way (counted and reported) but events and replies never do.
+#include <chrono>
 #include <deque>
 #include <memory>
 #include <string>
@@ -51,6 +52,9 @@ class WebsocketSession : public std::enable_shared_from_this<WebsocketSession> {
   std::uint64_t dropped_ = 0;      // not yet reported to the client
   std::uint64_t drop_streak_ = 0;  // frames dropped since the last one delivered
   std::string peer_;
+  // After a refused token or code, the next is not checked before this (guessing a join code at
+  // the rate the socket carries would otherwise take hours, not months).
+  std::chrono::steady_clock::time_point next_auth_;
 };
 
 }  // namespace droopline::server

@@ -324,7 +324,10 @@ BAD_STUDY = [
     ("POST", "/api/v1/sweeps", {"vary": ["units[0].governor.droop=0.04"], "scenario": 5}, 400, "scenario: must be an object"),
     ("POST", "/api/v1/sweeps", {"vary": ["units[0].governor.droop=0.04"], "extra": 1}, 400, "\\\"extra\\\": unknown field"),
     ("POST", "/api/v1/sweeps", {"vary": ["units[0].governor.droop=0:0.999:0.000001", "units[1].governor.droop=0:0.999:0.000001"]},
+     400, "999001 values, more than the 999 left of a sweep's 1e+06"),
+    ("POST", "/api/v1/sweeps", {"vary": ["units[0].governor.droop=0.01:0.5:0.001", "units[1].governor.droop=0.01:0.5:0.001"]},
      400, "members, at most 100000 over HTTP"),
+    ("POST", "/api/v1/sweeps", {"vary": ["step_s=0.01"] * 17}, 400, "17 fields varied, at most 16"),
     ("POST", "/api/v1/sweeps", {"vary": ["units[0].governor.droop=0.04,1e300"]}, 400, "must lie within [0.001, 1], got 1e+300"),
     ("POST", "/api/v1/fits", {"unit": "G1", "params": ["governor.droop=0.02:0.1"], "starts": 10 ** 12,
                               "recording": {"format": "csv", "text": "t_s"}}, 400, "starts: must be a whole number from 1 to 32"),
@@ -529,12 +532,17 @@ class AttackFindingsTests(DemoServerCase):
                                          ("Bearer  ", 401, "holds no token"),
                                          ("Bearer wrong", 403, "wrong instructor token")):
             with self.subTest(header=header[:20]):
+                t0 = time.monotonic()
                 s, reply, _ = self.srv.request("GET", "/api/v1/role", headers={"Authorization": header})
                 self.assertEqual(s, status, reply)
                 if fragment:
                     self.assertIn(fragment, reply["error"])
                 else:
                     self.assertEqual(reply["role"], "instructor")
+                if status == 403:  # a refused token is answered after a second, and counted
+                    self.assertGreaterEqual(time.monotonic() - t0, 0.9)
+        _, metrics, _ = self.srv.request("GET", "/metrics")
+        self.assertRegex(metrics.decode(), r"droopline_auth_refused_total [1-9]")
 
     def test_head_answers_carry_no_body(self):
         for path in ("/api/v1/nothing", "/api/v1/state", "/healthz", "/nothing.js"):
@@ -551,8 +559,12 @@ class AttackFindingsTests(DemoServerCase):
                 out["binary"] = await next_of(ws, "error")
                 await ws.send(json.dumps({"type": "auth", "token": "nope"}))
                 out["auth"] = await next_of(ws, "auth")
+                # Within a second of a refused token, the next is not even checked.
                 await ws.send(json.dumps({"type": "auth", "token": TOKEN}))
-                await next_of(ws, "auth")
+                out["too_soon"] = await next_of(ws, "auth")
+                await asyncio.sleep(1.1)
+                await ws.send(json.dumps({"type": "auth", "token": TOKEN}))
+                out["later"] = await next_of(ws, "auth")
                 await ws.send(json.dumps({"type": "control", "id": 1, "action": "speed", "speed": 500}))
                 out["speed"] = await next_of(ws, "reply")
                 await ws.send(json.dumps({"type": "control", "id": 2, "action": "fly"}))
@@ -571,6 +583,9 @@ class AttackFindingsTests(DemoServerCase):
         self.assertIn("text frames holding JSON", out["binary"]["error"])
         self.assertFalse(out["auth"]["ok"])
         self.assertEqual(out["auth"]["error"], "wrong instructor token")
+        self.assertEqual((out["too_soon"]["ok"], out["too_soon"]["error"]),
+                         (False, "too soon after a refused token or code: wait a second, then try again"))
+        self.assertTrue(out["later"]["ok"])
         self.assertEqual(out["speed"]["body"]["error"], "speed: must lie within [0.1, 100], got 500")
         self.assertIn('action: must be one of "pause", "resume", "reset", "speed", "rewind", "end", got "fly"', out["action"]["body"]["error"])
         self.assertIn("commands: required", out["commands"]["body"]["error"])

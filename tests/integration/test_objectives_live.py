@@ -193,6 +193,18 @@ class ObjectivesLive(LiveCase):
         reply = self.call("POST", "/api/v1/seats/join", {"name": "n" * 59 + "\u00e9" * 10}, token=west)
         self.assertEqual(reply["name"], "n" * 59)
         reply = self.call("POST", "/api/v1/seats/join", {"name": "Tamsin Orrey"}, token=west)
+        # A desk has a few trainees in a run, not hundreds (each name goes into the records): past
+        # eight names a new one is refused; one already given is still taken.
+        refused = None
+        for i in range(10):
+            s, reply, _ = self.srv.request("POST", "/api/v1/seats/join", {"name": f"Trainee {i}"}, west)
+            if s != 200:
+                refused = (i, s, reply["error"])
+                break
+        self.assertIsNotNone(refused)
+        self.assertEqual(refused[1], 409)
+        self.assertIn('seat "west-desk" has had 8 trainees in this run', refused[2])
+        reply = self.call("POST", "/api/v1/seats/join", {"name": "Tamsin Orrey"}, token=west)
         # The instructor has no seat to name.
         s, reply, _ = self.srv.request("POST", "/api/v1/seats/join", {"name": "a"}, TOKEN)
         self.assertEqual(s, 403, reply)
