@@ -86,7 +86,7 @@ UnitState Engine::Impl::unit_state(std::size_t u) {
     if (ur.starting)
       st.status = UnitStatus::starting;
     else if (!ur.online)
-      st.status = ur.stopped ? UnitStatus::offline : UnitStatus::tripped;
+      st.status = ur.tripped ? UnitStatus::tripped : UnitStatus::offline;  // offline: stopped, or never started
     else if (ur.stopping)
       st.status = UnitStatus::stopping;
     else if (st.valve_mw >= hi - tol || M::cannot_raise(x, p, tol))
