@@ -99,3 +99,24 @@ TEST_CASE("modes of the shipped scenarios: finite, sorted, with notes") {
   for (const auto& [s, share] : inter.participation) both = both || s == "area2.angle_rad";
   CHECK(both);
 }
+
+TEST_CASE("a unit on its limit: no mode that does not exist, and a note naming the state") {
+  // The isolated station's unit dispatched at its maximum: its valve is held there for a rise in
+  // demand and free for a fall. A central difference across that kink averages the two into a
+  // fast real mode near ln(1/2)/step (about -69 1/s at 0.01 s) that the system does not have.
+  SystemDef d = test::load("scenarios/textbook_isolated_station.json");
+  d.units[0].max_mw = d.units[0].setpoint_mw;
+  const ModesResult at_max = small_signal(d);
+  REQUIRE(at_max.error.empty());
+  for (const Mode& m : at_max.modes) CHECK(m.lambda.real() > -20.0);  // the fastest lag is 0.2 s: -5 1/s
+  CHECK(std::any_of(at_max.notes.begin(), at_max.notes.end(),
+                    [](const std::string& n) { return n.rfind("on a limit at the operating point: ", 0) == 0; }));
+  // Off the limit the modes are the same as on its free side, and no such note is given.
+  d.units[0].max_mw = d.units[0].setpoint_mw + 50.0;
+  const ModesResult free = small_signal(d);
+  CHECK(std::none_of(free.notes.begin(), free.notes.end(),
+                     [](const std::string& n) { return n.rfind("on a limit", 0) == 0; }));
+  REQUIRE(free.modes.size() == at_max.modes.size());
+  for (std::size_t i = 0; i < free.modes.size(); ++i)
+    CHECK(std::abs(free.modes[i].lambda - at_max.modes[i].lambda) < 1e-4 * std::abs(free.modes[i].lambda) + 1e-6);
+}

@@ -21,13 +21,41 @@ ModesResult small_signal(const SystemDef& base, const ModesOptions& opt) {
     u.governor.deadband_hz = 0.0;
   }
   for (const AreaDef& a : def.areas) had_agc = had_agc || a.agc.enabled;
-  const CheckResult checked = check(def);  // the events and deadbands changed: check again
+  CheckResult checked = check(def);  // the events and deadbands changed: check again
   if (!checked.system) {
     for (const Issue& i : checked.issues)
       if (!i.warning) out.error += (out.error.empty() ? "" : "; ") + i.text();
     return out;
   }
-  const std::unique_ptr<Engine> engine = Engine::create(*checked.system);
+  std::unique_ptr<Engine> engine = Engine::create(*checked.system);
+  // A unit dispatched on a limit has a kink there: held for a push further, free for one back. A
+  // central difference across it averages the two into a mode that does not exist (near
+  // ln(1/2)/step), so the limit is moved 1 % of the rating away (the operating point stays) and
+  // the modes are those of the free side; a note names the units.
+  std::string limited;
+  for (std::uint32_t u = 0; u < def.units.size(); ++u) {
+    const UnitStatus st = engine->unit(UnitId{u}).status;
+    if (st != UnitStatus::at_max && st != UnitStatus::at_min) continue;
+    UnitDef& ud = def.units[u];
+    const double margin = 0.01 * ud.rating_mw;
+    if (st == UnitStatus::at_max) {
+      ud.max_mw = ud.max_mw.value_or(ud.rating_mw) + margin;
+      if (ud.turbine.type == TurbineType::gas)
+        ud.turbine.load_limit_mw = ud.turbine.load_limit_mw.value_or(ud.rating_mw) + margin;
+    } else {
+      ud.min_mw = ud.min_mw.value_or(ud.turbine.type == TurbineType::battery ? -ud.rating_mw : 0.0) - margin;
+    }
+    limited += (limited.empty() ? "" : ", ") + ud.id + (st == UnitStatus::at_max ? " (upper)" : " (lower)");
+  }
+  if (!limited.empty()) {
+    if (CheckResult widened = check(def); widened.system) {
+      checked = std::move(widened);
+      engine = Engine::create(*checked.system);
+      out.notes.push_back("on a limit at the operating point: " + limited +
+                          "; the modes are those of a disturbance that moves these units off it (one that pushes "
+                          "them further holds them there: they then take no part)");
+    }
+  }
   Engine& e = *engine;
   const double h = def.step_s;
   const std::vector<double> x0 = e.state();
