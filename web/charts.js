@@ -14,7 +14,12 @@ let timeColumn = 0;
 
 // A chart's height is a share of the window's: 0.22, or its container's `data-height-share`.
 const heightShare = (el) => Number(el.closest('[data-height-share]')?.dataset.heightShare) || 0.22;
-const chartSize = (el) => ({ width: Math.max(300, el.clientWidth), height: Math.max(180, Math.round(window.innerHeight * heightShare(el))) });
+// On the wall (one screen, no scrolling) the exercise's end banner takes its height from the chart's.
+const bannerHeight = () => (app.view === 'wall' && !$('exercise-ended')?.hidden ? $('exercise-ended').offsetHeight : 0);
+const chartSize = (el) => ({
+  width: Math.max(300, el.clientWidth),
+  height: Math.max(180, Math.round(window.innerHeight * heightShare(el)) - bannerHeight()),
+});
 const valueText = (digits) => (u, v) => (v == null ? '-' : v.toFixed(digits));
 
 // The axes; on the wall their figures follow the page's size (readable across a room).

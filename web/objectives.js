@@ -52,7 +52,10 @@ export async function fetchObjectives(errorOut) {
 export function showEnded(ended, why = '') {
   const banner = $('exercise-ended');
   if (!banner) return;
+  const changed = banner.hidden === ended;
   banner.hidden = !ended;
+  // The charts give the banner its room (the wall is one screen with no scrolling).
+  if (changed) requestAnimationFrame(() => window.dispatchEvent(new Event('resize')));
   if (ended && why) $('exercise-ended-why').textContent = why;
   if (ended && app.exercise) app.exercise.ended = true;
 }

@@ -66,6 +66,11 @@ export function renderWall(f) {
     tile.querySelector('.figure').textContent = s.collapsed ? 'collapsed' : fmt(s.f_hz, 3);
     tile.querySelector('.tile-sub').textContent = `RoCoF ${fmt(s.rocof_hz_per_s, 3)} Hz/s · ACE ${fmt(s.ace_mw, 0)} MW`;
   }
+  // The list was fitted to the room it had then; the layout may have moved since (a banner, a
+  // label on two lines, a greeting after a rewind): fitted again when its last line is cut.
+  const list = $('wall-alarms');
+  const last = [...list.children].reverse().find((li) => !li.hidden);
+  if (last && last.getBoundingClientRect().bottom > list.getBoundingClientRect().bottom + 0.5) showAlarms();
   const limit = app.exercise?.time_limit_s;
   $('wall-time').textContent = clockText(f.t_s);
   $('wall-limit').textContent = limit ? `of ${clockText(limit)}${f.t_s > limit ? ' (time is up)' : ''}` : '';

@@ -162,11 +162,12 @@ std::string chart(const std::string& title, const std::string& ylabel, const std
            (r < 0 ? std::string()
                   : "<text x=\"" + num(left ? x - 8 : x + 8) + "\" y=\"" + num(ly + 4) + "\" font-size=\"10\"" +
                         (left ? " text-anchor=\"end\"" : "") + " fill=\"#4b2a63\">" + esc(m.label) + "</text>");
+    else if (r < 0)  // no room for its number: a small dot, not an empty circle that looks numbered
+      s += "<circle cx=\"" + num(x) + "\" cy=\"" + num(ly + 6) + "\" r=\"3\" fill=\"#333\"/>";
     else
       s += "<circle cx=\"" + num(x) + "\" cy=\"" + num(ly) + "\" r=\"6.5\" fill=\"#fff\" stroke=\"#333\"/>" +
-           (r < 0 ? std::string()
-                  : "<text x=\"" + num(x) + "\" y=\"" + num(ly + 3.5) + "\" font-size=\"9\" text-anchor=\"middle\">" +
-                        esc(m.label) + "</text>");
+           "<text x=\"" + num(x) + "\" y=\"" + num(ly + 3.5) + "\" font-size=\"9\" text-anchor=\"middle\">" +
+           esc(m.label) + "</text>";
     s += "</g>\n";
   }
   return s + "</svg>\n";
@@ -199,7 +200,8 @@ std::string charts(const Debrief& d) {
   const DebriefSeries& s = d.series;
   const std::vector<Mark> marks = marks_of(d);
   const std::string marks_key =
-      "<br><span class=\"key\">(1) an action, numbered as in the timeline</span><span class=\"key\">&#9660; S1 a "
+      "<br><span class=\"key\">(1) an action, numbered as in the timeline (&#9679; one too close to others to "
+      "number: its number when pointed at)</span><span class=\"key\">&#9660; S1 a "
       "script "
       "event (dashed)</span><span class=\"key\">&#9670; A1 an alarm raised</span>";
   auto lines_of = [](const std::vector<std::string>& names, const std::vector<std::vector<double>>& ys) {
