@@ -132,6 +132,8 @@ int serve(Options options) {
   if (const Journal journal(opt.journal); !journal.ok()) {
     spdlog::error("{}", journal.error());
     return 1;
+  } else if (!journal.repaired().empty()) {
+    spdlog::warn("{}", journal.repaired());  // opening it cut off a torn last record
   }
   if (made_token) {
     std::printf("instructor token (printed once): %s\n", ctx.token.c_str());
