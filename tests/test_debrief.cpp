@@ -417,4 +417,39 @@ TEST_CASE("debrief: each disturbance's settling deviation, measured and predicte
   const std::string row = html->substr(at, html->find("</tr>", at) - at);
   CHECK(row.find(fmt_fixed(second["settling_hz"].get<double>() - pre, 3) + " Hz") != std::string::npos);
   CHECK(row.find(fmt_fixed(predicted - pre, 3) + " Hz") != std::string::npos);
+  // Secondary control off throughout: no caveat on either.
+  CHECK_FALSE(d["disturbances"][0]["secondary_in_window"].get<bool>());
+  CHECK(html->find("Secondary control was on in this island") == std::string::npos);
+}
+
+TEST_CASE("debrief: a disturbance whose settling window secondary control acted in says so", "[debrief]") {
+  // Secondary control switched on in the west at 10 s, after a load step at 2 s (window 22..54 s)
+  // and before one at 62 s (window 82..114 s): both windows see it; a run with it switched off
+  // again at 15 s sees it in neither.
+  const json x = exercise_json();
+  const Exercise ex = exercise_of(x);
+  const Plan p{ex.system.def().step_s};
+  const json step{{"kind", "load_step"}, {"area", "west"}, {"mw", 30}};
+  auto lines = [&](bool off_again) {
+    std::vector<std::string> l{
+        json{{"type", "scenario"}, {"step", 0}, {"run", kRun}, {"scenario", x["scenario"]}}.dump(),
+        batch(p.at(2), step, "instructor").dump(),
+        batch(p.at(10), json{{"kind", "agc"}, {"area", "west"}, {"enabled", true}}, "instructor").dump()};
+    if (off_again) l.push_back(batch(p.at(15), json{{"kind", "agc"}, {"area", "west"}, {"enabled", false}}, "instructor").dump());
+    l.push_back(batch(p.at(62), step, "instructor").dump());
+    l.push_back(json{{"type", "end"}, {"step", p.at(122)}, {"complete", false}, {"why", "ended"}}.dump());
+    return l;
+  };
+  JournalFile on(lines(false)), off(lines(true));
+  const json d_on = debrief_of(on.path), d_off = debrief_of(off.path);
+  REQUIRE(d_on["disturbances"].size() == 2);
+  REQUIRE(d_off["disturbances"].size() == 2);
+  CHECK(d_on["disturbances"][0]["secondary_in_window"].get<bool>());
+  CHECK(d_on["disturbances"][1]["secondary_in_window"].get<bool>());
+  CHECK_FALSE(d_off["disturbances"][0]["secondary_in_window"].get<bool>());
+  CHECK_FALSE(d_off["disturbances"][1]["secondary_in_window"].get<bool>());
+  std::string error;
+  const std::optional<std::string> html = debrief_html(on.path.string(), "", {}, error);
+  REQUIRE(html);
+  CHECK(html->find("Secondary control was on in this island during the settling window") != std::string::npos);
 }

@@ -41,7 +41,7 @@ const char* mark_kind(JournalMark::Kind k) {
 DebriefDisturbance disturbance_of(const SystemDef& def, const Disturbance& d) {
   DebriefDisturbance out{
       d.at_s,        describe_cause(def, d),  d.delta_mw, d.rocof_hz_per_s,        d.zenith, d.nadir_hz, d.nadir_at_s,
-      d.settling_hz, d.response_mw_per_0p1hz, d.pre_hz,   d.predicted_settling_hz, {}};
+      d.settling_hz, d.response_mw_per_0p1hz, d.pre_hz,   d.predicted_settling_hz, false, {}};
   for (const UnitResponse& u : d.units)
     out.units.push_back({def.units[u.unit].id, u.predicted_mw, u.response_10s_mw, u.response_30s_mw});
   return out;
@@ -74,6 +74,7 @@ class Resim {
     d_.series.f_hz.resize(def.areas.size());
     d_.series.ace_mw.resize(def.areas.size());
     d_.series.flow_mw.resize(def.ties.size());
+    secondary_.resize(def.areas.size());
     const auto by_time = static_cast<std::int64_t>(std::llround(kSampleS / def.step_s));
     const auto by_count = static_cast<std::int64_t>(std::ceil(static_cast<double>(run.last_step) / kMaxSamples));
     every_ = std::max<std::int64_t>({1, by_time, by_count});
@@ -96,15 +97,40 @@ class Resim {
       pending_.insert(pending_.end(), fresh.begin(), fresh.end());
       for (const AlarmChange& c : feed_monitors(*engine_, alarms_, objectives_, pending_)) alarm_event(c);
       if (engine_->step_index() % every_ == 0) sample();
+      track_secondary();
     }
     engine_->close_disturbances();
     d_.end_s = engine_->time_s();
-    for (const Disturbance& dist : engine_->disturbances()) d_.disturbances.push_back(disturbance_of(def, dist));
+    for (Span& s : secondary_)
+      if (s.on) s.spans.emplace_back(s.since, d_.end_s);
+    for (const Disturbance& dist : engine_->disturbances()) {
+      d_.disturbances.push_back(disturbance_of(def, dist));
+      for (std::uint32_t i : dist.areas)
+        for (const auto& [from, to] : secondary_[i].spans)
+          if (from <= dist.at_s + 52.0 + 1e-9 && to >= dist.at_s + 20.0 - 1e-9)
+            d_.disturbances.back().secondary_in_window = true;
+    }
     if (objectives_) d_.scores = objectives_->scores(alarms_ ? &*alarms_ : nullptr);
     alarm_delays();
   }
 
  private:
+  // When each area's secondary control was on: spans of simulated time.
+  struct Span {
+    bool on = false;
+    double since = 0.0;
+    std::vector<std::pair<double, double>> spans;
+  };
+  void track_secondary() {
+    for (std::uint32_t i = 0; i < secondary_.size(); ++i) {
+      Span& s = secondary_[i];
+      const bool on = engine_->area(AreaId{i}).agc_enabled;
+      if (on && !s.on) s.since = engine_->time_s();
+      if (!on && s.on) s.spans.emplace_back(s.since, engine_->time_s());
+      s.on = on;
+    }
+  }
+
   void sample() {
     DebriefSeries& s = d_.series;
     s.t_s.push_back(engine_->time_s());
@@ -203,6 +229,7 @@ class Resim {
   std::vector<Notice> pending_;  // since the alarm monitor's last update
   std::vector<std::pair<double, std::string>> actions_at_;
   std::int64_t every_ = 1;
+  std::vector<Span> secondary_;
   int actions_ = 0, scripts_ = 0;
 };
 
@@ -331,6 +358,7 @@ std::optional<nlohmann::ordered_json> debrief_json(const std::string& journal_pa
                          {"pre_hz", x.pre_hz},
                          {"settling_hz", opt(x.settling_hz)},
                          {"predicted_settling_hz", x.predicted_settling_hz},
+                         {"secondary_in_window", x.secondary_in_window},
                          {"response_mw_per_0p1hz", opt(x.response_mw_per_0p1hz)},
                          {"units", units}});
   }

@@ -44,6 +44,9 @@ struct DebriefDisturbance {
   std::optional<double> nadir_hz, nadir_at_s, settling_hz, response_mw_per_0p1hz;
   double pre_hz = 0.0;
   double predicted_settling_hz = 0.0;
+  /// Secondary control was on in the island during the settling window (t0+20..t0+52 s): the
+  /// settling frequency and the response figure then show its action, not the governors' alone.
+  bool secondary_in_window = false;
   std::vector<DebriefUnit> units;
 };
 

@@ -25,6 +25,7 @@ std::string css() {
 max-width:1120px;padding:18px 22px;line-height:1.4}
 h1{font-size:1.6em;margin:0 0 4px}h2{font-size:1.25em;border-bottom:2px solid #d8dde3;padding-bottom:3px;margin:26px 0 10px}
 h3{font-size:1.05em;margin:16px 0 6px}
+.caveat{border-left:4px solid #c98a00;background:#fff8e6;padding:4px 10px;margin:6px 0 12px}
 .meta{color:#444}.meta span{margin-right:18px;display:inline-block}
 .status-complete{color:#2f6b36;font-weight:600}.status-incomplete{color:#9c3b1f;font-weight:600}
 .caution{border-left:4px solid #a27300;background:#fbf6e9;padding:6px 10px;margin:12px 0}
@@ -296,6 +297,10 @@ std::string disturbances(const Debrief& d) {
          "</td><td></td></tr>\n";
     h += "<tr><td>response</td><td class=\"num\">" + fixed(x.response_mw_per_0p1hz, 1, " MW/0.1 Hz") +
          "</td><td></td></tr>\n</tbody></table>\n";
+    if (x.secondary_in_window)
+      h += "<p class=\"caveat\">Secondary control was on in this island during the settling window (20 to 52 s "
+           "after): the settling frequency and the response show its action as well as the governors', so they "
+           "are not a measure of the droop response.</p>\n";
     if (x.units.empty()) continue;
     // The largest droop shares first; a large fleet shows its first twelve.
     std::vector<DebriefUnit> units = x.units;
