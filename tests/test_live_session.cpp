@@ -578,4 +578,16 @@ TEST_CASE("a journal whose last record a crash cut short is cut back to whole li
   write(std::string(10000, 'x'));
   CHECK_FALSE(Journal(path).repaired().empty());
   CHECK(contents().empty());
+  // A whole last line that is no record: refused before anything is appended after it.
+  write(whole + "\ngarbage\n");
+  {
+    Journal j(path);
+    CHECK_FALSE(j.ok());
+    CHECK(j.error().find("its last line is not a journal record") != std::string::npos);
+  }
+  write(whole + "\n[1, 2]\n");
+  CHECK_FALSE(Journal(path).ok());
+  CHECK(contents() == whole + "\n[1, 2]\n");  // left as it was
+  write(whole + "\n");
+  CHECK(Journal(path).ok());
 }

@@ -71,6 +71,7 @@ std::vector<std::string> read_sweep(const json& j, study::SweepSpec& spec, std::
     // The limits on fields and values are checked as the entries are read, before any is expanded.
     std::string err;
     auto parsed = study::parse_varies(j["vary"].get<std::vector<std::string>>(), err);
+    if (err.rfind("--vary ", 0) == 0) err.erase(0, 7);  // the command line's option, not a field here
     if (!parsed)
       problems.push_back("vary: " + err);
     else
@@ -150,8 +151,10 @@ void post_sweep(Services& s, Call& c) {
     LoadResult r = parse_scenario(scenario_text);
     if (!r.system) return answer(respond, 400, error_json("invalid scenario", issue_texts(r.issues)));
     spec.scenario = scenario_to_json(r.system->def());
-    if (std::string paths = study::check_vary_paths(spec.scenario, spec.vary); !paths.empty())
+    if (std::string paths = study::check_vary_paths(spec.scenario, spec.vary); !paths.empty()) {
+      for (std::size_t at; (at = paths.find("--vary ")) != std::string::npos;) paths.erase(at, 2);  // "vary ..."
       return answer(respond, 400, error_json(paths));
+    }
     // Each axis at its smallest and largest value must give a valid scenario: an absurd value is
     // refused now, not found in every row later.
     for (const auto& v : spec.vary)

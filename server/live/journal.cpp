@@ -24,6 +24,36 @@ Journal::Journal(std::string path) : path_(std::move(path)) {
   }
   ::close(fd);
   cut_torn_tail();
+  check_last_line();
+}
+
+void Journal::check_last_line() {
+  // A whole last line that is no journal record (edited by hand, another file given) would make
+  // every record after it unreadable to replay: refused before anything is appended.
+  const int fd = ::open(path_.c_str(), O_RDONLY | O_CLOEXEC);
+  if (fd < 0) return;
+  struct stat st {};
+  if (::fstat(fd, &st) != 0 || !S_ISREG(st.st_mode) || st.st_size < 2) {
+    ::close(fd);
+    return;
+  }
+  constexpr off_t kMost = 1 << 20;  // a longer last line (a huge scenario) is not looked at
+  const off_t from = st.st_size > kMost ? st.st_size - kMost : 0;
+  std::string tail(static_cast<std::size_t>(st.st_size - from), '\0');
+  const ssize_t n = ::pread(fd, tail.data(), tail.size(), from);
+  ::close(fd);
+  if (n != static_cast<ssize_t>(tail.size()) || tail.back() != '\n') return;
+  tail.pop_back();
+  const std::size_t nl = tail.rfind('\n');
+  if (nl == std::string::npos && from > 0) return;
+  const std::string_view last = nl == std::string::npos ? std::string_view(tail) : std::string_view(tail).substr(nl + 1);
+  std::string why;
+  const auto j = parse_untrusted_json(last, why);
+  if (j && j->is_object() && j->contains("type")) return;
+  ok_ = false;
+  error_ = "journal \"" + path_ + "\": its last line is not a journal record (" +
+           (j ? std::string("a JSON value without \"type\"") : why) +
+           "): records appended after it could not be replayed; move the file aside, or remove that line";
 }
 
 void Journal::cut_torn_tail() {

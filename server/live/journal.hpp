@@ -67,6 +67,7 @@ class Journal {
  private:
   std::string path_;
   void cut_torn_tail();
+  void check_last_line();
   bool ok_ = true;
   std::string error_;
   std::string repaired_;

@@ -190,8 +190,8 @@ void HttpSession::answer(unsigned version, bool keep_alive, Reply reply) {
 
 void HttpSession::upgrade(HttpRequest&& req) {
   const Target t = parse_target(req.target());
-  auto refuse = [&](int status, const std::string& why) {
-    send(json_response(req.version(), false, status, error_json(why)));
+  auto refuse = [self = shared_from_this(), version = req.version()](int status, const std::string& why) {
+    self->send(json_response(version, false, status, error_json(why)));
   };
   if (t.path != "/api/v1/stream") return refuse(404, "WebSocket is served at /api/v1/stream only");
   // Browsers send Origin; it must be this server (or an allowed origin). Scripts may omit it.
@@ -207,7 +207,8 @@ void HttpSession::upgrade(HttpRequest&& req) {
     Request probe;
     probe.authorization = std::string(req[http::field::authorization]);
     proof = role_of(probe, ctx_.token, ctx_.seats);
-    if (proof.refused_status) return refuse(proof.refused_status, proof.refused);
+    if (proof.refused_status)
+      return after_refusal([refuse, proof] { refuse(proof.refused_status, proof.refused); });
   }
   stream_.expires_never();
   std::make_shared<WebsocketSession>(stream_.release_socket(), ctx_, std::move(proof), slot_)->run(std::move(req));
@@ -231,18 +232,21 @@ void HttpSession::handle(HttpRequest&& req) {
   }
   // A refused token or join code is answered after a second: guessing a code over one connection
   // then takes months, not hours (the limit per address bounds the connections).
-  if (call.authorization && role_of(call, ctx_.token, ctx_.seats).refused_status) {
-    ctx_.counters.auth_refused.fetch_add(1);
-    beast::error_code peer_ec;
-    const auto peer = stream_.socket().remote_endpoint(peer_ec);
-    spdlog::info("client {}: a token or join code refused", peer_ec ? std::string("?") : peer.address().to_string());
-    auto timer = std::make_shared<net::steady_timer>(stream_.get_executor(), std::chrono::seconds(1));
-    timer->async_wait([self = shared_from_this(), timer, call = std::move(call), version, keep](beast::error_code) mutable {
+  if (call.authorization && role_of(call, ctx_.token, ctx_.seats).refused_status)
+    return after_refusal([self = shared_from_this(), call = std::move(call), version, keep]() mutable {
       self->dispatch(std::move(call), version, keep);
     });
-    return;
-  }
   dispatch(std::move(call), version, keep);
+}
+
+void HttpSession::after_refusal(std::function<void()> then) {
+  ctx_.counters.auth_refused.fetch_add(1);
+  beast::error_code peer_ec;
+  const auto peer = stream_.socket().remote_endpoint(peer_ec);
+  spdlog::info("client {}: a token or join code refused", peer_ec ? std::string("?") : peer.address().to_string());
+  // The connection keeps its place under the limits meanwhile, so closing it does not help.
+  auto timer = std::make_shared<net::steady_timer>(stream_.get_executor(), std::chrono::seconds(1));
+  timer->async_wait([timer, then = std::move(then)](beast::error_code) { then(); });
 }
 
 void HttpSession::dispatch(Request call, unsigned version, bool keep) {

@@ -2,6 +2,7 @@
 // One HTTP connection: reads requests under size and time limits, hands them to the API (the
 // route table in api/), serves the page's files, and hands WebSocket upgrades of /api/v1/stream
 // to a WebsocketSession. Only I/O, limits and the static files live here.
+#include <functional>
 #include <array>
 #include <memory>
 #include <optional>
@@ -41,6 +42,9 @@ class HttpSession : public std::enable_shared_from_this<HttpSession> {
   /// Hands the request to the API's route table; what is not the API's is a page file.
   void handle(HttpRequest&& req);
   void dispatch(Request call, unsigned version, bool keep);  // to the API, else the page's files
+  /// A refused token or join code (on a request or an upgrade): counted, logged, and `then` run a
+  /// second later, so guessing costs a second a try and a place under the connection limits.
+  void after_refusal(std::function<void()> then);
   /// Writes the API's reply (on this connection's strand).
   void answer(unsigned version, bool keep_alive, Reply reply);
 

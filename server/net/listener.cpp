@@ -77,6 +77,18 @@ void Listener::on_accept(beast::error_code ec, tcp::socket socket) {
 }
 
 // Over the limit: a short 503 written without reading the request, then close.
+bool AuthBackoff::too_soon(const std::string& address, Clock::time_point now) {
+  std::lock_guard lock(mutex_);
+  auto it = next_.find(address);
+  return it != next_.end() && now < it->second;
+}
+
+void AuthBackoff::refused(const std::string& address, Clock::time_point now, Clock::duration wait) {
+  std::lock_guard lock(mutex_);
+  if (next_.size() > 4096) std::erase_if(next_, [&](const auto& e) { return e.second <= now; });  // bounded
+  next_[address] = now + wait;
+}
+
 bool PerAddress::take(const std::string& address, std::size_t most) {
   std::lock_guard lock(mutex_);
   std::size_t& n = open_[address];

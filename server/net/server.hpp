@@ -5,6 +5,7 @@
 //   websocket_session (one client; its control messages through api::Api)
 //   hub (the set of clients; fans one encoded frame out to all)
 #include <atomic>
+#include <chrono>
 #include <cstdint>
 #include <memory>
 #include <mutex>
@@ -43,8 +44,24 @@ class PerAddress {
   std::unordered_map<std::string, std::size_t> open_;
 };
 
+/// After a refused token or join code, when that client address may be checked again (thread-safe):
+/// a WebSocket client that reconnects to try again is held back as one that stays connected.
+class AuthBackoff {
+ public:
+  using Clock = std::chrono::steady_clock;
+  /// True while `address` must wait after its last refusal.
+  bool too_soon(const std::string& address, Clock::time_point now);
+  /// A refusal for `address`: it waits `wait` before its next check.
+  void refused(const std::string& address, Clock::time_point now, Clock::duration wait);
+
+ private:
+  std::mutex mutex_;
+  std::unordered_map<std::string, Clock::time_point> next_;
+};
+
 struct Context : Services {
   PerAddress per_address;                      ///< open connections by client address
+  AuthBackoff auth_backoff;                    ///< refused tokens and codes by client address
   net::io_context* ioc = nullptr;
   Hub hub;                                     ///< the streaming clients
   std::unique_ptr<net::thread_pool> replay_pool;  ///< the worker pool behind `run_on_workers`

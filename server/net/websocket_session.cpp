@@ -34,7 +34,8 @@ WebsocketSession::WebsocketSession(tcp::socket&& socket, Context& ctx, Proof pro
   become(std::move(proof));
   beast::error_code ec;
   const auto ep = beast::get_lowest_layer(ws_).remote_endpoint(ec);
-  peer_ = ec ? "?" : ep.address().to_string() + ":" + std::to_string(ep.port());
+  address_ = ec ? "?" : ep.address().to_string();
+  peer_ = ec ? "?" : address_ + ":" + std::to_string(ep.port());
 }
 
 void WebsocketSession::become(Proof proof) {
@@ -157,7 +158,7 @@ void WebsocketSession::handle_message(const std::string& text) {
   if (type == "auth") {
     const bool given = j.contains("token") && j["token"].is_string();
     const auto now = std::chrono::steady_clock::now();
-    if (given && now < next_auth_)
+    if (given && ctx_.auth_backoff.too_soon(address_, now))
       return reply(safe_dump(json{{"type", "auth"},
                                   {"id", id},
                                   {"ok", false},
@@ -165,7 +166,7 @@ void WebsocketSession::handle_message(const std::string& text) {
                                   {"error", "too soon after a refused token or code: wait a second, then try again"}}));
     Proof proof = given ? prove(j["token"].get_ref<const std::string&>(), ctx_.token, ctx_.seats) : Proof{};
     if (given && proof.refused_status) {
-      next_auth_ = now + kAuthRetry;
+      ctx_.auth_backoff.refused(address_, now, kAuthRetry);
       ctx_.counters.auth_refused.fetch_add(1);
       spdlog::info("client {}: a token or join code refused", peer_);
     }

@@ -51,10 +51,9 @@ class WebsocketSession : public std::enable_shared_from_this<WebsocketSession> {
   bool joined_ = false;
   std::uint64_t dropped_ = 0;      // not yet reported to the client
   std::uint64_t drop_streak_ = 0;  // frames dropped since the last one delivered
-  std::string peer_;
-  // After a refused token or code, the next is not checked before this (guessing a join code at
-  // the rate the socket carries would otherwise take hours, not months).
-  std::chrono::steady_clock::time_point next_auth_;
+  std::string peer_;     // address:port, for the log
+  std::string address_;  // the client's address: after a refused token or code it waits a second
+                         // (ctx_.auth_backoff), however many sockets it opens
 };
 
 }  // namespace droopline::server

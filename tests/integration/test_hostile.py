@@ -11,6 +11,7 @@ import asyncio
 import http.client
 import json
 import os
+import re
 import shutil
 import socket
 import sys
@@ -541,8 +542,19 @@ class AttackFindingsTests(DemoServerCase):
                     self.assertEqual(reply["role"], "instructor")
                 if status == 403:  # a refused token is answered after a second, and counted
                     self.assertGreaterEqual(time.monotonic() - t0, 0.9)
-        _, metrics, _ = self.srv.request("GET", "/metrics")
-        self.assertRegex(metrics.decode(), r"droopline_auth_refused_total [1-9]")
+        # A wrong token on the WebSocket upgrade itself: the same second, and counted.
+        def refused_count():
+            _, metrics, _ = self.srv.request("GET", "/metrics")
+            return int(re.search(rb"droopline_auth_refused_total (\d+)", metrics).group(1))
+        before = refused_count()
+        t0 = time.monotonic()
+        with socket.create_connection(("127.0.0.1", self.srv.port), timeout=10) as s:
+            s.sendall(b"GET /api/v1/stream HTTP/1.1\r\nHost: x\r\nUpgrade: websocket\r\nConnection: Upgrade\r\n"
+                      b"Sec-WebSocket-Version: 13\r\nSec-WebSocket-Key: dGhlIHNhbXBsZSBub25jZQ==\r\n"
+                      b"Authorization: Bearer wrong\r\n\r\n")
+            self.assertTrue(s.recv(100).startswith(b"HTTP/1.1 403"))
+        self.assertGreaterEqual(time.monotonic() - t0, 0.9)
+        self.assertEqual(refused_count(), before + 1)
 
     def test_head_answers_carry_no_body(self):
         for path in ("/api/v1/nothing", "/api/v1/state", "/healthz", "/nothing.js"):
@@ -559,9 +571,13 @@ class AttackFindingsTests(DemoServerCase):
                 out["binary"] = await next_of(ws, "error")
                 await ws.send(json.dumps({"type": "auth", "token": "nope"}))
                 out["auth"] = await next_of(ws, "auth")
-                # Within a second of a refused token, the next is not even checked.
+                # Within a second of a refused token, the next is not even checked, on this socket
+                # or on a new one from the same address.
                 await ws.send(json.dumps({"type": "auth", "token": TOKEN}))
                 out["too_soon"] = await next_of(ws, "auth")
+                async with websockets.connect(self.srv.ws_url(), max_size=2**24) as other:
+                    await other.send(json.dumps({"type": "auth", "token": TOKEN}))
+                    out["too_soon_elsewhere"] = await next_of(other, "auth")
                 await asyncio.sleep(1.1)
                 await ws.send(json.dumps({"type": "auth", "token": TOKEN}))
                 out["later"] = await next_of(ws, "auth")
@@ -583,8 +599,9 @@ class AttackFindingsTests(DemoServerCase):
         self.assertIn("text frames holding JSON", out["binary"]["error"])
         self.assertFalse(out["auth"]["ok"])
         self.assertEqual(out["auth"]["error"], "wrong instructor token")
-        self.assertEqual((out["too_soon"]["ok"], out["too_soon"]["error"]),
-                         (False, "too soon after a refused token or code: wait a second, then try again"))
+        for key in ("too_soon", "too_soon_elsewhere"):
+            self.assertEqual((out[key]["ok"], out[key]["error"]),
+                             (False, "too soon after a refused token or code: wait a second, then try again"))
         self.assertTrue(out["later"]["ok"])
         self.assertEqual(out["speed"]["body"]["error"], "speed: must lie within [0.1, 100], got 500")
         self.assertIn('action: must be one of "pause", "resume", "reset", "speed", "rewind", "end", got "fly"', out["action"]["body"]["error"])
