@@ -339,14 +339,24 @@ TEST_CASE("objectives: a seat's weighted mean on chosen numbers", "[objectives]"
   CHECK(out["objectives"][0]["measured"].is_null());
 }
 
+// The test file with one objective, the east desk's alarm_to_ack_s.
+Exercise ack_exercise() {
+  json j = json::parse(test::read_source(kFile));
+  j["objectives"] = json::parse(R"([{"id": "ack", "seat": "east-desk", "measure": "alarm_to_ack_s", "target": 30}])");
+  return test::load_ok(j.dump());
+}
+
+// Runs to 1 s, where the instructor trips e2.
+void trip_e2_at_1s(Run& run) {
+  run.run_to(1.0);
+  run.act("instructor", test::unit_cmd(CommandKind::unit_trip, "e2"));
+}
+
 TEST_CASE("objectives: alarm to acknowledgement counts the seat's own acknowledgements only", "[objectives]") {
   // e2 trips at 1 s: its alarms concern the east desk. The instructor acknowledges the first of
   // them at 3 s, the east desk the rest at 5 s; the measure is the mean over the desk's own.
-  json j = json::parse(test::read_source(kFile));
-  j["objectives"] = json::parse(R"([{"id": "ack", "seat": "east-desk", "measure": "alarm_to_ack_s", "target": 30}])");
-  Run run(test::load_ok(j.dump()));
-  run.run_to(1.0);
-  run.act("instructor", test::unit_cmd(CommandKind::unit_trip, "e2"));
+  Run run(ack_exercise());
+  trip_e2_at_1s(run);
   run.run_to(3.0);
   std::vector<const Alarm*> east;
   for (const Alarm& a : run.alarms.alarms())
@@ -445,11 +455,8 @@ TEST_CASE("objectives: every shipped exercise reads back from its JSON as it was
 TEST_CASE("objectives: an acknowledgement after the alarm cleared does not count against the seat", "[objectives]") {
   // e2 trips at 1 s; a frequency alarm of the east desk clears on its own as frequency recovers.
   // Acknowledged long after, it is left out, as it was before the acknowledgement.
-  json j = json::parse(test::read_source(kFile));
-  j["objectives"] = json::parse(R"([{"id": "ack", "seat": "east-desk", "measure": "alarm_to_ack_s", "target": 30}])");
-  Run run(test::load_ok(j.dump()));
-  run.run_to(1.0);
-  run.act("instructor", test::unit_cmd(CommandKind::unit_trip, "e2"));
+  Run run(ack_exercise());
+  trip_e2_at_1s(run);
   run.run_to(90.0);
   const Alarm* cleared = nullptr;
   for (const Alarm& a : run.alarms.alarms())

@@ -245,7 +245,7 @@ void HttpSession::after_refusal(std::function<void()> then) {
   const auto peer = stream_.socket().remote_endpoint(peer_ec);
   spdlog::info("client {}: a token or join code refused", peer_ec ? std::string("?") : peer.address().to_string());
   // The connection keeps its place under the limits meanwhile, so closing it does not help.
-  auto timer = std::make_shared<net::steady_timer>(stream_.get_executor(), std::chrono::seconds(1));
+  auto timer = std::make_shared<net::steady_timer>(stream_.get_executor(), AuthBackoff::kWait);
   timer->async_wait([timer, then = std::move(then)](beast::error_code) { then(); });
 }
 

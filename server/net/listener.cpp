@@ -9,11 +9,11 @@ namespace {
 
 // Holds one place under the connection limit, and under its address's, for as long as a session
 // keeps it. `address` is empty for an address the per-address limit does not count.
-std::shared_ptr<void> take_slot(Context& ctx, PerAddress& per, std::string address) {
+std::shared_ptr<void> take_slot(Context& ctx, std::string address) {
   ctx.counters.connections.fetch_add(1);
-  return std::shared_ptr<void>(nullptr, [&ctx, &per, address = std::move(address)](void*) {
+  return std::shared_ptr<void>(nullptr, [&ctx, address = std::move(address)](void*) {
     ctx.counters.connections.fetch_sub(1);
-    if (!address.empty()) per.release(address);
+    if (!address.empty()) ctx.per_address.release(address);
   });
 }
 
@@ -61,7 +61,7 @@ void Listener::on_accept(beast::error_code ec, tcp::socket socket) {
       ctx_.counters.refused.fetch_add(1);
       refuse(std::move(socket), "too many connections from this address");
     } else {
-      std::make_shared<HttpSession>(std::move(socket), ctx_, take_slot(ctx_, ctx_.per_address, address))->run();
+      std::make_shared<HttpSession>(std::move(socket), ctx_, take_slot(ctx_, address))->run();
     }
   } else if (!ctx_.stopping.load()) {
     // Out of descriptors (EMFILE/ENFILE) or memory: pause instead of spinning
@@ -83,19 +83,16 @@ bool AuthBackoff::too_soon(const std::string& address, Clock::time_point now) {
   return it != next_.end() && now < it->second;
 }
 
-void AuthBackoff::refused(const std::string& address, Clock::time_point now, Clock::duration wait) {
+void AuthBackoff::refused(const std::string& address, Clock::time_point now) {
   std::lock_guard lock(mutex_);
   if (next_.size() > 4096) std::erase_if(next_, [&](const auto& e) { return e.second <= now; });  // bounded
-  next_[address] = now + wait;
+  next_[address] = now + kWait;
 }
 
 bool PerAddress::take(const std::string& address, std::size_t most) {
   std::lock_guard lock(mutex_);
-  std::size_t& n = open_[address];
-  if (n >= most) {
-    if (n == 0) open_.erase(address);
-    return false;
-  }
+  std::size_t& n = open_[address];  // most >= 1: a new entry is always taken
+  if (n >= most) return false;
   ++n;
   return true;
 }
@@ -108,11 +105,11 @@ void PerAddress::release(const std::string& address) {
 
 void Listener::refuse(tcp::socket socket, const std::string& why) {
   auto s = std::make_shared<tcp::socket>(std::move(socket));
-  const std::string kError = "{\"error\":\"" + why + "\"}";
+  const std::string error = "{\"error\":\"" + why + "\"}";
   auto body = std::make_shared<std::string>(
       "HTTP/1.1 503 Service Unavailable\r\nContent-Type: application/json\r\nConnection: close\r\n"
       "Retry-After: 1\r\nContent-Length: " +
-      std::to_string(kError.size()) + "\r\n\r\n" + kError);
+      std::to_string(error.size()) + "\r\n\r\n" + error);
   net::async_write(*s, net::buffer(*body), [s, body](beast::error_code, std::size_t) {
     beast::error_code ignored;
     s->shutdown(tcp::socket::shutdown_both, ignored);

@@ -49,10 +49,13 @@ class PerAddress {
 class AuthBackoff {
  public:
   using Clock = std::chrono::steady_clock;
+  /// What a refused token or code costs: over HTTP and on an upgrade the answer waits this long,
+  /// after a WebSocket `auth` message the address does.
+  static constexpr Clock::duration kWait = std::chrono::seconds(1);
   /// True while `address` must wait after its last refusal.
   bool too_soon(const std::string& address, Clock::time_point now);
-  /// A refusal for `address`: it waits `wait` before its next check.
-  void refused(const std::string& address, Clock::time_point now, Clock::duration wait);
+  /// A refusal for `address`: it waits kWait before its next check.
+  void refused(const std::string& address, Clock::time_point now);
 
  private:
   std::mutex mutex_;

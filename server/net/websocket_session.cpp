@@ -15,7 +15,6 @@ using json = nlohmann::ordered_json;
 constexpr std::uint64_t kMaxDropStreak = 200;
 // Events and replies are never dropped; a client holding this many unsent has stopped reading.
 constexpr std::size_t kMaxQueuedEvents = 4096;
-constexpr auto kAuthRetry = std::chrono::seconds(1);  // after a refused token or code
 // Messages quote what the client sent; invalid UTF-8 in it is replaced, never thrown on.
 std::string safe_dump(const json& j) { return j.dump(-1, ' ', false, json::error_handler_t::replace); }
 constexpr std::size_t kMaxIdChars = 64;  // longest string id echoed back
@@ -166,7 +165,7 @@ void WebsocketSession::handle_message(const std::string& text) {
                                   {"error", "too soon after a refused token or code: wait a second, then try again"}}));
     Proof proof = given ? prove(j["token"].get_ref<const std::string&>(), ctx_.token, ctx_.seats) : Proof{};
     if (given && proof.refused_status) {
-      ctx_.auth_backoff.refused(address_, now, kAuthRetry);
+      ctx_.auth_backoff.refused(address_, now);
       ctx_.counters.auth_refused.fetch_add(1);
       spdlog::info("client {}: a token or join code refused", peer_);
     }
