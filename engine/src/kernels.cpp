@@ -51,8 +51,10 @@ inline double iso_rate(double kiso, double ed, double v, double lo, double hi) {
   do {                                               \
     if constexpr (S == 1) {                          \
       k##i[j] = (d);                                 \
-      ac##i[j] = (d);                                \
-    } else if constexpr (S < 4) {                    \
+    } else if constexpr (S == 2) {                   \
+      ac##i[j] = k##i[j] + 2.0 * (d);                \
+      k##i[j] = (d);                                 \
+    } else if constexpr (S == 3) {                   \
       k##i[j] = (d);                                 \
       ac##i[j] = ac##i[j] + 2.0 * (d);               \
     } else {                                         \

@@ -36,7 +36,7 @@ struct ModelParams {
 struct SegmentArrays {
   double* y[kMaxStates];    ///< state at the start of the step; stage 4 writes the new state
   double* k[kMaxStates];    ///< slope: read as the previous stage's, overwritten with this stage's
-  double* acc[kMaxStates];  ///< k1 + 2 k2 + 2 k3
+  double* acc[kMaxStates];  ///< k1 + 2 k2 + 2 k3, written from stage 2 on (stage 1 leaves it: k holds k1)
 };
 
 /// One RK4 stage: 1..4, the stage offset c (0, h/2, h/2, h) and h/6 for the final combination;
