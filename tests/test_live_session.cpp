@@ -297,7 +297,8 @@ namespace {
 
 // The session's rows within [from_s, to_s] as JSON (exact numbers: compared as text, bit for bit).
 json rows_between(const LiveSession& s, double from_s, double to_s) {
-  return json::parse(s.history(from_s, to_s, 0, false))["rows"];
+  std::string error;
+  return json::parse(s.history(from_s, to_s, 0, false, error).value())["rows"];
 }
 
 // Runs the session until its time has passed `t_s`, then pauses it; the time it paused at.

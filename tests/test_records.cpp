@@ -133,6 +133,12 @@ TEST_CASE("a version 1 file migrates to version 2 and keeps its rows") {
   store.trainee_joined(kRun, "north", "Ilse Marrow", 3.0);
   store.flush();
   CHECK(scalar(file, "SELECT name FROM trainees") == "Ilse Marrow");
+  // A trainee carried over a reset who never acted is taken off when somebody else joins: that
+  // name's row of that seat and run goes, the newcomer's stays.
+  store.trainee_joined(kRun, "north", "Tomas Brenn", 4.0);
+  store.trainee_withdrawn(kRun, "north", "Ilse Marrow");
+  store.flush();
+  CHECK(scalar(file, "SELECT group_concat(name) FROM trainees") == "Tomas Brenn");
 }
 
 TEST_CASE("the records survive a reopen") {

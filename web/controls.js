@@ -53,6 +53,21 @@ export function readNumbers(...ids) {
   return ok ? values : null;
 }
 
+/**
+ * The MW a start loads the unit to, from the field `id`: a number above 0, else null with the
+ * problem shown beside the field (an off-line unit's setpoint box holds 0, and a start to 0 MW
+ * synchronises the unit and leaves it idle, which no operator means).
+ */
+export function readStartMw(id) {
+  const v = readNumbers(id);
+  if (!v) return null;
+  if (!(v[id] > 0)) {
+    showFieldProblem($(id), 'enter the MW to load the unit to once it is synchronised (above 0)');
+    return null;
+  }
+  return v[id];
+}
+
 // A click handler that reads the fields and calls `build` with their values when all are good.
 const numeric = (ids, build) => () => {
   const v = readNumbers(...ids);
@@ -170,7 +185,10 @@ export function wireControls({ onUnlock }) {
     const unit = unitId();
     if (await confirmAction(`Trip unit ${unit}? It goes offline at once, without unloading.`, `Trip ${unit}`)) command('unit', { kind: 'unit_trip', unit });
   });
-  $('do-start').addEventListener('click', numeric(['start-mw'], (v) => command('unit', { kind: 'unit_start', unit: unitId(), mw: v['start-mw'] })));
+  $('do-start').addEventListener('click', () => {
+    const mw = readStartMw('start-mw');
+    if (mw != null) command('unit', { kind: 'unit_start', unit: unitId(), mw });
+  });
   $('do-stop').addEventListener('click', numeric(['set-ramp'], (v) => {
     const c = { kind: 'unit_stop', unit: unitId() };
     if (v['set-ramp'] > 0) c.ramp_mw_per_s = v['set-ramp'];

@@ -8,7 +8,7 @@ import { app, $, fmt, el, button } from '/state.js';
 import { api, ApiError } from '/api.js';
 import { sendAuth } from '/connection.js';
 import { sendCommand, AGC_MODE_NAMES, agcModeWords } from '/commands.js';
-import { readNumbers } from '/controls.js';
+import { readNumbers, readStartMw } from '/controls.js';
 import { alarmsNow, renderAlarms, onAlarms, concernsSeat, fetchAlarms, wireTone } from '/alarms.js';
 import { loadExercise } from '/exercise.js';
 import { objectivesBlock, fetchObjectives } from '/objectives.js';
@@ -72,8 +72,8 @@ function unitRow(u) {
         send(c);
       }),
       button('Start', () => {
-        const v = readNumbers(ids.set);
-        if (v) send({ kind: 'unit_start', unit: unit(), mw: v[ids.set] });
+        const mw = readStartMw(ids.set);
+        if (mw != null) send({ kind: 'unit_start', unit: unit(), mw });
       }, 'start'),
       button('Stop', () => {
         const v = readNumbers(ids.ramp);

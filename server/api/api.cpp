@@ -2,6 +2,8 @@
 
 #include <algorithm>
 #include <cctype>
+#include <cmath>
+#include <cstdlib>
 #include <nlohmann/json.hpp>
 
 #include "droopline/format.hpp"
@@ -60,6 +62,23 @@ std::string quote_cut(std::string_view text) {
   std::string out = "\"";
   for (char c : text.substr(0, kMax)) out += (c >= 0x20 && c < 0x7f) ? c : '?';  // printable ASCII only
   return out + (text.size() > kMax ? "...\"" : "\"");
+}
+
+bool query_number(const Target& t, const std::string& key, double fallback, double& out, std::string& error) {
+  if (!t.has(key)) {
+    out = fallback;
+    return true;
+  }
+  const std::string v = t.get(key);
+  char* end = nullptr;
+  // Decimal only: strtod would also take hexadecimal, "inf" and "nan".
+  const bool decimal = !v.empty() && v.find_first_not_of("0123456789+-.eE") == std::string::npos;
+  out = decimal ? std::strtod(v.c_str(), &end) : 0.0;
+  if (!decimal || end != v.c_str() + v.size() || !std::isfinite(out)) {
+    error = "query parameter " + key + ": must be a decimal number, got " + quote_cut(v);
+    return false;
+  }
+  return true;
 }
 
 void unknown_fields(const json& j, std::initializer_list<std::string_view> known, std::vector<std::string>& problems,
@@ -228,6 +247,16 @@ bool Api::handle(const Request& req, Respond respond) {
                           " may act only on its own areas' units, secondary control, schedule and load)");
     else
       call.error(401, std::string(route->why) + ": " + req.token_hint);
+    return true;
+  }
+  // A parameter the route does not read is refused, not ignored: a misspelt `form_s` would
+  // otherwise quietly answer for the whole history.
+  for (const auto& [key, value] : call.target.query) {
+    if (std::find(route->query.begin(), route->query.end(), key) != route->query.end()) continue;
+    std::string takes;
+    for (const std::string& q : route->query) takes += (takes.empty() ? "" : ", ") + q;
+    call.error(400, "query parameter " + quote_cut(key) + ": not read by " + std::string(verb_name(route->verb)) + " " +
+                        route->pattern + (takes.empty() ? " (it reads none)" : " (it reads " + takes + ")"));
     return true;
   }
   route->handler(services_, call);

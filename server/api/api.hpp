@@ -81,6 +81,7 @@ struct Route {
   Role role;                                      ///< the least role allowed
   const char* why;                                ///< for seat and instructor routes: why, in words a trainee can act on
   std::function<void(Services&, Call&)> handler;  ///< answers through `Call::respond`, now or later
+  std::vector<std::string> query = {};            ///< the query parameters it reads; any other is refused
 };
 
 /// The whole route table, in order (handlers take the services they work on).
@@ -131,6 +132,10 @@ std::string error_json(const std::string& message, const std::vector<std::string
 /// A client-supplied text quoted in a message: printable ASCII, cut to 120 characters, in quotes.
 std::string quote_cut(std::string_view text);
 
+/// The decimal number `key` of the query (`fallback` when absent); false with `error` naming the
+/// parameter when it is not a finite decimal number.
+bool query_number(const Target& t, const std::string& key, double fallback, double& out, std::string& error);
+
 /// Appends a problem `where"key": unknown field (expected a, b, c)` for each field of the object
 /// `j` outside `known` (the body routes refuse what they would otherwise ignore).
 void unknown_fields(const nlohmann::ordered_json& j, std::initializer_list<std::string_view> known,
@@ -158,7 +163,10 @@ void add_fit_routes(std::vector<Route>& routes);
 std::shared_ptr<StudyJobs::Job> find_job(Services& s, const Call& c, const std::string& kind);
 /// The same job once finished with a result; nullptr with a 404 or 409 answered (running, failed).
 std::shared_ptr<StudyJobs::Job> finished_job(Services& s, const Call& c, const std::string& kind);
-/// Sets the job's cancel flag and answers its status (DELETE), or a 404.
+/// Answers a job just submitted: 202 with its status and a Location to poll, or 429 with `error`
+/// and a Retry-After when the job table is full (`job` null).
+void answer_submitted(const Respond& respond, const std::shared_ptr<StudyJobs::Job>& job, const std::string& error);
+/// Sets a running job's cancel flag and answers its status (DELETE); 409 once it has finished, or a 404.
 void cancel_job(Services& s, const Call& c, const std::string& kind);
 /// `{"jobs": [status, ...]}` of the jobs of `kind` still held, newest first.
 void list_jobs(Services& s, const Call& c, const std::string& kind);

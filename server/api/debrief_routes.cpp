@@ -50,7 +50,7 @@ void get_debrief(Services& s, Call& c) {
 }  // namespace
 
 void add_debrief_routes(std::vector<Route>& routes) {
-  routes.push_back({Verb::get, "/api/v1/debrief", Role::instructor, kDebrief, get_debrief});
+  routes.push_back({Verb::get, "/api/v1/debrief", Role::instructor, kDebrief, get_debrief, {"run"}});
 }
 
 }  // namespace droopline::server

@@ -155,9 +155,8 @@ void post_fit(Services& s, Call& c) {
           auto job = s.jobs.submit(
               "fit", json{{"unit", checked->unit}}, [spec = std::move(*spec)](StudyJobs::Job& j) { run_fit_job(spec, j); },
               err);
-          if (!job) return answer(respond, 429, error_json(err));
-          job->progress(0, budget);  // the budget shows from the first poll on
-          answer(respond, 202, StudyJobs::status_json(*job).dump());
+          if (job) job->progress(0, budget);  // the budget shows from the first poll on
+          answer_submitted(respond, job, err);
         });
       });
     });
@@ -218,7 +217,7 @@ void add_fit_routes(std::vector<Route>& routes) {
                                   {Verb::get, "/api/v1/fits", Role::viewer, "", list_fits},
                                   {Verb::get, "/api/v1/fits/{id}", Role::viewer, "", get_fit},
                                   {Verb::delete_, "/api/v1/fits/{id}", instructor, kFits, delete_fit},
-                                  {Verb::get, "/api/v1/fits/{id}/result", instructor, kFitResult, fit_result},
+                                  {Verb::get, "/api/v1/fits/{id}/result", instructor, kFitResult, fit_result, {"format"}},
                                   {Verb::post, "/api/v1/injections", instructor, kInjections, post_injection},
                               });
 }

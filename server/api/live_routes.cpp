@@ -30,24 +30,6 @@ constexpr const char* kJoin = "only an operator seat enters a trainee's name (us
 constexpr const char* kObjectives = "a seat sees its own objectives and the instructor every seat's";
 constexpr const char* kNotes = "only the instructor writes and reads the notes";
 
-// A number from the query, or an error message naming the parameter.
-bool query_number(const Target& t, const std::string& key, double fallback, double& out, std::string& error) {
-  if (!t.has(key)) {
-    out = fallback;
-    return true;
-  }
-  const std::string v = t.get(key);
-  char* end = nullptr;
-  // Decimal only: strtod would also take hexadecimal, "inf" and "nan".
-  const bool decimal = !v.empty() && v.find_first_not_of("0123456789+-.eE") == std::string::npos;
-  out = decimal ? std::strtod(v.c_str(), &end) : 0.0;
-  if (!decimal || end != v.c_str() + v.size() || !std::isfinite(out)) {
-    error = "query parameter " + key + ": must be a decimal number, got " + quote_cut(v);
-    return false;
-  }
-  return true;
-}
-
 // For a seat's call: its areas as the roster has them now, in `scope` (a seat dropped by loading
 // another exercise acts no more: answered 403, false). The instructor's call: no scope.
 bool seat_scope(Services& s, const Call& c, std::optional<SeatScope>& scope) {
@@ -400,7 +382,9 @@ void history(Services& s, Call& c) {
   if (every < 0) return c.error(400, "query parameter every_s: must be >= 0");
   if (from > to) return c.error(400, "query parameters: from_s must not lie after to_s");
   const bool csv = format == "csv";
-  c.respond(text_reply(csv ? "text/csv; charset=utf-8" : "application/json", s.live->history(from, to, every, csv)));
+  std::optional<std::string> rows = s.live->history(from, to, every, csv, err);
+  if (!rows) return c.error(400, err);
+  c.respond(text_reply(csv ? "text/csv; charset=utf-8" : "application/json", std::move(*rows)));
 }
 
 void events(Services& s, Call& c) {
@@ -465,10 +449,10 @@ void add_live_routes(std::vector<Route>& routes) {
                                   {Verb::get, "/api/v1/savepoints", instructor, kSavePoints, get_savepoints},
                                   {Verb::post, "/api/v1/savepoints/{id}/restore", instructor, kChanges,
                                    restore_savepoint},
-                                  {Verb::get, "/api/v1/history", viewer, "", history},
-                                  {Verb::get, "/api/v1/events", viewer, "", events},
-                                  {Verb::get, "/api/v1/record", viewer, "", record},
-                                  {Verb::get, "/api/v1/stream", viewer, "", stream},
+                                  {Verb::get, "/api/v1/history", viewer, "", history, {"from_s", "to_s", "every_s", "format"}},
+                                  {Verb::get, "/api/v1/events", viewer, "", events, {"since"}},
+                                  {Verb::get, "/api/v1/record", viewer, "", record, {"from_s", "to_s", "part"}},
+                                  {Verb::get, "/api/v1/stream", viewer, "", stream, {"history_s"}},
                                   {Verb::get, "/api/v1/exercise", viewer, "", get_exercise},
                                   {Verb::put, "/api/v1/exercise", instructor, kChanges, put_exercise},
                                   {Verb::get, "/api/v1/script", instructor, kScript, get_script},
@@ -476,7 +460,7 @@ void add_live_routes(std::vector<Route>& routes) {
                                   {Verb::post, "/api/v1/script/{id}/fire", instructor, kScript, fire_script},
                                   {Verb::post, "/api/v1/script/{id}/skip", instructor, kScript, skip_script},
                                   {Verb::post, "/api/v1/script/{id}/shift", instructor, kScript, shift_script},
-                                  {Verb::get, "/api/v1/alarms", viewer, "", get_alarms},
+                                  {Verb::get, "/api/v1/alarms", viewer, "", get_alarms, {"active"}},
                                   {Verb::post, "/api/v1/alarms/{id}/ack", seat, kAck, ack_alarm},
                                   {Verb::get, "/api/v1/openapi.json", viewer, "", openapi},
                               });

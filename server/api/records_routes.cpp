@@ -20,6 +20,8 @@ constexpr const char* kRecords =
     "training records are for the instructor "
     "(they hold trainees' names and scores)";
 constexpr std::size_t kMaxNameBytes = 200;
+// The query parameters of the filtered reads (records::RunFilter).
+const std::vector<std::string> kFilters = {"trainee", "exercise", "from", "to"};
 
 // The store, or a 503 answered.
 RecordsStore* store_of(Services& s, Call& c) {
@@ -186,12 +188,12 @@ void add_records_routes(std::vector<Route>& routes) {
   routes.insert(routes.end(),
                 {
                     {Verb::get, "/api/v1/records/status", instructor, kRecords, status},
-                    {Verb::get, "/api/v1/records/runs", instructor, kRecords, list_runs},
+                    {Verb::get, "/api/v1/records/runs", instructor, kRecords, list_runs, kFilters},
                     {Verb::get, "/api/v1/records/runs/{id}", instructor, kRecords, get_run},
                     {Verb::get, "/api/v1/records/runs/{id}/debrief", instructor, kRecords, debrief},
                     {Verb::post, "/api/v1/records/runs/{id}/notes", instructor, kRecords, post_note},
                     {Verb::get, "/api/v1/records/trainees", instructor, kRecords, get_trainees},
-                    {Verb::get, "/api/v1/records/export.csv", instructor, kRecords, export_csv},
+                    {Verb::get, "/api/v1/records/export.csv", instructor, kRecords, export_csv, kFilters},
                     {Verb::delete_, "/api/v1/records/trainees/{name}", instructor, kRecords, delete_trainee},
                 });
 }

@@ -76,6 +76,8 @@ struct Services {
   std::function<void(std::function<void()>)> run_on_workers;
   /// The training records (none without --records or a journal, or with --records none).
   std::shared_ptr<records::RecordsStore> records;
+  /// Set when the service begins to stop: listeners close, replays end where they are.
+  std::atomic<bool> stopping{false};
 };
 
 /// True when `given` equals `token` (constant time).

@@ -50,9 +50,13 @@ void replays(Services& s, Call& c) {
   for (const Issue& i : r.issues)
     if (i.warning) warnings.push_back(i);
   s.run_on_workers([&s, system = std::move(*r.system), warnings, respond = c.respond] {
-    study::RunOutcome out = study::run_to_strings(system, warnings);
+    study::RunOutcome out = study::run_to_strings(system, warnings, &s.stopping);
     s.counters.replays_active.fetch_sub(1);
     s.counters.replays.fetch_add(1);
+    if (out.stopped)
+      return answer(respond, 503,
+                    error_json("the service is stopping: the replay was ended at t = " + fmt_num(out.stopped_at_s) +
+                               " s, before the end of its scenario"));
     if (!out.ok) return answer(respond, 400, error_json("invalid scenario", issue_texts(out.issues)));
     // The summary goes in as it is written to summary.json, the series as one CSV string.
     answer(respond, 200, "{\"summary\":" + out.summary + ",\"series\":" + json(out.series).dump() + "}");
@@ -174,8 +178,7 @@ void post_sweep(Services& s, Call& c) {
     auto job = s.jobs.submit(
         "sweep", std::move(info),
         [spec = std::move(spec), metric](StudyJobs::Job& running) { run_sweep_job(spec, metric, running); }, err);
-    if (!job) return answer(respond, 429, error_json(err));
-    answer(respond, 202, StudyJobs::status_json(*job).dump());
+    answer_submitted(respond, job, err);
   };
   if (j.contains("scenario")) return start(j["scenario"].dump());
   s.live->scenario(std::move(start));
@@ -209,9 +212,20 @@ bool take_run_slot(Services& s, const Call& c, const std::string& busy) {
   return false;
 }
 
+void answer_submitted(const Respond& respond, const std::shared_ptr<StudyJobs::Job>& job, const std::string& error) {
+  if (!job) return respond(Reply{429, "application/json", error_json(error), {{"Retry-After", "10"}}, {}});
+  respond(Reply{202,
+                "application/json",
+                StudyJobs::status_json(*job).dump(),
+                {{"Location", "/api/v1/" + job->kind + "s/" + job->id}},
+                {}});
+}
+
 void cancel_job(Services& s, const Call& c, const std::string& kind) {
   auto job = find_job(s, c, kind);
   if (!job) return;
+  if (job->finished.load(std::memory_order_acquire))
+    return c.error(409, kind + " " + job->id + " has already ended (" + job->status + "): nothing to cancel");
   job->cancel = true;
   c.reply(200, StudyJobs::status_json(*job).dump());
 }
@@ -242,7 +256,15 @@ void sweep_result(Services& s, Call& c) {
     return c.error(404, "no plot: it needs one or two varied fields");
   Reply r;
   r.type = format == "json" ? "application/json" : format == "csv" ? "text/csv; charset=utf-8" : "image/svg+xml";
-  r.body = format == "json" ? job->result.dump() : job->artefact(format);
+  if (format == "json") {
+    // A cancelled sweep's rows are the runs done before it stopped: the answer says so.
+    nlohmann::ordered_json j = job->result;
+    if (j.is_object()) j["status"] = job->status;
+    r.body = j.dump();
+  } else {
+    r.body = job->artefact(format);
+  }
+  r.headers.emplace_back("Droopline-Job-Status", job->status);
   c.respond(std::move(r));
 }
 
@@ -305,9 +327,9 @@ void add_study_routes(std::vector<Route>& routes) {
                                   {Verb::get, "/api/v1/sweeps", Role::viewer, "", list_sweeps},
                                   {Verb::get, "/api/v1/sweeps/{id}", Role::viewer, "", get_sweep},
                                   {Verb::delete_, "/api/v1/sweeps/{id}", instructor, kSweeps, delete_sweep},
-                                  {Verb::get, "/api/v1/sweeps/{id}/result", Role::viewer, "", sweep_result},
-                                  {Verb::get, "/api/v1/modes", instructor, kWorkers, modes},
-                                  {Verb::post, "/api/v1/modes", instructor, kWorkers, modes},
+                                  {Verb::get, "/api/v1/sweeps/{id}/result", Role::viewer, "", sweep_result, {"format"}},
+                                  {Verb::get, "/api/v1/modes", instructor, kWorkers, modes, {"damping_threshold"}},
+                                  {Verb::post, "/api/v1/modes", instructor, kWorkers, modes, {"damping_threshold"}},
                                   {Verb::post, "/api/v1/assess", instructor, kWorkers, assess},
                               });
 }

@@ -28,9 +28,10 @@ namespace {
 
 namespace fs = std::filesystem;
 
-void print_issues(const std::vector<Issue>& issues, const std::string& file) {
+// Errors always; warnings unless `quiet` (they are in summary.json too).
+void print_issues(const std::vector<Issue>& issues, const std::string& file, bool quiet = false) {
   for (const Issue& i : issues)
-    std::cerr << file << ": " << (i.warning ? "warning: " : "error: ") << i.text() << "\n";
+    if (!quiet || !i.warning) std::cerr << file << ": " << (i.warning ? "warning: " : "error: ") << i.text() << "\n";
 }
 
 
@@ -85,7 +86,7 @@ int run(const std::string& file, const std::string& out_dir, bool quiet, unsigne
   };
   LoadResult r = load_scenario_file(file);
   lap("load");
-  print_issues(r.issues, file);
+  print_issues(r.issues, file, quiet);
   if (!r.system) return 2;
   const SystemDef& def = r.system->def();
   std::vector<Issue> warnings;

@@ -1,7 +1,9 @@
 #include "history_store.hpp"
 
 #include <algorithm>
+#include <cmath>
 
+#include "droopline/format.hpp"
 #include "droopline/scenario_io.hpp"
 
 namespace droopline {
@@ -49,7 +51,8 @@ void HistoryStore::fill(HelloSnapshot& snap) const {
   snap.events = events_.all();
 }
 
-std::string HistoryStore::history(double from_s, double to_s, double every_s, bool csv) const {
+std::optional<std::string> HistoryStore::history(double from_s, double to_s, double every_s, bool csv,
+                                                 std::string& error) const {
   std::vector<std::string> columns;
   std::vector<double> rows;
   double out_dt = 0.1;
@@ -58,6 +61,13 @@ std::string HistoryStore::history(double from_s, double to_s, double every_s, bo
     columns = columns_;
     rows = rows_.flat();
     out_dt = every_s_;
+  }
+  // Rows are kept every output_every_s: a spacing between them would have to be rounded.
+  const double ratio = every_s / out_dt;
+  if (every_s > 0.0 && (ratio < 0.5 || std::fabs(ratio - std::round(ratio)) > 1e-6 * ratio)) {
+    error = "query parameter every_s: must be 0 (every row) or a whole multiple of the recorded interval " +
+            fmt_num(out_dt) + " s (the scenario's output_every_s), got " + fmt_num(every_s);
+    return std::nullopt;
   }
   return rows_text(columns, rows, out_dt, from_s, to_s, every_s, csv);
 }

@@ -6,6 +6,7 @@
 #include <cstdint>
 #include <memory>
 #include <mutex>
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -31,8 +32,9 @@ class HistoryStore {
   void put_rows(const std::shared_ptr<const std::vector<double>>& rows);
   /// The greeting's copy of the scenario, columns, rows and events.
   void fill(HelloSnapshot& snap) const;
-  /// Rows within [from_s, to_s], every `every_s` (0 = all), as CSV or JSON.
-  std::string history(double from_s, double to_s, double every_s, bool csv) const;
+  /// Rows within [from_s, to_s] at whole multiples of `every_s` (0 = all), as CSV or JSON; none
+  /// and `error` set when every_s is not a whole multiple of the recorded interval.
+  std::optional<std::string> history(double from_s, double to_s, double every_s, bool csv, std::string& error) const;
   /// A COMTRADE record (IEEE C37.111-1999 ASCII) of the rows within [from_s, to_s]; times are
   /// simulation times after the wall time the run started.
   study::ComtradeRecord record(double from_s, double to_s) const;

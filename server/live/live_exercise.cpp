@@ -67,7 +67,8 @@ void LiveSession::push_alarm_changes(const std::vector<study::AlarmChange>& chan
                                                                      : "acknowledged";
     json alarm = study::alarm_to_json(def(), *a);
     if (config_.run_log) config_.run_log->alarm(run_id_, alarm);
-    push_event(json{{"type", "alarm"}, {"change", what}, {"alarm", std::move(alarm)}});
+    // t_s: when the change happened, so a step back drops the changes after it from the log.
+    push_event(json{{"type", "alarm"}, {"t_s", engine_->time_s()}, {"change", what}, {"alarm", std::move(alarm)}});
   }
 }
 
@@ -117,7 +118,7 @@ void LiveSession::load_exercise(study::Exercise exercise, Done done) {
     start_engine(exercise_->system);
     push_event(
         json{{"type", "event"}, {"t_s", 0.0}, {"kind", "exercise"}, {"text", "exercise \"" + name + "\" loaded"}});
-    done(accepted(json{{"ok", true}, {"exercise", name}}));
+    done(accepted(json{{"ok", true}, {"exercise", name}, {"paused", paused_.load()}}));
   });
 }
 

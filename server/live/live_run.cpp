@@ -79,6 +79,7 @@ void LiveSession::open_run() {
   names_in_run_.clear();
   for (const auto& [seat, name] : trainees_) names_in_run_[seat].insert(name);
   if (!exercise_) trainees_.clear();
+  carried_ = trainees_;  // credited with the run unless somebody else joins before they act
   // The trainees still at their seats after a reset belong to the new run as well.
   for (const auto& [seat, name] : trainees_)
     journal_record(json{{"type", "trainee"}, {"step", 0}, {"seat", seat}, {"name", name}});
@@ -159,6 +160,15 @@ void LiveSession::trainee(std::string seat, std::string name, Done done) {
     if (!names.count(name) && names.size() >= kMaxNamesPerSeat)
       return done(refused(409, "seat \"" + seat + "\" has had " + std::to_string(kMaxNamesPerSeat) +
                                    " trainees in this run, the most it records (a reset or a new exercise starts a new run)"));
+    // The name carried over a reset was not at the seat this run after all: a new trainee sat
+    // down before it acted, so the run is not theirs.
+    if (auto c = carried_.find(seat); c != carried_.end()) {
+      if (c->second != name) {
+        names.erase(c->second);
+        if (config_.run_log && run_open_) config_.run_log->trainee_withdrawn(run_id_, seat, c->second);
+      }
+      carried_.erase(c);
+    }
     names.insert(name);
     trainees_[seat] = name;
     journal_record(json{{"type", "trainee"}, {"step", e.step_index()}, {"seat", seat}, {"name", name}});

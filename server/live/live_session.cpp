@@ -357,6 +357,7 @@ void LiveSession::apply_due() {
   // after every step, so none from a step can be waiting here.
   pipeline_.apply_due(*engine_, [this](const CommandPipeline::Applied& a) {
     drain_notices(a.author);
+    carried_.erase(a.author);  // a seat that acts is sat at by whoever was there
     timeline_.applied(a.step, a.actions, a.author);  // a rewind applies them again on the way
     live_detail::feed_actions(objectives_, a.author, engine_->time_s());
     if (config_.run_log) config_.run_log->actions(run_id_, engine_->time_s(), a.author, nlohmann::json::parse(a.commands));
@@ -388,7 +389,8 @@ void LiveSession::load(CheckedSystem system, Done done) {
     exercise_.reset();  // a plain scenario ends the exercise
     start_engine(system);
     push_event(json{{"type", "event"}, {"t_s", 0.0}, {"kind", "scenario"}, {"text", "scenario \"" + def.name + "\" loaded"}});
-    done(accepted(json{{"ok", true}, {"scenario", def.name}}));
+    // A pause carries over to the new scenario: the answer says whether it is running.
+    done(accepted(json{{"ok", true}, {"scenario", def.name}, {"paused", paused_.load()}}));
   });
 }
 
@@ -402,7 +404,7 @@ void LiveSession::reset(Done done) {
     }
     start_engine(system);
     push_event(json{{"type", "event"}, {"t_s", 0.0}, {"kind", "reset"}, {"text", "session reset to t = 0"}});
-    done(accepted(json{{"ok", true}, {"t_s", 0.0}}));
+    done(accepted(json{{"ok", true}, {"t_s", 0.0}, {"paused", paused_.load()}}));
   });
 }
 
@@ -464,8 +466,9 @@ void LiveSession::scenario(std::function<void(std::string)> done, bool with_hidd
   });
 }
 
-std::string LiveSession::history(double from_s, double to_s, double every_s, bool csv) const {
-  return store_.history(from_s, to_s, every_s, csv);
+std::optional<std::string> LiveSession::history(double from_s, double to_s, double every_s, bool csv,
+                                                std::string& error) const {
+  return store_.history(from_s, to_s, every_s, csv, error);
 }
 
 study::ComtradeRecord LiveSession::record(double from_s, double to_s) const { return store_.record(from_s, to_s); }

@@ -203,8 +203,9 @@ class LiveSession {
   /// (viewers and seats must not see what is to come).
   void scenario(std::function<void(std::string)> done, bool with_hidden = true);
 
-  /// History rows within [from_s, to_s], every `every_s` (0 = all), as CSV or JSON (thread-safe).
-  std::string history(double from_s, double to_s, double every_s, bool csv) const;
+  /// History rows within [from_s, to_s] at multiples of `every_s` (0 = all), as CSV or JSON, or
+  /// none and `error` (thread-safe).
+  std::optional<std::string> history(double from_s, double to_s, double every_s, bool csv, std::string& error) const;
   /// A COMTRADE record (IEEE C37.111-1999 ASCII) of the history within [from_s, to_s]
   /// (thread-safe). Times are simulation times after the wall time the scenario started.
   study::ComtradeRecord record(double from_s, double to_s) const;
@@ -349,6 +350,7 @@ class LiveSession {
   std::map<std::string, std::string> trainees_;  // seat id -> trainee name (the exercise's seats)
   static constexpr std::size_t kMaxNamesPerSeat = 8;
   std::map<std::string, std::set<std::string>> names_in_run_;  // seat id -> every name given this run
+  std::map<std::string, std::string> carried_;  // seat id -> trainee carried over a reset who has not acted yet
   struct Note {
     std::uint64_t id;
     double t_s;

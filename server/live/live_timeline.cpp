@@ -52,12 +52,15 @@ void LiveSession::save(std::string name, std::string author, Done done) {
     if (rows) saved_rows_bytes_ += rows->size() * sizeof(double);
     saved_shown_[id].rows = std::move(rows);
     const json which{{"id", id}, {"name", name}};
-    push_event(json{{"type", "event"},
-                    {"t_s", sp.t_s},
-                    {"kind", "savepoint"},
-                    {"text", "save point \"" + name + "\" kept at t = " + fmt_fixed(sp.t_s, 2) + " s"},
-                    {"by", author},
-                    {"savepoint", which}});
+    // In an exercise the trainees must not learn that the instructor expects something: a save
+    // point goes to the instructor's list (GET /api/v1/savepoints), not to everyone's log.
+    if (!exercise_)
+      push_event(json{{"type", "event"},
+                      {"t_s", sp.t_s},
+                      {"kind", "savepoint"},
+                      {"text", "save point \"" + name + "\" kept at t = " + fmt_fixed(sp.t_s, 2) + " s"},
+                      {"by", author},
+                      {"savepoint", which}});
     saved_shown_[id].events = store_.events().entries();  // its own entry included
     done(accepted(json{{"id", id}, {"name", name}, {"t_s", sp.t_s}, {"step", sp.step}}));
   });
@@ -159,19 +162,26 @@ void LiveSession::go_back(study::SavedState state, double from_t_s, const study:
     store_.events().drop_after(t_s);
   }
   rebase();
-  const json which = savepoint ? json{{"id", savepoint->id}, {"name", savepoint->name}} : json(nullptr);
+  // In an exercise everyone sees that time went back, not the name the instructor gave the point.
+  const bool named = savepoint && !exercise_;
+  const json which = !savepoint ? json(nullptr)
+                     : named    ? json{{"id", savepoint->id}, {"name", savepoint->name}}
+                                : json{{"id", savepoint->id}};
   const std::string text =
-      savepoint ? "save point \"" + savepoint->name + "\" restored: back from t = " + fmt_fixed(from_t_s, 2) +
-                      " s to t = " + fmt_fixed(t_s, 2) + " s"
-                : "rewound from t = " + fmt_fixed(from_t_s, 2) + " s to t = " + fmt_fixed(t_s, 2) + " s";
+      named ? "save point \"" + savepoint->name + "\" restored: back from t = " + fmt_fixed(from_t_s, 2) +
+                  " s to t = " + fmt_fixed(t_s, 2) + " s"
+            : "rewound from t = " + fmt_fixed(from_t_s, 2) + " s to t = " + fmt_fixed(t_s, 2) + " s";
   push_event(json{{"type", "restored"},
                   {"t_s", t_s},
                   {"from_t_s", from_t_s},
                   {"by", author},
                   {"savepoint", which},
                   {"text", text}});
-  done(accepted(
-      json{{"ok", true}, {"t_s", t_s}, {"from_t_s", from_t_s}, {"savepoint", which}, {"refused_commands", waiting}}));
+  done(accepted(json{{"ok", true},
+                     {"t_s", t_s},
+                     {"from_t_s", from_t_s},
+                     {"savepoint", savepoint ? json{{"id", savepoint->id}, {"name", savepoint->name}} : json(nullptr)},
+                     {"refused_commands", waiting}}));
 }
 
 }  // namespace droopline

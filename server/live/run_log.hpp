@@ -37,6 +37,10 @@ class RunLog {
   /// A trainee entered their name when joining a seat (or changed it).
   virtual void trainee_joined(const std::string& run_id, const std::string& seat, const std::string& name,
                               double t_s) = 0;
+  /// A trainee carried over from the run before (still at the seat after a reset) is taken off
+  /// this run: somebody else joined the seat before they acted in it.
+  virtual void trainee_withdrawn(const std::string& /*run_id*/, const std::string& /*seat*/,
+                                 const std::string& /*name*/) {}
   /// Commands applied at simulation time `t_s` by `by` (as the journal writes them).
   virtual void actions(const std::string& run_id, double t_s, const std::string& by,
                        const nlohmann::json& commands) = 0;

@@ -99,7 +99,7 @@ std::string frame_json(const Engine& e, double wall_s, bool paused, double speed
   return out;
 }
 
-std::string HelloSnapshot::to_json() const {
+std::string HelloSnapshot::to_json(double history_s) const {
   // Built as text around the pieces that already are JSON (scenario, events).
   std::string out = "{\"type\":\"hello\",\"scenario\":";
   out += *scenario_json;
@@ -111,8 +111,14 @@ std::string HelloSnapshot::to_json() const {
   append_exact(out, every_s);
   out += ",\"history\":[";
   const std::size_t w = std::max<std::size_t>(1, columns.size());
-  for (std::size_t i = 0; i < rows.size(); i += w) {
-    out += i ? ",[" : "[";
+  std::size_t first = 0;  // the first row sent: all, or those of the last history_s seconds
+  if (history_s >= 0.0 && rows.size() >= w) {
+    const double from = rows[(rows.size() / w - 1) * w] - history_s - 1e-9;
+    first = rows.size() / w * w;
+    while (history_s > 0.0 && first >= w && rows[first - w] >= from) first -= w;
+  }
+  for (std::size_t i = first; i < rows.size(); i += w) {
+    out += i > first ? ",[" : "[";
     for (std::size_t c = 0; c < w && i + c < rows.size(); ++c) {
       if (c) out += ',';
       append_json_number(out, rows[i + c]);

@@ -49,7 +49,8 @@ struct HelloSnapshot {
   double speed = 1.0;
   bool paused = false;
   std::string alarms_json = "[]";  ///< the alarms active now (a JSON array; empty without an exercise)
-  std::string to_json() const;
+  /// The greeting; `history_s` >= 0 keeps only the history's last that many seconds (0: none).
+  std::string to_json(double history_s = -1.0) const;
 };
 
 /// The event log of one run (thread-safe): each entry numbered (`seq`, rising), at most 1,000

@@ -194,6 +194,14 @@ void HttpSession::upgrade(HttpRequest&& req) {
     self->send(json_response(version, false, status, error_json(why)));
   };
   if (t.path != "/api/v1/stream") return refuse(404, "WebSocket is served at /api/v1/stream only");
+  // ?history_s=N: the greeting carries only the history's last N seconds (0: none; default all).
+  for (const auto& [key, value] : t.query)
+    if (key != "history_s")
+      return refuse(400, "query parameter " + quote_cut(key) + ": not read by the stream (it reads history_s)");
+  double history_s = -1.0;
+  std::string bad;
+  if (!query_number(t, "history_s", -1.0, history_s, bad)) return refuse(400, bad);
+  if (t.has("history_s") && history_s < 0.0) return refuse(400, "query parameter history_s: must be >= 0");
   // Browsers send Origin; it must be this server (or an allowed origin). Scripts may omit it.
   if (req.count(http::field::origin)) {
     const std::string origin(req[http::field::origin]);
@@ -211,7 +219,8 @@ void HttpSession::upgrade(HttpRequest&& req) {
       return after_refusal([refuse, proof] { refuse(proof.refused_status, proof.refused); });
   }
   stream_.expires_never();
-  std::make_shared<WebsocketSession>(stream_.release_socket(), ctx_, std::move(proof), slot_)->run(std::move(req));
+  std::make_shared<WebsocketSession>(stream_.release_socket(), ctx_, std::move(proof), slot_, history_s)
+      ->run(std::move(req));
 }
 
 void HttpSession::handle(HttpRequest&& req) {

@@ -70,7 +70,6 @@ struct Context : Services {
   std::unique_ptr<net::thread_pool> replay_pool;  ///< the worker pool behind `run_on_workers`
   std::unique_ptr<StaticFiles> files;  ///< the page's files, under the canonical web root
   std::unique_ptr<Api> api;            ///< the route table every request and control message goes through
-  std::atomic<bool> stopping{false};
 
   /// The session's loop broadcasts through `hub`, a member of this struct, while `live` belongs
   /// to the base and would outlive it: the loop is stopped first on every way out of `serve`.

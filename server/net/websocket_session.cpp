@@ -28,8 +28,13 @@ WebsocketSession::Socket WebsocketSession::adopt(net::io_context& ioc, tcp::sock
   return out;
 }
 
-WebsocketSession::WebsocketSession(tcp::socket&& socket, Context& ctx, Proof proof, std::shared_ptr<void> slot)
-    : ws_(adopt(*ctx.ioc, std::move(socket))), ctx_(ctx), role_(Role::viewer), slot_(std::move(slot)) {
+WebsocketSession::WebsocketSession(tcp::socket&& socket, Context& ctx, Proof proof, std::shared_ptr<void> slot,
+                                   double history_s)
+    : ws_(adopt(*ctx.ioc, std::move(socket))),
+      ctx_(ctx),
+      role_(Role::viewer),
+      slot_(std::move(slot)),
+      history_s_(history_s) {
   become(std::move(proof));
   beast::error_code ec;
   const auto ep = beast::get_lowest_layer(ws_).remote_endpoint(ec);
@@ -86,7 +91,7 @@ void WebsocketSession::on_accept(beast::error_code ec) {
   auto self = shared_from_this();
   ctx_.live->hello([self](std::shared_ptr<const HelloSnapshot> snap) {
     net::post(self->ws_.get_executor(), [self, snap] {
-      self->enqueue({std::make_shared<const std::string>(snap->to_json()), false});
+      self->enqueue({std::make_shared<const std::string>(snap->to_json(self->history_s_)), false});
     });
     self->ctx_.hub.join(self);
   });

@@ -13,7 +13,8 @@ namespace droopline::server {
 class WebsocketSession : public std::enable_shared_from_this<WebsocketSession> {
  public:
   /// `proof`: what the upgrade request's Authorization header proved (viewer when none).
-  WebsocketSession(tcp::socket&& socket, Context& ctx, Proof proof, std::shared_ptr<void> slot);
+  /// `history_s`: the greeting's history, its last that many seconds (negative: all it holds).
+  WebsocketSession(tcp::socket&& socket, Context& ctx, Proof proof, std::shared_ptr<void> slot, double history_s);
   ~WebsocketSession();
 
   /// Accepts the upgrade request, then greets the client and joins the hub.
@@ -44,6 +45,7 @@ class WebsocketSession : public std::enable_shared_from_this<WebsocketSession> {
   std::optional<SeatIdentity> seat_;  // role seat: which (counted in the roster's streams)
   void become(Proof proof);         // takes a new role, keeping the roster's stream counts right
   std::shared_ptr<void> slot_;  // holds this connection's place under the limit
+  double history_s_;             // the greeting's history: its last that many seconds (< 0: all)
   beast::flat_buffer buffer_;
   std::deque<Outgoing> queue_;
   bool writing_ = false;

@@ -188,6 +188,11 @@ void RecordsStore::trainee_joined(const std::string& run_id, const std::string& 
       [=, now = wall_now()](Stmt& s) { s.bind(1, run_id).bind(2, seat).bind(3, name).bind(4, now).bind(5, t_s); }));
 }
 
+void RecordsStore::trainee_withdrawn(const std::string& run_id, const std::string& seat, const std::string& name) {
+  queue(statement("DELETE FROM trainees WHERE run_id = ?1 AND seat = ?2 AND name = ?3",
+                  [=](Stmt& s) { s.bind(1, run_id).bind(2, seat).bind(3, name); }));
+}
+
 void RecordsStore::actions(const std::string& run_id, double t_s, const std::string& by,
                            const nlohmann::json& commands) {
   queue(statement("INSERT INTO actions(run_id, t_s, by, commands) VALUES(?1, ?2, ?3, ?4)",

@@ -73,6 +73,7 @@ class RecordsStore : public RunLog {
   // RunLog (any thread; queued, never blocking)
   void run_started(const RunStart& start) override;
   void trainee_joined(const std::string& run_id, const std::string& seat, const std::string& name, double t_s) override;
+  void trainee_withdrawn(const std::string& run_id, const std::string& seat, const std::string& name) override;
   void actions(const std::string& run_id, double t_s, const std::string& by, const nlohmann::json& commands) override;
   void alarm(const std::string& run_id, const nlohmann::ordered_json& alarm) override;
   void note(const std::string& run_id, double t_s, const std::string& by, const std::string& text) override;

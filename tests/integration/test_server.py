@@ -147,6 +147,22 @@ class StreamTests(ThreeAreaServerCase):
         self.assertGreaterEqual(n, 36)  # 20 frames/s for 2 s, allowing for timing at the ends
         self.assertLessEqual(n, 44)
 
+    def test_the_greeting_carries_as_much_history_as_asked(self):
+        time.sleep(1.5)  # some history to cut
+
+        async def hello(query):
+            async with websockets.connect(self.srv.ws_url() + query, max_size=2**24) as ws:
+                return json.loads(await ws.recv())
+        whole = run(hello(""))["history"]
+        self.assertGreater(len(whole), 10)
+        self.assertEqual(run(hello("?history_s=0"))["history"], [])
+        last = run(hello("?history_s=0.5"))["history"]
+        self.assertTrue(2 <= len(last) <= 12, len(last))
+        self.assertLessEqual(last[-1][0] - last[0][0], 0.5 + 1e-9)
+        for bad in ("?history_s=-1", "?history=0", "?history_s=abc"):
+            with self.assertRaises(Exception, msg=bad):
+                run(hello(bad))
+
     def test_frame_content(self):
         async def go():
             async with websockets.connect(self.srv.ws_url(), max_size=2**24) as ws:
@@ -307,6 +323,18 @@ class StreamTests(ThreeAreaServerCase):
         s, ev, _ = self.srv.request("GET", "/api/v1/events?since=0")
         self.assertEqual(s, 200)
         self.assertIn("events", ev)
+        # A spacing the recorded rows (every 0.1 s here) cannot give is refused, not rounded; a
+        # parameter the route does not read (a typo) is refused, not ignored.
+        s, body, _ = self.srv.request("GET", "/api/v1/history?every_s=0.25")
+        self.assertEqual(s, 400)
+        self.assertIn("whole multiple of the recorded interval 0.1 s", body["error"])
+        s, body, _ = self.srv.request("GET", "/api/v1/history?form_s=1")
+        self.assertEqual(s, 400)
+        self.assertEqual(body["error"], 'query parameter "form_s": not read by GET /api/v1/history '
+                                        "(it reads from_s, to_s, every_s, format)")
+        s, body, _ = self.srv.request("GET", "/api/v1/state?x=1")
+        self.assertEqual(s, 400)
+        self.assertIn("(it reads none)", body["error"])
 
     def test_modes_of_the_live_and_of_a_posted_scenario(self):
         s, body, _ = self.srv.request("GET", "/api/v1/modes", token=TOKEN)
@@ -385,9 +413,10 @@ class StreamTests(ThreeAreaServerCase):
         s, body, _ = self.srv.request("POST", "/api/v1/sweeps", {"vary": ["units[V9].governor.droop=0.03"]}, TOKEN)
         self.assertEqual(s, 400)
         self.assertIn('no element "V9" in units', body["error"])
-        s, body, _ = self.srv.request("POST", "/api/v1/sweeps", {"vary": vary, "metric": "settling_hz"}, TOKEN)
+        s, body, r = self.srv.request("POST", "/api/v1/sweeps", {"vary": vary, "metric": "settling_hz"}, TOKEN)
         self.assertEqual(s, 202, body)
         job = body["id"]
+        self.assertEqual(r.getheader("Location"), f"/api/v1/sweeps/{job}")
         st = self.wait_sweep(job, 60)
         self.assertEqual(st["status"], "done", st)
         self.assertEqual((st["done"], st["total"]), (4, 4))
@@ -412,6 +441,13 @@ class StreamTests(ThreeAreaServerCase):
         st = self.wait_sweep(big["id"], 30)
         self.assertEqual(st["status"], "cancelled")
         self.assertLess(st["done"], 801)
+        # Its rows are those run before it stopped, and the result says it was cancelled.
+        s, part, r = self.srv.request("GET", f"/api/v1/sweeps/{big['id']}/result")
+        self.assertEqual((s, part["status"], r.getheader("Droopline-Job-Status")), (200, "cancelled", "cancelled"))
+        self.assertEqual(len(part["rows"]), st["done"])
+        s, body, _ = self.srv.request("DELETE", f"/api/v1/sweeps/{big['id']}", None, TOKEN)
+        self.assertEqual(s, 409)
+        self.assertIn("has already ended (cancelled)", body["error"])
         s, body, _ = self.srv.request("GET", "/api/v1/sweeps/999")
         self.assertEqual(s, 404)
         # The list: both jobs, newest first, each as its own route gives it; no token needed.

@@ -36,7 +36,8 @@ void run_batch(Engine& engine, const BatchOptions& options, const BatchObservers
     for (const Disturbance& d : engine.disturbances()) observers.disturbance(d);
 }
 
-RunOutcome run_to_strings(const CheckedSystem& system, const std::vector<Issue>& warnings) {
+RunOutcome run_to_strings(const CheckedSystem& system, const std::vector<Issue>& warnings,
+                          const std::atomic<bool>* stop) {
   RunOutcome out;
   const std::unique_ptr<Engine> created = Engine::create(system);
   Engine& engine = *created;
@@ -46,7 +47,14 @@ RunOutcome run_to_strings(const CheckedSystem& system, const std::vector<Issue>&
   BatchObservers obs;
   obs.row = [&](const Engine& e) { csv.append_row(e, out.series); };
   obs.notice = [&](const Notice& n) { notices.push_back(n); };
+  if (stop) obs.stop = [stop] { return stop->load(std::memory_order_relaxed); };
   run_batch(engine, {}, obs);
+  if (stop && !engine.finished()) {
+    out.stopped = true;
+    out.stopped_at_s = engine.time_s();
+    out.series.clear();
+    return out;
+  }
   out.summary = to_text(summary_to_json(engine, notices, warnings));
   out.ok = true;
   return out;

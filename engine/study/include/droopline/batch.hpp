@@ -2,6 +2,7 @@
 // The one batch runner: steps an engine as fast as it goes (no clock) from where it stands to the
 // end of its scenario, a step or a time, and hands rows, notices and disturbances to observers.
 // `run`, `replay`, `record`, sweeps, requirement checks and replays over the API all run through it.
+#include <atomic>
 #include <cmath>
 #include <cstdint>
 #include <functional>
@@ -43,11 +44,15 @@ void run_batch(Engine& engine, const BatchOptions& options, const BatchObservers
 struct RunOutcome {
   bool ok = false;
   std::vector<Issue> issues;
-  std::string series;   ///< series.csv content
-  std::string summary;  ///< summary.json content
+  std::string series;    ///< series.csv content
+  std::string summary;   ///< summary.json content
+  bool stopped = false;  ///< `stop` was set: the run ended early (ok false, no outputs)
+  double stopped_at_s = 0.0;
 };
 
 /// Runs a validated definition to its end and returns both outputs as text.
-RunOutcome run_to_strings(const CheckedSystem& system, const std::vector<Issue>& warnings);
+/// `stop`, when given, is read after each row: once set the run ends there (a service stopping).
+RunOutcome run_to_strings(const CheckedSystem& system, const std::vector<Issue>& warnings,
+                          const std::atomic<bool>* stop = nullptr);
 
 }  // namespace droopline::study
