@@ -128,4 +128,9 @@ TEST_CASE("bad requirement files say what and where") {
     for (const auto& i : issues) all += i.text() + "\n";
     CHECK_THAT(all, Catch::Contains(msg));
   }
+  // A limit given wrongly is reported as that, not also as "nothing to check".
+  std::vector<Issue> issues;
+  CHECK_FALSE(parse_requirements(R"({"limits": {"lowest_hz_min": 49}})", issues));
+  REQUIRE(issues.size() == 1);
+  CHECK_THAT(issues[0].text(), Catch::Contains("must be an object"));
 }

@@ -127,7 +127,7 @@ TEST_CASE("run: the operator actions end to end, in the series and the summary")
   CHECK(has("40 command: unit HH2 stopping: unloading at 10 MW/s, then offline"));
   CHECK(has("80 command: scheduled export of area marsh from 150.0 to 250 MW over 60 s"));
   CHECK(has("161 command: load shed by hand: 60 MW in area hollin"));
-  CHECK(has("165 command: secondary control on in area hollin, mode constant_interchange"));
+  CHECK(has("165 command: secondary control on in area hollin, constant interchange control"));
   CHECK(has("240 command: shed load restored: 60.0 MW in area hollin"));
   bool stopped = false;
   for (const std::string& n : notices)

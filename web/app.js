@@ -20,17 +20,17 @@
 //   recording.js   a recording picked in the browser: CSV columns, COMTRADE channels, base64
 //   records.js     the records view: past runs with filters, debriefs, notes, progress, CSV export
 //   views.js       droop and power-angle canvases
-import { app, $, fmt } from '/state.js';
+import { app, $ } from '/state.js';
 import { connect, startsRun } from '/connection.js';
 import { dropNotesAfter } from '/commands.js';
 import { buildCharts, loadHistory, addFrame, redrawCharts, resizeCharts } from '/charts.js';
-import { renderStatic, renderLive, renderClock, renderDisturbance, logEvent, clearRun } from '/live.js';
+import { renderStatic, renderLive, renderClock, renderDisturbance, noteSecondary, logEvent, clearRun } from '/live.js';
 import { wireControls, fillChoices, unlockWith, syncUnitForm } from '/controls.js';
 import { wireStudies, clearSweepNote } from '/studies.js';
 import { wireValidation, validationScenario } from '/validation.js';
 import { takeAlarms, alarmMessage, fetchAlarms } from '/alarms.js';
 import { loadExercise } from '/exercise.js';
-import { showEnded } from '/objectives.js';
+import { showEnded, endedWords } from '/objectives.js';
 import { prepareWall, buildWall, renderWall } from '/wall.js';
 import { wireSeat, buildSeat, renderSeat } from '/seat.js';
 import { makeDesk, refreshDesk, unlockedDesk, feedEvent, clearFeed } from '/desk.js';
@@ -65,7 +65,7 @@ function scheduleRedraw() {
 // An event for the log and, with an author, the instructor's feed. The overview asks for the
 // exercise (its seats' names) only once a seat has acted: without one the route answers 404.
 function takeEvent(e) {
-  if (e.type === 'exercise_end') showEnded(true, `At t = ${fmt(e.t_s, 2)} s, ${e.why}: commands are closed until the instructor starts a new run.`);
+  if (e.type === 'exercise_end') showEnded(true, endedWords(e.t_s, e.why));
   if (view === 'overview' && e.by && !['instructor', 'script'].includes(e.by) && !app.exercise) loadExercise();
   logEvent(e);
   feedEvent(e);
@@ -144,6 +144,7 @@ if (view !== 'records') connect({
       syncUnitForm();
     }
     addFrame(f);
+    noteSecondary(f);
     scheduleRedraw();
   },
   event: (e) => {

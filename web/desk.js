@@ -11,7 +11,7 @@ import { sendChange, confirmAction, describeCommand } from '/commands.js';
 import { readNumbers } from '/controls.js';
 import { alarmsNow, renderAlarms, onAlarms, fetchAlarms } from '/alarms.js';
 import { loadExercise } from '/exercise.js';
-import { objectivesBlock, fetchObjectives, showEnded } from '/objectives.js';
+import { objectivesBlock, fetchObjectives, showEnded, endedWords } from '/objectives.js';
 
 const POLL_MS = 2000;
 
@@ -82,7 +82,7 @@ async function addNote() {
 async function endExercise() {
   if (!(await confirmAction('End the exercise now? The simulation pauses, the seats can send nothing more, and the run is kept as complete.', 'End exercise'))) return;
   const r = await sendChange('end', '/api/v1/control', { action: 'end' }, 'exercise ended');
-  if (r) showEnded(true, 'ended by the instructor');
+  if (r) showEnded(true, endedWords(r.t_s, r.why));
   refreshObjectives();
 }
 

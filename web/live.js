@@ -1,6 +1,6 @@
 // What the stream shows besides the charts: the scenario's name, the clock and badges, the area
 // and unit tables, the sharing views, the disturbance panel and the event log.
-import { app, $, fmt, authorName } from '/state.js';
+import { app, $, fmt, authorName, unitStatusWords } from '/state.js';
 import { fillTable } from '/tables.js';
 import { drawDroop, drawPowerAngle } from '/views.js';
 
@@ -33,6 +33,7 @@ const AREA_COLUMNS = [
   ({ s }) => `${fmt(s.export_mw)} (${fmt(s.scheduled_export_mw)})`,
   ({ s }) => fmt(s.ace_mw),
   ({ s }) => (s.agc_enabled ? `${fmt(s.agc_mw)}${AGC_MODE_MARK[s.agc_mode] ?? ''}` : 'off'),
+  ({ s }) => fmt(s.shed_mw),
 ];
 
 const UNIT_COLUMNS = [
@@ -44,7 +45,7 @@ const UNIT_COLUMNS = [
   ({ s }) => `${fmt(s.headroom_up_mw)} / ${fmt(s.headroom_down_mw)}`,
   ({ s }) => `${fmt(s.droop, 3)}${s.mode === 'isochronous' ? ' iso' : ''}`,
   ({ s }) => `${fmt(s.deadband_hz * 1000, 0)} mHz`,
-  { value: ({ s }) => s.status.replace('_', ' '), className: ({ s }) => `state-${s.status}` },
+  { value: ({ s }) => unitStatusWords(s.status), className: ({ s }) => `state-${s.status}` },
   ({ share }) => `${fmt(100 * share, 0)} %`,
 ];
 
@@ -141,8 +142,24 @@ function disturbanceBox() {
     <dl>${DISTURBANCE_PAIRS.map(() => '<div class="pair"><dt></dt><dd></dd></div>').join('')}</dl>
     <details><summary>each unit's share</summary>
       <table class="grid"><thead><tr><th>unit</th><th>droop share MW</th><th>at +10 s</th><th>at +30 s</th></tr></thead><tbody></tbody></table>
-    </details>`;
+    </details>
+    <p class="caveat" hidden>Secondary control was on in this island during the settling window:
+      the settling frequency and the frequency response show it as well, not the droop response alone.</p>`;
   return div;
+}
+
+/**
+ * Marks each disturbance whose settling window (t0+20..52 s) a frame finds secondary control on
+ * in one of its island's areas, as the debrief does from the whole run.
+ */
+export function noteSecondary(f) {
+  for (const entry of app.disturbances.values()) {
+    const d = entry.d;
+    if (entry.secondary || !d || f.t_s < d.at_s + 20 || f.t_s > d.at_s + 52) continue;
+    if (!(d.island ?? []).some((a) => f.areas?.[a]?.agc_enabled)) continue;
+    entry.secondary = true;
+    entry.el.querySelector('.caveat').hidden = false;
+  }
 }
 
 // Updated in place on every message: the box (and whether its unit shares are open) stays.

@@ -49,6 +49,9 @@ export async function fetchObjectives(errorOut) {
 }
 
 /** Shows (or hides) the banner that the exercise has ended, with the reason when known. */
+/** The end banner's sentence, the same on every screen. */
+export const endedWords = (t_s, why) => `At t = ${fmt(t_s, 2)} s, ${why}: commands are closed until the instructor starts a new run.`;
+
 export function showEnded(ended, why = '') {
   const banner = $('exercise-ended');
   if (!banner) return;

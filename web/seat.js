@@ -4,7 +4,7 @@
 // load (shed and restore by hand) and secondary control (on/off, mode); per unit its state and its
 // own setpoint (optionally ramped), start and controlled stop. Only the seat's areas are offered;
 // whatever the server refuses shows in its words beside the control that sent it.
-import { app, $, fmt, el, button } from '/state.js';
+import { app, $, fmt, el, button, unitStatusWords } from '/state.js';
 import { api, ApiError } from '/api.js';
 import { sendAuth } from '/connection.js';
 import { sendCommand, AGC_MODE_NAMES, agcModeWords } from '/commands.js';
@@ -39,7 +39,7 @@ const AREA_FIGURES = [
   ['secondary control', (s) => (s.agc_enabled ? `on${s.agc_mode ? `, ${agcModeWords(s.agc_mode)}` : ''}, ${fmt(s.agc_mw, 1)} MW` : 'off')],
 ];
 const UNIT_FIGURES = [
-  ['state', (s) => s.status.replace('_', ' ')],
+  ['state', (s) => unitStatusWords(s.status)],
   ['output', (s) => `${fmt(s.p_mw, 1)} MW`],
   ['setpoint', (s) => `${fmt(s.setpoint_mw, 1)} MW`],
   ['headroom ↑', (s) => `${fmt(s.headroom_up_mw, 1)} MW`],

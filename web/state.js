@@ -64,3 +64,8 @@ export function authorName(by) {
   const seat = app.exercise?.seats?.find((s) => s.id === by);
   return seat ? seat.name : by;
 }
+
+/** A unit's state in words: at_max / at_min name the valve, whose limit it is. */
+export function unitStatusWords(status) {
+  return { at_max: 'valve at max', at_min: 'valve at min' }[status] ?? status.replace('_', ' ');
+}

@@ -9,6 +9,19 @@
 namespace droopline {
 namespace {
 
+// The secondary-control mode as the log says it to an operator.
+const char* agc_mode_words(AgcMode m) {
+  switch (m) {
+    case AgcMode::tie_line_bias:
+      return "tie-line bias control";
+    case AgcMode::constant_frequency:
+      return "constant frequency control";
+    case AgcMode::constant_interchange:
+      return "constant interchange control";
+  }
+  return "?";
+}
+
 std::string describe_command(const SystemDef& def, const Action& action, double value, std::uint32_t stage) {
   auto area = [&](AreaId a) -> const std::string& { return def.areas[a.index].id; };
   auto unit = [&](UnitId u) -> const std::string& { return def.units[u.index].id; };
@@ -49,7 +62,7 @@ std::string describe_command(const SystemDef& def, const Action& action, double 
     case CommandKind::agc: {
       const auto& c = std::get<AgcSwitch>(action);
       return std::string("secondary control ") + (c.enabled ? "on" : "off") + " in area " + area(c.area) +
-             (c.mode ? std::string(", mode ") + to_string(*c.mode) : "");
+             (c.mode ? std::string(", ") + agc_mode_words(*c.mode) : "");
     }
     case CommandKind::fluctuation: {
       const auto& c = std::get<Fluctuation>(action);

@@ -231,9 +231,12 @@ std::vector<AlarmChange> AlarmMonitor::update(const Engine& engine, const std::v
       case kUnitLimit: {
         const UnitStatus st = units[s].status;
         const bool at = st == UnitStatus::at_max || st == UnitStatus::at_min;
+        // The valve is at its limit: the governor can do no more, while the output may still be
+        // moving toward it behind the turbine's lag.
         level(w, at, !at, t, kRaiseDwellS, changes,
-              "unit " + unit_ids_[s] + " (" + area_ids_[unit_area_[s]] + ") at its " +
-                  (st == UnitStatus::at_max ? "upper" : "lower") + " limit, " + fmt_fixed(units[s].p_mw, 1) + " MW");
+              "unit " + unit_ids_[s] + " (" + area_ids_[unit_area_[s]] + "): valve at its " +
+                  (st == UnitStatus::at_max ? "upper" : "lower") + " limit, output " + fmt_fixed(units[s].p_mw, 1) +
+                  " MW");
         break;
       }
       case kReserve: {

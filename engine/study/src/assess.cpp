@@ -111,7 +111,9 @@ std::optional<Requirements> parse_requirements(std::string_view text, std::vecto
       }
     }
   }
-  if (r.limits.empty() && r.responses.empty()) err("", "no limits and no unit_response: nothing to check");
+  // Not said when a limit or response given wrongly has its own message above.
+  if (r.limits.empty() && r.responses.empty() && issues.empty())
+    err("", "no limits and no unit_response: nothing to check");
   if (!issues.empty()) return std::nullopt;
   return r;
 }
