@@ -27,7 +27,7 @@ function axes() {
   if (app.view !== 'wall') return [{ label: 'simulation time, s' }, {}];
   const px = Math.round(parseFloat(getComputedStyle(document.documentElement).fontSize));
   const font = `${px}px system-ui, sans-serif`;
-  return [{ label: 'simulation time, s', font, labelFont: `bold ${font}`, size: 2.4 * px, labelSize: 1.6 * px }, { font, size: 4.2 * px }];
+  return [{ label: 'simulation time, s', font, labelFont: `bold ${font}`, size: 2.4 * px, labelSize: 1.6 * px }, { font, size: 5.4 * px }]; // room for "49.975" in the axis font
 }
 
 function chartOptions(el, series, refLines, yRange) {
