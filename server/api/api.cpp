@@ -64,6 +64,17 @@ std::string quote_cut(std::string_view text) {
   return out + (text.size() > kMax ? "...\"" : "\"");
 }
 
+std::string unread_query(const Target& t, const std::vector<std::string>& reads, const std::string& route) {
+  for (const auto& [key, value] : t.query) {
+    if (std::find(reads.begin(), reads.end(), key) != reads.end()) continue;
+    std::string list;
+    for (const std::string& q : reads) list += (list.empty() ? "" : ", ") + q;
+    return "query parameter " + quote_cut(key) + ": not read by " + route +
+           (list.empty() ? " (it reads none)" : " (it reads " + list + ")");
+  }
+  return {};
+}
+
 bool query_number(const Target& t, const std::string& key, double fallback, double& out, std::string& error) {
   if (!t.has(key)) {
     out = fallback;
@@ -251,12 +262,9 @@ bool Api::handle(const Request& req, Respond respond) {
   }
   // A parameter the route does not read is refused, not ignored: a misspelt `form_s` would
   // otherwise quietly answer for the whole history.
-  for (const auto& [key, value] : call.target.query) {
-    if (std::find(route->query.begin(), route->query.end(), key) != route->query.end()) continue;
-    std::string takes;
-    for (const std::string& q : route->query) takes += (takes.empty() ? "" : ", ") + q;
-    call.error(400, "query parameter " + quote_cut(key) + ": not read by " + std::string(verb_name(route->verb)) + " " +
-                        route->pattern + (takes.empty() ? " (it reads none)" : " (it reads " + takes + ")"));
+  if (std::string unread = unread_query(call.target, route->query, std::string(verb_name(route->verb)) + " " + route->pattern);
+      !unread.empty()) {
+    call.error(400, unread);
     return true;
   }
   route->handler(services_, call);

@@ -132,6 +132,12 @@ std::string error_json(const std::string& message, const std::vector<std::string
 /// A client-supplied text quoted in a message: printable ASCII, cut to 120 characters, in quotes.
 std::string quote_cut(std::string_view text);
 
+/// The refusal of the first query parameter of `t` that `reads` does not list ("" when every one
+/// is read): routes through Api::handle, the stream's upgrade (`kStreamQuery`) through HttpSession.
+std::string unread_query(const Target& t, const std::vector<std::string>& reads, const std::string& route);
+/// The query parameters the stream reads (its route and its upgrade).
+inline const std::vector<std::string> kStreamQuery = {"history_s"};
+
 /// The decimal number `key` of the query (`fallback` when absent); false with `error` naming the
 /// parameter when it is not a finite decimal number.
 bool query_number(const Target& t, const std::string& key, double fallback, double& out, std::string& error);

@@ -452,7 +452,7 @@ void add_live_routes(std::vector<Route>& routes) {
                                   {Verb::get, "/api/v1/history", viewer, "", history, {"from_s", "to_s", "every_s", "format"}},
                                   {Verb::get, "/api/v1/events", viewer, "", events, {"since"}},
                                   {Verb::get, "/api/v1/record", viewer, "", record, {"from_s", "to_s", "part"}},
-                                  {Verb::get, "/api/v1/stream", viewer, "", stream, {"history_s"}},
+                                  {Verb::get, "/api/v1/stream", viewer, "", stream, kStreamQuery},
                                   {Verb::get, "/api/v1/exercise", viewer, "", get_exercise},
                                   {Verb::put, "/api/v1/exercise", instructor, kChanges, put_exercise},
                                   {Verb::get, "/api/v1/script", instructor, kScript, get_script},

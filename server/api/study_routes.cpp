@@ -126,6 +126,7 @@ void run_sweep_job(const study::SweepSpec& spec, const std::string& metric, Stud
   j.progress(r.rows.size(), std::max<std::uint64_t>(j.total.load(), r.rows.size()));
   j.status = r.cancelled ? "cancelled" : "done";
   j.result = study::sweep_to_json(spec, r);
+  j.result["status"] = j.status;  // a cancelled sweep's rows are the runs done before it stopped
   std::vector<std::string> paths;
   std::vector<std::vector<double>> axes;
   for (const auto& v : spec.vary) {
@@ -256,14 +257,7 @@ void sweep_result(Services& s, Call& c) {
     return c.error(404, "no plot: it needs one or two varied fields");
   Reply r;
   r.type = format == "json" ? "application/json" : format == "csv" ? "text/csv; charset=utf-8" : "image/svg+xml";
-  if (format == "json") {
-    // A cancelled sweep's rows are the runs done before it stopped: the answer says so.
-    nlohmann::ordered_json j = job->result;
-    if (j.is_object()) j["status"] = job->status;
-    r.body = j.dump();
-  } else {
-    r.body = job->artefact(format);
-  }
+  r.body = format == "json" ? job->result.dump() : job->artefact(format);
   r.headers.emplace_back("Droopline-Job-Status", job->status);
   c.respond(std::move(r));
 }

@@ -64,9 +64,10 @@ std::optional<std::string> HistoryStore::history(double from_s, double to_s, dou
   }
   // Rows are kept every output_every_s: a spacing between them would have to be rounded.
   const double ratio = every_s / out_dt;
-  if (every_s > 0.0 && (ratio < 0.5 || std::fabs(ratio - std::round(ratio)) > 1e-6 * ratio)) {
+  // At most 1e6 s: the spacing in rows stays a small integer (and no history is longer).
+  if (every_s > 0.0 && (ratio < 0.5 || every_s > 1e6 || std::fabs(ratio - std::round(ratio)) > 1e-6 * ratio)) {
     error = "query parameter every_s: must be 0 (every row) or a whole multiple of the recorded interval " +
-            fmt_num(out_dt) + " s (the scenario's output_every_s), got " + fmt_num(every_s);
+            fmt_num(out_dt) + " s (the scenario's output_every_s) up to 1e6 s, got " + fmt_num(every_s);
     return std::nullopt;
   }
   return rows_text(columns, rows, out_dt, from_s, to_s, every_s, csv);

@@ -164,9 +164,8 @@ void LiveSession::go_back(study::SavedState state, double from_t_s, const study:
   rebase();
   // In an exercise everyone sees that time went back, not the name the instructor gave the point.
   const bool named = savepoint && !exercise_;
-  const json which = !savepoint ? json(nullptr)
-                     : named    ? json{{"id", savepoint->id}, {"name", savepoint->name}}
-                                : json{{"id", savepoint->id}};
+  const json full = savepoint ? json{{"id", savepoint->id}, {"name", savepoint->name}} : json(nullptr);
+  const json which = savepoint && !named ? json{{"id", savepoint->id}} : full;
   const std::string text =
       named ? "save point \"" + savepoint->name + "\" restored: back from t = " + fmt_fixed(from_t_s, 2) +
                   " s to t = " + fmt_fixed(t_s, 2) + " s"
@@ -177,11 +176,8 @@ void LiveSession::go_back(study::SavedState state, double from_t_s, const study:
                   {"by", author},
                   {"savepoint", which},
                   {"text", text}});
-  done(accepted(json{{"ok", true},
-                     {"t_s", t_s},
-                     {"from_t_s", from_t_s},
-                     {"savepoint", savepoint ? json{{"id", savepoint->id}, {"name", savepoint->name}} : json(nullptr)},
-                     {"refused_commands", waiting}}));
+  done(accepted(
+      json{{"ok", true}, {"t_s", t_s}, {"from_t_s", from_t_s}, {"savepoint", full}, {"refused_commands", waiting}}));
 }
 
 }  // namespace droopline

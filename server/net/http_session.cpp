@@ -195,9 +195,8 @@ void HttpSession::upgrade(HttpRequest&& req) {
   };
   if (t.path != "/api/v1/stream") return refuse(404, "WebSocket is served at /api/v1/stream only");
   // ?history_s=N: the greeting carries only the history's last N seconds (0: none; default all).
-  for (const auto& [key, value] : t.query)
-    if (key != "history_s")
-      return refuse(400, "query parameter " + quote_cut(key) + ": not read by the stream (it reads history_s)");
+  if (std::string unread = unread_query(t, kStreamQuery, "GET /api/v1/stream"); !unread.empty())
+    return refuse(400, unread);
   double history_s = -1.0;
   std::string bad;
   if (!query_number(t, "history_s", -1.0, history_s, bad)) return refuse(400, bad);
